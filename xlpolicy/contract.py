@@ -1,0 +1,230 @@
+"""The workbook contract in code: input sheets, columns, settings and output keys.
+
+This module is the single source of truth that the reader, the validator, the template
+writer, the output writers and the README tables are built from, so they cannot drift
+apart. Names follow ../shared/contract.md.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+
+# ---------------------------------------------------------------------------
+# Header matching
+# ---------------------------------------------------------------------------
+
+_BRACKET_UNIT = re.compile(r"[\(\[\{]([^\)\]\}]*)[\)\]\}]\s*$")
+
+
+def normalise(text: object) -> str:
+    """Fold a header or setting name for loose matching.
+
+    Case, spaces, underscores and punctuation are ignored: "Lead time days" and
+    "LEAD_TIME-DAYS" both give "leadtimedays".
+    """
+    return re.sub(r"[^0-9a-z]", "", str(text).lower())
+
+
+def header_forms(text: object) -> tuple[str, str, str]:
+    """The ways a header can match, and its unit.
+
+    Returns (without the bracketed unit, with it, the unit itself), all normalised, so
+    "Lead time (days)" matches both "lead time" and "lead time days" and its unit is "days".
+    A "%" unit is kept as "%" so that percent columns can be recognised.
+    """
+    raw = str(text).strip()
+    m = _BRACKET_UNIT.search(raw)
+    if not m:
+        n = normalise(raw)
+        return n, n, ""
+    unit_raw = m.group(1).strip()
+    unit = "%" if "%" in unit_raw else normalise(unit_raw)
+    base = normalise(raw[: m.start()])
+    return base, base + normalise(unit_raw), unit
+
+
+# ---------------------------------------------------------------------------
+# Input columns
+# ---------------------------------------------------------------------------
+
+TEXT = "text"
+NUMBER = "number"
+RATE = "rate"  # a fraction; accepts 0.14, 14 % formatted, "14%"
+
+
+@dataclass(frozen=True)
+class Column:
+    """One input column: its key, the header the template writes, and how to read it."""
+
+    key: str
+    title: str
+    kind: str
+    required: str  # "yes", "no", or "unless set in Settings"
+    meaning: str
+    aliases: tuple[str, ...] = ()
+
+    def names(self) -> set[str]:
+        """Every normalised spelling that selects this column."""
+        out = {normalise(self.key), normalise(self.title)}
+        out.update(normalise(a) for a in self.aliases)
+        return out
+
+
+ITEM_COLUMNS: tuple[Column, ...] = (
+    Column("item", "Item", TEXT, "yes",
+           "The item's code, unique. Kept as text: 000123 stays 000123.",
+           ("sku", "item code", "item no", "item number", "code", "product code", "part number",
+            "part no", "article", "stock code")),
+    Column("description", "Description", TEXT, "no", "What the item is; carried to the output.",
+           ("item description", "item name", "name", "product name")),
+    Column("category", "Category", TEXT, "no", "A group for the summary; carried to the output.",
+           ("group", "product group", "department", "family")),
+    Column("supplier", "Supplier", TEXT, "no",
+           "Who it is bought from; the reorder list groups by it.",
+           ("vendor", "supplier name", "vendor name")),
+    Column("unit_cost", "Unit cost", NUMBER, "yes", "What one unit costs to buy, more than 0.",
+           ("cost", "cost per unit", "unit price paid", "purchase price", "buy price")),
+    Column("order_cost", "Order cost", NUMBER, "unless set in Settings",
+           "Cost of placing and receiving one order (admin, delivery), 0 or more.",
+           ("ordering cost", "cost per order", "setup cost", "order handling cost")),
+    Column("holding_rate", "Holding rate", RATE, "unless set in Settings",
+           "Yearly cost of keeping stock, as a fraction of unit cost (0.25 or 25%).",
+           ("carrying rate", "holding cost rate", "carrying cost rate", "annual holding rate",
+            "holding")),
+    Column("lead_time_days", "Lead time days", NUMBER, "yes",
+           "Days from placing an order to having the goods on the shelf, more than 0.",
+           ("lead time", "leadtime", "lt days", "supplier lead time", "delivery days")),
+    Column("lead_time_sd_days", "Lead time sd days", NUMBER, "no",
+           "How much the lead time varies: its standard deviation in days, 0 or more.",
+           ("lead time sd", "lead time std dev", "lead time standard deviation",
+            "lead time std", "lt sd")),
+    Column("service_target", "Service target", RATE, "no",
+           "Target for the service measure, between 0 and 1 (0.95 or 95%). "
+           "Blank: the Settings default.",
+           ("service level", "target service", "service", "target")),
+    Column("shortage_cost", "Shortage cost", NUMBER, "no",
+           "Cost of each unit short; used when the service measure is 'shortage cost'.",
+           ("stockout cost", "backorder cost", "cost per unit short", "penalty cost")),
+    Column("pack_size", "Pack size", NUMBER, "no",
+           "Orders come in whole multiples of this many units (a case, a box).",
+           ("case size", "pack qty", "case qty", "order multiple", "units per pack", "pack")),
+    Column("minimum_order", "Minimum order", NUMBER, "no",
+           "Smallest quantity the supplier accepts, in units.",
+           ("moq", "min order", "minimum order qty", "minimum order quantity", "min order qty")),
+    Column("on_hand", "On hand", NUMBER, "no", "Units on the shelf now; for the reorder list.",
+           ("stock", "qty on hand", "stock on hand", "in stock", "soh")),
+    Column("on_order", "On order", NUMBER, "no", "Units ordered but not yet received.",
+           ("open orders", "qty on order", "incoming")),
+    Column("backordered", "Backordered", NUMBER, "no", "Units customers are waiting for.",
+           ("backorders", "back orders", "owed to customers")),
+    Column("current_order_qty", "Current order qty", NUMBER, "no",
+           "The order quantity used today, for comparison.",
+           ("current order quantity", "current q", "order qty now")),
+    Column("current_reorder_point", "Current reorder point", NUMBER, "no",
+           "The reorder point used today, for comparison.",
+           ("current rop", "reorder point now", "current reorder level")),
+    Column("annual_demand", "Annual demand", NUMBER, "no",
+           "Units sold per year, for an item with no history.",
+           ("demand per year", "yearly demand", "annual usage", "annual sales")),
+    Column("demand_sd", "Demand sd", NUMBER, "no",
+           "Standard deviation of demand per period (see Settings: period), "
+           "for an item with no history.",
+           ("demand sd per period", "demand std dev", "demand standard deviation", "sd of demand")),
+)
+
+ITEM_COLUMN_BY_KEY = {c.key: c for c in ITEM_COLUMNS}
+
+HISTORY_LONG_COLUMNS: tuple[Column, ...] = (
+    Column("item", "Item", TEXT, "yes", "The item's code, as in Items.", ITEM_COLUMNS[0].aliases),
+    Column("period", "Period", TEXT, "yes",
+           "A date (the period's first day) or a period number or label.",
+           ("date", "week", "month", "day", "period start", "week starting", "month starting")),
+    Column("quantity", "Quantity", NUMBER, "yes", "Units sold (demanded) in that period.",
+           ("qty", "units", "demand", "sales", "units sold", "quantity sold", "sold")),
+)
+
+
+# ---------------------------------------------------------------------------
+# Settings
+# ---------------------------------------------------------------------------
+
+CYCLE_SERVICE = "cycle service"
+FILL_RATE = "fill rate"
+SHORTAGE_COST = "shortage cost"
+SERVICE_MEASURES = (CYCLE_SERVICE, FILL_RATE, SHORTAGE_COST)
+
+PERIODS = {"day": 1.0, "week": 7.0, "month": 365.0 / 12.0}
+PERIODS_PER_YEAR = {"day": 365.0, "week": 52.0, "month": 12.0}
+
+
+@dataclass(frozen=True)
+class Setting:
+    """One row of the Settings sheet."""
+
+    key: str
+    title: str
+    default: object
+    meaning: str
+    aliases: tuple[str, ...] = ()
+
+    def names(self) -> set[str]:
+        out = {normalise(self.key), normalise(self.title)}
+        out.update(normalise(a) for a in self.aliases)
+        return out
+
+
+SETTINGS: tuple[Setting, ...] = (
+    Setting("period", "Period", "week",
+            "Length of one history period: day, week or month. "
+            "Inferred from dates where History has them.",
+            ("history period", "period length", "bucket")),
+    Setting("periods_per_year", "Periods per year", None,
+            "For turning per-period demand into yearly demand. Blank: 365, 52 or 12 by period.",
+            ("periods a year",)),
+    Setting("service_measure", "Service measure", CYCLE_SERVICE,
+            "How the reorder point is set: 'cycle service', 'fill rate' or 'shortage cost'.",
+            ("service type", "service metric", "measure")),
+    Setting("service_target", "Service target", 0.95,
+            "Target for items that leave theirs blank, between 0 and 1.",
+            ("service level", "default service target", "target")),
+    Setting("holding_rate", "Holding rate", None,
+            "Yearly holding cost as a fraction of unit cost, for items that leave it blank.",
+            ("carrying rate", "default holding rate", "holding cost rate")),
+    Setting("order_cost", "Order cost", None,
+            "Cost of one order, for items that leave it blank.",
+            ("ordering cost", "default order cost", "cost per order")),
+    Setting("currency", "Currency", None,
+            "Symbol or code shown in money formats, e.g. $, EUR, £.",
+            ("currency symbol", "money")),
+)
+
+SETTING_BY_KEY = {s.key: s for s in SETTINGS}
+
+
+# ---------------------------------------------------------------------------
+# Output keys (CSV, JSON and the per-item policy sheet)
+# ---------------------------------------------------------------------------
+
+#: The contract's keys, in the contract's order. More may follow (EXTRA_RESULT_KEYS).
+RESULT_KEYS: tuple[str, ...] = (
+    "item", "status", "model", "annual_demand", "demand_per_period", "demand_sd_per_period",
+    "lead_time_days", "lead_time_demand_mean", "lead_time_demand_sd", "service_measure",
+    "service_target", "order_qty", "reorder_point", "safety_stock", "cycle_service", "fill_rate",
+    "orders_per_year", "annual_ordering_cost", "annual_cycle_holding_cost",
+    "annual_safety_holding_cost", "annual_shortage_cost", "annual_total_cost",
+)
+
+#: Keys after the contract's, for the reader and the accountant.
+EXTRA_RESULT_KEYS: tuple[str, ...] = (
+    "description", "category", "supplier", "unit_cost", "order_cost", "holding_rate",
+    "shortage_cost", "pack_size", "minimum_order", "demand_source", "history_periods",
+    "eoq", "expected_units_short_per_cycle", "annual_purchase_cost",
+    "average_inventory_value", "inventory_position", "order_now_qty",
+)
+
+ALL_RESULT_KEYS: tuple[str, ...] = RESULT_KEYS + EXTRA_RESULT_KEYS
+
+STATUS_OK = "ok"
+STATUS_WARNING = "warning"
+STATUS_SKIPPED = "skipped"

@@ -1,0 +1,141 @@
+"""Problems found in a workbook or a policy, kept as data.
+
+Every check in xlpolicy reports through :class:`Problem` rather than raising, so that one
+run can tell the user about every bad cell at once, the console and the warnings sheet can
+show the same list, and tests can assert on sheet, cell and wording.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from enum import Enum
+from typing import Any
+
+
+class Severity(str, Enum):
+    """How bad a problem is, from the user's point of view.
+
+    ``fatal``: the workbook cannot be used at all (exit status 1).
+    ``error``: the row or item is skipped; the run goes on.
+    ``warning``: the item is planned, but a number may not be trustworthy.
+    ``info``: worth knowing; nothing is wrong.
+    """
+
+    FATAL = "fatal"
+    ERROR = "error"
+    WARNING = "warning"
+    INFO = "info"
+
+    @property
+    def rank(self) -> int:
+        """Sort key: most severe first."""
+        return {"fatal": 0, "error": 1, "warning": 2, "info": 3}[self.value]
+
+
+@dataclass(frozen=True)
+class Problem:
+    """One thing wrong (or worth saying) about the input or a result.
+
+    ``cell`` is an A1 reference as the user sees it in their spreadsheet program ("C7"),
+    or "" when the problem belongs to a whole sheet or item. ``value`` is the raw value
+    found, as the user typed it, so they can recognise it.
+    """
+
+    severity: Severity
+    sheet: str
+    cell: str
+    item: str
+    value: Any
+    message: str
+    code: str = ""
+
+    def where(self) -> str:
+        """Human-readable location, e.g. "Items!C7" or "History"."""
+        if self.sheet and self.cell:
+            return f"{self.sheet}!{self.cell}"
+        return self.sheet or ""
+
+    def as_dict(self) -> dict[str, Any]:
+        """Plain dict, for JSON output and tests."""
+        return {
+            "severity": self.severity.value,
+            "sheet": self.sheet,
+            "cell": self.cell,
+            "item": self.item,
+            "value": _plain(self.value),
+            "message": self.message,
+            "code": self.code,
+        }
+
+
+def _plain(value: Any) -> Any:
+    """A JSON-friendly form of a raw cell value."""
+    if value is None or isinstance(value, (str, int, float, bool)):
+        return value
+    return str(value)
+
+
+@dataclass
+class ProblemLog:
+    """An ordered collection of problems with small helpers for the common cases."""
+
+    problems: list[Problem] = field(default_factory=list)
+
+    def add(
+        self,
+        severity: Severity,
+        message: str,
+        *,
+        sheet: str = "",
+        cell: str = "",
+        item: str = "",
+        value: Any = None,
+        code: str = "",
+    ) -> Problem:
+        """Record a problem and return it."""
+        p = Problem(severity, sheet, cell, item, value, message, code)
+        self.problems.append(p)
+        return p
+
+    def fatal(self, message: str, **kw: Any) -> Problem:
+        return self.add(Severity.FATAL, message, **kw)
+
+    def error(self, message: str, **kw: Any) -> Problem:
+        return self.add(Severity.ERROR, message, **kw)
+
+    def warning(self, message: str, **kw: Any) -> Problem:
+        return self.add(Severity.WARNING, message, **kw)
+
+    def info(self, message: str, **kw: Any) -> Problem:
+        return self.add(Severity.INFO, message, **kw)
+
+    def extend(self, other: ProblemLog | list[Problem]) -> None:
+        self.problems.extend(other.problems if isinstance(other, ProblemLog) else other)
+
+    @property
+    def has_fatal(self) -> bool:
+        return any(p.severity is Severity.FATAL for p in self.problems)
+
+    def count(self, severity: Severity) -> int:
+        return sum(1 for p in self.problems if p.severity is severity)
+
+    def sorted(self) -> list[Problem]:
+        """Most severe first, then in the order found (stable)."""
+        return sorted(self.problems, key=lambda p: p.severity.rank)
+
+    def __iter__(self):  # type: ignore[no-untyped-def]
+        return iter(self.problems)
+
+    def __len__(self) -> int:
+        return len(self.problems)
+
+
+class UnusableWorkbook(Exception):
+    """Raised when the input cannot be used at all; carries the fatal problems.
+
+    The CLI turns it into a message and exit status 1, never a traceback.
+    """
+
+    def __init__(self, problems: list[Problem]):
+        self.problems = problems
+        super().__init__("; ".join(p.message for p in problems))
