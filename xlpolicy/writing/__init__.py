@@ -1,0 +1,1 @@
+"""Writers of the generated sheets and of the workbook that carries them."""
