@@ -1,0 +1,115 @@
+"""The per-item table as CSV and JSON, for other programs.
+
+Both carry every key of ``contract.ALL_RESULT_KEYS`` in that order, unrounded, with item
+codes as text; a missing number is an empty CSV field or a JSON null. Files are written
+under a temporary name beside the target and moved into place when complete.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import json
+import math
+from enum import Enum
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from .. import contract
+from ..report import Report
+from .atomic import atomic_output
+
+
+def _code(value: Any) -> Any:
+    """An item code as text: 123.0 read as a number becomes "123"; missing stays missing."""
+    if value is None:
+        return None
+    if isinstance(value, (float, np.floating)):
+        if math.isnan(value):
+            return None
+        if float(value).is_integer():
+            return str(int(value))
+    if isinstance(value, np.integer):
+        return str(int(value))
+    if not isinstance(value, str) and pd.isna(value):
+        return None
+    return str(value)
+
+
+def results_for_export(report: Report) -> pd.DataFrame:
+    """The results with exactly ``contract.ALL_RESULT_KEYS`` as columns, in that order.
+
+    Missing keys become empty columns; skipped items keep their empty (NaN) numbers; the
+    item column is text so codes such as "000123" keep their leading zeros.
+    """
+    res = report.results if report.results is not None else pd.DataFrame()
+    out = res.reset_index(drop=True).reindex(columns=list(contract.ALL_RESULT_KEYS))
+    out["item"] = out["item"].map(_code).astype(object)
+    return out
+
+
+def write_csv(path: Path, report: Report) -> None:
+    """Write the per-item table as UTF-8 CSV.
+
+    Header = the keys; empty field for a missing value; floats at full (repr) precision so
+    a reader gets back exactly the computed number.
+    """
+    table = results_for_export(report)
+    with atomic_output(Path(path)) as tmp:
+        table.to_csv(tmp, index=False, encoding="utf-8", na_rep="", lineterminator="\n")
+
+
+def plain(value: Any) -> Any:
+    """A JSON-ready form of a value: numpy scalars to Python, NaN and infinities to None,
+    dates to ISO text, containers converted throughout."""
+    if value is None or isinstance(value, (bool, str)):
+        return value
+    if isinstance(value, Enum):
+        return plain(value.value)
+    if isinstance(value, (np.bool_,)):
+        return bool(value)
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        f = float(value)
+        return f if math.isfinite(f) else None
+    if isinstance(value, dict):
+        return {str(k): plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple, set, np.ndarray, pd.Series)):
+        return [plain(v) for v in (value.tolist() if hasattr(value, "tolist") else value)]
+    if isinstance(value, np.datetime64):
+        value = pd.Timestamp(value)
+    if isinstance(value, (_dt.date, _dt.datetime, _dt.time)):
+        if isinstance(value, pd.Timestamp) and pd.isna(value):
+            return None
+        return value.isoformat()
+    try:
+        if pd.isna(value):
+            return None
+    except (TypeError, ValueError):
+        pass
+    return str(value)
+
+
+def write_json(path: Path, report: Report) -> None:
+    """Write items, problems, settings and totals as strict JSON (NaN becomes null).
+
+    Also carries ``source_name``, ``run_date`` and ``input_summary`` so a reader knows what
+    the numbers came from.
+    """
+    table = results_for_export(report)
+    items = [{k: plain(v) for k, v in rec.items()} for rec in table.to_dict("records")]
+    doc = {
+        "source_name": plain(report.source_name),
+        "run_date": plain(report.run_date),
+        "input_summary": plain(dict(report.input_summary or {})),
+        "items": items,
+        "problems": [plain(p.as_dict()) for p in report.problems or []],
+        "settings": plain(dict(report.settings or {})),
+        "totals": plain(dict(report.totals or {})),
+    }
+    text = json.dumps(doc, ensure_ascii=False, indent=2, allow_nan=False)
+    with atomic_output(Path(path)) as tmp:
+        Path(tmp).write_text(text + "\n", encoding="utf-8")
