@@ -1,0 +1,62 @@
+"""Reading and checking the user's workbook: sheets, headers, cells, settings, history."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from ..problems import ProblemLog
+from .history import History, read_history
+from .items import ItemTable, read_items
+from .settings import finish_period, read_settings, resolve_settings
+from .workbook import WorkbookFile
+
+
+@dataclass
+class InputData:
+    """Everything read from one workbook, before any computation."""
+
+    path: Path
+    items: ItemTable
+    history: History | None
+    settings: dict[str, Any]
+    sheet_names: list[str]
+
+
+def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog) -> InputData | None:
+    """Read Settings, Items and History; None when the workbook cannot be used (fatal logged)."""
+    wb = WorkbookFile(Path(path), log)
+    if not wb.open():
+        return None
+    try:
+        items_name = wb.find_sheet("Items")
+        if items_name is None:
+            log.fatal(
+                f"{Path(path).name} has no 'Items' sheet (sheets found: "
+                + ", ".join(repr(n) for n in wb.sheet_names)
+                + "). Add a sheet named Items with one row per item, or rename yours "
+                "(run 'xlpolicy template' for an example).", code="items-sheet-missing")
+            return None
+        settings_name = wb.find_sheet("Settings")
+        settings_sheet = wb.read(settings_name) if settings_name else None
+        settings = resolve_settings(read_settings(settings_sheet, log), overrides, log,
+                                    settings_name or "Settings")
+        items = read_items(wb.read(items_name), settings, log)
+        if items is None:
+            return None
+        history_name = wb.find_sheet("History")
+        history = None
+        if history_name is not None:
+            history = read_history(wb.read(history_name), set(items.df["item"]), settings, log)
+            if history is None:
+                return None
+            if history.period is not None and (
+                    history.period != settings["period"]
+                    or settings["sources"]["period"] == "default"):
+                settings["period"] = history.period
+                settings["sources"]["period"] = f"inferred from {history_name} dates"
+                finish_period(settings)
+        return InputData(Path(path), items, history, settings, list(wb.sheet_names))
+    finally:
+        wb.close()

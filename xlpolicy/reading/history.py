@@ -1,0 +1,337 @@
+"""Reading the History sheet in either layout into an items x periods matrix.
+
+Long layout: one row per item and period (Item, Period, Quantity); several rows for the
+same item and period are added up, so a list of sales transactions works too.
+Wide layout: one row per item, one column per period.
+
+A period with no row (long) or an empty cell (wide) inside the span counts as zero demand;
+the span runs from the first period in the sheet to the last. A cell that cannot be read
+becomes NaN in the matrix (left out of that item's statistics) and is reported.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import re
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from ..contract import HISTORY_LONG_COLUMNS, ITEM_COLUMNS, PERIODS, normalise
+from ..problems import ProblemLog
+from .cells import describe, is_blank, item_code, parse_number
+from .workbook import RawSheet, cell_ref, find_header
+
+_ISO_DATE = re.compile(r"^\d{4}-\d{2}-\d{2}([ T].*)?$")
+_ISO_MONTH = re.compile(r"^(\d{4})-(\d{2})$")
+_PERIOD_ORDER = {"day": 0, "week": 1, "month": 2}
+
+
+@dataclass
+class History:
+    """Demand per item and period.
+
+    ``matrix[i, t]`` is the demand of ``items[i]`` in period ``t``; NaN marks a cell that
+    could not be read. ``period`` is the period length used ("day", "week", "month") when
+    the periods are dates, else None (labels or numbers; the Settings period applies).
+    """
+
+    sheet: str
+    layout: str
+    items: list[str]
+    matrix: np.ndarray
+    labels: list[Any]
+    period: str | None
+    first_cell: dict[str, str] = field(default_factory=dict)
+
+    def index(self) -> dict[str, int]:
+        return {code: i for i, code in enumerate(self.items)}
+
+
+def _as_date(value: Any) -> _dt.date | None:
+    """A period value as a date, if it is one (a real date or ISO text)."""
+    if isinstance(value, _dt.datetime):
+        return value.date()
+    if isinstance(value, _dt.date):
+        return value
+    if isinstance(value, str):
+        s = value.strip()
+        if _ISO_DATE.match(s):
+            try:
+                return _dt.date.fromisoformat(s[:10])
+            except ValueError:
+                return None
+        m = _ISO_MONTH.match(s)
+        if m and 1 <= int(m.group(2)) <= 12:
+            return _dt.date(int(m.group(1)), int(m.group(2)), 1)
+    return None
+
+
+def infer_period(dates: list[_dt.date]) -> str | None:
+    """day, week or month from the typical spacing of distinct dates, or None if unclear."""
+    uniq = sorted(set(dates))
+    if len(uniq) < 2:
+        return None
+    gaps = np.diff(np.array([d.toordinal() for d in uniq]))
+    g = float(np.median(gaps))
+    if g <= 1.5:
+        return "day"
+    if 5 <= g <= 9:
+        return "week"
+    if 27 <= g <= 32:
+        return "month"
+    return None
+
+
+def _bucket(dates: list[_dt.date], period: str) -> tuple[np.ndarray, list[_dt.date]]:
+    """Period index of each date from the earliest, and each period's first day."""
+    d0 = min(dates)
+    if period == "month":
+        base = d0.year * 12 + d0.month - 1
+        idx = np.array([d.year * 12 + d.month - 1 - base for d in dates], dtype=np.int64)
+        n = int(idx.max()) + 1 if len(idx) else 0
+        labels = [_dt.date((base + k) // 12, (base + k) % 12 + 1, 1) for k in range(n)]
+        return idx, labels
+    step = 1 if period == "day" else 7
+    o0 = d0.toordinal()
+    idx = np.array([(d.toordinal() - o0) // step for d in dates], dtype=np.int64)
+    n = int(idx.max()) + 1 if len(idx) else 0
+    labels = [_dt.date.fromordinal(o0 + k * step) for k in range(n)]
+    return idx, labels
+
+
+def choose_period(dates: list[_dt.date], settings: dict[str, Any], sheet: str,
+                  log: ProblemLog) -> str:
+    """The period to bucket dated history into, reconciling the dates with Settings."""
+    inferred = infer_period(dates)
+    explicit = not str(settings["sources"].get("period", "default")).startswith("default")
+    wanted = settings["period"]
+    if inferred is None:
+        if not explicit:
+            log.warning(
+                "The History dates are not evenly spaced by day, week or month, so the period "
+                f"could not be inferred; '{wanted}' was used. Set 'Period' in Settings if that "
+                "is wrong.", sheet=sheet, code="history-period-unclear")
+        return wanted
+    if explicit and _PERIOD_ORDER[wanted] > _PERIOD_ORDER[inferred]:
+        log.info(f"History dates are {inferred}ly; they were added up into {wanted}s as "
+                 "Settings asks.", sheet=sheet, code="history-aggregated")
+        return wanted
+    if explicit and wanted != inferred:
+        log.warning(
+            f"Settings says the period is '{wanted}' but the History dates are {inferred}ly; "
+            f"'{inferred}' was used. Correct the Settings period or the dates.",
+            sheet=sheet, code="history-period-mismatch")
+    return inferred
+
+
+def read_history(sheet: RawSheet, known_items: set[str], settings: dict[str, Any],
+                 log: ProblemLog) -> History | None:
+    """Read History in whichever layout its header shows; None (fatal) if neither."""
+    long_header = find_header(sheet, HISTORY_LONG_COLUMNS, min_matches=3)
+    if long_header is not None:
+        return _read_long(sheet, long_header.columns, long_header.row_index, known_items,
+                          settings, log)
+    wide = _find_wide_header(sheet)
+    if wide is not None:
+        return _read_wide(sheet, *wide, known_items, settings, log)
+    log.fatal(
+        f"The sheet '{sheet.name}' has no header row that I can read. Use either columns "
+        "Item, Period, Quantity (one row per item and period), or Item followed by one "
+        "column per period with dates or labels as headers.",
+        sheet=sheet.name, cell="A1", code="history-no-header")
+    return None
+
+
+def _find_wide_header(sheet: RawSheet, scan_rows: int = 30) -> tuple[int, int, list[int]] | None:
+    """(row index, item column, period columns) of a wide-layout header, or None."""
+    item_names = next(c for c in ITEM_COLUMNS if c.key == "item").names()
+    text_names = set().union(*(c.names() for c in ITEM_COLUMNS if c.key != "item"))
+    for idx, row in enumerate(sheet.rows[:scan_rows]):
+        item_col = next((j for j, v in enumerate(row) if isinstance(v, str)
+                         and normalise(v) in item_names), None)
+        if item_col is None:
+            continue
+        periods = [j for j, v in enumerate(row) if j > item_col and not is_blank(v)
+                   and not (isinstance(v, str) and normalise(v) in text_names)]
+        if len(periods) >= 2:
+            return idx, item_col, periods
+    return None
+
+
+def _period_axis(raw_periods: list[Any], settings: dict[str, Any], sheet: str,
+                 log: ProblemLog) -> tuple[np.ndarray, list[Any], str | None, list[int]]:
+    """Map raw period values to column indices of the matrix.
+
+    Returns (index per value, -1 where unusable), the labels of the axis, the period if
+    dates, and the positions of unusable values.
+    """
+    dates = [_as_date(v) for v in raw_periods]
+    n_dates = sum(d is not None for d in dates)
+    bad: list[int] = []
+    if n_dates and n_dates >= len(raw_periods) / 2:
+        good = [d for d in dates if d is not None]
+        period = choose_period(good, settings, sheet, log)
+        idx_good, labels = _bucket(good, period)
+        idx = np.full(len(raw_periods), -1, dtype=np.int64)
+        k = 0
+        for pos, d in enumerate(dates):
+            if d is None:
+                bad.append(pos)
+            else:
+                idx[pos] = idx_good[k]
+                k += 1
+        return idx, labels, period, bad
+    # Period numbers or labels: numbers span min..max (gaps are zero); labels keep the
+    # order in which they first appear.
+    nums = [v for v in raw_periods if isinstance(v, (int, float)) and not isinstance(v, bool)]
+    if nums and len(nums) == len(raw_periods) and all(float(v).is_integer() for v in nums):
+        ints = np.array([int(v) for v in nums], dtype=np.int64)
+        lo = int(ints.min())
+        return ints - lo, list(range(lo, int(ints.max()) + 1)), None, bad
+    order: dict[str, int] = {}
+    idx = np.full(len(raw_periods), -1, dtype=np.int64)
+    for pos, v in enumerate(raw_periods):
+        if is_blank(v):
+            bad.append(pos)
+            continue
+        key = str(v).strip()
+        idx[pos] = order.setdefault(key, len(order))
+    return idx, list(order), None, bad
+
+
+def _read_long(sheet: RawSheet, cols: dict[str, int], hidx: int, known: set[str],
+               settings: dict[str, Any], log: ProblemLog) -> History:
+    ji, jp, jq = cols["item"], cols["period"], cols["quantity"]
+    codes: list[str] = []
+    periods: list[Any] = []
+    qty: list[float] = []
+    rows: list[int] = []
+    unknown_seen: set[str] = set()
+    first_cell: dict[str, str] = {}
+    for values, rownum in zip(sheet.rows[hidx + 1:], sheet.row_numbers[hidx + 1:],
+                               strict=True):
+        def get(j: int, vals: list[Any] = values) -> Any:
+            return vals[j] if j < len(vals) else None
+
+        if all(is_blank(v) for v in values):
+            continue
+        code = item_code(get(ji))
+        if code is None:
+            log.warning("A History row has no item code; it was ignored. Fill in the item code "
+                        "or delete the row.", sheet=sheet.name, cell=cell_ref(ji, rownum),
+                        code="history-item-missing")
+            continue
+        if code not in known:
+            if code not in unknown_seen:
+                unknown_seen.add(code)
+                log.warning(
+                    f"History has item {code!r}, which is not in the Items sheet; its rows were "
+                    "ignored. Add the item to Items or correct the code.",
+                    sheet=sheet.name, cell=cell_ref(ji, rownum), item=code, value=get(ji),
+                    code="history-unknown-item")
+            continue
+        first_cell.setdefault(code, cell_ref(ji, rownum))
+        x = _quantity(get(jq), cell_ref(jq, rownum), sheet, code, log,
+                      uncalculated=cell_ref(jq, rownum) in sheet.uncalculated)
+        codes.append(code)
+        periods.append(get(jp))
+        qty.append(x)
+        rows.append(rownum)
+    pidx, labels, period, bad = _period_axis(periods, settings, sheet.name, log)
+    for pos in bad:
+        log.warning(
+            f"Period {describe(periods[pos])} is not a date like the others (or is blank); "
+            "the row was ignored. Write the period as a date.",
+            sheet=sheet.name, cell=cell_ref(jp, rows[pos]), item=codes[pos],
+            value=periods[pos], code="history-period-bad")
+    items = list(dict.fromkeys(codes))
+    pos_of = {c: i for i, c in enumerate(items)}
+    matrix = np.zeros((len(items), len(labels)), dtype=float)
+    keep = pidx >= 0
+    if keep.any():
+        r = np.fromiter((pos_of[c] for c in codes), dtype=np.int64, count=len(codes))[keep]
+        # np.add.at adds duplicates (several transactions in one period); NaN propagates,
+        # so a bucket with an unreadable row is excluded from the statistics.
+        np.add.at(matrix, (r, pidx[keep]), np.asarray(qty, dtype=float)[keep])
+    return History(sheet.name, "long", items, matrix, labels, period, first_cell)
+
+
+def _read_wide(sheet: RawSheet, hidx: int, ji: int, pcols: list[int], known: set[str],
+               settings: dict[str, Any], log: ProblemLog) -> History:
+    header = sheet.rows[hidx]
+    raw_periods = [header[j] for j in pcols]
+    pidx, labels, period, bad = _period_axis(raw_periods, settings, sheet.name, log)
+    hrow = sheet.row_numbers[hidx]
+    for pos in bad:
+        log.warning(f"Column header {describe(raw_periods[pos])} is not a date like the others; "
+                    "the column was ignored.", sheet=sheet.name,
+                    cell=cell_ref(pcols[pos], hrow), value=raw_periods[pos],
+                    code="history-period-bad")
+    items: list[str] = []
+    first_cell: dict[str, str] = {}
+    rows_out: list[np.ndarray] = []
+    for values, rownum in zip(sheet.rows[hidx + 1:], sheet.row_numbers[hidx + 1:], strict=True):
+        if all(is_blank(v) for v in values):
+            continue
+        code = item_code(values[ji] if ji < len(values) else None)
+        ref = cell_ref(ji, rownum)
+        if code is None:
+            log.warning("A History row has no item code; it was ignored.", sheet=sheet.name,
+                        cell=ref, code="history-item-missing")
+            continue
+        if code not in known:
+            log.warning(
+                f"History has item {code!r}, which is not in the Items sheet; its row was "
+                "ignored. Add the item to Items or correct the code.",
+                sheet=sheet.name, cell=ref, item=code, value=values[ji],
+                code="history-unknown-item")
+            continue
+        if code in first_cell:
+            log.warning(f"Item {code!r} has a second History row (first at {first_cell[code]}); "
+                        "the second was ignored. Keep one row per item.", sheet=sheet.name,
+                        cell=ref, item=code, value=values[ji], code="history-duplicate-item")
+            continue
+        first_cell[code] = ref
+        row = np.zeros(len(labels), dtype=float)
+        for pos, j in enumerate(pcols):
+            if pidx[pos] < 0:
+                continue
+            v = values[j] if j < len(values) else None
+            x = _quantity(v, cell_ref(j, rownum), sheet, code, log,
+                          uncalculated=cell_ref(j, rownum) in sheet.uncalculated)
+            row[pidx[pos]] += x
+        items.append(code)
+        rows_out.append(row)
+    matrix = np.vstack(rows_out) if rows_out else np.zeros((0, len(labels)))
+    return History(sheet.name, "wide", items, matrix, labels, period, first_cell)
+
+
+def _quantity(value: Any, ref: str, sheet: RawSheet, code: str, log: ProblemLog,
+              uncalculated: bool = False) -> float:
+    """One demand cell: a number >= 0, 0 for blank, NaN (reported) if unreadable."""
+    if uncalculated:
+        log.warning("This quantity is a formula with no saved result; the period was left out "
+                    "of the item's statistics. Open the workbook, let it calculate, save it.",
+                    sheet=sheet.name, cell=ref, item=code, code="cell-uncalculated")
+        return float("nan")
+    x, why = parse_number(value)
+    if why:
+        log.warning(f"Quantity {describe(value)} is {why}; this period was left out of the "
+                    "item's statistics. Enter the units sold as a number (0 if none).",
+                    sheet=sheet.name, cell=ref, item=code, value=value,
+                    code="history-quantity-not-number")
+        return float("nan")
+    if x is None:
+        return 0.0
+    if x < 0:
+        log.warning(f"Quantity {describe(value)} is negative (a return?); it was counted as 0. "
+                    "Record returns elsewhere so they don't lower the demand estimate.",
+                    sheet=sheet.name, cell=ref, item=code, value=value,
+                    code="history-quantity-negative")
+        return 0.0
+    return x
+
+
+__all__ = ["History", "read_history", "infer_period", "PERIODS"]

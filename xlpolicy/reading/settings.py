@@ -1,0 +1,180 @@
+"""Reading the optional Settings sheet and resolving every setting to one value.
+
+Precedence, highest first: the command line (or API arguments), the Settings sheet, the
+contract's default. Where each value came from is kept, because the summary sheet shows
+it to the accountant.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+from ..contract import (
+    PERIODS,
+    PERIODS_PER_YEAR,
+    SERVICE_MEASURES,
+    SETTINGS,
+    normalise,
+)
+from ..problems import ProblemLog
+from .cells import describe, is_blank, parse_number
+from .workbook import RawSheet, cell_ref
+
+_SETTING_LOOKUP = {name: s.key for s in SETTINGS for name in s.names()}
+_MEASURE_LOOKUP = {normalise(m): m for m in SERVICE_MEASURES} | {
+    normalise(a): m
+    for m, aliases in {
+        "cycle service": ("cycle service level", "csl", "type 1", "probability of no stockout",
+                          "alpha", "cycle"),
+        "fill rate": ("fill", "type 2", "beta", "fill rate service", "unit fill rate"),
+        "shortage cost": ("cost", "backorder cost", "stockout cost", "shortage", "penalty cost"),
+    }.items()
+    for a in aliases
+}
+_PERIOD_LOOKUP = {
+    normalise(a): p
+    for p, aliases in {
+        "day": ("day", "days", "daily", "d"),
+        "week": ("week", "weeks", "weekly", "w", "wk"),
+        "month": ("month", "months", "monthly", "m", "mo"),
+    }.items()
+    for a in aliases
+}
+
+
+def parse_measure(value: Any) -> str | None:
+    """A service measure name, loosely matched, or None."""
+    return _MEASURE_LOOKUP.get(normalise(value)) if not is_blank(value) else None
+
+
+def parse_period(value: Any) -> str | None:
+    """A period name (day, week, month), loosely matched, or None."""
+    return _PERIOD_LOOKUP.get(normalise(value)) if not is_blank(value) else None
+
+
+def read_settings(sheet: RawSheet | None, log: ProblemLog) -> dict[str, tuple[Any, str]]:
+    """Settings found in the sheet: key -> (value, A1 cell of the value).
+
+    Each row names a setting in its first non-empty cell and gives its value in the next.
+    A header row ("Setting", "Value") and rows that name no known setting but carry no
+    value are skipped; an unknown setting with a value is reported.
+    """
+    found: dict[str, tuple[Any, str]] = {}
+    if sheet is None:
+        return found
+    for values, rownum in zip(sheet.rows, sheet.row_numbers, strict=True):
+        j = next((k for k, v in enumerate(values) if not is_blank(v)), None)
+        if j is None:
+            continue
+        name = values[j]
+        value = values[j + 1] if j + 1 < len(values) else None
+        key = _SETTING_LOOKUP.get(normalise(name))
+        if key is None:
+            if normalise(name) in {"setting", "settings", "name", "parameter"} or is_blank(value):
+                continue
+            log.warning(
+                f"Unknown setting {describe(name)}; it was ignored. Known settings: "
+                + ", ".join(s.title for s in SETTINGS) + ".",
+                sheet=sheet.name, cell=cell_ref(j, rownum), value=name, code="setting-unknown")
+            continue
+        if key in found:
+            log.warning(
+                f"The setting {describe(name)} appears twice; the first one "
+                f"({found[key][1]}) was used. Delete one of them.",
+                sheet=sheet.name, cell=cell_ref(j, rownum), value=name, code="setting-duplicate")
+            continue
+        if is_blank(value):
+            continue
+        found[key] = (value, cell_ref(j + 1, rownum))
+    return found
+
+
+def resolve_settings(
+    sheet_values: dict[str, tuple[Any, str]],
+    overrides: dict[str, Any],
+    log: ProblemLog,
+    sheet_name: str = "Settings",
+) -> dict[str, Any]:
+    """One value per setting, with ``sources`` saying where each came from.
+
+    A bad value in the sheet is reported and the default used instead; a bad override is a
+    usage error the caller checks before (the CLI validates its options).
+    """
+    out: dict[str, Any] = {}
+    sources: dict[str, str] = {}
+    for s in SETTINGS:
+        out[s.key] = s.default
+        sources[s.key] = "default"
+
+    def bad(key: str, raw: Any, cell: str, why: str) -> None:
+        log.warning(f"Setting '{key.replace('_', ' ')}' = {describe(raw)}: {why}. The default "
+                    f"({SETTING_DEFAULT_TEXT.get(key, 'none')}) was used.",
+                    sheet=sheet_name, cell=cell, value=raw, code=f"setting-{key}")
+
+    for key, (raw, cell) in sheet_values.items():
+        if key == "period":
+            p = parse_period(raw)
+            if p is None:
+                bad(key, raw, cell, "write day, week or month")
+                continue
+            out[key] = p
+        elif key == "service_measure":
+            m = parse_measure(raw)
+            if m is None:
+                bad(key, raw, cell, "write " + ", ".join(f"'{m}'" for m in SERVICE_MEASURES))
+                continue
+            out[key] = m
+        elif key == "currency":
+            out[key] = str(raw).strip()
+        else:
+            x, why = parse_number(raw, rate=key in ("service_target", "holding_rate"))
+            if why:
+                bad(key, raw, cell, why)
+                continue
+            assert x is not None
+            if key == "service_target" and not 0 < x < 1:
+                bad(key, raw, cell, "a service target must lie strictly between 0 and 1 "
+                    "(write 0.95 or 95%)")
+                continue
+            if key == "holding_rate" and not 0 < x <= 1:
+                bad(key, raw, cell, "a yearly holding rate must be more than 0 and at most 1 "
+                    "(write 0.25 or 25%)")
+                continue
+            if key == "order_cost" and x < 0:
+                bad(key, raw, cell, "an order cost cannot be negative")
+                continue
+            if key == "periods_per_year" and x <= 0:
+                bad(key, raw, cell, "periods per year must be more than 0")
+                continue
+            out[key] = x
+        sources[key] = f"Settings {cell}"
+
+    for key, value in overrides.items():
+        if value is None:
+            continue
+        out[key] = value
+        sources[key] = "command line"
+
+    out["sources"] = sources
+    finish_period(out)
+    return out
+
+
+def finish_period(settings: dict[str, Any]) -> None:
+    """Fill days per period and, unless set by the user, periods per year, from the period.
+
+    Called again when the period is inferred from History dates.
+    """
+    period = settings["period"]
+    settings["days_per_period"] = PERIODS[period]
+    if settings["sources"]["periods_per_year"].startswith("default"):
+        settings["periods_per_year"] = PERIODS_PER_YEAR[period]
+        settings["sources"]["periods_per_year"] = f"default for {period}"
+
+
+SETTING_DEFAULT_TEXT = {
+    "period": "week",
+    "periods_per_year": "365, 52 or 12 by period",
+    "service_measure": "cycle service",
+    "service_target": "0.95",
+}

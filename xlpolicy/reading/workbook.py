@@ -1,0 +1,260 @@
+"""Opening a workbook and getting its sheets as plain rows of values.
+
+openpyxl is used in read-only, values-only mode: formulas are read as their saved results.
+A formula with no saved result (a file written by a program that never calculated it) is
+found by a separate scan of that sheet's XML, so it can be reported by cell instead of
+being read as an empty cell.
+"""
+
+from __future__ import annotations
+
+import posixpath
+import zipfile
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+from xml.etree import ElementTree as ET
+
+from openpyxl import load_workbook
+from openpyxl.utils import get_column_letter
+
+from ..contract import Column, header_forms, normalise
+from ..problems import ProblemLog
+
+SUPPORTED_SUFFIXES = (".xlsx", ".xlsm")
+
+SHEET_ALIASES: dict[str, tuple[str, ...]] = {
+    "Items": ("items", "item list", "item master", "products", "product list", "articles",
+              "stock items", "parts"),
+    "History": ("history", "sales history", "demand history", "sales", "demand", "usage",
+                "usage history"),
+    "Settings": ("settings", "parameters", "options", "configuration", "config"),
+}
+
+_NS_MAIN = "http://schemas.openxmlformats.org/spreadsheetml/2006/main"
+_NS_REL = "http://schemas.openxmlformats.org/officeDocument/2006/relationships"
+_NS_PKG_REL = "http://schemas.openxmlformats.org/package/2006/relationships"
+
+
+@dataclass
+class RawSheet:
+    """A sheet's cells as rows of values, with their number formats.
+
+    ``rows[k]`` is the k-th row read; ``row_numbers[k]`` its 1-based row number as the user
+    sees it. ``formats`` runs parallel to ``rows``.
+    """
+
+    name: str
+    rows: list[list[Any]] = field(default_factory=list)
+    formats: list[list[str]] = field(default_factory=list)
+    row_numbers: list[int] = field(default_factory=list)
+    uncalculated: set[str] = field(default_factory=set)
+
+
+def cell_ref(col_index: int, row_number: int) -> str:
+    """A1 reference from a 0-based column index and a 1-based row number."""
+    return f"{get_column_letter(col_index + 1)}{row_number}"
+
+
+@dataclass
+class Header:
+    """Where a sheet's header row is and which column holds which key."""
+
+    row_index: int  # index into RawSheet.rows
+    columns: dict[str, int]  # key -> 0-based column index
+    units: dict[str, str]  # key -> unit found in brackets ("%", "days", ...)
+    unknown: dict[int, str]  # column index -> header text not recognised
+    duplicates: dict[str, list[int]]
+    titles: dict[str, str] = field(default_factory=dict)  # key -> header as the user wrote it
+
+
+def find_header(sheet: RawSheet, columns: tuple[Column, ...], *, scan_rows: int = 30,
+                min_matches: int = 2) -> Header | None:
+    """Find the first row whose cells name at least ``min_matches`` known columns.
+
+    Rows above it (a title, a note) are skipped. Returns None if no row qualifies.
+    """
+    lookup: dict[str, str] = {}
+    for col in columns:
+        for name in col.names():
+            lookup.setdefault(name, col.key)
+    for idx, row in enumerate(sheet.rows[:scan_rows]):
+        found: dict[str, int] = {}
+        titles: dict[str, str] = {}
+        units: dict[str, str] = {}
+        unknown: dict[int, str] = {}
+        dups: dict[str, list[int]] = {}
+        for j, value in enumerate(row):
+            if value is None or (isinstance(value, str) and not value.strip()):
+                continue
+            base, full, unit = header_forms(value)
+            key = lookup.get(full) or lookup.get(base)
+            if key is None:
+                unknown[j] = str(value)
+            elif key in found:
+                dups.setdefault(key, [found[key]]).append(j)
+            else:
+                found[key] = j
+                units[key] = unit
+                titles[key] = " ".join(str(value).split())
+        if len(found) >= min_matches:
+            return Header(idx, found, units, unknown, dups, titles)
+    return None
+
+
+class WorkbookFile:
+    """An opened input workbook: its sheet names and a way to read each as a RawSheet."""
+
+    def __init__(self, path: Path, log: ProblemLog):
+        self.path = Path(path)
+        self.log = log
+        self._wb: Any = None
+        self.sheet_names: list[str] = []
+        self._sheet_parts: dict[str, str] = {}
+
+    def open(self) -> bool:
+        """Open the file; on failure record a fatal problem and return False."""
+        p = self.path
+        if not p.exists():
+            self.log.fatal(f"The file {p.name} does not exist. Check the name and folder.",
+                           value=str(p), code="file-missing")
+            return False
+        if p.is_dir():
+            self.log.fatal(f"{p.name} is a folder, not a workbook. Give the path of an .xlsx file.",
+                           value=str(p), code="file-is-folder")
+            return False
+        if p.suffix.lower() not in SUPPORTED_SUFFIXES:
+            self.log.fatal(
+                f"{p.name} is not an .xlsx or .xlsm workbook. Save it from your spreadsheet "
+                "program as 'Excel Workbook (.xlsx)' and try again.",
+                value=p.suffix, code="file-type")
+            return False
+        if not zipfile.is_zipfile(p):
+            self.log.fatal(
+                f"{p.name} is not a readable .xlsx workbook (it may be damaged, password-"
+                "protected, or another kind of file renamed). Open it in your spreadsheet "
+                "program and save it again as .xlsx.", value=str(p), code="file-not-zip")
+            return False
+        try:
+            self._wb = load_workbook(p, read_only=True, data_only=True, keep_links=False)
+        except Exception as exc:  # openpyxl raises many kinds; none may reach the user raw
+            self.log.fatal(
+                f"{p.name} could not be read as a workbook ({type(exc).__name__}: {exc}). "
+                "Open it in your spreadsheet program and save it again as .xlsx.",
+                value=str(p), code="file-unreadable")
+            return False
+        self.sheet_names = list(self._wb.sheetnames)
+        self._sheet_parts = _sheet_parts(p)
+        return True
+
+    def close(self) -> None:
+        if self._wb is not None:
+            self._wb.close()
+            self._wb = None
+
+    def find_sheet(self, canonical: str) -> str | None:
+        """The user's name for one of our sheets (Items, History, Settings), matched loosely."""
+        wanted = {normalise(a) for a in SHEET_ALIASES[canonical]}
+        for name in self.sheet_names:
+            if normalise(name) in wanted:
+                return name
+        return None
+
+    def read(self, name: str) -> RawSheet:
+        """All rows of a sheet, values and number formats, trailing empty rows dropped."""
+        ws = self._wb[name]
+        sheet = RawSheet(name)
+        for row in ws.iter_rows():
+            values = []
+            formats = []
+            rownum = None
+            for cell in row:
+                v = getattr(cell, "value", None)
+                values.append(v)
+                formats.append(getattr(cell, "number_format", "General") or "General"
+                               if v is not None else "")
+                if rownum is None:
+                    rownum = getattr(cell, "row", None)
+            while values and values[-1] is None:
+                values.pop()
+                formats.pop()
+            if not values:
+                continue
+            sheet.rows.append(values)
+            sheet.formats.append(formats)
+            sheet.row_numbers.append(rownum if rownum is not None else len(sheet.rows))
+        sheet.uncalculated = self._uncalculated_cells(name)
+        return sheet
+
+    def _uncalculated_cells(self, name: str) -> set[str]:
+        """A1 references of formula cells that carry no saved result."""
+        part = self._sheet_parts.get(name)
+        if not part:
+            return set()
+        try:
+            with zipfile.ZipFile(self.path) as zf:
+                data = zf.read(part)
+        except (KeyError, zipfile.BadZipFile, OSError):
+            return set()
+        if b"<f" not in data and b":f" not in data:
+            return set()
+        out: set[str] = set()
+        c_tag, f_tag, v_tag = f"{{{_NS_MAIN}}}c", f"{{{_NS_MAIN}}}f", f"{{{_NS_MAIN}}}v"
+        try:
+            for _event, elem in ET.iterparse(_BytesReader(data), events=("end",)):
+                if elem.tag == c_tag:
+                    f = elem.find(f_tag)
+                    if f is not None:
+                        v = elem.find(v_tag)
+                        if v is None or not (v.text or "").strip():
+                            out.add(elem.get("r", ""))
+                    elem.clear()
+        except ET.ParseError:
+            return out
+        out.discard("")
+        return out
+
+
+class _BytesReader:
+    """Minimal file-like wrapper so iterparse can read bytes already in memory."""
+
+    def __init__(self, data: bytes):
+        self._data = data
+        self._pos = 0
+
+    def read(self, n: int = -1) -> bytes:
+        if n is None or n < 0:
+            n = len(self._data) - self._pos
+        chunk = self._data[self._pos : self._pos + n]
+        self._pos += len(chunk)
+        return chunk
+
+
+def _sheet_parts(path: Path) -> dict[str, str]:
+    """Map sheet name -> its part name in the package, via the workbook's relationships."""
+    try:
+        with zipfile.ZipFile(path) as zf:
+            names = set(zf.namelist())
+            root_rels = ET.fromstring(zf.read("_rels/.rels"))
+            wb_part = "xl/workbook.xml"
+            for rel in root_rels.iter(f"{{{_NS_PKG_REL}}}Relationship"):
+                if rel.get("Type", "").endswith("/officeDocument"):
+                    wb_part = rel.get("Target", wb_part).lstrip("/")
+            base = posixpath.dirname(wb_part)
+            rels_part = posixpath.join(base, "_rels", posixpath.basename(wb_part) + ".rels")
+            rels = ET.fromstring(zf.read(rels_part))
+            targets = {}
+            for rel in rels.iter(f"{{{_NS_PKG_REL}}}Relationship"):
+                t = rel.get("Target", "")
+                t = t.lstrip("/") if t.startswith("/") else posixpath.normpath(
+                    posixpath.join(base, t))
+                targets[rel.get("Id")] = t
+            wb = ET.fromstring(zf.read(wb_part))
+            out = {}
+            for s in wb.iter(f"{{{_NS_MAIN}}}sheet"):
+                target = targets.get(s.get(f"{{{_NS_REL}}}id"))
+                if target in names:
+                    out[s.get("name")] = target
+            return out
+    except (KeyError, ET.ParseError, zipfile.BadZipFile, OSError):
+        return {}
