@@ -1,0 +1,456 @@
+"""Continuous-review (Q, R) policies for many items at once.
+
+Q is the EOQ (Harris 1913; Wilson 1934) rounded to pack size and minimum order, or, when
+the user gives a shortage cost instead of a service target, the iterative backorder
+optimum (Hadley & Whitin 1963; Nahmias, (Q, R) chapter). R is the smallest whole reorder
+point meeting a cycle-service or fill-rate target, or the cost-optimal one. Everything is
+numpy over whole columns with masks per service measure; there is no per-item loop. Items
+whose inputs cannot give a policy get NaN numbers rather than an exception or a warning.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+from numpy.typing import ArrayLike
+
+from xlpolicy.contract import CYCLE_SERVICE, FILL_RATE, SHORTAGE_COST
+from xlpolicy.core.demand import lead_time_demand
+from xlpolicy.core.models import Z_LIMIT, LeadTimeDemandModel, NormalLeadTimeDemand
+
+__all__ = [
+    "PolicyInputs",
+    "compute_policy",
+    "round_order_qty",
+    "order_cost_terms",
+    "POLICY_COLUMNS",
+    "PROB_TOL",
+    "SHORTAGE_MAX_ITER",
+    "SHORTAGE_RTOL",
+]
+
+#: A service target counts as met when the achieved value is within this of it, so that
+#: float noise (1e-16) never adds a whole unit to a reorder point.
+PROB_TOL = 1e-12
+#: The backorder (Q, R) iteration stops when Q changes by less than this, relatively ...
+SHORTAGE_RTOL = 1e-9
+#: ... or after this many rounds (it normally settles in under 20).
+SHORTAGE_MAX_ITER = 200
+
+_BISECTION_STEPS = 64
+#: Relative slack when turning a continuous value into a whole number (float noise).
+_WHOLE_TOL = 1e-9
+
+#: Columns of the frame returned by :func:`compute_policy`, in order.
+POLICY_COLUMNS: tuple[str, ...] = (
+    "annual_demand", "demand_per_period", "demand_sd_per_period", "lead_time_days",
+    "lead_time_demand_mean", "lead_time_demand_sd", "service_measure", "service_target",
+    "model", "eoq", "order_qty", "reorder_point", "safety_stock", "cycle_service",
+    "fill_rate", "expected_units_short_per_cycle", "orders_per_year", "annual_ordering_cost",
+    "annual_cycle_holding_cost", "annual_safety_holding_cost", "annual_shortage_cost",
+    "annual_total_cost", "annual_purchase_cost", "average_inventory_value",
+    "rounding_cost_ratio", "flag_no_safety_stock_pays", "flag_normal_doubtful",
+    "flag_reorder_point_floored", "flag_shortage_cost_missing",
+)
+
+
+@dataclass
+class PolicyInputs:
+    """Per-item inputs, each a 1-D array of length n (days_per_period is a scalar).
+
+    measure holds "cycle service", "fill rate" or "shortage cost" (contract.SERVICE_MEASURES;
+    case and outer spaces ignored). service_target may be NaN for "shortage cost" items;
+    shortage_cost is NaN where not given; lead_time_sd_days 0, pack_size 1 and
+    minimum_order 0 where not given. Holding cost per unit-year is H = holding_rate * unit_cost.
+    """
+
+    annual_demand: np.ndarray
+    demand_per_period: np.ndarray
+    demand_sd_per_period: np.ndarray
+    lead_time_days: np.ndarray
+    lead_time_sd_days: np.ndarray
+    unit_cost: np.ndarray
+    order_cost: np.ndarray
+    holding_rate: np.ndarray
+    measure: np.ndarray
+    service_target: np.ndarray
+    shortage_cost: np.ndarray
+    pack_size: np.ndarray
+    minimum_order: np.ndarray
+    days_per_period: float
+
+
+def order_cost_terms(q: ArrayLike, annual_demand: ArrayLike, order_cost: ArrayLike,
+                     holding_cost: ArrayLike) -> np.ndarray:
+    """Annual ordering plus cycle-stock holding cost, D S / Q + H Q / 2 (EOQ cost curve)."""
+    q_a = np.asarray(q, dtype=float)
+    with np.errstate(all="ignore"):
+        return (np.asarray(annual_demand, dtype=float) * np.asarray(order_cost, dtype=float)
+                / q_a + np.asarray(holding_cost, dtype=float) * q_a / 2.0)
+
+
+def _order_candidates(q: ArrayLike, pack: ArrayLike, moq: ArrayLike
+                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The allowed order quantities just below and just above q, and where they exist.
+
+    Allowed: whole multiples of the pack size, at least one pack and at least the minimum
+    order raised to a pack multiple. Returns (lo, hi, ok); lo == hi when q is allowed.
+    """
+    q_a, pk, m = np.broadcast_arrays(*(np.asarray(x, dtype=float) for x in (q, pack, moq)))
+    with np.errstate(all="ignore"):
+        pk_whole = np.round(pk)
+        ok = (
+            np.isfinite(q_a) & (q_a >= 0)
+            & np.isfinite(pk) & (pk_whole >= 1) & (np.abs(pk - pk_whole) <= _WHOLE_TOL * pk)
+            & np.isfinite(m) & (m >= 0)
+        )
+        pk_s = np.where(ok, pk_whole, 1.0)
+        q_s = np.where(ok, q_a, 1.0)
+        floor_q = pk_s * np.maximum(1.0, np.ceil(np.where(ok, m, 0.0) / pk_s - _WHOLE_TOL))
+        k = q_s / pk_s
+        k_near = np.round(k)
+        near = np.abs(k - k_near) <= _WHOLE_TOL * np.maximum(1.0, k)
+        lo = np.maximum(np.where(near, k_near, np.floor(k)) * pk_s, floor_q)
+        hi = np.maximum(np.where(near, k_near, np.ceil(k)) * pk_s, floor_q)
+    return lo, hi, ok
+
+
+def round_order_qty(q: ArrayLike, pack: ArrayLike, moq: ArrayLike, D: ArrayLike,
+                    S: ArrayLike, H: ArrayLike) -> np.ndarray:
+    """Round a continuous order quantity to what a supplier accepts, choosing the cheaper side.
+
+    The result is a whole multiple of the pack size, at least one pack and at least the
+    minimum order (the minimum raised to a pack multiple). Of the pack multiples just below
+    and just above q (each raised to that floor) the one with the lower D S / Q + H Q / 2 is
+    taken; a tie goes to the smaller. The cost curve is flat near its optimum, so the cost of
+    rounding is small (field notes). pack must be a positive whole number; invalid or missing
+    inputs give NaN.
+    """
+    lo, hi, ok = _order_candidates(q, pack, moq)
+    d_a, s_a, h_a = (np.asarray(x, dtype=float) for x in (D, S, H))
+    with np.errstate(all="ignore"):
+        ok = ok & np.isfinite(d_a) & (d_a >= 0) & np.isfinite(s_a) & (s_a >= 0)
+        ok = ok & np.isfinite(h_a) & (h_a >= 0)
+        cost_lo = order_cost_terms(lo, d_a, s_a, h_a)
+        cost_hi = order_cost_terms(hi, d_a, s_a, h_a)
+        out = np.where(cost_hi < cost_lo, hi, lo)
+    return np.where(ok, out, np.nan)
+
+
+def _smallest_whole(start: np.ndarray, meets: Callable[[np.ndarray], np.ndarray]) -> np.ndarray:
+    """Smallest whole r meeting a monotone condition, from a start within a unit or two."""
+    r = start
+    for _ in range(2):
+        r = np.where(meets(r - 1.0), r - 1.0, r)
+        r = np.where(meets(r), r, r + 1.0)
+    return r
+
+
+def _ceil_tol(x: np.ndarray) -> np.ndarray:
+    """Ceiling that ignores float noise just above a whole number."""
+    with np.errstate(all="ignore"):
+        return np.ceil(x - _WHOLE_TOL * np.maximum(1.0, np.abs(x)))
+
+
+def _column(x: ArrayLike, n: int) -> np.ndarray:
+    return np.broadcast_to(np.asarray(x, dtype=float), (n,)).copy()
+
+
+def _shortage_optimum(
+    model_factory: Callable[[np.ndarray, np.ndarray], LeadTimeDemandModel],
+    mu: np.ndarray, sd: np.ndarray, D: np.ndarray, S: np.ndarray, H: np.ndarray,
+    p: np.ndarray, eoq: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Continuous (Q, R) optimum with backorder cost p per unit short, for arrays of items.
+
+    The Hadley & Whitin (1963) iteration: from Q = EOQ, alternate 1 - F(R) = Q H / (p D) and
+    Q = sqrt(2 D (S + p n(R)) / H), all items at once with a not-settled mask. Q rises
+    monotonically to the first fixed point, which is the cost's local minimum; if Q H / (p D)
+    reaches 1 first there is none and no safety stock pays. Items still moving after
+    SHORTAGE_MAX_ITER rounds (a nearly flat cost curve slows the iteration) are solved by
+    :func:`_shortage_bracketed`. Returns (Q, n(R) at the optimum, no-safety-stock-pays mask).
+    """
+    model = model_factory(mu, sd)
+    pD = p * D
+    with np.errstate(all="ignore"):
+        n_mean = model.expected_shortage(mu)
+        # S = 0 gives EOQ 0, where the iteration would stall at R = +inf: start higher.
+        q = np.where(eoq > 0, eoq, np.sqrt(2.0 * D * (S + p * n_mean) / H))
+        n_it = np.zeros_like(q)
+        r_it = np.full_like(q, np.inf)
+        nopay = np.zeros(q.shape, dtype=bool)
+        done = np.zeros(q.shape, dtype=bool)
+        for _ in range(SHORTAGE_MAX_ITER):
+            ratio = np.where(pD > 0, q * H / pD, np.inf)
+            nopay |= ~done & (ratio >= 1.0)
+            done |= nopay
+            act = np.flatnonzero(~done)  # work on the unsettled items only
+            if act.size == 0:
+                break
+            sub = model_factory(mu[act], sd[act])
+            r_new = sub.upper_quantile(ratio[act])
+            n_new = sub.expected_shortage(r_new)
+            q_new = np.sqrt(2.0 * D[act] * (S[act] + p[act] * n_new) / H[act])
+            done[act] = np.abs(q_new - q[act]) <= SHORTAGE_RTOL * q[act]
+            q[act], n_it[act], r_it[act] = q_new, n_new, r_new
+        slow = ~done
+        if slow.any():
+            k = np.flatnonzero(slow)
+            q_b, n_b, nopay_b = _shortage_bracketed(
+                model_factory(mu[k], sd[k]), D[k], S[k], H[k], p[k], r_it[k]
+            )
+            q[k], n_it[k], nopay[k] = q_b, n_b, nopay_b
+    return q, n_it, nopay
+
+
+def _shortage_bracketed(
+    model: LeadTimeDemandModel, D: np.ndarray, S: np.ndarray, H: np.ndarray, p: np.ndarray,
+    r_right: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The same optimum by bracketing, for items where the iteration is slow.
+
+    With Q(R) = sqrt(2 D (S + p n(R)) / H), the stationary points are the roots of
+    psi(R) = P(X > R) p D / (H Q(R)) = 1 and the local minimum is the rightmost root.
+    psi is unimodal (checked numerically for the normal model), so: golden-section search
+    for its peak left of r_right (where psi < 1), then bisection between the peak and
+    r_right. A peak below 1 means no stationary point: no safety stock pays.
+    """
+    pD = p * D
+
+    def parts(r: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        n_r = model.expected_shortage(r)
+        q_r = np.sqrt(2.0 * D * (S + p * n_r) / H)
+        return model.sf(r) * pD / (H * q_r), q_r, n_r
+
+    lo = model.mean - Z_LIMIT * model.sd
+    hi = np.minimum(r_right, model.mean + Z_LIMIT * model.sd)
+    golden = (np.sqrt(5.0) - 1.0) / 2.0
+    x1 = hi - golden * (hi - lo)
+    x2 = lo + golden * (hi - lo)
+    f1, f2 = parts(x1)[0], parts(x2)[0]
+    for _ in range(90):
+        left = f1 >= f2  # the peak is in [lo, x2]
+        lo = np.where(left, lo, x1)
+        hi = np.where(left, x2, hi)
+        x1n = hi - golden * (hi - lo)
+        x2n = lo + golden * (hi - lo)
+        x1_keep = np.where(left, x1n, x2)
+        x2_keep = np.where(left, x1, x2n)
+        f_new = parts(np.where(left, x1n, x2n))[0]
+        f1, f2 = np.where(left, f_new, f2), np.where(left, f1, f_new)
+        x1, x2 = x1_keep, x2_keep
+    peak = 0.5 * (lo + hi)
+    has_root = parts(peak)[0] >= 1.0
+    a = peak.copy()
+    b = np.minimum(r_right, model.mean + Z_LIMIT * model.sd)
+    for _ in range(_BISECTION_STEPS):
+        mid = 0.5 * (a + b)
+        above = parts(mid)[0] >= 1.0
+        a = np.where(above, mid, a)
+        b = np.where(above, b, mid)
+    _, q_root, n_root = parts(a)
+    return q_root, n_root, ~has_root
+
+
+def compute_policy(
+    inp: PolicyInputs,
+    model_factory: Callable[[np.ndarray, np.ndarray], LeadTimeDemandModel] = NormalLeadTimeDemand,
+) -> pd.DataFrame:
+    """Compute the (Q, R) policy and its annual costs for every item, in input row order.
+
+    See the module docstring and the project's field notes for the method. Achieved
+    cycle_service and fill_rate are those of the final whole-unit (Q, R) under the model.
+    Items that cannot be planned (D <= 0, a missing or invalid input, an unknown measure, a
+    target outside (0, 1), a missing shortage cost) get NaN numbers; their input columns and
+    lead-time demand are still shown. model_factory builds the lead-time demand model from
+    (mean, sd) arrays; the default is the normal model.
+
+    Service measures round the EOQ with :func:`round_order_qty`. For "shortage cost" the
+    continuous Hadley-Whitin optimum is found first; of the allowed order quantities just
+    below and above it, each with its cheaper whole R (floor or ceil of the R solving
+    1 - F(R) = Q H / (p D)), the pair with the lower expected annual cost is kept.
+    rounding_cost_ratio is cost(Q) / cost(Q*) on the curve D S' / Q + H Q / 2, with Q* the
+    continuous optimum and S' = S (service measures) or S + p n(R*) (shortage cost); it is
+    NaN where S' = 0, since the curve's optimum then costs nothing.
+
+    Flags: flag_no_safety_stock_pays (shortage cost with Q H / (p D) >= 1: R = mu_L);
+    flag_normal_doubtful (sigma_L / mu_L >= 0.5 or mu_L < 10 units, a common-practice rule
+    of thumb for when the normal approximation is weak; set on any row whose lead-time
+    demand is known); flag_reorder_point_floored (R raised to 0); flag_shortage_cost_missing
+    ("shortage cost" measure without a shortage cost: numbers NaN).
+    """
+    D = np.asarray(inp.annual_demand, dtype=float).reshape(-1)
+    n = D.shape[0]
+    d = _column(inp.demand_per_period, n)
+    sd_d = _column(inp.demand_sd_per_period, n)
+    lt = _column(inp.lead_time_days, n)
+    slt = _column(inp.lead_time_sd_days, n)
+    c = _column(inp.unit_cost, n)
+    S = _column(inp.order_cost, n)
+    i = _column(inp.holding_rate, n)
+    target = _column(inp.service_target, n)
+    p = _column(inp.shortage_cost, n)
+    pack = _column(inp.pack_size, n)
+    moq = _column(inp.minimum_order, n)
+    measure_raw = np.broadcast_to(np.asarray(inp.measure, dtype=object), (n,))
+    measure = np.char.lower(np.char.strip(measure_raw.astype(str)))
+    is_cs = measure == CYCLE_SERVICE
+    is_fr = measure == FILL_RATE
+    is_sc = measure == SHORTAGE_COST
+    dpp = float(inp.days_per_period)
+
+    with np.errstate(all="ignore"):
+        mu_l, sig_l = lead_time_demand(d, sd_d, lt / dpp, slt / dpp)
+        H = i * c
+        eoq_raw = np.sqrt(2.0 * D * S / H)
+
+        p_given = np.isfinite(p)
+        base_ok = (
+            np.isfinite(D) & (D > 0) & np.isfinite(d) & (d >= 0)
+            & np.isfinite(sd_d) & (sd_d >= 0) & np.isfinite(lt) & (lt >= 0)
+            & np.isfinite(slt) & (slt >= 0) & np.isfinite(c) & (c > 0)
+            & np.isfinite(S) & (S >= 0) & np.isfinite(i) & (i > 0) & np.isfinite(H) & (H > 0)
+            & np.isfinite(mu_l) & np.isfinite(sig_l) & np.isfinite(eoq_raw)
+            & np.isfinite(pack) & (pack >= 1)
+            & (np.abs(pack - np.round(pack)) <= _WHOLE_TOL * pack)
+            & np.isfinite(moq) & (moq >= 0)
+            & bool(np.isfinite(dpp) and dpp > 0)
+        )
+        target_ok = np.isfinite(target) & (target > 0) & (target < 1)
+        ok = base_ok & (((is_cs | is_fr) & target_ok) | (is_sc & p_given & (p >= 0)))
+
+        # Working copies: harmless values where not ok, so no NaN reaches the solvers.
+        def safe(x: np.ndarray, v: float) -> np.ndarray:
+            return np.where(ok, x, v)
+
+        Dw, Sw, Hw, cw = safe(D, 1.0), safe(S, 1.0), safe(H, 1.0), safe(c, 1.0)
+        muw, sgw = safe(mu_l, 1.0), safe(sig_l, 1.0)
+        packw, moqw = safe(pack, 1.0), safe(moq, 0.0)
+        tw = np.where(ok & target_ok, target, 0.5)
+        pw = np.where(ok & p_given, p, 1.0)
+        eoq = safe(eoq_raw, 1.0)
+        model = model_factory(muw, sgw)
+
+        # -- shortage cost: the continuous Hadley-Whitin optimum, on those items only ---
+        sc = is_sc & ok
+        pD = pw * Dw
+        nopay = np.zeros(n, dtype=bool)
+        q_cont = eoq.copy()  # the continuous optimum each item is rounded from
+        s_eff = Sw.copy()  # order cost plus expected shortage cost per order
+        if sc.any():
+            idx = np.flatnonzero(sc)
+            q_opt, n_opt, nopay_sc = _shortage_optimum(
+                model_factory, muw[idx], sgw[idx], Dw[idx], Sw[idx], Hw[idx], pw[idx], eoq[idx]
+            )
+            nopay[idx] = nopay_sc
+            q_cont[idx] = np.where(nopay_sc, eoq[idx], q_opt)
+            s_eff[idx] = np.where(nopay_sc, Sw[idx], Sw[idx] + pw[idx] * n_opt)
+
+        # Whole R for a given Q under the shortage cost: 1 - F(R) = Q H / (p D), then the
+        # cheaper of floor and ceil. Where Q H / (p D) >= 1 no safety stock pays: R = mu_L.
+        def sc_reorder(q: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+            ratio_q = np.where(pD > 0, q * Hw / pD, np.inf)
+            no_ss_q = sc & (nopay | (ratio_q >= 1.0))
+            r_cont = np.where(
+                no_ss_q, muw, model.upper_quantile(np.where(no_ss_q, 0.5, ratio_q))
+            )
+            r_lo, r_hi = np.floor(r_cont), np.ceil(r_cont)
+
+            def r_cost(r: np.ndarray) -> np.ndarray:
+                return Hw * (r - muw) + pD / q * model.expected_shortage(r)
+
+            return np.where(r_cost(r_hi) < r_cost(r_lo), r_hi, r_lo), no_ss_q
+
+        def sc_cost(q: np.ndarray, r: np.ndarray) -> np.ndarray:
+            """Expected annual cost with backorders (Hadley & Whitin 1963), R floored at 0."""
+            r0 = np.maximum(r, 0.0)
+            return (Dw * Sw / q + Hw * (q / 2.0 + r0 - muw)
+                    + pD / q * model.expected_shortage(r0))
+
+        # Service measures: the cheaper pack multiple on the EOQ cost curve. Shortage cost:
+        # the pack multiple below or above the optimum whose whole (Q, R) costs less in full.
+        q_std = round_order_qty(q_cont, packw, moqw, Dw, s_eff, Hw)
+        q_lo, q_hi, _ = _order_candidates(q_cont, packw, moqw)
+        r_sc_lo, no_ss_lo = sc_reorder(q_lo)
+        r_sc_hi, no_ss_hi = sc_reorder(q_hi)
+        take_hi = sc_cost(q_hi, r_sc_hi) < sc_cost(q_lo, r_sc_lo)
+        Q = np.where(sc, np.where(take_hi, q_hi, q_lo), q_std)
+        r_sc = np.where(take_hi, r_sc_hi, r_sc_lo)
+        no_ss = np.where(take_hi, no_ss_hi, no_ss_lo)
+
+        # -- reorder points, each measure on the full arrays, then chosen by mask ------
+        r_cs = _smallest_whole(
+            _ceil_tol(model.quantile(tw)), lambda r: model.cdf(r) >= tw - PROB_TOL
+        )
+        r_fr = _smallest_whole(
+            _ceil_tol(model.min_r_for_shortage((1.0 - tw) * Q)),
+            lambda r: 1.0 - model.expected_shortage(r) / Q >= tw - PROB_TOL,
+        )
+
+        r_raw = np.where(is_cs, r_cs, np.where(is_fr, r_fr, r_sc))
+        floored = ok & (r_raw < 0)
+        R = np.maximum(r_raw, 0.0)
+
+        # -- what the whole-unit policy achieves, and what it costs --------------------
+        cycle_service = model.cdf(R)
+        short = model.expected_shortage(R)
+        fill = np.clip(1.0 - short / Q, 0.0, 1.0)
+        ss = R - muw
+        orders = Dw / Q
+        ordering = Dw * Sw / Q
+        cycle_hold = Hw * Q / 2.0
+        ss_hold = Hw * ss
+        shortage = np.where(p_given, pw * orders * short, 0.0)
+        total = ordering + cycle_hold + ss_hold + shortage
+        purchase = Dw * cw
+        avg_value = cw * (Q / 2.0 + np.maximum(ss, 0.0))
+        rounding_ratio = np.where(
+            s_eff > 0,
+            order_cost_terms(Q, Dw, s_eff, Hw) / order_cost_terms(q_cont, Dw, s_eff, Hw),
+            np.nan,
+        )
+        doubtful = (
+            np.isfinite(mu_l) & np.isfinite(sig_l) & ((sig_l >= 0.5 * mu_l) | (mu_l < 10.0))
+        )
+
+    def out(x: np.ndarray) -> np.ndarray:
+        return np.where(ok, x, np.nan)
+
+    frame = pd.DataFrame(
+        {
+            "annual_demand": D,
+            "demand_per_period": d,
+            "demand_sd_per_period": sd_d,
+            "lead_time_days": lt,
+            "lead_time_demand_mean": mu_l,
+            "lead_time_demand_sd": sig_l,
+            "service_measure": np.asarray(measure_raw, dtype=object),
+            "service_target": target,
+            "model": np.full(n, model.name, dtype=object),
+            "eoq": out(eoq),
+            "order_qty": out(Q),
+            "reorder_point": out(R),
+            "safety_stock": out(ss),
+            "cycle_service": out(cycle_service),
+            "fill_rate": out(fill),
+            "expected_units_short_per_cycle": out(short),
+            "orders_per_year": out(orders),
+            "annual_ordering_cost": out(ordering),
+            "annual_cycle_holding_cost": out(cycle_hold),
+            "annual_safety_holding_cost": out(ss_hold),
+            "annual_shortage_cost": out(shortage),
+            "annual_total_cost": out(total),
+            "annual_purchase_cost": out(purchase),
+            "average_inventory_value": out(avg_value),
+            "rounding_cost_ratio": out(rounding_ratio),
+            "flag_no_safety_stock_pays": ok & no_ss,
+            "flag_normal_doubtful": doubtful,
+            "flag_reorder_point_floored": floored,
+            "flag_shortage_cost_missing": is_sc & ~p_given,
+        },
+        columns=list(POLICY_COLUMNS),
+    )
+    return frame
