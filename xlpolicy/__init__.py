@@ -1,0 +1,16 @@
+"""xlpolicy: stock replenishment policies (order quantity, reorder point, safety stock)
+computed from a spreadsheet of items and sales history.
+
+The Python API mirrors the command line: :func:`plan`, :func:`check`, :func:`template`,
+and :func:`analyse` (read, check and plan without writing).
+"""
+
+__version__ = "0.1.0"
+
+from .api import PlanResult, UsageError, analyse, check, default_output_path, plan, template
+from .problems import Problem, Severity, UnusableWorkbook
+
+__all__ = [
+    "PlanResult", "Problem", "Severity", "UnusableWorkbook", "UsageError", "__version__",
+    "analyse", "check", "default_output_path", "plan", "template",
+]

@@ -1,0 +1,5 @@
+"""Allow ``python -m xlpolicy``."""
+
+from .cli import main
+
+main()

@@ -1,0 +1,228 @@
+"""The Python API: what the command line does, callable from code.
+
+    >>> import xlpolicy
+    >>> result = xlpolicy.plan("shop.xlsx")            # writes shop-policy.xlsx beside it
+    >>> result.report.results[["item", "order_qty", "reorder_point"]]
+
+Every user mistake ends up as a Problem in ``result.problems``; a workbook that cannot be
+used at all raises :class:`UnusableWorkbook` carrying the fatal problems.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import shutil
+import tempfile
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from .contract import SERVICE_MEASURES
+from .planner import build_report
+from .problems import Problem, ProblemLog, Severity, UnusableWorkbook
+from .reading import read_input
+from .reading.cells import parse_number
+from .reading.settings import parse_measure
+from .report import Report
+from .template import write_template
+from .writing.atomic import atomic_output
+from .writing.package import CannotMerge, merge_generated_sheets, user_sheet_names
+from .writing.sheets import DEFAULT_SHEET_NAMES, write_generated_workbook
+from .writing.tables import write_csv, write_json
+
+
+class UsageError(ValueError):
+    """A bad argument (not a bad workbook): the CLI exits with status 2."""
+
+
+@dataclass
+class PlanResult:
+    """What :func:`plan` did: the report, and the files it wrote."""
+
+    report: Report
+    output: Path | None = None
+    csv: Path | None = None
+    json: Path | None = None
+    standalone: bool = False
+    sheets: list[str] = field(default_factory=list)
+
+    @property
+    def problems(self) -> list[Problem]:
+        return self.report.problems
+
+
+def default_output_path(path: str | Path) -> Path:
+    """``<input name>-policy.<ext>`` beside the input (.xlsm keeps its macros and extension)."""
+    p = Path(path)
+    return p.with_name(f"{p.stem}-policy{p.suffix.lower() or '.xlsx'}")
+
+
+def _overrides(service_measure: str | None, service_target: float | str | None,
+               holding_rate: float | str | None,
+               order_cost: float | str | None) -> dict[str, Any]:
+    """Check command-line overrides of the Settings; raise UsageError if one is bad."""
+    out: dict[str, Any] = {}
+    if service_measure is not None:
+        m = parse_measure(service_measure)
+        if m is None:
+            raise UsageError(f"service measure {service_measure!r} is not one of "
+                             + ", ".join(SERVICE_MEASURES))
+        out["service_measure"] = m
+    if service_target is not None:
+        t = _number(service_target, "service target", rate=True)
+        if not 0 < t < 1:
+            raise UsageError("service target must lie strictly between 0 and 1 (e.g. 0.95 "
+                             "or 95%)")
+        out["service_target"] = t
+    if holding_rate is not None:
+        h = _number(holding_rate, "holding rate", rate=True)
+        if not 0 < h <= 1:
+            raise UsageError("holding rate must be more than 0 and at most 1 (e.g. 0.25 or 25%)")
+        out["holding_rate"] = h
+    if order_cost is not None:
+        c = _number(order_cost, "order cost")
+        if c < 0:
+            raise UsageError("order cost cannot be negative")
+        out["order_cost"] = c
+    return out
+
+
+def _number(value: float | str, what: str, rate: bool = False) -> float:
+    """A number given on the command line or to the API, as 0.95 or "95%"."""
+    x, why = parse_number(value, rate=rate)
+    if why or x is None:
+        raise UsageError(f"{what} {value!r} is not a number")
+    return x
+
+
+def analyse(path: str | Path, *, service_measure: str | None = None,
+            service_target: float | str | None = None,
+            holding_rate: float | str | None = None, order_cost: float | str | None = None,
+            run_date: _dt.date | None = None) -> Report:
+    """Read, check and plan a workbook without writing anything.
+
+    Raises UnusableWorkbook when the workbook cannot be used at all.
+    """
+    log = ProblemLog()
+    overrides = _overrides(service_measure, service_target, holding_rate, order_cost)
+    data = read_input(Path(path), overrides, log)
+    if data is None:
+        raise UnusableWorkbook([p for p in log.problems if p.severity is Severity.FATAL])
+    report = build_report(data, log, Path(path).name, run_date)
+    if report.input_summary["items_planned"] == 0:
+        reasons = [p for p in log.sorted() if p.severity in (Severity.ERROR, Severity.WARNING)]
+        fatal = Problem(Severity.FATAL, data.items.sheet, "", "", None,
+                        f"No item in '{data.items.sheet}' could be planned "
+                        f"({report.input_summary['items_read']} read). Fix the problems listed "
+                        "and run again.", "no-usable-item")
+        raise UnusableWorkbook([fatal, *reasons[:20]])
+    return report
+
+
+def check(path: str | Path, **overrides: Any) -> list[Problem]:
+    """Every problem in the workbook, most severe first; nothing is written.
+
+    A workbook that cannot be used gives its fatal problems here rather than raising.
+    """
+    try:
+        return analyse(path, **overrides).problems
+    except UnusableWorkbook as exc:
+        return exc.problems
+
+
+def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path | None = None,
+         json: str | Path | None = None, service_measure: str | None = None,
+         service_target: float | str | None = None, holding_rate: float | str | None = None,
+         order_cost: float | str | None = None, write_workbook: bool = True,
+         run_date: _dt.date | None = None) -> PlanResult:
+    """Plan every item in the workbook at ``path`` and write the results.
+
+    The input file is never changed. By default the output is ``<name>-policy.xlsx`` beside
+    it: the user's sheets plus the generated ones. Raises UnusableWorkbook or UsageError.
+    """
+    src = Path(path)
+    out = Path(output) if output is not None else default_output_path(src)
+    if write_workbook:
+        _check_output_path(src, out)
+    report = analyse(src, service_measure=service_measure, service_target=service_target,
+                     holding_rate=holding_rate, order_cost=order_cost, run_date=run_date)
+    result = PlanResult(report)
+    if write_workbook:
+        result.output, result.standalone, result.sheets = write_policy_workbook(src, out, report)
+    if csv is not None:
+        write_csv(Path(csv), report)
+        result.csv = Path(csv)
+    if json is not None:
+        write_json(Path(json), report)
+        result.json = Path(json)
+    return result
+
+
+def _check_output_path(src: Path, out: Path) -> None:
+    if out.resolve() == src.resolve():
+        raise UsageError(f"the output {out} is the input itself; xlpolicy never writes over "
+                         "your workbook. Choose another name with -o.")
+    if out.suffix.lower() not in (".xlsx", ".xlsm"):
+        raise UsageError(f"the output {out.name} must end in .xlsx (or .xlsm for a workbook "
+                         "with macros)")
+    if src.suffix.lower() == ".xlsm" and out.suffix.lower() != ".xlsm":
+        raise UsageError(f"{src.name} holds macros; its output must end in .xlsm to keep them "
+                         f"(e.g. {default_output_path(src).name})")
+    if not out.parent.exists():
+        raise UsageError(f"the folder {out.parent} does not exist")
+
+
+def _sheet_names(taken: list[str]) -> dict[str, str]:
+    """Generated sheet names that do not clash with the user's own sheets."""
+    lower = {t.lower() for t in taken}
+    names = {}
+    for role, name in DEFAULT_SHEET_NAMES.items():
+        candidate, k = name, 2
+        while candidate.lower() in lower:
+            candidate = f"{name} ({k})"
+            k += 1
+        names[role] = candidate
+        lower.add(candidate.lower())
+    return names
+
+
+def write_policy_workbook(src: Path, out: Path, report: Report) -> tuple[Path, bool, list[str]]:
+    """Write the generated sheets into a copy of the user's workbook, or on their own.
+
+    Returns (path written, whether standalone, generated sheet names).
+    """
+    standalone_reason = None
+    try:
+        taken = user_sheet_names(src)
+    except CannotMerge as exc:
+        standalone_reason = str(exc)
+        taken = []
+    with tempfile.TemporaryDirectory(prefix="xlpolicy-") as tmp:
+        gen = Path(tmp) / "generated.xlsx"
+        if standalone_reason is None:
+            names = _sheet_names(taken)
+            sheets = write_generated_workbook(gen, report, names)
+            try:
+                merge_generated_sheets(src, gen, out)
+                return out, False, sheets
+            except CannotMerge as exc:
+                standalone_reason = str(exc)
+        note = Problem(
+            Severity.WARNING, "", "", "", None,
+            f"Your sheets could not be carried over intact ({standalone_reason}), so the results "
+            "were written to a workbook of their own; your workbook is unchanged.",
+            "output-standalone")
+        report.problems.insert(0, note)
+        out = out.with_suffix(".xlsx")
+        sheets = write_generated_workbook(gen, report, dict(DEFAULT_SHEET_NAMES))
+        with atomic_output(out) as tmp_out:
+            shutil.copyfile(gen, tmp_out)
+        return out, True, sheets
+
+
+def template(path: str | Path) -> Path:
+    """Write an empty input workbook with the right sheets and headers; return its path."""
+    p = Path(path)
+    with atomic_output(p) as tmp:
+        write_template(Path(tmp))
+    return p

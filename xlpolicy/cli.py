@@ -1,0 +1,198 @@
+"""The command line: a thin layer over xlpolicy.api.
+
+Exit status: 0 when a policy was written (warnings allowed), 1 when the input cannot be
+used at all (or the output cannot be written), 2 for a usage error.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+from pathlib import Path
+from typing import Any
+
+import click
+
+from . import __version__, api
+from .contract import SERVICE_MEASURES
+from .problems import Problem, Severity, UnusableWorkbook
+from .report import Report
+
+_SEVERITY_STYLE = {
+    Severity.FATAL: {"fg": "red", "bold": True},
+    Severity.ERROR: {"fg": "red"},
+    Severity.WARNING: {"fg": "yellow"},
+    Severity.INFO: {"fg": "cyan"},
+}
+
+
+def _override_options(f: Any) -> Any:
+    """Options that override the workbook's Settings sheet, shared by plan and check."""
+    f = click.option("--order-cost", type=str, default=None, metavar="MONEY",
+                     help="Cost of one order, for items that leave it blank.")(f)
+    f = click.option("--holding-rate", type=str, default=None, metavar="RATE",
+                     help="Yearly holding cost as a fraction of unit cost, e.g. 0.25 or 25%, for "
+                          "items that leave it blank.")(f)
+    f = click.option("--target", "service_target", type=str, default=None, metavar="RATE",
+                     help="Service target for items that leave it blank, e.g. 0.95 or 95%.")(f)
+    f = click.option("--measure", "service_measure", default=None, metavar="MEASURE",
+                     help="How the reorder point is set: "
+                          + ", ".join(f"'{m}'" for m in SERVICE_MEASURES)
+                          + " (or cycle-service, fill-rate, shortage-cost). Default: the "
+                          "Settings sheet, else 'cycle service'.")(f)
+    return f
+
+
+@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, prog_name="xlpolicy")
+def main() -> None:
+    """Order quantities, reorder points and safety stock from a stock workbook.
+
+    Start with 'xlpolicy template items.xlsx', fill in your items and sales history,
+    then run 'xlpolicy check items.xlsx' and 'xlpolicy plan items.xlsx'.
+    """
+
+
+@main.command()
+@click.argument("workbook", type=click.Path(path_type=Path))
+@click.option("-o", "--output", type=click.Path(path_type=Path), default=None,
+              help="Where to write the policy workbook (default: <name>-policy.xlsx beside "
+                   "the input).")
+@click.option("--csv", "csv_path", type=click.Path(path_type=Path), default=None,
+              help="Also write the per-item table as CSV.")
+@click.option("--json", "json_path", type=click.Path(path_type=Path), default=None,
+              help="Also write the per-item table, problems and totals as JSON.")
+@_override_options
+@click.option("-q", "--quiet", is_flag=True, help="Print only the path written and errors.")
+def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: Path | None,
+         service_measure: str | None, service_target: str | None, holding_rate: str | None,
+         order_cost: str | None, quiet: bool) -> None:
+    """Compute the policy for every item and write the policy workbook.
+
+    Your WORKBOOK is never changed. The output holds your own sheets plus Policy, Summary,
+    Reorder now and Warnings.
+    """
+    result = _run(lambda: api.plan(
+        workbook, output, csv=csv_path, json=json_path, service_measure=service_measure,
+        service_target=service_target, holding_rate=holding_rate, order_cost=order_cost))
+    report = result.report
+    if not quiet:
+        _print_read(report)
+        _print_problems(report.problems)
+        _print_totals(report)
+    for p in (result.output, result.csv, result.json):
+        if p is not None:
+            click.echo(f"Wrote {p}" if not quiet else str(p))
+    if result.standalone and not quiet:
+        click.echo("Note: your own sheets are not in it (see the first warning).")
+
+
+@main.command()
+@click.argument("workbook", type=click.Path(path_type=Path))
+@_override_options
+def check(workbook: Path, service_measure: str | None, service_target: str | None,
+          holding_rate: str | None, order_cost: str | None) -> None:
+    """Report every problem in WORKBOOK without writing anything.
+
+    Exit status 0 if it can be planned (possibly with warnings), 1 if it cannot.
+    """
+    report = _run(lambda: api.analyse(
+        workbook, service_measure=service_measure, service_target=service_target,
+        holding_rate=holding_rate, order_cost=order_cost))
+    _print_read(report)
+    _print_problems(report.problems, limit=None)
+    if not report.problems:
+        click.echo("No problems found.")
+
+
+@main.command()
+@click.argument("path", type=click.Path(path_type=Path), default="xlpolicy-template.xlsx")
+@click.option("--force", is_flag=True, help="Replace PATH if it exists.")
+def template(path: Path, force: bool) -> None:
+    """Write an empty input workbook with the right sheets and headers to PATH."""
+    if path.exists() and not force:
+        raise click.UsageError(f"{path} exists; use --force to replace it")
+    if path.suffix.lower() != ".xlsx":
+        raise click.UsageError("the template must be an .xlsx file")
+    _run(lambda: api.template(path))
+    click.echo(f"Wrote {path}")
+
+
+def _run(fn: Any) -> Any:
+    """Call into the API, turning the user's mistakes into messages and exit codes."""
+    try:
+        return fn()
+    except api.UsageError as exc:
+        raise click.UsageError(str(exc)) from None
+    except UnusableWorkbook as exc:
+        click.echo(click.style("Cannot use this workbook:", fg="red", bold=True), err=True)
+        _print_problems(exc.problems, limit=None, err=True)
+        sys.exit(1)
+    except OSError as exc:
+        name = getattr(exc, "filename", None) or ""
+        msg = getattr(exc, "user_message", None) or (
+            f"{name}: {exc.strerror or exc}. If the file is open in another program, close it "
+            "and try again.")
+        click.echo(click.style(f"Could not write: {msg}", fg="red"), err=True)
+        sys.exit(1)
+    except Exception as exc:  # a bug of ours: say so plainly; traceback on request
+        if os.environ.get("XLPOLICY_DEBUG"):
+            raise
+        click.echo(click.style(
+            f"xlpolicy hit an internal error ({type(exc).__name__}: {exc}). Your workbook was "
+            "not changed. Please report this with the workbook if you can; set "
+            "XLPOLICY_DEBUG=1 for details.", fg="red"), err=True)
+        sys.exit(1)
+
+
+def _print_read(report: Report) -> None:
+    s = report.input_summary
+    layout = s.get("history_layout")
+    hist = (f"History: {s.get('history_items', 0)} items x {s.get('periods', 0)} "
+            f"{s.get('period', 'period')}s ({layout} layout)") if layout != "none" else (
+        "no History sheet")
+    click.echo(f"Read {s.get('file')}: {s.get('items_read')} items; {hist}.")
+    click.echo(f"Planned {s.get('items_planned')} items, skipped {s.get('items_skipped')}; "
+               f"service measure: {report.settings['service_measure']}.")
+
+
+def _print_problems(problems: list[Problem], limit: int | None = 10, err: bool = False) -> None:
+    if not problems:
+        return
+    counts = {sev: sum(1 for p in problems if p.severity is sev) for sev in Severity}
+    parts = [f"{n} {sev.value}{'s' if n != 1 else ''}" for sev, n in counts.items() if n]
+    click.echo("Problems: " + ", ".join(parts), err=err)
+    shown = problems if limit is None else problems[:limit]
+    for p in shown:
+        where = p.where()
+        item = f" [{p.item}]" if p.item else ""
+        click.echo("  " + click.style(f"{p.severity.value:<7}", **_SEVERITY_STYLE[p.severity])
+                   + f" {where}{item}: {p.message}", err=err)
+    if limit is not None and len(problems) > limit:
+        click.echo(f"  ... and {len(problems) - limit} more: see the Warnings sheet.", err=err)
+
+
+def _print_totals(report: Report) -> None:
+    t = report.totals
+    cur = report.settings.get("currency") or ""
+
+    def money(x: float) -> str:
+        return f"{cur}{x:,.2f}" if len(cur) <= 1 else f"{x:,.2f} {cur}"
+
+    rows = [
+        ("Annual ordering cost", money(t["annual_ordering_cost"])),
+        ("Annual holding cost (cycle + safety)",
+         money(t["annual_cycle_holding_cost"] + t["annual_safety_holding_cost"])),
+        ("Annual shortage cost", money(t["annual_shortage_cost"])),
+        ("Annual total cost", money(t["annual_total_cost"])),
+        ("Average inventory value", money(t["average_inventory_value"])),
+        ("Items to reorder now", f"{int(t['items_to_reorder'])} "
+                                 f"({money(t['reorder_value'])})"),
+    ]
+    width = max(len(k) for k, _ in rows)
+    for k, v in rows:
+        click.echo(f"  {k:<{width}}  {v:>16}")
+
+
+if __name__ == "__main__":  # pragma: no cover
+    main()
