@@ -227,3 +227,49 @@ def test_python_module_entry_point_runs_the_demo(tmp_path):
     assert proc.stdout.strip() == str(out)
     wb = load_workbook(out, read_only=True)
     assert wb.sheetnames[-4:] == GENERATED
+
+
+def test_macro_workbook_keeps_its_macros(tmp_path):
+    # An .xlsm written by xlsxwriter with a (dummy) VBA part: the output is an .xlsm whose
+    # vbaProject.bin is byte for byte the input's (macros are never dropped or run).
+    import zipfile
+
+    import xlsxwriter
+
+    vba = tmp_path / "vbaProject.bin"
+    vba.write_bytes(b"\xd0\xcf\x11\xe0" + bytes(range(256)) * 4)
+    src = tmp_path / "m.xlsm"
+    wb = xlsxwriter.Workbook(str(src))
+    ws = wb.add_worksheet("Items")
+    ws.write_row(0, 0, BASE_HEADERS)
+    ws.write_row(1, 0, item_row("A"))
+    hs = wb.add_worksheet("History")
+    hs.write_row(0, 0, ["Item", "Period", "Quantity"])
+    for k, q in enumerate(weekly_history(["A"], weeks=30)["A"]):
+        hs.write_row(k + 1, 0, ["A", k + 1, q])
+    wb.add_vba_project(str(vba))
+    wb.close()
+    before = digest(src)
+    res = run("plan", src)
+    assert res.exit_code == 0, res.output
+    out = tmp_path / "m-policy.xlsm"
+    with zipfile.ZipFile(src) as a, zipfile.ZipFile(out) as b:
+        assert b.read("xl/vbaProject.bin") == a.read("xl/vbaProject.bin")
+        assert b"macroEnabled" in b.read("[Content_Types].xml")
+    assert digest(src) == before
+    assert run("plan", src, "-o", tmp_path / "m.xlsx").exit_code == 2  # would drop macros
+
+
+def test_standalone_output_when_the_package_cannot_take_new_sheets(tmp_path):
+    # The fallback path: if the user's file cannot be extended part by part, the generated
+    # sheets go to a workbook of their own and the first warning says why.
+    from xlpolicy.api import write_policy_workbook
+
+    report = xlpolicy.analyse(shop(tmp_path))
+    odd = tmp_path / "odd.xlsx"
+    odd.write_bytes(b"not a zip package")
+    out, standalone, sheets = write_policy_workbook(odd, tmp_path / "odd-policy.xlsx", report)
+    assert standalone and sheets == GENERATED
+    assert load_workbook(out).sheetnames == GENERATED
+    assert report.problems[0].code == "output-standalone"
+    assert "workbook of their own" in report.problems[0].message

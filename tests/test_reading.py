@@ -250,3 +250,28 @@ def test_empty_rows_inside_items_are_ignored(tmp_path):
     data, log = read(tmp_path / "w.xlsx")
     assert list(data.items.df["item"]) == ["A", "B"]
     assert list(data.items.df["row"]) == [2, 4]
+
+
+def test_zero_padded_number_codes_read_as_shown(tmp_path):
+    # a code typed as 417 but shown as 000417 (cell format "000000") is the code on the label
+    p = write_workbook(tmp_path / "w.xlsx", [item_row(417)], history={"417": [5, 6, 7]})
+    wb = load_workbook(p)
+    wb["Items"]["A2"].number_format = "000000"
+    for row in wb["History"].iter_rows(min_row=2, max_col=1):
+        row[0].value = 417
+        row[0].number_format = "000000"
+    wb.save(p)
+    data, log = read(p)
+    assert list(data.items.df["item"]) == ["000417"]
+    assert data.history.items == ["000417"]
+
+
+def test_empty_history_sheet_counts_as_absent(tmp_path):
+    headers = BASE_HEADERS + ["Annual demand", "Demand sd"]
+    p = write_workbook(tmp_path / "w.xlsx", [item_row("A") + [520, 3]], headers=headers)
+    wb = load_workbook(p)
+    wb.create_sheet("History")  # left empty
+    wb.save(p)
+    data, log = read(p)
+    assert data is not None and data.history is None
+    assert any(x.code == "history-empty" for x in log)

@@ -47,8 +47,13 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog) -> InputD
             return None
         history_name = wb.find_sheet("History")
         history = None
-        if history_name is not None:
-            history = read_history(wb.read(history_name), set(items.df["item"]), settings, log)
+        history_sheet = wb.read(history_name) if history_name is not None else None
+        if history_sheet is not None and not history_sheet.rows:
+            log.info(f"The sheet '{history_name}' is empty; demand comes from the Items sheet's "
+                     "annual figures.", sheet=history_name, code="history-empty")
+            history_sheet = None
+        if history_sheet is not None:
+            history = read_history(history_sheet, set(items.df["item"]), settings, log)
             if history is None:
                 return None
             if history.period is not None and (

@@ -24,18 +24,26 @@ def is_blank(value: Any) -> bool:
     return isinstance(value, str) and _SPACES.sub("", value) == ""
 
 
-def item_code(value: Any) -> str | None:
-    """An item code as text: 123, 123.0 and "123" are the same code; "000123" stays as is."""
+_ZERO_PAD = re.compile(r"^0+$")
+
+
+def item_code(value: Any, number_format: str = "") -> str | None:
+    """An item code as text: 123, 123.0 and "123" are the same code; "000123" stays as is.
+
+    A number shown with a zero-padding format ("000000") is read as the user sees it,
+    "000123", since that is the code printed on their shelf labels.
+    """
     if is_blank(value):
         return None
     if isinstance(value, bool):
         return str(value).upper()
-    if isinstance(value, int):
-        return str(value)
-    if isinstance(value, float):
-        if math.isfinite(value) and value == int(value):
-            return str(int(value))
-        return repr(value)
+    if isinstance(value, (int, float)):
+        if isinstance(value, float) and not (math.isfinite(value) and value == int(value)):
+            return repr(value)
+        digits = str(int(value))
+        if _ZERO_PAD.match(number_format or ""):
+            digits = digits.zfill(len(number_format))
+        return digits
     if isinstance(value, (_dt.datetime, _dt.date)):
         return value.isoformat()
     return _SPACES.sub(" ", str(value)).strip()

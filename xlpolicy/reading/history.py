@@ -210,14 +210,14 @@ def _read_long(sheet: RawSheet, cols: dict[str, int], hidx: int, known: set[str]
     rows: list[int] = []
     unknown_seen: set[str] = set()
     first_cell: dict[str, str] = {}
-    for values, rownum in zip(sheet.rows[hidx + 1:], sheet.row_numbers[hidx + 1:],
-                               strict=True):
+    for values, fmts, rownum in zip(sheet.rows[hidx + 1:], sheet.formats[hidx + 1:],
+                                    sheet.row_numbers[hidx + 1:], strict=True):
         def get(j: int, vals: list[Any] = values) -> Any:
             return vals[j] if j < len(vals) else None
 
         if all(is_blank(v) for v in values):
             continue
-        code = item_code(get(ji))
+        code = item_code(get(ji), fmts[ji] if ji < len(fmts) else "")
         if code is None:
             log.warning("A History row has no item code; it was ignored. Fill in the item code "
                         "or delete the row.", sheet=sheet.name, cell=cell_ref(ji, rownum),
@@ -272,10 +272,12 @@ def _read_wide(sheet: RawSheet, hidx: int, ji: int, pcols: list[int], known: set
     items: list[str] = []
     first_cell: dict[str, str] = {}
     rows_out: list[np.ndarray] = []
-    for values, rownum in zip(sheet.rows[hidx + 1:], sheet.row_numbers[hidx + 1:], strict=True):
+    for values, fmts, rownum in zip(sheet.rows[hidx + 1:], sheet.formats[hidx + 1:],
+                                    sheet.row_numbers[hidx + 1:], strict=True):
         if all(is_blank(v) for v in values):
             continue
-        code = item_code(values[ji] if ji < len(values) else None)
+        code = item_code(values[ji] if ji < len(values) else None,
+                         fmts[ji] if ji < len(fmts) else "")
         ref = cell_ref(ji, rownum)
         if code is None:
             log.warning("A History row has no item code; it was ignored.", sheet=sheet.name,

@@ -170,8 +170,8 @@ def _read_row(values: list[Any], fmts: list[str], rownum: int, header: Header,
         j = cols.get(key)
         return cell_ref(j, rownum) if j is not None else ""
 
-    code_raw, _ = raw("item")
-    code = item_code(code_raw)
+    code_raw, code_fmt = raw("item")
+    code = item_code(code_raw, code_fmt)
     if code is None:
         log.error(
             "This row has data but no item code, so it was skipped. Enter the item's code in "
