@@ -44,6 +44,11 @@ def header_forms(text: object) -> tuple[str, str, str]:
     return base, base + normalise(unit_raw), unit
 
 
+def spellings(key: str, title: str, aliases: tuple[str, ...]) -> set[str]:
+    """The normalised names (key, title, aliases) that select a column or a setting."""
+    return {normalise(key), normalise(title), *(normalise(a) for a in aliases)}
+
+
 # ---------------------------------------------------------------------------
 # Input columns
 # ---------------------------------------------------------------------------
@@ -66,9 +71,7 @@ class Column:
 
     def names(self) -> set[str]:
         """Every normalised spelling that selects this column."""
-        out = {normalise(self.key), normalise(self.title)}
-        out.update(normalise(a) for a in self.aliases)
-        return out
+        return spellings(self.key, self.title, self.aliases)
 
 
 ITEM_COLUMNS: tuple[Column, ...] = (
@@ -169,9 +172,8 @@ class Setting:
     aliases: tuple[str, ...] = ()
 
     def names(self) -> set[str]:
-        out = {normalise(self.key), normalise(self.title)}
-        out.update(normalise(a) for a in self.aliases)
-        return out
+        """Every normalised spelling that selects this setting."""
+        return spellings(self.key, self.title, self.aliases)
 
 
 SETTINGS: tuple[Setting, ...] = (
