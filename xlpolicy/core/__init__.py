@@ -5,15 +5,21 @@ No file or workbook handling here; everything works on numpy arrays, whole colum
 
 from xlpolicy.core.demand import DemandStats, history_statistics, lead_time_demand
 from xlpolicy.core.models import (
+    MODEL_NAMES,
+    GammaLeadTimeDemand,
     LeadTimeDemandModel,
+    NegativeBinomialLeadTimeDemand,
     NormalLeadTimeDemand,
+    PoissonLeadTimeDemand,
     inverse_normal_loss,
+    model_factory,
     normal_loss,
 )
 from xlpolicy.core.policy import (
     POLICY_COLUMNS,
     PolicyInputs,
     compute_policy,
+    item_model_names,
     order_cost_terms,
     round_order_qty,
 )
@@ -24,11 +30,17 @@ __all__ = [
     "lead_time_demand",
     "LeadTimeDemandModel",
     "NormalLeadTimeDemand",
+    "PoissonLeadTimeDemand",
+    "NegativeBinomialLeadTimeDemand",
+    "GammaLeadTimeDemand",
+    "MODEL_NAMES",
+    "model_factory",
     "normal_loss",
     "inverse_normal_loss",
     "POLICY_COLUMNS",
     "PolicyInputs",
     "compute_policy",
+    "item_model_names",
     "order_cost_terms",
     "round_order_qty",
 ]

@@ -3,15 +3,17 @@
 Q is the EOQ (Harris 1913; Wilson 1934) rounded to pack size and minimum order, or, when
 the user gives a shortage cost instead of a service target, the iterative backorder
 optimum (Hadley & Whitin 1963; Nahmias, (Q, R) chapter). R is the smallest whole reorder
-point meeting a cycle-service or fill-rate target, or the cost-optimal one. Everything is
-numpy over whole columns with masks per service measure; there is no per-item loop. Items
-whose inputs cannot give a policy get NaN numbers rather than an exception or a warning.
+point meeting a cycle-service or fill-rate target, or the cost-optimal one. Lead-time demand
+follows a model per item (normal, Poisson, negative binomial or gamma; core.models): items
+are grouped by model and each group is computed at once. Everything is numpy over whole
+columns with masks per service measure; there is no per-item loop. Items whose inputs
+cannot give a policy get NaN numbers rather than an exception or a warning.
 """
 
 from __future__ import annotations
 
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, fields, replace
 
 import numpy as np
 import pandas as pd
@@ -19,11 +21,21 @@ from numpy.typing import ArrayLike
 
 from xlpolicy.contract import CYCLE_SERVICE, FILL_RATE, SHORTAGE_COST
 from xlpolicy.core.demand import lead_time_demand
-from xlpolicy.core.models import Z_LIMIT, LeadTimeDemandModel, NormalLeadTimeDemand
+from xlpolicy.core.models import (
+    MODEL_NAMES,
+    Z_LIMIT,
+    LeadTimeDemandModel,
+    NormalLeadTimeDemand,
+)
+from xlpolicy.core.models import (
+    model_factory as named_model,
+)
 
 __all__ = [
     "PolicyInputs",
+    "ModelFactory",
     "compute_policy",
+    "item_model_names",
     "round_order_qty",
     "order_cost_terms",
     "POLICY_COLUMNS",
@@ -41,6 +53,13 @@ SHORTAGE_RTOL = 1e-9
 SHORTAGE_MAX_ITER = 200
 
 _BISECTION_STEPS = 64
+#: Most whole-unit steps taken from the iterate to the cost-optimal R (usually 0 to 2).
+_DESCENT_STEPS = 10_000
+#: The tail probability whose upper quantile bounds the search for a cost optimum.
+_FAR_TAIL = 1e-300
+
+#: Builds a lead-time demand model from (mean, sd) arrays: a model class or a function.
+ModelFactory = Callable[[np.ndarray, np.ndarray], LeadTimeDemandModel]
 #: Relative slack when turning a continuous value into a whole number (float noise).
 _WHOLE_TOL = 1e-9
 
@@ -65,6 +84,9 @@ class PolicyInputs:
     case and outer spaces ignored). service_target may be NaN for "shortage cost" items;
     shortage_cost is NaN where not given; lead_time_sd_days 0, pack_size 1 and
     minimum_order 0 where not given. Holding cost per unit-year is H = holding_rate * unit_cost.
+    model, optional, names each item's lead-time demand model (core.models.MODEL_NAMES; case
+    and outer spaces ignored); None, "" or a missing value means the default model of
+    :func:`compute_policy` (normal unless its caller passes another model_factory).
     """
 
     annual_demand: np.ndarray
@@ -81,6 +103,7 @@ class PolicyInputs:
     pack_size: np.ndarray
     minimum_order: np.ndarray
     days_per_period: float
+    model: np.ndarray | None = None
 
 
 def order_cost_terms(q: ArrayLike, annual_demand: ArrayLike, order_cost: ArrayLike,
@@ -160,7 +183,7 @@ def _column(x: ArrayLike, n: int) -> np.ndarray:
 
 
 def _shortage_optimum(
-    model_factory: Callable[[np.ndarray, np.ndarray], LeadTimeDemandModel],
+    model_factory: ModelFactory,
     mu: np.ndarray, sd: np.ndarray, D: np.ndarray, S: np.ndarray, H: np.ndarray,
     p: np.ndarray, eoq: np.ndarray,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -203,7 +226,42 @@ def _shortage_optimum(
                 model_factory(mu[k], sd[k]), D[k], S[k], H[k], p[k], r_it[k]
             )
             q[k], n_it[k], nopay[k] = q_b, n_b, nopay_b
+        if model.discrete:
+            pay = np.flatnonzero(~nopay)
+            if pay.size:
+                q[pay], n_it[pay] = _whole_r_descent(
+                    model_factory(mu[pay], sd[pay]), D[pay], S[pay], H[pay], p[pay], q[pay]
+                )
     return q, n_it, nopay
+
+
+def _whole_r_descent(
+    model: LeadTimeDemandModel, D: np.ndarray, S: np.ndarray, H: np.ndarray, p: np.ndarray,
+    q: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray]:
+    """For whole-unit demand, the whole R >= 0 nearest the iterate that minimises the cost.
+
+    With R whole, a fixed point of the Hadley-Whitin iteration is optimal in R for its Q
+    and in Q for its R, but a neighbouring R with its own best Q can cost less. The cost
+    with Q at its best for each R is C(R) = sqrt(2 D H (S + p n(R))) + H (R - mu); step to
+    a cheaper neighbour while there is one. Returns (Q(R), n(R)) at the local minimum.
+    """
+    pD = p * D
+    r = np.maximum(model.upper_quantile(np.clip(q * H / pD, 0.0, 1.0)), 0.0)
+
+    def cost(x: np.ndarray) -> np.ndarray:
+        return np.sqrt(2.0 * D * H * (S + p * model.expected_shortage(x))) + H * (x - model.mean)
+
+    c_r = cost(r)
+    for _ in range(_DESCENT_STEPS):
+        down = (r >= 1.0) & (cost(r - 1.0) < c_r)
+        up = ~down & (cost(r + 1.0) < c_r)
+        if not (down | up).any():
+            break
+        r = np.where(down, r - 1.0, np.where(up, r + 1.0, r))
+        c_r = cost(r)
+    n_r = model.expected_shortage(r)
+    return np.sqrt(2.0 * D * (S + p * n_r) / H), n_r
 
 
 def _shortage_bracketed(
@@ -216,9 +274,11 @@ def _shortage_bracketed(
     psi(R) = P(X > R) p D / (H Q(R)) = 1 and the local minimum is the rightmost root.
     psi is unimodal (checked numerically for the normal model), so: golden-section search
     for its peak left of r_right (where psi < 1), then bisection between the peak and
-    r_right. A peak below 1 means no stationary point: no safety stock pays.
+    r_right. A peak below 1 means no stationary point: no safety stock pays. The search
+    reaches up to mean + Z_LIMIT sd, or further where a skewed model's tail is longer.
     """
     pD = p * D
+    far = np.maximum(model.mean + Z_LIMIT * model.sd, model.upper_quantile(_FAR_TAIL))
 
     def parts(r: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         n_r = model.expected_shortage(r)
@@ -226,7 +286,7 @@ def _shortage_bracketed(
         return model.sf(r) * pD / (H * q_r), q_r, n_r
 
     lo = model.mean - Z_LIMIT * model.sd
-    hi = np.minimum(r_right, model.mean + Z_LIMIT * model.sd)
+    hi = np.minimum(r_right, far)
     golden = (np.sqrt(5.0) - 1.0) / 2.0
     x1 = hi - golden * (hi - lo)
     x2 = lo + golden * (hi - lo)
@@ -245,7 +305,7 @@ def _shortage_bracketed(
     peak = 0.5 * (lo + hi)
     has_root = parts(peak)[0] >= 1.0
     a = peak.copy()
-    b = np.minimum(r_right, model.mean + Z_LIMIT * model.sd)
+    b = np.minimum(r_right, far)
     for _ in range(_BISECTION_STEPS):
         mid = 0.5 * (a + b)
         above = parts(mid)[0] >= 1.0
@@ -257,7 +317,7 @@ def _shortage_bracketed(
 
 def compute_policy(
     inp: PolicyInputs,
-    model_factory: Callable[[np.ndarray, np.ndarray], LeadTimeDemandModel] = NormalLeadTimeDemand,
+    model_factory: ModelFactory = NormalLeadTimeDemand,
 ) -> pd.DataFrame:
     """Compute the (Q, R) policy and its annual costs for every item, in input row order.
 
@@ -265,8 +325,19 @@ def compute_policy(
     cycle_service and fill_rate are those of the final whole-unit (Q, R) under the model.
     Items that cannot be planned (D <= 0, a missing or invalid input, an unknown measure, a
     target outside (0, 1), a missing shortage cost) get NaN numbers; their input columns and
-    lead-time demand are still shown. model_factory builds the lead-time demand model from
-    (mean, sd) arrays; the default is the normal model.
+    lead-time demand are still shown.
+
+    Lead-time demand model: inp.model names one per item (MODEL_NAMES); items without a
+    name use model_factory, which builds a model from (mean, sd) arrays (default: normal).
+    Items are grouped by model and each group is computed at once, results in input row
+    order; an item's numbers do not depend on the other items in the batch. The "model"
+    column says which model was used ("poisson" for a negative binomial item whose variance
+    did not exceed its mean); an unknown model name gives NaN numbers and the "model"
+    column repeats the name as given. Discrete models (Poisson, negative binomial) give
+    whole reorder points directly; under a shortage cost their R for a given Q is the
+    smallest whole R with P(X > R) <= Q H / (p D), which is where the expected annual cost
+    stops falling (marginal analysis), with the same floor/ceil comparison as continuous
+    models.
 
     Service measures round the EOQ with :func:`round_order_qty`. For "shortage cost" the
     continuous Hadley-Whitin optimum is found first; of the allowed order quantities just
@@ -278,10 +349,73 @@ def compute_policy(
 
     Flags: flag_no_safety_stock_pays (shortage cost with Q H / (p D) >= 1: R = mu_L);
     flag_normal_doubtful (sigma_L / mu_L >= 0.5 or mu_L < 10 units, a common-practice rule
-    of thumb for when the normal approximation is weak; set on any row whose lead-time
-    demand is known); flag_reorder_point_floored (R raised to 0); flag_shortage_cost_missing
-    ("shortage cost" measure without a shortage cost: numbers NaN).
+    of thumb for when the normal approximation is weak; set on rows computed under the
+    normal model whose lead-time demand is known, False under the other models);
+    flag_reorder_point_floored (R raised to 0); flag_shortage_cost_missing ("shortage cost"
+    measure without a shortage cost: numbers NaN).
     """
+    n = np.asarray(inp.annual_demand, dtype=float).reshape(-1).shape[0]
+    if inp.model is None:
+        return _policy_group(inp, model_factory)
+    names = item_model_names(inp.model, n)
+    known = np.isin(names, MODEL_NAMES) | (names == "")
+    groups = [
+        (np.flatnonzero(names == key), model_factory if key == "" else named_model(key))
+        for key in ("",) + MODEL_NAMES
+    ]
+    groups.append((np.flatnonzero(~known), NormalLeadTimeDemand))  # unknown: NaN numbers
+    groups = [(idx, fac) for idx, fac in groups if idx.size > 0]
+    if len(groups) == 1 and known.all():
+        return _policy_group(inp, groups[0][1])
+
+    full = _broadcast_inputs(inp, n)
+    parts = []
+    for idx, fac in groups:
+        sub = replace(full, **{f.name: getattr(full, f.name)[idx] for f in fields(full)
+                               if f.name != "days_per_period"})
+        frame = _policy_group(sub, fac, usable=known[idx])
+        frame.index = idx
+        parts.append(frame)
+    out = pd.concat(parts).sort_index()
+    out.index = pd.RangeIndex(n)
+    unknown = ~known
+    if unknown.any():  # say which name was not understood, as the user wrote it
+        given = pd.Series(full.model[unknown], dtype=object).astype(str).str.strip()
+        out.loc[unknown, "model"] = given.to_numpy(dtype=object)
+    return out
+
+
+def item_model_names(model: ArrayLike | None, n: int) -> np.ndarray:
+    """Per-item model names, lower case without outer spaces; "" where none is given.
+
+    None, NaN and empty text mean "no name" (the default model). Accepts a scalar (applied
+    to every item) or a 1-D array of length n. Names outside MODEL_NAMES are returned as
+    they are (normalised), for the caller to report.
+    """
+    if model is None:
+        return np.full(n, "", dtype=object)
+    raw = pd.Series(np.broadcast_to(np.asarray(model, dtype=object), (n,)), dtype=object)
+    text = raw.where(raw.notna(), "").astype(str).str.strip().str.lower()
+    return text.to_numpy(dtype=object)
+
+
+def _broadcast_inputs(inp: PolicyInputs, n: int) -> PolicyInputs:
+    """The inputs with every per-item field as a length-n array (scalars spread out)."""
+    cols: dict[str, object] = {}
+    for f in fields(inp):
+        val = getattr(inp, f.name)
+        if f.name == "days_per_period":
+            cols[f.name] = val
+        elif f.name in ("measure", "model"):
+            cols[f.name] = np.broadcast_to(np.asarray(val, dtype=object), (n,)).copy()
+        else:
+            cols[f.name] = np.broadcast_to(np.asarray(val, dtype=float), (n,)).copy()
+    return PolicyInputs(**cols)  # type: ignore[arg-type]
+
+
+def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
+                  usable: np.ndarray | None = None) -> pd.DataFrame:
+    """compute_policy for items sharing one model factory; usable=False forces NaN numbers."""
     D = np.asarray(inp.annual_demand, dtype=float).reshape(-1)
     n = D.shape[0]
     d = _column(inp.demand_per_period, n)
@@ -321,6 +455,8 @@ def compute_policy(
         )
         target_ok = np.isfinite(target) & (target > 0) & (target < 1)
         ok = base_ok & (((is_cs | is_fr) & target_ok) | (is_sc & p_given & (p >= 0)))
+        if usable is not None:
+            ok = ok & np.asarray(usable, dtype=bool)
 
         # Working copies: harmless values where not ok, so no NaN reaches the solvers.
         def safe(x: np.ndarray, v: float) -> np.ndarray:
@@ -412,9 +548,13 @@ def compute_policy(
             order_cost_terms(Q, Dw, s_eff, Hw) / order_cost_terms(q_cont, Dw, s_eff, Hw),
             np.nan,
         )
+        used = np.where(ok, model.item_model_names(), model.name).astype(object)
         doubtful = (
             np.isfinite(mu_l) & np.isfinite(sig_l) & ((sig_l >= 0.5 * mu_l) | (mu_l < 10.0))
+            & (used == NormalLeadTimeDemand.name)
         )
+        if usable is not None:
+            doubtful &= np.asarray(usable, dtype=bool)
 
     def out(x: np.ndarray) -> np.ndarray:
         return np.where(ok, x, np.nan)
@@ -429,7 +569,7 @@ def compute_policy(
             "lead_time_demand_sd": sig_l,
             "service_measure": np.asarray(measure_raw, dtype=object),
             "service_target": target,
-            "model": np.full(n, model.name, dtype=object),
+            "model": used,
             "eoq": out(eoq),
             "order_qty": out(Q),
             "reorder_point": out(R),
