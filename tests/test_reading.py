@@ -275,3 +275,21 @@ def test_empty_history_sheet_counts_as_absent(tmp_path):
     data, log = read(p)
     assert data is not None and data.history is None
     assert any(x.code == "history-empty" for x in log)
+
+
+def test_daily_history_becomes_weekly_when_lead_times_are_long(tmp_path):
+    # 10 weeks of daily sales, lead time 14 days: weekly totals are used (a steadier sd)
+    p = write_workbook(tmp_path / "w.xlsx", [item_row("A", lead=14)],
+                       history={"A": [1, 2, 3, 0, 0, 5, 4] * 10 + [9, 9]}, step_days=1)
+    data, log = read(p)
+    assert data.settings["period"] == "week"
+    assert data.history.matrix.shape == (1, 10)
+    np.testing.assert_array_equal(data.history.matrix[0], [15] * 10)
+    assert any(x.code == "history-aggregated" and "2 day(s)" in x.message for x in log)
+
+
+def test_daily_history_stays_daily_for_short_lead_times(tmp_path):
+    p = write_workbook(tmp_path / "w.xlsx", [item_row("A", lead=3)],
+                       history={"A": [1, 2, 3, 0, 0, 5, 4] * 10}, step_days=1)
+    data, _ = read(p)
+    assert data.settings["period"] == "day" and data.history.matrix.shape == (1, 70)

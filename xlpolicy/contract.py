@@ -134,6 +134,14 @@ ITEM_COLUMNS: tuple[Column, ...] = (
            "Standard deviation of demand per period (see Settings: period), "
            "for an item with no history.",
            ("demand sd per period", "demand std dev", "demand standard deviation", "sd of demand")),
+    Column("demand_model", "Demand model", TEXT, "no",
+           "Force the lead-time demand model: normal, poisson, negative binomial or gamma. "
+           "Blank or auto: chosen from the history.",
+           ("demand distribution", "lead time demand model", "distribution")),
+    Column("history_start", "History start", TEXT, "no",
+           "The period (a date or label, as in History) from which this item's history counts. "
+           "Blank: its first sale.",
+           ("first period", "launch date", "start date", "introduced", "history from")),
 )
 
 ITEM_COLUMN_BY_KEY = {c.key: c for c in ITEM_COLUMNS}
@@ -196,6 +204,18 @@ SETTINGS: tuple[Setting, ...] = (
     Setting("order_cost", "Order cost", None,
             "Cost of one order, for items that leave it blank.",
             ("ordering cost", "default order cost", "cost per order")),
+    Setting("demand_model", "Demand model", "auto",
+            "Lead-time demand model for all items: auto (chosen per item from its history), "
+            "normal, poisson, negative binomial or gamma.",
+            ("demand distribution", "lead time demand model", "distribution")),
+    Setting("cap_outliers", "Cap outliers", "no",
+            "yes: a single period far above the rest is capped before estimating demand "
+            "(it is always reported).",
+            ("outlier capping", "cap outlier periods")),
+    Setting("dormant_after", "Dormant after", None,
+            "Periods without a sale after which an item is reported as possibly discontinued. "
+            "Blank: about a quarter of a year.",
+            ("dormant periods", "no sale periods")),
     Setting("currency", "Currency", None,
             "Symbol or code shown in money formats, e.g. $, EUR, £.",
             ("currency symbol", "money")),
@@ -223,7 +243,12 @@ EXTRA_RESULT_KEYS: tuple[str, ...] = (
     "shortage_cost", "pack_size", "minimum_order", "demand_source", "history_periods",
     "eoq", "expected_units_short_per_cycle", "annual_purchase_cost",
     "average_inventory_value", "inventory_position", "order_now_qty",
+    "demand_class", "model_reason", "rate_method", "adi", "cv2", "history_start",
 )
+
+#: Lead-time demand models (core.models.MODEL_NAMES) and the word for "choose per item".
+DEMAND_MODELS: tuple[str, ...] = ("normal", "poisson", "negative binomial", "gamma")
+AUTO_MODEL = "auto"
 
 ALL_RESULT_KEYS: tuple[str, ...] = RESULT_KEYS + EXTRA_RESULT_KEYS
 

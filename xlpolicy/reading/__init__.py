@@ -6,8 +6,10 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from ..problems import ProblemLog
-from .history import History, read_history
+from .history import History, aggregate_daily_to_weeks, read_history
 from .items import ItemTable, read_items
 from .settings import finish_period, read_settings, resolve_settings
 from .workbook import WorkbookFile
@@ -56,6 +58,7 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog) -> InputD
             history = read_history(history_sheet, set(items.df["item"]), settings, log)
             if history is None:
                 return None
+            history = _steadier_period(history, items, settings, log)
             if history.period is not None and (
                     history.period != settings["period"]
                     or settings["sources"]["period"] == "default"):
@@ -65,3 +68,26 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog) -> InputD
         return InputData(Path(path), items, history, settings, list(wb.sheet_names))
     finally:
         wb.close()
+
+
+def _steadier_period(history: History, items: ItemTable, settings: dict[str, Any],
+                     log: ProblemLog) -> History:
+    """Daily history becomes weekly when most lead times are a week or more.
+
+    Only when the user has not set the period themselves and at least 8 whole weeks exist.
+    """
+    explicit = not str(settings["sources"].get("period", "default")).startswith("default")
+    if history.period != "day" or explicit or history.matrix.shape[1] < 56:
+        return history
+    lead = items.df["lead_time_days"].to_numpy(float)
+    lead = lead[np.isfinite(lead)]
+    if not lead.size or float(np.median(lead)) < 7:
+        return history
+    weekly = aggregate_daily_to_weeks(history)
+    dropped = history.matrix.shape[1] - 7 * weekly.matrix.shape[1]
+    log.info(f"Daily History was added up into {weekly.matrix.shape[1]} weeks, since most lead "
+             "times are a week or more: weekly totals give a steadier estimate of the spread"
+             + (f" ({dropped} day(s) at the end, short of a full week, were left out)"
+                if dropped else "") + ". Set 'Period' to day in Settings to keep days.",
+             sheet=history.sheet, code="history-aggregated")
+    return weekly

@@ -337,3 +337,19 @@ def _quantity(value: Any, ref: str, sheet: RawSheet, code: str, log: ProblemLog,
 
 
 __all__ = ["History", "read_history", "infer_period", "PERIODS"]
+
+
+def aggregate_daily_to_weeks(history: History) -> History:
+    """Sum a daily history into weeks (7-day blocks from the first day).
+
+    Used when the lead times are a week or longer: weekly sums smooth out weekday patterns
+    that daily figures would otherwise count as independent noise, so the spread over the
+    lead time is estimated more steadily. A week holding an unreadable day is left out
+    (NaN), like the day itself. A last, partial week is dropped rather than counted short.
+    """
+    n_items, n_days = history.matrix.shape
+    weeks = n_days // 7
+    m = history.matrix[:, : weeks * 7].reshape(n_items, weeks, 7).sum(axis=2)
+    labels = history.labels[: weeks * 7 : 7]
+    return History(history.sheet, history.layout, history.items, m, labels, "week",
+                   history.first_cell)

@@ -17,11 +17,15 @@ import pandas as pd
 from ..contract import ITEM_COLUMN_BY_KEY, ITEM_COLUMNS, NUMBER, RATE, SHORTAGE_COST, TEXT
 from ..problems import ProblemLog, Severity
 from .cells import describe, is_blank, item_code, parse_number, text
+from .settings import parse_model
 from .workbook import Header, RawSheet, cell_ref, find_header
 
 REQUIRED_ALWAYS = ("item", "unit_cost", "lead_time_days")
 NUMERIC_KEYS = tuple(c.key for c in ITEM_COLUMNS if c.kind in (NUMBER, RATE))
 TEXT_KEYS = ("description", "category", "supplier")
+#: Read as they are and resolved later: the model name, and the start period (a date or a
+#: label that must match History, which is read after Items).
+OTHER_KEYS = ("demand_model", "history_start")
 
 #: Columns only used for the reorder list and the today-vs-recommended comparison: a bad
 #: value there is reported and blanked, but the item is still planned.
@@ -143,7 +147,7 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
     df = pd.DataFrame.from_records(records, columns=keys + ["row"])
     for k in NUMERIC_KEYS:
         df[k] = pd.to_numeric(df[k], errors="coerce").astype(float)
-    for k in ("item",) + TEXT_KEYS:
+    for k in ("item",) + TEXT_KEYS + OTHER_KEYS:
         df[k] = df[k].astype(object)
     df["row"] = df["row"].astype(int)
     return ItemTable(sheet.name, df, dict(cols), hrow, np.asarray(usable, dtype=bool),
@@ -184,6 +188,15 @@ def _read_row(values: list[Any], fmts: list[str], rownum: int, header: Header,
     reported: set[str] = set()  # keys whose cell already has a problem in this row
     for key in TEXT_KEYS:
         rec[key] = text(raw(key)[0])
+    rec["history_start"] = None if is_blank(raw("history_start")[0]) else raw("history_start")[0]
+    model_raw = raw("demand_model")[0]
+    rec["demand_model"] = parse_model(model_raw)
+    if rec["demand_model"] is None and not is_blank(model_raw):
+        log.warning(
+            f"{title('demand_model')} {describe(model_raw)} is not a model I know; the model "
+            "was chosen from the history. Write normal, poisson, negative binomial, gamma or "
+            "auto.", sheet=sheet.name, cell=ref("demand_model"), item=code, value=model_raw,
+            code="demand_model-unknown")
     for key in NUMERIC_KEYS:
         value, fmt = raw(key)
         col = ITEM_COLUMN_BY_KEY[key]

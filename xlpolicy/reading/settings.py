@@ -42,6 +42,33 @@ _PERIOD_LOOKUP = {
 }
 
 
+_MODEL_LOOKUP = {
+    normalise(a): m
+    for m, aliases in {
+        "auto": ("auto", "automatic", "choose", "best"),
+        "normal": ("normal", "gaussian", "norm"),
+        "poisson": ("poisson", "pois"),
+        "negative binomial": ("negative binomial", "negbin", "nb", "neg binomial", "nbinom"),
+        "gamma": ("gamma",),
+    }.items()
+    for a in aliases
+}
+_YES = {"yes", "y", "true", "1", "on"}
+_NO = {"no", "n", "false", "0", "off"}
+
+
+def parse_model(value: Any) -> str | None:
+    """A demand model name (or "auto"), loosely matched, or None."""
+    return _MODEL_LOOKUP.get(normalise(value)) if not is_blank(value) else None
+
+
+def parse_yes_no(value: Any) -> bool | None:
+    """yes/no, true/false, 1/0 (or a real boolean), or None."""
+    if isinstance(value, bool):
+        return value
+    return True if normalise(value) in _YES else False if normalise(value) in _NO else None
+
+
 def parse_measure(value: Any) -> str | None:
     """A service measure name, loosely matched, or None."""
     return _MEASURE_LOOKUP.get(normalise(value)) if not is_blank(value) else None
@@ -126,6 +153,18 @@ def resolve_settings(
             out[key] = m
         elif key == "currency":
             out[key] = str(raw).strip()
+        elif key == "demand_model":
+            m = parse_model(raw)
+            if m is None:
+                bad(key, raw, cell, "write auto, normal, poisson, negative binomial or gamma")
+                continue
+            out[key] = m
+        elif key == "cap_outliers":
+            yes = parse_yes_no(raw)
+            if yes is None:
+                bad(key, raw, cell, "write yes or no")
+                continue
+            out[key] = "yes" if yes else "no"
         else:
             x, why = parse_number(raw, rate=key in ("service_target", "holding_rate"))
             if why:
@@ -145,6 +184,9 @@ def resolve_settings(
                 continue
             if key == "periods_per_year" and x <= 0:
                 bad(key, raw, cell, "periods per year must be more than 0")
+                continue
+            if key == "dormant_after" and (x < 1 or not float(x).is_integer()):
+                bad(key, raw, cell, "write a whole number of periods, 1 or more")
                 continue
             out[key] = x
         sources[key] = f"Settings {cell}"
@@ -173,6 +215,9 @@ def finish_period(settings: dict[str, Any]) -> None:
 
 
 SETTING_DEFAULT_TEXT = {
+    "demand_model": "auto",
+    "cap_outliers": "no",
+    "dormant_after": "about a quarter of a year",
     "period": "week",
     "periods_per_year": "365, 52 or 12 by period",
     "service_measure": "cycle service",
