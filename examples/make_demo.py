@@ -56,7 +56,7 @@ class Spec:
     category: str
     supplier: str  # key of SUPPLIERS
     unit_cost: float
-    pattern: str  # fast, medium, slow, lumpy, seasonal, new, annual
+    pattern: str  # fast, medium, slow, lumpy, seasonal, new, annual, rising, spike, fading
     rate: float  # mean units per week (for "annual": units per year)
     pack: int | None = None
 
@@ -109,6 +109,10 @@ ITEMS: tuple[Spec, ...] = (
     Spec("000502", "Degreaser 1 L", WS, "GRS", 7.20, "medium", 5, 6),
     Spec("000503", "Assembly grease, 500 g tub", WS, "GRS", 11.40, "slow", 0.9),
     Spec("000505", "Nitrile gloves, box of 100", WS, "GRS", 8.50, "slow", 2),
+    # Patterns a planner should comment on (issue: demand as real histories have it).
+    Spec("DT-230", "E-bike chain, 136 links", DT, "RIM", 29.00, "rising", 2.0),
+    Spec("AC-240", "Phone mount, handlebar", AC, "NCW", 9.50, "spike", 3.0),
+    Spec("AC-236", "Reflective ankle bands, pair", AC, "NCW", 2.40, "fading", 3.0),
 )
 
 # Items whose stock is deliberately low (below any sensible reorder point, nothing on order).
@@ -160,6 +164,9 @@ def simulate(rng: np.random.Generator) -> dict[str, np.ndarray]:
             sales[spec.code] = qty.astype(float)
             continue
         mean = np.full(WEEKS, spec.rate)
+        if spec.pattern == "rising":
+            # e-bikes are catching on: demand climbs to about 3.5 times over two years
+            mean = spec.rate * (1.0 + 2.5 * np.arange(WEEKS) / WEEKS)
         if spec.category == TT:
             mean = mean * summer
         if spec.pattern == "seasonal":
@@ -167,6 +174,10 @@ def simulate(rng: np.random.Generator) -> dict[str, np.ndarray]:
         qty = rng.poisson(mean).astype(float)
         if spec.pattern == "new":
             qty[: WEEKS - 12] = np.nan  # launched 12 weeks before the stock count
+        if spec.pattern == "spike":
+            qty[61] = 60  # one club bought a batch for its members: not ordinary demand
+        if spec.pattern == "fading":
+            qty[-20:] = 0  # the maker stopped supplying it; the shelf ran empty
         sales[spec.code] = qty
     return sales
 

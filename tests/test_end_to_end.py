@@ -77,7 +77,8 @@ def test_plan_writes_policy_workbook_and_leaves_input_alone(tmp_path, layout):
                                    seed=11)["000123"])
     d, s = hist.mean(), hist.std(ddof=1)  # sample sd (contract)
     text_keys = {"item", "status", "model", "service_measure", "description", "category",
-                 "supplier", "demand_source"}
+                 "supplier", "demand_source", "demand_class", "model_reason", "rate_method",
+                 "history_start"}
     r = {k: float(v) if v not in ("", None) and k not in text_keys else v
          for k, v in rows[0].items()}
     assert r["demand_per_period"] == pytest.approx(d)

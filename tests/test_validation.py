@@ -296,12 +296,17 @@ def test_short_history_warns(tmp_path):
     assert "20 weeks" in probs[0].message
 
 
-def test_new_item_with_a_late_first_sale_warns(tmp_path):
+def test_new_item_history_counts_from_its_first_sale(tmp_path):
+    # issue 3: a new item's history starts at its first sale, so it is not drowned in zeros
     hist = weekly_history(GOOD) | {"N": [0] * 48 + [9] * 12}
     p = workbook_with(tmp_path, [item_row("N")], history=hist)
-    prob = only(problems_of(p), "history-late-start")
-    assert (prob.severity, prob.item) == (Severity.WARNING, "N")
-    assert "First sale in week 49 of 60" in prob.message and "understated" in prob.message
+    probs = problems_of(p)
+    note = only(probs, "history-new-item")
+    assert (note.severity, note.item) == (Severity.INFO, "N")
+    assert "week 49 of 60" in note.message
+    assert only(probs, "history-short").item == "N"  # 12 weeks: a short history
+    r = xlpolicy.analyse(p).results.set_index("item")
+    assert r.at["N", "demand_per_period"] == 9 and r.at["N", "history_periods"] == 12
 
 
 def test_demand_figures_without_sd_assume_poisson_spread(tmp_path):
@@ -343,13 +348,18 @@ def test_settings_period_contradicting_dates(tmp_path):
 
 # --- model doubts from the core ------------------------------------------------------------
 
-def test_slow_mover_gets_a_normal_model_warning(tmp_path):
+def test_normal_model_forced_on_a_slow_mover_gets_a_warning(tmp_path):
+    # Left to choose, a slow mover gets a count model; forced to normal, it gets a warning
+    # that the normal shape is doubtful (sd/mean >= 0.5 or mean < 10: common practice).
     hist = weekly_history(GOOD) | {"S": [0, 1, 0, 0, 2, 0, 1, 0, 0, 1] * 6}
-    p = workbook_with(tmp_path, [item_row("S", lead=7)], history=hist)
+    p = workbook_with(tmp_path, [item_row("S", lead=7)], history=hist,
+                      settings={"Demand model": "normal"})
     prob = only(problems_of(p), "normal-doubtful")
     assert (prob.severity, prob.item, prob.cell) == (Severity.WARNING, "S", "A5")
     r = xlpolicy.analyse(p).results.set_index("item")
     assert r.at["S", "status"] == "warning" and r.at["A1", "status"] == "ok"
+    auto = workbook_with(tmp_path, [item_row("S", lead=7)], history=hist)
+    assert not [x for x in problems_of(auto) if x.code == "normal-doubtful"]
 
 
 def test_shortage_cost_too_low_for_any_safety_stock(tmp_path):

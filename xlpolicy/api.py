@@ -24,7 +24,6 @@ from .reading import read_input
 from .reading.cells import parse_number
 from .reading.settings import parse_measure
 from .report import Report
-from .template import write_template
 from .writing.atomic import atomic_output
 from .writing.package import CannotMerge, merge_generated_sheets, user_sheet_names
 from .writing.sheets import DEFAULT_SHEET_NAMES, write_generated_workbook
@@ -222,6 +221,8 @@ def write_policy_workbook(src: Path, out: Path, report: Report) -> tuple[Path, b
 
 def template(path: str | Path) -> Path:
     """Write an empty input workbook with the right sheets and headers; return its path."""
+    from .template import write_template  # lazily: `python -m xlpolicy.template` runs it too
+
     p = Path(path)
     with atomic_output(p) as tmp:
         write_template(Path(tmp))

@@ -15,12 +15,13 @@ import pandas as pd
 
 from .contract import (
     ALL_RESULT_KEYS,
+    AUTO_MODEL,
     SHORTAGE_COST,
     STATUS_OK,
     STATUS_SKIPPED,
     STATUS_WARNING,
 )
-from .core.demand import history_statistics
+from .core.history import analyse_history, analysis_from_figures, choose_model
 from .core.policy import PolicyInputs, compute_policy
 from .problems import ProblemLog, Severity
 from .reading import InputData
@@ -48,8 +49,10 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
     for key in ("item", "description", "category", "supplier", "unit_cost", "order_cost",
                 "holding_rate", "shortage_cost", "pack_size", "minimum_order"):
         results[key] = df[key].to_numpy()
-    results["demand_source"] = demand["source"]
-    results["history_periods"] = demand["periods"]
+    for key in ("demand_source", "history_periods", "model", "model_reason", "demand_class",
+                "rate_method", "adi", "cv2", "history_start"):
+        results[key] = demand["source" if key == "demand_source" else
+                              "periods" if key == "history_periods" else key]
     results["service_measure"] = settings["service_measure"]
 
     idx = np.flatnonzero(planned)
@@ -71,6 +74,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
             pack_size=np.nan_to_num(sub["pack_size"].to_numpy(float), nan=1.0),
             minimum_order=np.nan_to_num(sub["minimum_order"].to_numpy(float)),
             days_per_period=float(settings["days_per_period"]),
+            model=demand["model"][idx],
         )
         pol = compute_policy(inp)
         for key in pol.columns:
@@ -79,6 +83,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
         _flag_problems(pol, df.iloc[idx], items, log)
     if settings["service_measure"] == SHORTAGE_COST:
         results["service_target"] = np.nan
+    results.loc[~planned, ["model", "model_reason"]] = ""
 
     _reorder_columns(results, df, planned)
     results["status"] = _statuses(results["item"], planned, log)
@@ -105,58 +110,87 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
 
 def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
             log: ProblemLog) -> dict[str, np.ndarray]:
-    """Demand per period (mean, sd) and per year, for each item, from history or figures."""
+    """Demand per period (rate, sd), per year, and the lead-time demand model, per item.
+
+    From History: each item's own span (from its first sale, or its History start), its
+    demand class, the rate (plain mean, or the Syntetos-Boylan estimate for intermittent
+    and lumpy items), and pattern warnings. From annual figures otherwise.
+    """
     n = len(df)
+    settings = data.settings
+    period = settings["period"]
     mean = np.full(n, np.nan)
     sd = np.full(n, np.nan)
     periods = np.zeros(n, dtype=float)
     nonzero = np.zeros(n, dtype=float)
-    first_sale = np.zeros(n, dtype=float)  # index of the first period with a sale
     source = np.full(n, "", dtype=object)
+    out_text = {k: np.full(n, "", dtype=object) for k in
+                ("model", "model_reason", "demand_class", "rate_method", "history_start")}
+    adi = np.full(n, np.nan)
+    cv2 = np.full(n, np.nan)
     hist = data.history
     has_hist = np.zeros(n, dtype=bool)
-    if hist is not None and len(hist.items):
-        stats = history_statistics(hist.matrix)
-        pos = hist.index()
-        where = np.array([pos.get(code, -1) for code in df["item"]], dtype=np.int64)
-        has_hist = where >= 0
-        w = where[has_hist]
-        mean[has_hist] = stats.mean[w]
-        sd[has_hist] = stats.sd[w]
-        periods[has_hist] = stats.periods[w]
-        sold = np.nan_to_num(hist.matrix) > 0
-        first_sale[has_hist] = np.where(sold.any(axis=1), sold.argmax(axis=1), 0)[w]
-        nonzero[has_hist] = stats.nonzero_periods[w]
-        source[has_hist] = "history"
-
-    fig = ~has_hist & ~np.isnan(df["annual_demand"].to_numpy(float))
-    annual_fig = df["annual_demand"].to_numpy(float)
-    mean[fig] = annual_fig[fig] / ppy
-    sd_fig = df["demand_sd"].to_numpy(float)
-    sd[fig] = sd_fig[fig]
-    source[fig] = "annual figures"
-
-    sheet = data.items.sheet
-    period = data.settings["period"]
     codes = df["item"].to_numpy(object)
     rows = df["row"].to_numpy(int)
+    sheet = data.items.sheet
+    dpp = float(settings["days_per_period"])
+    lead = df["lead_time_days"].to_numpy(float) / dpp
+    lead_sd = np.nan_to_num(df["lead_time_sd_days"].to_numpy(float)) / dpp
+    forced = _forced_models(df, settings)
+    an = None
+    if hist is not None and len(hist.items):
+        pos = hist.index()
+        where = np.array([pos.get(code, -1) for code in codes], dtype=np.int64)
+        has_hist = where >= 0
+        w = where[has_hist]
+        start = _history_starts(data, df, where, log)
+        dormant = settings.get("dormant_after")
+        an = analyse_history(hist.matrix, ppy, start=start,
+                             dormant_periods=int(dormant) if dormant else None,
+                             cap_outliers=settings.get("cap_outliers") == "yes")
+        back = np.full(len(hist.items), -1, dtype=np.int64)  # history row -> item row
+        back[w] = np.flatnonzero(has_hist)
+        models, reasons = choose_model(an, lead[back], lead_sd[back], forced[back])
+        for key, arr in (("model", models), ("model_reason", reasons),
+                         ("demand_class", an.demand_class), ("rate_method", an.rate_method)):
+            out_text[key][has_hist] = arr[w]
+        mean[has_hist] = an.rate[w]
+        sd[has_hist] = an.sd[w]
+        periods[has_hist] = an.periods[w]
+        nonzero[has_hist] = an.nonzero_periods[w]
+        adi[has_hist] = an.adi[w]
+        cv2[has_hist] = an.cv2[w]
+        labels = np.array([_label(x) for x in hist.labels] + [""], dtype=object)
+        out_text["history_start"][has_hist] = labels[np.minimum(an.start[w], len(labels) - 1)]
+        source[has_hist] = "history"
+
+    annual_fig = df["annual_demand"].to_numpy(float)
+    fig = ~has_hist & ~np.isnan(annual_fig)
+    mean[fig] = annual_fig[fig] / ppy
+    sd[fig] = df["demand_sd"].to_numpy(float)[fig]
+    source[fig] = "annual figures"
+
     hsheet = hist.sheet if hist is not None else sheet
     first = hist.first_cell if hist is not None else {}
 
     # Masks over all items; messages are written only for the items each one selects.
     both = usable & has_hist & ~np.isnan(annual_fig)
     too_short = usable & has_hist & (periods < 2)
-    zero_hist = usable & has_hist & ~too_short & (mean == 0)
+    zero_hist = usable & has_hist & ~too_short & ~(mean > 0)
     short = (usable & has_hist & ~too_short & ~zero_hist
              & ((periods < ppy) | (nonzero < MIN_NONZERO_PERIODS)))
-    # An item whose first sale comes late in the span (a new item) has its early periods
-    # counted as zero, which understates its demand (contract: the span is the sheet's).
-    late = (usable & has_hist & ~too_short & ~zero_hist
-            & (first_sale >= np.maximum(4, 0.25 * periods)))
     zero_fig = usable & fig & (mean == 0)
     sd_assumed = usable & fig & ~zero_fig & np.isnan(sd)
     missing = usable & ~has_hist & ~fig
     sd[sd_assumed] = np.sqrt(mean[sd_assumed])
+
+    figs = fig & ~zero_fig
+    if figs.any():
+        models, reasons = choose_model(analysis_from_figures(mean[figs], sd[figs]), lead[figs],
+                                       lead_sd[figs], forced[figs])
+        out_text["model"][figs] = models
+        out_text["model_reason"][figs] = np.where(models == "", "", np.char.add(
+            "from the annual figures: ", reasons.astype(str)))
 
     for i in np.flatnonzero(both):
         log.info("This item has History as well as an annual demand figure; the History was "
@@ -176,12 +210,6 @@ def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
                     "The demand spread, and so the safety stock, is uncertain; review it by "
                     "hand and re-run as history builds up.", sheet=hsheet,
                     cell=first.get(codes[i], ""), item=codes[i], code="history-short")
-    for i in np.flatnonzero(late):
-        log.warning(f"First sale in {period} {int(first_sale[i]) + 1} of {int(periods[i])}: the "
-                    f"{int(first_sale[i])} {period}s before it count as zero demand, so a new "
-                    "item's demand is understated. Check its order quantity and reorder point "
-                    "by hand.", sheet=hsheet,
-                    cell=first.get(codes[i], ""), item=codes[i], code="history-late-start")
     for i in np.flatnonzero(zero_fig):
         log.warning("Annual demand is 0, so no stock policy was computed.", sheet=sheet,
                     cell=data.items.cell("annual_demand", rows[i]), item=codes[i], value=0,
@@ -192,15 +220,108 @@ def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
                     cell=data.items.cell("demand_sd", rows[i])
                     or data.items.cell("annual_demand", rows[i]), item=codes[i],
                     code="demand-sd-assumed")
-    where = f"no rows in {hist.sheet}" if hist is not None else "no History sheet"
+    where_txt = f"no rows in {hist.sheet}" if hist is not None else "no History sheet"
     for i in np.flatnonzero(missing):
-        log.error(f"No demand data: {where}, and no annual demand in Items. Add the item's sales "
-                  "history, or its annual demand and demand sd. The item was skipped.",
+        log.error(f"No demand data: {where_txt}, and no annual demand in Items. Add the item's "
+                  "sales history, or its annual demand and demand sd. The item was skipped.",
                   sheet=sheet, cell=data.items.cell("item", rows[i]), item=codes[i],
                   code="demand-missing")
     ok = ~(too_short | zero_hist | zero_fig | missing)
+    if an is not None:
+        _pattern_notes(an, hist, where, usable & ok & has_hist, codes, period, settings, log)
     return {"mean": mean, "sd": sd, "annual": mean * ppy, "periods": periods, "ok": ok,
-            "source": source}
+            "source": source, "adi": adi, "cv2": cv2, **out_text}
+
+
+def _label(x: Any) -> str:
+    """A History period as text for the output (ISO date, or the label itself)."""
+    return x.isoformat() if isinstance(x, (_dt.date, _dt.datetime)) else str(x)
+
+
+def _forced_models(df: pd.DataFrame, settings: dict[str, Any]) -> np.ndarray:
+    """The model the user set per item (column), else for all (setting); "" = choose."""
+    default = settings.get("demand_model") or AUTO_MODEL
+    col = df["demand_model"].to_numpy(object)
+    out = np.where(pd.isna(col), default, col).astype(object)
+    out[out == AUTO_MODEL] = ""
+    return out
+
+
+def _history_starts(data: InputData, df: pd.DataFrame, where: np.ndarray,
+                    log: ProblemLog) -> np.ndarray:
+    """Per History row, the period index of the item's History start (-1: its first sale)."""
+    hist = data.history
+    assert hist is not None
+    start = np.full(len(hist.items), -1, dtype=np.int64)
+    raw = df["history_start"].to_numpy(object)
+    given = np.flatnonzero((where >= 0) & ~pd.isna(raw))
+    if not len(given):
+        return start
+    dated = bool(hist.labels) and isinstance(hist.labels[0], _dt.date)
+    ordinals = np.array([d.toordinal() for d in hist.labels]) if dated else None
+    text_labels = {_label(x): k for k, x in enumerate(hist.labels)}
+    for i in given:
+        v = raw[i]
+        k = -1
+        if dated and isinstance(v, (_dt.date, _dt.datetime)):
+            day = v.date() if isinstance(v, _dt.datetime) else v
+            k = int(np.searchsorted(ordinals, day.toordinal()))  # first period on/after it
+            k = k if k < len(hist.labels) else -1
+        else:
+            k = text_labels.get(_label(v).strip(), -1)
+        if k < 0:
+            log.warning(f"History start {v!r} is not a period in {hist.sheet}; the item's "
+                        "history was counted from its first sale. Write a date within the "
+                        "History's span, or one of its period labels.", sheet=data.items.sheet,
+                        cell=data.items.cell("history_start", int(df['row'].iat[i])),
+                        item=df["item"].iat[i], value=v, code="history_start-unknown")
+            continue
+        start[where[i]] = k
+    return start
+
+
+def _pattern_notes(an: Any, hist: Any, where: np.ndarray, sel: np.ndarray, codes: np.ndarray,
+                   period: str, settings: dict[str, Any], log: ProblemLog) -> None:
+    """A planner's notes on each item's history: new, shifting, seasonal, spiky, dormant."""
+    n_cols = hist.matrix.shape[1]
+    items_idx = np.flatnonzero(sel)
+    h = where[items_idx]
+    capped = settings.get("cap_outliers") == "yes"
+
+    def note(mask: np.ndarray, code: str, severity: str, text: Any) -> None:
+        for i, j in zip(items_idx[mask], h[mask], strict=True):
+            getattr(log, severity)(text(j), sheet=hist.sheet,
+                                   cell=hist.first_cell.get(codes[i], ""), item=codes[i],
+                                   code=code)
+
+    new = (an.start[h] >= 4) & (an.start[h] >= 0.25 * n_cols)
+    note(new, "history-new-item", "info", lambda j: (
+        f"History counted from the first sale ({_label(hist.labels[an.start[j]])}, {period} "
+        f"{an.start[j] + 1} of {n_cols}), as for a new item: the {period}s before it are not "
+        "counted as zero demand."))
+    # A seasonal swing or a stop in sales also shifts the recent third: say the cause only.
+    trend = an.trend[h] & ~an.seasonal[h] & ~an.dormant[h]
+    note(trend, "demand-trend", "warning", lambda j: (
+        f"Demand has {'risen' if an.trend_ratio[j] > 1 else 'fallen'}: the recent third of "
+        f"the history runs at {an.trend_ratio[j]:.2f} times the earlier level. The policy uses "
+        "the average over the whole history; if the change will last, set a later History "
+        "start for this item or adjust the order quantity and reorder point by hand."))
+    note(an.seasonal[h], "demand-seasonal", "warning", lambda j: (
+        f"Demand is seasonal: the busiest part of the year runs at about "
+        f"{min(an.seasonal_strength[j], 99):.1f} times the quietest. A year-round average "
+        "leaves too little stock before the peak and too much after it: raise the reorder "
+        "point ahead of the busy season and lower it after."))
+    note(an.outlier[h], "demand-outlier", "warning", lambda j: (
+        f"One {period} ({_label(hist.labels[an.outlier_index[j]])}: "
+        f"{an.outlier_value[j]:g} units) stands far above the rest and drives much of the "
+        f"demand spread (sd {an.sd[j] if not capped else an.sd_without_outlier[j]:.3g} with it,"
+        f" {an.sd_without_outlier[j]:.3g} without). "
+        + (f"It was capped at {an.outlier_threshold[j]:g} as Settings asks."
+           if capped else "Check it was a real sale, not a one-off bulk order or a typo; "
+           "set 'Cap outliers' to yes in Settings to cap such periods.")))
+    note(an.dormant[h], "demand-dormant", "warning", lambda j: (
+        f"No sales in the last {int(an.periods_since_sale[j])} {period}s, though it sold "
+        "before: possibly discontinued or replaced. Confirm before reordering."))
 
 
 _FLAG_TEXT = {
@@ -259,7 +380,7 @@ def _reorder_columns(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarra
 
 def _typed(results: pd.DataFrame) -> pd.DataFrame:
     text = {"item", "status", "model", "service_measure", "description", "category", "supplier",
-            "demand_source"}
+            "demand_source", "demand_class", "model_reason", "rate_method", "history_start"}
     for key in results.columns:
         if key not in text:
             results[key] = pd.to_numeric(results[key], errors="coerce").astype(float)

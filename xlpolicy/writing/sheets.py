@@ -288,8 +288,14 @@ _POLICY_COLUMNS: tuple[_Col, ...] = (
     _Col("supplier", "Supplier", "text"),
     _Col("status", "Status", "text"),
     _Col("model", "Demand model", "text"),
+    _Col("model_reason", "Why this model", "text"),
+    _Col("demand_class", "Demand pattern", "text"),
     _Col("demand_source", "Demand taken from", "text"),
+    _Col("history_start", "History counted from", "text"),
     _Col("history_periods", "History periods", "count"),
+    _Col("rate_method", "Demand rate estimated by", "text"),
+    _Col("adi", "Average periods between sales", "demand"),
+    _Col("cv2", "Variability of sale sizes (CV squared)", "demand"),
     _Col("annual_demand", "Annual demand (units)", "demand"),
     _Col("demand_per_period", "Demand per period (units)", "demand"),
     _Col("demand_sd_per_period", "Demand sd per period (units)", "demand"),
@@ -907,7 +913,13 @@ class _Book:
             "taking whichever rounding costs less.",
             "Lead-time demand: the mean and spread of demand while an order is on its way, "
             "from each item's demand history and lead time (Silver, Pyke & Peterson 1998, "
-            "ch. 7). It is treated as normal unless the Demand model column names another.",
+            "ch. 7). Each item's history counts from its first sale. Intermittent and lumpy "
+            "items (Syntetos, Boylan & Croston 2005 classes) use the Syntetos-Boylan "
+            "correction of Croston's estimate for the demand rate.",
+            "Demand model: the shape of lead-time demand, chosen per item and explained in "
+            "the 'Why this model' column: normal for steady items with enough demand, Poisson "
+            "or negative binomial for slow and lumpy counts, gamma for skewed fractional "
+            "quantities, unless you set one.",
             "Reorder point: order when the inventory position (on hand + on order - "
             "backordered) falls to this level. It is set from the lead-time demand so that "
             "the service measure is met.",
