@@ -33,6 +33,8 @@ from xlpolicy.core.models import (
 
 __all__ = [
     "PolicyInputs",
+    "evaluate_policy",
+    "EVALUATION_COLUMNS",
     "ModelFactory",
     "compute_policy",
     "item_model_names",
@@ -385,6 +387,75 @@ def compute_policy(
     return out
 
 
+def _achieved(model: LeadTimeDemandModel, Q: np.ndarray, R: np.ndarray, mu: np.ndarray,
+              D: np.ndarray, S: np.ndarray, H: np.ndarray, c: np.ndarray,
+              p: np.ndarray) -> dict[str, np.ndarray]:
+    """Service and yearly costs of whole-unit (Q, R) under a lead-time demand model.
+
+    Field notes: cycle service F(R); units short per cycle n(R) = E[(X - R)^+]; fill rate
+    1 - n(R)/Q; ordering D S/Q; cycle holding H Q/2; safety holding H (R - mu); shortage
+    p D/Q n(R) where p is given (NaN: none, cost 0); purchase D c; average inventory value
+    c (Q/2 + max(R - mu, 0)).
+    """
+    with np.errstate(all="ignore"):
+        short = model.expected_shortage(R)
+        ss = R - mu
+        orders = D / Q
+        ordering = D * S / Q
+        cycle_hold = H * Q / 2.0
+        ss_hold = H * ss
+        shortage = np.where(np.isfinite(p), np.nan_to_num(p) * orders * short, 0.0)
+        return {
+            "cycle_service": model.cdf(R), "short": short,
+            "fill_rate": np.clip(1.0 - short / Q, 0.0, 1.0), "safety_stock": ss,
+            "orders": orders, "ordering": ordering, "cycle_hold": cycle_hold,
+            "ss_hold": ss_hold, "shortage": shortage,
+            "total": ordering + cycle_hold + ss_hold + shortage, "purchase": D * c,
+            "avg_value": c * (Q / 2.0 + np.maximum(ss, 0.0)),
+        }
+
+
+#: Columns of :func:`evaluate_policy`.
+EVALUATION_COLUMNS: tuple[str, ...] = (
+    "safety_stock", "cycle_service", "fill_rate", "units_short_per_cycle",
+    "annual_ordering_cost", "annual_cycle_holding_cost", "annual_safety_holding_cost",
+    "annual_shortage_cost", "annual_total_cost",
+)
+
+
+def evaluate_policy(order_qty: ArrayLike, reorder_point: ArrayLike, mean: ArrayLike,
+                    sd: ArrayLike, model: ArrayLike, annual_demand: ArrayLike,
+                    order_cost: ArrayLike, holding_cost: ArrayLike, unit_cost: ArrayLike,
+                    shortage_cost: ArrayLike) -> pd.DataFrame:
+    """Service and yearly costs of given (Q, R) policies, e.g. the ones a shop uses today.
+
+    Each item is evaluated under its own lead-time demand model (a name from MODEL_NAMES;
+    "" means normal), by the same formulas as compute_policy's achieved figures, so a
+    comparison of today's policy with the recommended one is like for like. Items with a
+    missing or non-positive Q, or an unknown model, get NaN.
+    """
+    q = np.asarray(order_qty, dtype=float).reshape(-1)
+    n = q.shape[0]
+    cols = [_column(x, n) for x in (reorder_point, mean, sd, annual_demand, order_cost,
+                                    holding_cost, unit_cost, shortage_cost)]
+    r, mu, sd_a, D, S, H, c, p = cols
+    names = item_model_names(model, n)
+    names[names == ""] = NormalLeadTimeDemand.name
+    out = pd.DataFrame(np.nan, index=pd.RangeIndex(n), columns=list(EVALUATION_COLUMNS))
+    ok = np.isfinite(q) & (q > 0) & np.isfinite(r) & np.isfinite(mu) & np.isfinite(sd_a)
+    for name in MODEL_NAMES:
+        k = np.flatnonzero(ok & (names == name))
+        if not len(k):
+            continue
+        ach = _achieved(named_model(name)(mu[k], sd_a[k]), q[k], r[k], mu[k], D[k], S[k],
+                        H[k], c[k], p[k])
+        for col, key in zip(EVALUATION_COLUMNS, (
+                "safety_stock", "cycle_service", "fill_rate", "short", "ordering",
+                "cycle_hold", "ss_hold", "shortage", "total"), strict=True):
+            out.loc[k, col] = ach[key]
+    return out
+
+
 def item_model_names(model: ArrayLike | None, n: int) -> np.ndarray:
     """Per-item model names, lower case without outer spaces; "" where none is given.
 
@@ -531,18 +602,12 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
         R = np.maximum(r_raw, 0.0)
 
         # -- what the whole-unit policy achieves, and what it costs --------------------
-        cycle_service = model.cdf(R)
-        short = model.expected_shortage(R)
-        fill = np.clip(1.0 - short / Q, 0.0, 1.0)
-        ss = R - muw
-        orders = Dw / Q
-        ordering = Dw * Sw / Q
-        cycle_hold = Hw * Q / 2.0
-        ss_hold = Hw * ss
-        shortage = np.where(p_given, pw * orders * short, 0.0)
-        total = ordering + cycle_hold + ss_hold + shortage
-        purchase = Dw * cw
-        avg_value = cw * (Q / 2.0 + np.maximum(ss, 0.0))
+        ach = _achieved(model, Q, R, muw, Dw, Sw, Hw, cw, np.where(p_given, pw, np.nan))
+        cycle_service, short, fill, ss = (ach["cycle_service"], ach["short"], ach["fill_rate"],
+                                          ach["safety_stock"])
+        orders, ordering, cycle_hold = ach["orders"], ach["ordering"], ach["cycle_hold"]
+        ss_hold, shortage, total = ach["ss_hold"], ach["shortage"], ach["total"]
+        purchase, avg_value = ach["purchase"], ach["avg_value"]
         rounding_ratio = np.where(
             s_eff > 0,
             order_cost_terms(Q, Dw, s_eff, Hw) / order_cost_terms(q_cont, Dw, s_eff, Hw),
