@@ -24,7 +24,7 @@ from scipy.stats import norm
 
 import xlpolicy
 from xlpolicy.cli import main
-from xlpolicy.contract import RESULT_KEYS
+from xlpolicy.contract import RESULT_KEYS, TEXT_RESULT_KEYS
 
 REPO = Path(__file__).resolve().parent.parent
 GENERATED = ["Summary", "Policy", "Reorder now", "Warnings"]
@@ -76,10 +76,7 @@ def test_plan_writes_policy_workbook_and_leaves_input_alone(tmp_path, layout):
     hist = np.array(weekly_history(["000123", "B-7", "C-9"], weeks=78, mean=25,
                                    seed=11)["000123"])
     d, s = hist.mean(), hist.std(ddof=1)  # sample sd (contract)
-    text_keys = {"item", "status", "model", "service_measure", "description", "category",
-                 "supplier", "demand_source", "demand_class", "model_reason", "rate_method",
-                 "history_start"}
-    r = {k: float(v) if v not in ("", None) and k not in text_keys else v
+    r = {k: float(v) if v not in ("", None) and k not in TEXT_RESULT_KEYS else v
          for k, v in rows[0].items()}
     assert r["demand_per_period"] == pytest.approx(d)
     assert r["demand_sd_per_period"] == pytest.approx(s)

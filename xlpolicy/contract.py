@@ -244,7 +244,19 @@ EXTRA_RESULT_KEYS: tuple[str, ...] = (
     "eoq", "expected_units_short_per_cycle", "annual_purchase_cost",
     "average_inventory_value", "inventory_position", "order_now_qty",
     "demand_class", "model_reason", "rate_method", "adi", "cv2", "history_start",
+    "abc_class", "current_order_qty", "current_reorder_point", "current_safety_stock",
+    "current_cycle_service", "current_fill_rate", "current_units_short_per_cycle",
+    "current_annual_ordering_cost", "current_annual_cycle_holding_cost",
+    "current_annual_safety_holding_cost", "current_annual_shortage_cost",
+    "current_annual_total_cost", "annual_saving",
 )
+
+#: Result keys that hold text; every other result key is a number (NaN when empty).
+TEXT_RESULT_KEYS: frozenset[str] = frozenset({
+    "item", "status", "model", "service_measure", "description", "category", "supplier",
+    "demand_source", "demand_class", "model_reason", "rate_method", "history_start",
+    "abc_class",
+})
 
 #: Lead-time demand models (core.models.MODEL_NAMES) and the word for "choose per item".
 DEMAND_MODELS: tuple[str, ...] = ("normal", "poisson", "negative binomial", "gamma")

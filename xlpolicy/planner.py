@@ -20,9 +20,11 @@ from .contract import (
     STATUS_OK,
     STATUS_SKIPPED,
     STATUS_WARNING,
+    TEXT_RESULT_KEYS,
 )
+from .core.classes import DEFAULT_CUTOFFS, abc_classes
 from .core.history import analyse_history, analysis_from_figures, choose_model
-from .core.policy import PolicyInputs, compute_policy
+from .core.policy import PolicyInputs, compute_policy, evaluate_policy
 from .problems import ProblemLog, Severity
 from .reading import InputData
 from .report import REORDER_KEYS, Report
@@ -86,6 +88,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
     results.loc[~planned, ["model", "model_reason"]] = ""
 
     _reorder_columns(results, df, planned)
+    _abc_and_today(results, df, planned, settings)
     results["status"] = _statuses(results["item"], planned, log)
     results = _typed(results)
     reorder = _reorder_list(results, df)
@@ -378,11 +381,46 @@ def _reorder_columns(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarra
     results["order_now_qty"] = qty
 
 
+def _abc_and_today(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray,
+                   settings: dict[str, Any]) -> None:
+    """ABC class by annual spend, and today's policy (where given) evaluated like ours."""
+    spend = pd.to_numeric(results["annual_purchase_cost"], errors="coerce").to_numpy(float)
+    cutoffs = settings.setdefault("abc_cutoffs", DEFAULT_CUTOFFS)
+    results["abc_class"] = abc_classes(np.where(planned, spend, np.nan), cutoffs)
+    q_now = df["current_order_qty"].to_numpy(float)
+    r_now = df["current_reorder_point"].to_numpy(float)
+    results["current_order_qty"] = q_now
+    results["current_reorder_point"] = r_now
+    both = planned & np.isfinite(q_now) & np.isfinite(r_now)
+    k = np.flatnonzero(both)
+    if not len(k):
+        return
+
+    def col(key: str) -> np.ndarray:
+        return pd.to_numeric(results[key], errors="coerce").to_numpy(float)[k]
+
+    ev = evaluate_policy(q_now[k], r_now[k], col("lead_time_demand_mean"),
+                         col("lead_time_demand_sd"), results["model"].to_numpy(object)[k],
+                         col("annual_demand"), col("order_cost"),
+                         col("holding_rate") * col("unit_cost"), col("unit_cost"),
+                         col("shortage_cost"))
+    for key, src in (("current_safety_stock", "safety_stock"),
+                     ("current_cycle_service", "cycle_service"),
+                     ("current_fill_rate", "fill_rate"),
+                     ("current_units_short_per_cycle", "units_short_per_cycle"),
+                     ("current_annual_ordering_cost", "annual_ordering_cost"),
+                     ("current_annual_cycle_holding_cost", "annual_cycle_holding_cost"),
+                     ("current_annual_safety_holding_cost", "annual_safety_holding_cost"),
+                     ("current_annual_shortage_cost", "annual_shortage_cost"),
+                     ("current_annual_total_cost", "annual_total_cost")):
+        results.loc[k, key] = ev[src].to_numpy()
+    results.loc[k, "annual_saving"] = ev["annual_total_cost"].to_numpy() - col(
+        "annual_total_cost")
+
+
 def _typed(results: pd.DataFrame) -> pd.DataFrame:
-    text = {"item", "status", "model", "service_measure", "description", "category", "supplier",
-            "demand_source", "demand_class", "model_reason", "rate_method", "history_start"}
     for key in results.columns:
-        if key not in text:
+        if key not in TEXT_RESULT_KEYS:
             results[key] = pd.to_numeric(results[key], errors="coerce").astype(float)
     return results
 
@@ -408,6 +446,7 @@ def _totals(results: pd.DataFrame, reorder: pd.DataFrame) -> dict[str, float]:
 
     avg_value = s("average_inventory_value")
     purchase = s("annual_purchase_cost")
+    compared = results["annual_saving"].notna()
     ss_value = float(np.nansum((r["safety_stock"].clip(lower=0) * r["unit_cost"]).to_numpy(float)))
     return {
         "items_planned": float(ok.sum()),
@@ -426,4 +465,10 @@ def _totals(results: pd.DataFrame, reorder: pd.DataFrame) -> dict[str, float]:
         "orders_per_year": s("orders_per_year"),
         "items_to_reorder": float(len(reorder)),
         "reorder_value": float(np.nansum(reorder["order_now_value"].to_numpy(float))),
+        "items_compared": float(compared.sum()),
+        "current_annual_total_cost": float(np.nansum(
+            results.loc[compared, "current_annual_total_cost"].to_numpy(float))),
+        "compared_recommended_annual_total_cost": float(np.nansum(
+            results.loc[compared, "annual_total_cost"].to_numpy(float))),
+        "annual_saving": float(np.nansum(results.loc[compared, "annual_saving"].to_numpy(float))),
     }
