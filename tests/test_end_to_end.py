@@ -271,3 +271,19 @@ def test_standalone_output_when_the_package_cannot_take_new_sheets(tmp_path):
     assert load_workbook(out).sheetnames == GENERATED
     assert report.problems[0].code == "output-standalone"
     assert "workbook of their own" in report.problems[0].message
+
+
+def test_demo_command_runs_end_to_end_with_its_planted_mistakes(tmp_path):
+    # examples/README.md lists the deliberate mistakes and what the tool must say of each
+    res = run("demo", tmp_path / "d")
+    assert res.exit_code == 0, res.output
+    assert (tmp_path / "d" / "demo-shop-policy.xlsx").exists()
+    for where in ("Items!E22 [BR-130]", "Items!A15 [000421]", "Items!J25 [DT-203]",
+                  "Items!H43 [AC-231]", "History!A9838 [000422]"):
+        assert where in res.output
+    problems = {(p.sheet, p.cell, p.code) for p in xlpolicy.check(tmp_path / "d" /
+                                                                    "demo-shop.xlsx")}
+    assert {("Items", "E22", "unit_cost-not-number"), ("Items", "A15", "item-duplicate"),
+            ("Items", "J25", "service_target-out-of-range"),
+            ("Items", "H43", "lead_time_days-out-of-range"),
+            ("History", "A9838", "history-unknown-item")} <= problems

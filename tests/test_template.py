@@ -189,15 +189,15 @@ def test_demo_shop_has_the_documented_content() -> None:
     assert items["J25"].value == 1.5 and items["A25"].value == "DT-203"
     assert items["H43"].value == -10 and items["A43"].value == "AC-231"
     assert items["A10"].value == items["A15"].value == "000421"
-    for cell in ("A3947", "A4071", "A4238"):
+    for cell in ("A9838", "A10158", "A10562"):
         assert history[cell].value == "000422"
     readme = (EXAMPLES / "README.md").read_text(encoding="utf-8")
-    for ref in ("Items!E22", "Items!J25", "Items!H43", "Items!A10", "Items!A15", "A3947"):
+    for ref in ("Items!E22", "Items!J25", "Items!H43", "Items!A10", "Items!A15", "A9838"):
         assert ref in readme
 
     codes = [r[0] for r in items.iter_rows(min_row=4, values_only=True)]
     assert all(isinstance(c, str) for c in codes)
-    assert 36 <= len(set(codes)) <= 48
+    assert 100 <= len(set(codes)) <= 200  # issue: a demo of 100 to 200 items
     assert "000422" not in codes
 
     rows = list(history.iter_rows(min_row=2, values_only=True))

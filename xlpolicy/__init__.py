@@ -7,10 +7,19 @@ and :func:`analyse` (read, check and plan without writing).
 
 __version__ = "0.1.0"
 
-from .api import PlanResult, UsageError, analyse, check, default_output_path, plan, template
+from .api import (
+    PlanResult,
+    UsageError,
+    analyse,
+    check,
+    default_output_path,
+    demo,
+    plan,
+    template,
+)
 from .problems import Problem, Severity, UnusableWorkbook
 
 __all__ = [
     "PlanResult", "Problem", "Severity", "UnusableWorkbook", "UsageError", "__version__",
-    "analyse", "check", "default_output_path", "plan", "template",
+    "analyse", "check", "default_output_path", "demo", "plan", "template",
 ]

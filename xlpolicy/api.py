@@ -219,6 +219,21 @@ def write_policy_workbook(src: Path, out: Path, report: Report) -> tuple[Path, b
         return out, True, sheets
 
 
+def demo(folder: str | Path = "xlpolicy-demo") -> PlanResult:
+    """Write the demo workbook of an invented bicycle shop into ``folder`` and plan it.
+
+    The workbook is generated (seeded), so it is the same as examples/demo-shop.xlsx.
+    """
+    from .demo import build_shop  # lazily: only this command needs the generator
+
+    out = Path(folder)
+    out.mkdir(parents=True, exist_ok=True)
+    src = out / "demo-shop.xlsx"
+    with atomic_output(src) as tmp:
+        build_shop(Path(tmp))
+    return plan(src)
+
+
 def template(path: str | Path) -> Path:
     """Write an empty input workbook with the right sheets and headers; return its path."""
     from .template import write_template  # lazily: `python -m xlpolicy.template` runs it too

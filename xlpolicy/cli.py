@@ -75,6 +75,26 @@ def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: 
     result = _run(lambda: api.plan(
         workbook, output, csv=csv_path, json=json_path, service_measure=service_measure,
         service_target=service_target, holding_rate=holding_rate, order_cost=order_cost))
+    _print_run(result, quiet)
+
+
+@main.command()
+@click.argument("folder", type=click.Path(path_type=Path), default="xlpolicy-demo")
+@click.option("-q", "--quiet", is_flag=True, help="Print only the paths written and errors.")
+def demo(folder: Path, quiet: bool) -> None:
+    """Write the demo workbook of an invented bicycle shop into FOLDER and plan it.
+
+    A quick way to see what xlpolicy makes: open FOLDER/demo-shop-policy.xlsx afterwards.
+    The demo holds a few deliberate mistakes, to show the warnings.
+    """
+    result = _run(lambda: api.demo(folder))
+    if not quiet:
+        click.echo(f"Wrote the demo workbook {folder / 'demo-shop.xlsx'}")
+    _print_run(result, quiet)
+
+
+def _print_run(result: api.PlanResult, quiet: bool) -> None:
+    """What a planning run read, found and wrote."""
     report = result.report
     if not quiet:
         _print_read(report)
