@@ -27,7 +27,7 @@ from xlpolicy.cli import main
 from xlpolicy.contract import RESULT_KEYS, TEXT_RESULT_KEYS
 
 REPO = Path(__file__).resolve().parent.parent
-GENERATED = ["Summary", "Policy", "Reorder now", "Warnings"]
+GENERATED = ["Summary", "Reorder now", "Policy", "Today vs plan", "Warnings", "How it works"]
 
 
 def run(*args: str):
@@ -224,7 +224,7 @@ def test_python_module_entry_point_runs_the_demo(tmp_path):
     out = tmp_path / "demo-policy.xlsx"
     assert proc.stdout.strip() == str(out)
     wb = load_workbook(out, read_only=True)
-    assert wb.sheetnames[-4:] == GENERATED
+    assert wb.sheetnames[-6:] == GENERATED
 
 
 def test_macro_workbook_keeps_its_macros(tmp_path):

@@ -23,16 +23,19 @@ import math
 import re
 from pathlib import Path
 
-import numpy as np
 import openpyxl
 import pandas as pd
 import pytest
+from sheet_eval import functions_in
+from sheet_reports import COLUMNS, NAN, RUN, make_report
+from sheet_reports import results as _results
 
 from xlpolicy import contract
-from xlpolicy.problems import Problem, Severity
-from xlpolicy.report import REORDER_KEYS, TOTAL_KEYS, Report
+from xlpolicy.report import REORDER_KEYS, TOTAL_KEYS
+from xlpolicy.writing.sheetkit import ALLOWED_FUNCTIONS
 from xlpolicy.writing.sheets import (
     DEFAULT_SHEET_NAMES,
+    SHEET_ORDER,
     clean_text,
     money_format,
     resolve_sheet_names,
@@ -40,128 +43,7 @@ from xlpolicy.writing.sheets import (
 )
 from xlpolicy.writing.tables import results_for_export, write_csv, write_json
 
-RUN = dt.date(2031, 3, 14)
-NAN = float("nan")
-
-
-def _item(**kw: object) -> dict:
-    row: dict = {k: NAN for k in contract.ALL_RESULT_KEYS}
-    row.update({"description": None, "category": None, "supplier": None, "model": None,
-                "service_measure": None, "demand_source": None})
-    row.update(kw)
-    return row
-
-
-def _planned(item: str, status: str, supplier: str, unit_cost: float, q: float, r: float,
-             position: float, **kw: object) -> dict:
-    """A planned item with self-consistent invented numbers."""
-    demand = kw.pop("annual_demand", 520.0)
-    h = 0.22 * unit_cost
-    lt_mean = 14.0
-    ss = r - lt_mean
-    base = dict(
-        item=item, status=status, supplier=supplier, model="normal", demand_source="history",
-        history_periods=52, annual_demand=demand, demand_per_period=demand / 52,
-        demand_sd_per_period=3.1, lead_time_days=7.0, lead_time_demand_mean=lt_mean,
-        lead_time_demand_sd=4.4, service_measure="cycle service", service_target=0.95,
-        order_qty=q, reorder_point=r, safety_stock=ss, cycle_service=0.957, fill_rate=0.9962,
-        orders_per_year=demand / q, annual_ordering_cost=demand / q * 18.0,
-        annual_cycle_holding_cost=h * q / 2, annual_safety_holding_cost=h * ss,
-        annual_shortage_cost=0.0, unit_cost=unit_cost, order_cost=18.0, holding_rate=0.22,
-        pack_size=1.0, minimum_order=NAN, eoq=q * 0.97, expected_units_short_per_cycle=0.4,
-        annual_purchase_cost=demand * unit_cost,
-        average_inventory_value=(q / 2 + ss) * unit_cost, inventory_position=position,
-        order_now_qty=q if position <= r else 0.0,
-    )
-    base["annual_total_cost"] = (base["annual_ordering_cost"]
-                                 + base["annual_cycle_holding_cost"]
-                                 + base["annual_safety_holding_cost"])
-    base.update(kw)
-    return _item(**base)
-
-
-def _results() -> pd.DataFrame:
-    rows = [
-        _planned("000123", "ok", "Harbor Supplies", 4.5, 120.0, 35.0, 30.0,
-                 description="=SUM(A1:A3) spare filter", category="+fast"),
-        _planned("A-77", "warning", "Harbor Supplies", 2.0, 60.0, 20.0, 5.0,
-                 description="@x hook\x07 bracket", category="-slow"),
-        _item(item="B-9", status="skipped", description="-old stock",
-              supplier="Kestrel Trading"),
-        _planned("C-3", "ok", "Kestrel Trading", 12.25, 40.0, 18.0, 11.0,
-                 annual_demand=0.1 + 0.2, description="Valve seat"),
-        _planned("D-10", "ok", "Kestrel Trading", 3.0, 80.0, 25.0, 90.0,
-                 description="Gasket, large"),
-    ]
-    return pd.DataFrame(rows, columns=list(contract.ALL_RESULT_KEYS))
-
-
-def _reorder(results: pd.DataFrame) -> pd.DataFrame:
-    due = results[results["order_now_qty"] > 0].copy()
-    due["on_hand"] = due["inventory_position"] - 4.0
-    due["on_order"] = 6.0
-    due["backordered"] = 2.0
-    due["order_now_value"] = due["order_now_qty"] * due["unit_cost"]
-    due = due.sort_values(["supplier", "item"])
-    return due.reindex(columns=list(REORDER_KEYS)).reset_index(drop=True)
-
-
-def _totals(results: pd.DataFrame, reorder: pd.DataFrame) -> dict:
-    planned = results[results["status"] != "skipped"]
-    t = {k: 0.0 for k in TOTAL_KEYS}
-    for key, col in [("annual_demand_units", "annual_demand"),
-                     ("annual_purchase_cost", "annual_purchase_cost"),
-                     ("annual_ordering_cost", "annual_ordering_cost"),
-                     ("annual_cycle_holding_cost", "annual_cycle_holding_cost"),
-                     ("annual_safety_holding_cost", "annual_safety_holding_cost"),
-                     ("annual_shortage_cost", "annual_shortage_cost"),
-                     ("annual_total_cost", "annual_total_cost"),
-                     ("average_inventory_value", "average_inventory_value"),
-                     ("orders_per_year", "orders_per_year")]:
-        t[key] = float(planned[col].sum())
-    t["items_planned"] = np.int64(len(planned))  # numpy type on purpose (JSON test)
-    t["items_warning"] = int((results["status"] == "warning").sum())
-    t["items_skipped"] = int((results["status"] == "skipped").sum())
-    t["safety_stock_value"] = float((planned["safety_stock"] * planned["unit_cost"]).sum())
-    t["inventory_turns"] = t["annual_purchase_cost"] / t["average_inventory_value"]
-    t["items_to_reorder"] = len(reorder)
-    t["reorder_value"] = float(reorder["order_now_value"].sum())
-    return t
-
-
-def _problems() -> list[Problem]:
-    return [
-        Problem(Severity.INFO, "History", "", "", None, "History runs 52 weeks."),
-        Problem(Severity.WARNING, "Items", "F3", "A-77", 0.5, "Lead time looks short."),
-        Problem(Severity.FATAL, "Settings", "B2", "", "=HYPERLINK(1)", "Bad setting value."),
-        Problem(Severity.ERROR, "Items", "E4", "B-9", "abc", "Unit cost is text: skipped."),
-        Problem(Severity.WARNING, "History", "C9", "000123", -3, "Negative quantity."),
-    ]
-
-
-def make_report(**kw: object) -> Report:
-    results = _results()
-    reorder = _reorder(results)
-    settings = {
-        "period": "week", "periods_per_year": 52.0, "service_measure": "cycle service",
-        "service_target": 0.95, "holding_rate": 0.22, "order_cost": 18.0, "currency": "$",
-        "days_per_period": 7.0,
-        "sources": {"period": "inferred from dates", "periods_per_year": "default",
-                    "service_measure": "default", "service_target": "Settings",
-                    "holding_rate": "Settings", "order_cost": "Settings",
-                    "currency": "Settings", "days_per_period": "default"},
-    }
-    args = dict(
-        results=results, reorder=reorder, problems=_problems(), settings=settings,
-        totals=_totals(results, reorder),
-        input_summary={"file": "harbor-stock.xlsx", "items_read": 5, "items_planned": 4,
-                       "items_skipped": 1, "history_layout": "long", "periods": 52,
-                       "first_period": dt.date(2030, 1, 7), "last_period": dt.date(2030, 12, 30)},
-        source_name="harbor-stock.xlsx", run_date=RUN,
-    )
-    args.update(kw)
-    return Report(**args)  # type: ignore[arg-type]
-
+GENERATED = ["Summary", "Reorder now", "Policy", "Today vs plan", "Warnings", "How it works"]
 
 @pytest.fixture()
 def written(tmp_path: Path):
@@ -203,8 +85,10 @@ def _sum_range(ws_values, ref: str) -> float:
 
 def test_sheet_names_and_reading_order(written):
     _, names, wb, _, _ = written
-    assert names == ["Summary", "Policy", "Reorder now", "Warnings"]
+    assert names == GENERATED
     assert wb.sheetnames == names
+    # every role has a default name (the api picks non-clashing names from these)
+    assert set(DEFAULT_SHEET_NAMES) == set(SHEET_ORDER)
 
 
 def test_no_temporary_file_left(written):
@@ -213,7 +97,8 @@ def test_no_temporary_file_left(written):
 
 
 def test_every_formula_is_ours(written):
-    # Only SUM, SUMIF and COUNTIF (and a product) may appear; user text never does.
+    # Only functions every spreadsheet program evaluates alike (OpenFormula, ISO/IEC
+    # 26300-2) may appear; user text never becomes a formula.
     _, _, wb, _, _ = written
     seen = 0
     for ws in wb.worksheets:
@@ -221,10 +106,10 @@ def test_every_formula_is_ours(written):
             for cell in row:
                 if cell.data_type == "f":
                     seen += 1
-                    funcs = set(re.findall(r"([A-Z]+)\(", str(cell.value)))
-                    assert funcs <= {"SUM", "SUMIF", "COUNTIF"}, cell.value
+                    assert functions_in(str(cell.value)) <= ALLOWED_FUNCTIONS, cell.value
                     assert "HYPERLINK" not in str(cell.value)
-    assert seen > 0
+                    assert "[" not in str(cell.value)  # no structured references
+    assert seen > 50
 
 
 # ---------------------------------------------------------------------------
@@ -241,8 +126,8 @@ def test_policy_headers_in_plain_words(written):
                   "Annual purchase cost", "Average inventory value", "Lead time (days)",
                   "Service target", "Orders per year"):
         assert title in header
-    # Every contract key has a column (none silently dropped).
-    assert len(header) == len(contract.ALL_RESULT_KEYS)
+    # Every result key has a column (none silently dropped).
+    assert len(header) == len(COLUMNS) and len(set(header)) == len(header)
 
 
 def test_one_row_per_item_and_codes_stay_text(written):
@@ -280,12 +165,15 @@ def test_skipped_item_present_with_blank_numbers(written):
 
 
 def test_number_formats(written):
-    report, _, wb, _, _ = written
+    report, _, wb, values, _ = written
     ws = wb["Policy"]
     cost = _policy_cell(ws, "000123", "Annual total cost")
     assert "$" in cost.number_format and "0.00" in cost.number_format
     expected = report.results.loc[0, "annual_total_cost"]
-    assert cost.value == pytest.approx(expected, rel=1e-15)  # unrounded value kept
+    cached = _policy_cell(values["Policy"], "000123", "Annual total cost").value
+    assert cached == pytest.approx(expected, rel=1e-15)  # unrounded value kept
+    # service levels with two decimals: 99.96 % must not show as 100.0 %
+    assert _policy_cell(ws, "000123", "Cycle service achieved").number_format == "0.00%"
     assert "%" in _policy_cell(ws, "000123", "Fill rate achieved").number_format
     assert _policy_cell(ws, "000123", "Reorder point (units)").number_format == "#,##0"
     assert _policy_cell(ws, "000123", "Annual demand (units)").number_format.endswith("0.00")
@@ -404,26 +292,47 @@ def test_no_problems(tmp_path):
 
 
 def _summary_rows(ws) -> dict:
-    return {ws.cell(row=r, column=1).value: r for r in range(1, ws.max_row + 1)
-            if ws.cell(row=r, column=1).value}
+    """Column-A labels -> row, first occurrence (Totals come before 'What was read')."""
+    out: dict = {}
+    for r in range(1, ws.max_row + 1):
+        v = ws.cell(row=r, column=1).value
+        if v is not None and v not in out:
+            out[v] = r
+    return out
 
 
-def test_summary_title_blocks_and_sources(written):
+def test_summary_title_blocks_and_pointer(written):
     _, _, wb, _, _ = written
     ws = wb["Summary"]
     assert "harbor-stock.xlsx" in ws["A1"].value
     assert RUN.isoformat() in ws["A2"].value
     rows = _summary_rows(ws)
-    for block in ("What was read", "Totals for the planned items", "Settings used",
-                  "How the numbers are made", "Cautions"):
+    for block in ("Totals for the planned items", "Items by status", "At a glance",
+                  "By ABC class", "By category", "By supplier", "What was read"):
+        assert block in rows
+    assert rows["Totals for the planned items"] < rows["What was read"]
+    text = " ".join(str(k) for k in rows)
+    assert "'How it works'" in text and "safety-critical" in text
+    assert ws.cell(row=rows["First period"], column=2).value == dt.datetime(2030, 1, 7)
+
+
+def test_method_sheet_blocks_and_sources(written):
+    _, _, wb, _, _ = written
+    ws = wb["How it works"]
+    rows = _summary_rows(ws)
+    for block in ("The method, step by step", "How the demand model is chosen",
+                  "What the Policy sheet's columns are", "ABC classes", "Settings used",
+                  "Cautions"):
         assert block in rows
     text = " ".join(str(k) for k in rows)
     for source in ("Harris 1913", "Wilson 1934", "Silver, Pyke & Peterson 1998",
                    "Hadley & Whitin 1963"):
         assert source in text
     assert "licensed staff and local rules" in text
+    assert "80%" in text and "15%" in text  # the ABC cut-offs from the settings
     assert ws.cell(row=rows["Period"], column=3).value == "inferred from dates"
-    assert ws.cell(row=rows["First period"], column=2).value == dt.datetime(2030, 1, 7)
+    assert "%" in ws.cell(row=rows["Service target"], column=2).number_format
+    assert ws.cell(row=rows["ABC cut-offs"], column=2).value == "80% / 95%"
 
 
 @pytest.mark.parametrize("label,key", [
@@ -453,7 +362,6 @@ def test_summary_money_formats(written):
     ws = wb["Summary"]
     rows = _summary_rows(ws)
     assert "$" in ws.cell(row=rows["Annual total cost (the four above)"], column=2).number_format
-    assert "%" in ws.cell(row=rows["Service target"], column=2).number_format
 
 
 def test_summary_total_that_does_not_match_is_written_plain(tmp_path):
@@ -471,7 +379,8 @@ def test_renamed_sheets_are_quoted_in_formulas(tmp_path):
     path = tmp_path / "a.xlsx"
     names = write_generated_workbook(path, make_report(),
                                      {"policy": "Bob's plan", "reorder": "Order/today"})
-    assert names == ["Summary", "Bob's plan", "Ordertoday", "Warnings"]
+    assert names == ["Summary", "Ordertoday", "Bob's plan", "Today vs plan", "Warnings",
+                     "How it works"]
     wb = openpyxl.load_workbook(path)
     ws = wb["Summary"]
     f = ws.cell(row=_summary_rows(ws)["Annual total cost (the four above)"], column=2).value
@@ -575,7 +484,7 @@ def test_nullable_and_infinite_numbers_become_blanks(tmp_path):
 
 
 def test_no_items_at_all(tmp_path):
-    empty = pd.DataFrame(columns=list(contract.ALL_RESULT_KEYS))
+    empty = pd.DataFrame(columns=COLUMNS)
     report = make_report(results=empty, reorder=pd.DataFrame(columns=list(REORDER_KEYS)),
                          totals={k: 0 for k in TOTAL_KEYS}, input_summary={})
     names = write_generated_workbook(tmp_path / "a.xlsx", report)

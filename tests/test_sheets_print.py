@@ -1,0 +1,87 @@
+"""Print setup, frozen panes and formats of the sheets people print; Warnings links; the
+reorder list holding exactly the report's items.
+
+Print setup: ECMA-376 Part 1, 18.3.1.63 pageSetup (orientation, fitToWidth, fitToHeight),
+18.3.1.65 pageSetUpPr fitToPage, the _xlnm.Print_Titles defined name (18.2.6); internal
+hyperlinks: 18.3.1.47 hyperlink with a location and no relationship. From memory.
+"""
+
+from __future__ import annotations
+
+import openpyxl
+import pytest
+from sheet_reports import header, make_report
+
+from xlpolicy.writing.sheets import write_generated_workbook
+
+
+def _write(tmp_path, **kw):
+    path = tmp_path / "out.xlsx"
+    report = make_report()
+    write_generated_workbook(path, report, **kw)
+    return report, openpyxl.load_workbook(path)
+
+
+@pytest.mark.parametrize("sheet,titles,frozen", [
+    ("Policy", "1:1", "B2"), ("Reorder now", "5:5", "A6"), ("Warnings", "1:1", "A2"),
+    ("Today vs plan", "5:5", "B6")])
+def test_print_setup_and_frozen_headers(tmp_path, sheet, titles, frozen):
+    _, wb = _write(tmp_path)
+    ws = wb[sheet]
+    assert ws.page_setup.orientation == "landscape"
+    assert ws.sheet_properties.pageSetUpPr.fitToPage
+    assert int(ws.page_setup.fitToWidth or 1) == 1 and int(ws.page_setup.fitToHeight) == 0
+    assert ws.print_title_rows.replace("$", "") == titles
+    assert ws.print_area
+    assert "&P" in ws.oddFooter.right.text and "2031-03-14" in ws.oddHeader.right.text
+    assert ws.freeze_panes == frozen
+
+
+def test_policy_number_formats(tmp_path):
+    _, wb = _write(tmp_path)
+    ws = wb["Policy"]
+    fmt = {t: ws.cell(row=2, column=k + 1).number_format for k, t in enumerate(header(ws))}
+    assert fmt["Order quantity (units)"] == "#,##0"
+    assert fmt["Annual total cost"] == '"$"#,##0.00'
+    assert fmt["Fill rate achieved"] == "0.00%" and fmt["Holding rate (per year)"] == "0.00%"
+    assert ws.auto_filter.ref.startswith("A1:")
+
+
+def test_warnings_link_to_the_input_cells(tmp_path):
+    report, wb = _write(tmp_path)
+    ws = wb["Warnings"]
+    links = {}
+    for r in range(2, ws.max_row + 1):
+        cell = ws.cell(row=r, column=3)
+        if cell.hyperlink is not None:
+            links[cell.value] = cell.hyperlink.location
+    assert links == {"B2": "'Settings'!B2", "E4": "'Items'!E4", "F3": "'Items'!F3",
+                     "C9": "'History'!C9"}
+    # a problem with no cell has no link
+    assert ws.cell(row=ws.max_row, column=3).hyperlink is None
+    assert "$" in wb["Reorder now"].cell(row=7, column=12).number_format
+
+
+def test_warnings_plain_text_for_a_standalone_output(tmp_path):
+    _, wb = _write(tmp_path, link_to_input=False)
+    ws = wb["Warnings"]
+    cells = [ws.cell(row=r, column=3) for r in range(2, ws.max_row + 1)]
+    assert all(c.hyperlink is None for c in cells)
+    assert {c.value for c in cells} >= {"F3", "E4"}
+    assert all(c.data_type == "s" for c in cells if c.value)
+
+
+def test_reorder_holds_exactly_the_reorder_list(tmp_path):
+    report, wb = _write(tmp_path)
+    ws = wb["Reorder now"]
+    listed = []
+    for r in range(6, ws.max_row + 1):
+        qty = ws.cell(row=r, column=10).value
+        if isinstance(qty, (int, float)):
+            listed.append((ws.cell(row=r, column=2).value, qty))
+    expect = list(zip(report.reorder["item"], report.reorder["order_now_qty"], strict=True))
+    assert sorted(listed) == sorted(expect)
+    labels = [ws.cell(row=r, column=1).value for r in range(1, ws.max_row + 1)]
+    assert "Approved by" in labels and "Order numbers" in labels
+    last = max(r for r in range(1, ws.max_row + 1) if ws.cell(row=r, column=1).value)
+    assert ws.print_area.endswith(f"$L${last}")

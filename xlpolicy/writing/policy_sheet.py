@@ -1,0 +1,318 @@
+"""The Policy sheet: one row per item read, with the cost and stock columns as live formulas.
+
+Whoever checks the numbers (an accountant, an auditor) can click a cost cell and see how it
+is made from the visible inputs of the same row: annual demand, order quantity, reorder
+point, lead-time demand, unit cost, order cost, holding rate, shortage cost and expected
+units short. Each formula carries the tool's own number as its cached value, and is written
+only when rebuilding it from the displayed inputs gives that number to 1e-9 relative;
+otherwise the number itself is written. Numbers that come from a demand model's quantiles
+or distribution (reorder point, cycle service, units short, lead-time demand) and the order
+quantity after pack rounding stay values; a note on their header says how they are made.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+import numpy as np
+import pandas as pd
+from xlsxwriter.utility import xl_col_to_name, xl_rowcol_to_cell
+from xlsxwriter.worksheet import Worksheet
+
+from .. import contract
+from .sheetkit import (
+    LIGHT_RULE,
+    MUTED,
+    SKIPPED_FILL,
+    WARNING_FILL,
+    Col,
+    Context,
+    column,
+    display_len,
+    header_width,
+)
+
+FORMULA_HEADER_FILL = "#DDEBE3"
+
+POLICY_COLUMNS: tuple[Col, ...] = (
+    Col("item", "Item", "code"),
+    Col("description", "Description", "text"),
+    Col("category", "Category", "text"),
+    Col("supplier", "Supplier", "text"),
+    Col("status", "Status", "text"),
+    Col("abc_class", "ABC class", "text"),
+    # the policy
+    Col("order_qty", "Order quantity (units)", "units"),
+    Col("reorder_point", "Reorder point (units)", "units"),
+    Col("safety_stock", "Safety stock (units)", "units1"),
+    Col("service_measure", "Service measure", "text"),
+    Col("service_target", "Service target", "percent"),
+    Col("cycle_service", "Cycle service achieved", "percent"),
+    Col("fill_rate", "Fill rate achieved", "percent"),
+    # what it costs
+    Col("orders_per_year", "Orders per year", "decimal1"),
+    Col("annual_ordering_cost", "Annual ordering cost", "money"),
+    Col("annual_cycle_holding_cost", "Annual cycle stock holding cost", "money"),
+    Col("annual_safety_holding_cost", "Annual safety stock holding cost", "money"),
+    Col("annual_shortage_cost", "Annual shortage cost", "money"),
+    Col("annual_total_cost", "Annual total cost", "money"),
+    Col("annual_purchase_cost", "Annual purchase cost", "money"),
+    Col("average_inventory_value", "Average inventory value", "money"),
+    # the inputs of those formulas
+    Col("annual_demand", "Annual demand (units)", "demand"),
+    Col("lead_time_demand_mean", "Lead-time demand, mean (units)", "demand"),
+    Col("expected_units_short_per_cycle", "Expected units short per order cycle", "demand"),
+    Col("unit_cost", "Unit cost", "money"),
+    Col("order_cost", "Order cost (per order)", "money"),
+    Col("holding_rate", "Holding rate (per year)", "percent"),
+    Col("shortage_cost", "Shortage cost (per unit short)", "money"),
+    Col("eoq", "EOQ before rounding (units)", "demand"),
+    Col("pack_size", "Pack size (units)", "units"),
+    Col("minimum_order", "Minimum order (units)", "units"),
+    # where the demand figures come from
+    Col("demand_per_period", "Demand per period (units)", "demand"),
+    Col("demand_sd_per_period", "Demand sd per period (units)", "demand"),
+    Col("lead_time_days", "Lead time (days)", "days"),
+    Col("lead_time_demand_sd", "Lead-time demand, sd (units)", "demand"),
+    Col("model", "Demand model", "text"),
+    Col("model_reason", "Why this model", "text"),
+    Col("demand_class", "Demand pattern", "text"),
+    Col("demand_source", "Demand taken from", "text"),
+    Col("history_start", "History counted from", "text"),
+    Col("history_periods", "History periods", "count"),
+    Col("rate_method", "Demand rate estimated by", "text"),
+    Col("adi", "Average periods between sales", "demand"),
+    Col("cv2", "Variability of sale sizes (CV squared)", "demand"),
+    # stock now
+    Col("inventory_position", "Inventory position (units)", "units"),
+    Col("order_now_qty", "Quantity to order now (units)", "units"),
+    # today's policy, where the Items sheet gives it
+    Col("current_order_qty", "Today: order quantity (units)", "units"),
+    Col("current_reorder_point", "Today: reorder point (units)", "units"),
+    Col("current_safety_stock", "Today: safety stock (units)", "units1"),
+    Col("current_cycle_service", "Today: cycle service", "percent"),
+    Col("current_fill_rate", "Today: fill rate", "percent"),
+    Col("current_units_short_per_cycle", "Today: expected units short per order cycle",
+        "demand"),
+    Col("current_annual_ordering_cost", "Today: annual ordering cost", "money"),
+    Col("current_annual_cycle_holding_cost", "Today: annual cycle stock holding cost", "money"),
+    Col("current_annual_safety_holding_cost", "Today: annual safety stock holding cost",
+        "money"),
+    Col("current_annual_shortage_cost", "Today: annual shortage cost", "money"),
+    Col("current_annual_total_cost", "Today: annual total cost", "money"),
+    Col("annual_saving", "Annual saving with the recommended policy", "money"),
+)
+
+#: The inputs the formulas name, by symbol.
+SYMBOLS = {
+    "Q": "order_qty", "R": "reorder_point", "mu": "lead_time_demand_mean",
+    "D": "annual_demand", "S": "order_cost", "i": "holding_rate", "c": "unit_cost",
+    "p": "shortage_cost", "n": "expected_units_short_per_cycle",
+    "ORD": "annual_ordering_cost", "CYC": "annual_cycle_holding_cost",
+    "SAF": "annual_safety_holding_cost", "SHO": "annual_shortage_cost",
+}
+
+Values = dict[str, np.ndarray]
+
+
+def _shortage(v: Values) -> np.ndarray:
+    return np.where(np.isnan(v["p"]), 0.0, v["p"] * v["D"] / v["Q"] * v["n"])
+
+
+#: key -> (formula template, symbols that must be filled, the same sum in numpy, words).
+FORMULAS: dict[str, tuple[str, tuple[str, ...], Callable[[Values], np.ndarray], str]] = {
+    "safety_stock": ("{R}-{mu}", ("R", "mu"), lambda v: v["R"] - v["mu"],
+                     "reorder point - mean lead-time demand"),
+    "orders_per_year": ("{D}/{Q}", ("D", "Q"), lambda v: v["D"] / v["Q"],
+                        "annual demand / order quantity"),
+    "annual_ordering_cost": ("{D}/{Q}*{S}", ("D", "Q", "S"),
+                             lambda v: v["D"] / v["Q"] * v["S"],
+                             "annual demand / order quantity x order cost"),
+    "annual_cycle_holding_cost": ("{i}*{c}*{Q}/2", ("i", "c", "Q"),
+                                  lambda v: v["i"] * v["c"] * v["Q"] / 2,
+                                  "holding rate x unit cost x order quantity / 2"),
+    "annual_safety_holding_cost": ("{i}*{c}*({R}-{mu})", ("i", "c", "R", "mu"),
+                                   lambda v: v["i"] * v["c"] * (v["R"] - v["mu"]),
+                                   "holding rate x unit cost x safety stock"),
+    "annual_shortage_cost": ('IF({p}="",0,{p}*{D}/{Q}*{n})', ("D", "Q", "n"), _shortage,
+                             "shortage cost x orders per year x expected units short per "
+                             "order cycle (0 when no shortage cost is given)"),
+    "annual_total_cost": ("{ORD}+{CYC}+{SAF}+{SHO}", ("ORD", "CYC", "SAF", "SHO"),
+                          lambda v: v["ORD"] + v["CYC"] + v["SAF"] + v["SHO"],
+                          "ordering + cycle stock holding + safety stock holding + shortage"),
+    "annual_purchase_cost": ("{D}*{c}", ("D", "c"), lambda v: v["D"] * v["c"],
+                             "annual demand x unit cost"),
+    "average_inventory_value": ("{c}*({Q}/2+MAX({R}-{mu},0))", ("c", "Q", "R", "mu"),
+                                lambda v: v["c"] * (v["Q"] / 2 + np.maximum(v["R"] - v["mu"],
+                                                                            0.0)),
+                                "unit cost x (order quantity / 2 + safety stock, if above 0)"),
+    "fill_rate": ("MAX(0,1-{n}/{Q})", ("n", "Q"),
+                  lambda v: np.maximum(0.0, 1 - v["n"] / v["Q"]),
+                  "1 - expected units short per order cycle / order quantity"),
+    "eoq": ("SQRT(2*{D}*{S}/({i}*{c}))", ("D", "S", "i", "c"),
+            lambda v: np.sqrt(2 * v["D"] * v["S"] / (v["i"] * v["c"])),
+            "square root of (2 x annual demand x order cost / (holding rate x unit cost))"),
+}
+
+#: Columns that stay values, and how they are made (shown as a note on the header).
+VALUE_NOTES = {
+    "order_qty": (
+        "A value, not a formula: the EOQ (see 'EOQ before rounding') rounded to a multiple "
+        "of the pack size and raised to the minimum order, taking whichever rounding costs "
+        "less a year; under the shortage-cost measure, found together with the reorder "
+        "point by the iterative (Q, R) method."),
+    "reorder_point": (
+        "A value, not a formula: the smallest whole number of units that meets the service "
+        "target under the item's demand model (a quantile of lead-time demand, or the "
+        "fill-rate or shortage-cost condition). It needs the model's distribution, which a "
+        "short formula cannot show."),
+    "cycle_service": (
+        "A value, not a formula: the chance, under the item's demand model, that lead-time "
+        "demand does not exceed the reorder point (the model's distribution function)."),
+    "expected_units_short_per_cycle": (
+        "A value, not a formula: the expected units short per order cycle, E[(lead-time "
+        "demand - reorder point)+], from the item's demand model (the loss function)."),
+    "lead_time_demand_mean": (
+        "A value: demand per period x lead time in periods (days / days per period)."),
+    "lead_time_demand_sd": (
+        "A value: square root of (lead time x demand sd squared + demand rate squared x "
+        "lead-time sd squared), lead time in periods (Silver, Pyke & Peterson 1998)."),
+}
+
+_REL, _ABS = 1e-9, 1e-12
+
+
+def policy_columns(results: pd.DataFrame) -> list[Col]:
+    """Our columns in our order, then any other contract key the results carry."""
+    known = {c.key for c in POLICY_COLUMNS}
+    cols = [c for c in POLICY_COLUMNS if c.key in results.columns or c.key in ("item", "status")]
+    for key in contract.ALL_RESULT_KEYS:
+        if key not in known and key in results.columns:
+            kind = "demand" if pd.api.types.is_numeric_dtype(results[key]) else "text"
+            cols.append(Col(key, key.replace("_", " ").capitalize(), kind))
+    return cols
+
+
+def formula_plan(ctx: Context, cols: list[Col]) -> dict[str, tuple[np.ndarray, np.ndarray]]:
+    """Per formula column: (rows where the formula is written, the rebuilt values).
+
+    A row gets its formula when the item was planned, every input the formula names is a
+    finite number in a visible column, and the rebuilt value equals the report's to 1e-9.
+    """
+    df = ctx.results
+    present = {c.key for c in cols}
+    planned = np.ones(len(df), dtype=bool)
+    if "status" in df.columns:
+        planned = (df["status"].astype(str) != contract.STATUS_SKIPPED).to_numpy()
+    values = {sym: column(df, key) for sym, key in SYMBOLS.items()}
+    out: dict[str, tuple[np.ndarray, np.ndarray]] = {}
+    for key, (_template, needs, fn, _words) in FORMULAS.items():
+        if key not in present:
+            continue
+        symbols = set(needs) | {"p"} if key == "annual_shortage_cost" else set(needs)
+        if any(SYMBOLS[s] not in present for s in symbols):
+            continue
+        with np.errstate(all="ignore"):
+            rebuilt = fn(values)
+        reported = column(df, key)
+        ok = planned & np.isfinite(reported) & np.isfinite(rebuilt)
+        for s in needs:
+            ok &= np.isfinite(values[s])
+        with np.errstate(all="ignore"):
+            close = np.abs(rebuilt - reported) <= np.maximum(_REL * np.abs(reported), _ABS)
+        out[key] = (ok & close, rebuilt)
+    return out
+
+
+def write_policy(ctx: Context, ws: Worksheet) -> None:
+    """One row per item read, skipped items included and greyed; costs as formulas."""
+    df = ctx.results
+    cols = policy_columns(df)
+    n = len(df)
+    head = ctx.header_props()
+    ws.set_row(0, 62)
+    for c, col in enumerate(cols):
+        ctx.policy_cols[col.key] = c
+    plan = formula_plan(ctx, cols)
+    for c, col in enumerate(cols):
+        props = dict(head)
+        if col.key in plan:
+            props["bg_color"] = FORMULA_HEADER_FILL
+        ctx.w.text(ws, 0, c, col.title, **props)
+        note = _header_note(col.key)
+        if note:
+            ws.write_comment(0, c, note, {"author": "xlpolicy", "x_scale": 2.2,
+                                          "y_scale": 1.6})
+    ctx.policy_row_of = {k: k + 1 for k in range(n)}
+
+    cur_len = len(ctx.currency)
+    line = {"bottom": 1, "bottom_color": LIGHT_RULE}
+    for c, col in enumerate(cols):
+        values = df[col.key] if col.key in df.columns else pd.Series([None] * n, dtype=object)
+        data = values.tolist()
+        if col.kind in ("text", "code"):
+            props = {"num_format": "@", **line}
+            longest = 0
+            for r, v in enumerate(data, start=1):
+                longest = max(longest, ctx.w.text(ws, r, c, v, **props))
+            cap = 45 if col.key in ("description", "model_reason") else 30
+            width = min(max(header_width(col.title), longest + 2, 8), cap)
+        else:
+            props = {**ctx.num_props(col.kind), **line}
+            live = plan.get(col.key)
+            template = FORMULAS[col.key][0] if live is not None else ""
+            reported = column(df, col.key)
+            for r, v in enumerate(data, start=1):
+                k = r - 1
+                if live is not None and live[0][k]:
+                    formula = "=" + template.format(**_refs(ctx, r))
+                    ctx.w.formula(ws, r, c, formula, float(reported[k]), **props)
+                else:
+                    if live is not None and np.isfinite(reported[k]):
+                        ctx.policy_fallbacks.append((col.key, r))
+                    ctx.w.number(ws, r, c, v, **props)
+            data_len = display_len(values, col.kind, cur_len)
+            width = min(max(header_width(col.title), data_len + 2, 8), 20)
+        ws.set_column(c, c, width)
+
+    last_col = len(cols) - 1
+    ws.freeze_panes(1, 1)
+    ws.autofilter(0, 0, max(n, 1), last_col)
+    # Codes such as 000123 are text on purpose: no "number stored as text" markers.
+    ws.ignore_errors({"number_stored_as_text": f"A2:A{max(n, 1) + 1}"})
+    if n:
+        ctx.policy_rows = (1, n)
+        status = xl_col_to_name(ctx.policy_cols["status"])
+        ws.conditional_format(1, 0, n, last_col, {
+            "type": "formula",
+            "criteria": f'=${status}2="{contract.STATUS_SKIPPED}"',
+            "format": ctx.styles.get(bg_color=SKIPPED_FILL, font_color=MUTED),
+        })
+        ws.conditional_format(1, 0, n, last_col, {
+            "type": "formula",
+            "criteria": f'=${status}2="{contract.STATUS_WARNING}"',
+            "format": ctx.styles.get(bg_color=WARNING_FILL),
+        })
+    else:
+        ctx.w.text(ws, 1, 0, "No items were read.", italic=True, font_color=MUTED)
+    ctx.print_setup(ws, ctx.names["policy"], 0, max(n, 1), last_col)
+    ws.repeat_columns(0)
+
+
+def _refs(ctx: Context, row: int) -> dict[str, str]:
+    """The cell of each symbol's column on this row (relative, e.g. 'G5')."""
+    out = {}
+    for sym, key in SYMBOLS.items():
+        c = ctx.policy_cols.get(key)
+        if c is not None:
+            out[sym] = xl_rowcol_to_cell(row, c)
+    return out
+
+
+def _header_note(key: str) -> str:
+    if key in VALUE_NOTES:
+        return VALUE_NOTES[key]
+    if key in FORMULAS:
+        return ("A formula over this row's visible inputs: " + FORMULAS[key][3] + ". The "
+                "cached result is the tool's own number.")
+    return ""
