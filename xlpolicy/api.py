@@ -23,6 +23,7 @@ from .problems import Problem, ProblemLog, Severity, UnusableWorkbook
 from .reading import read_input
 from .reading.cells import parse_number
 from .reading.settings import parse_measure
+from .reading.sources import KIND_NAMES, source_kind
 from .report import Report
 from .writing.atomic import atomic_output
 from .writing.package import CannotMerge, merge_generated_sheets, user_sheet_names
@@ -51,9 +52,17 @@ class PlanResult:
 
 
 def default_output_path(path: str | Path) -> Path:
-    """``<input name>-policy.<ext>`` beside the input (.xlsm keeps its macros and extension)."""
+    """``<input name>-policy.<ext>`` beside the input (.xlsm keeps its macros and extension).
+
+    Inputs that are not .xlsx/.xlsm (.ods, .xls, a folder of CSV files) give an .xlsx:
+    ``shop.ods`` -> ``shop-policy.xlsx``; the folder ``shop/`` -> ``shop-policy.xlsx`` beside it.
+    """
     p = Path(path)
-    return p.with_name(f"{p.stem}-policy{p.suffix.lower() or '.xlsx'}")
+    if p.is_dir():
+        q = p if p.name else p.resolve()
+        return q.with_name(f"{q.name}-policy.xlsx")
+    ext = p.suffix.lower() if p.suffix.lower() in (".xlsx", ".xlsm") else ".xlsx"
+    return p.with_name(f"{p.stem}-policy{ext}")
 
 
 def _overrides(service_measure: str | None, service_target: float | str | None,
@@ -164,7 +173,10 @@ def _check_output_path(src: Path, out: Path) -> None:
     if out.suffix.lower() not in (".xlsx", ".xlsm"):
         raise UsageError(f"the output {out.name} must end in .xlsx (or .xlsm for a workbook "
                          "with macros)")
-    if src.suffix.lower() == ".xlsm" and out.suffix.lower() != ".xlsm":
+    if source_kind(src) != "xlsx" and out.suffix.lower() != ".xlsx":
+        raise UsageError(f"the output {out.name} must end in .xlsx: the results of "
+                         f"{KIND_NAMES[source_kind(src)]} go to an .xlsx workbook of their own")
+    if src.is_file() and src.suffix.lower() == ".xlsm" and out.suffix.lower() != ".xlsm":
         raise UsageError(f"{src.name} holds macros; its output must end in .xlsm to keep them "
                          f"(e.g. {default_output_path(src).name})")
     if not out.parent.exists():
@@ -191,11 +203,15 @@ def write_policy_workbook(src: Path, out: Path, report: Report) -> tuple[Path, b
     Returns (path written, whether standalone, generated sheet names).
     """
     standalone_reason = None
-    try:
-        taken = user_sheet_names(src)
-    except CannotMerge as exc:
-        standalone_reason = str(exc)
-        taken = []
+    kind = source_kind(src)
+    taken: list[str] = []
+    if kind != "xlsx":
+        standalone_reason = ""  # nothing to merge into: the input is not an .xlsx package
+    else:
+        try:
+            taken = user_sheet_names(src)
+        except CannotMerge as exc:
+            standalone_reason = str(exc)
     with tempfile.TemporaryDirectory(prefix="xlpolicy-") as tmp:
         gen = Path(tmp) / "generated.xlsx"
         if standalone_reason is None:
@@ -206,14 +222,19 @@ def write_policy_workbook(src: Path, out: Path, report: Report) -> tuple[Path, b
                 return out, False, sheets
             except CannotMerge as exc:
                 standalone_reason = str(exc)
-        note = Problem(
-            Severity.WARNING, "", "", "", None,
-            f"Your sheets could not be carried over intact ({standalone_reason}), so the results "
-            "were written to a workbook of their own; your workbook is unchanged.",
-            "output-standalone")
+        if kind != "xlsx":
+            message = (f"Your input is {KIND_NAMES[kind]}, so the results were written to an "
+                       ".xlsx workbook of their own, without your sheets; your "
+                       + ("files are" if kind == "csv" else "workbook is") + " unchanged.")
+        else:
+            message = (f"Your sheets could not be carried over intact ({standalone_reason}), so "
+                       "the results were written to a workbook of their own; your workbook is "
+                       "unchanged.")
+        note = Problem(Severity.WARNING, "", "", "", None, message, "output-standalone")
         report.problems.insert(0, note)
         out = out.with_suffix(".xlsx")
-        sheets = write_generated_workbook(gen, report, dict(DEFAULT_SHEET_NAMES))
+        sheets = write_generated_workbook(gen, report, dict(DEFAULT_SHEET_NAMES),
+                                          link_to_input=False)
         with atomic_output(out) as tmp_out:
             shutil.copyfile(gen, tmp_out)
         return out, True, sheets

@@ -12,7 +12,7 @@ from ..problems import ProblemLog
 from .history import History, aggregate_daily_to_weeks, read_history
 from .items import ItemTable, read_items
 from .settings import finish_period, read_settings, resolve_settings
-from .workbook import WorkbookFile
+from .sources import open_source
 
 
 @dataclass
@@ -27,8 +27,11 @@ class InputData:
 
 
 def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog) -> InputData | None:
-    """Read Settings, Items and History; None when the workbook cannot be used (fatal logged)."""
-    wb = WorkbookFile(Path(path), log)
+    """Read Settings, Items and History; None when the workbook cannot be used (fatal logged).
+
+    ``path`` may be an .xlsx/.xlsm, .ods or .xls workbook or a folder of CSV files.
+    """
+    wb = open_source(Path(path), log)
     if not wb.open():
         return None
     try:
