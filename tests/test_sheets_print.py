@@ -22,15 +22,21 @@ def _write(tmp_path, **kw):
     return report, openpyxl.load_workbook(path)
 
 
-@pytest.mark.parametrize("sheet,titles,frozen", [
-    ("Policy", "1:1", "B2"), ("Reorder now", "5:5", "A6"), ("Warnings", "1:1", "A2"),
-    ("Today vs plan", "5:5", "B6")])
-def test_print_setup_and_frozen_headers(tmp_path, sheet, titles, frozen):
+# Policy (about 60 columns) is unreadable shrunk to one page wide (seen in LibreOffice's
+# PDF of the demo): it prints full size across pages with the item column repeated.
+@pytest.mark.parametrize("sheet,titles,frozen,fit", [
+    ("Policy", "1:1", "B2", False), ("Reorder now", "5:5", "A6", True),
+    ("Warnings", "1:1", "A2", True), ("Today vs plan", "5:5", "B6", True)])
+def test_print_setup_and_frozen_headers(tmp_path, sheet, titles, frozen, fit):
     _, wb = _write(tmp_path)
     ws = wb[sheet]
     assert ws.page_setup.orientation == "landscape"
-    assert ws.sheet_properties.pageSetUpPr.fitToPage
-    assert int(ws.page_setup.fitToWidth or 1) == 1 and int(ws.page_setup.fitToHeight) == 0
+    if fit:
+        assert ws.sheet_properties.pageSetUpPr.fitToPage
+        assert int(ws.page_setup.fitToWidth or 1) == 1 and int(ws.page_setup.fitToHeight) == 0
+    else:
+        assert not ws.sheet_properties.pageSetUpPr.fitToPage
+        assert ws.print_title_cols.replace("$", "") == "A:A"
     assert ws.print_title_rows.replace("$", "") == titles
     assert ws.print_area
     assert "&P" in ws.oddFooter.right.text and "2031-03-14" in ws.oddHeader.right.text

@@ -174,7 +174,9 @@ def write_compare(ctx: Context, ws: Worksheet) -> None:
     ws.freeze_panes(HEADER_ROW + 1, 1)
     ws.autofilter(HEADER_ROW, 0, last, last_col)
     ws.ignore_errors({"number_stored_as_text": f"A{first + 1}:A{last + 1}"})
-    ctx.print_setup(ws, ctx.names["compare"], HEADER_ROW, total_row, last_col)
+    # Print what the owner reads (up to the fill rates); the inputs to the right are there
+    # for the formulas and stay on screen.
+    ctx.print_setup(ws, ctx.names["compare"], HEADER_ROW, total_row, where["fill_rate"])
 
 
 def _item_title(key: str, default: str) -> str:

@@ -295,7 +295,9 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
         })
     else:
         ctx.w.text(ws, 1, 0, "No items were read.", italic=True, font_color=MUTED)
-    ctx.print_setup(ws, ctx.names["policy"], 0, max(n, 1), last_col)
+    # ~60 columns are unreadable shrunk to one page: print full size across pages, with
+    # the item column repeated on each.
+    ctx.print_setup(ws, ctx.names["policy"], 0, max(n, 1), last_col, fit_width=False)
     ws.repeat_columns(0)
 
 

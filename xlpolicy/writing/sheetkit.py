@@ -408,13 +408,18 @@ class Context:
         return row + 1
 
     def print_setup(self, ws: Worksheet, title: str, header_row: int, last_row: int,
-                    last_col: int, landscape: bool = True) -> None:
-        """Landscape, one page wide, header rows repeated, run date and page numbers."""
+                    last_col: int, landscape: bool = True, fit_width: bool = True) -> None:
+        """Landscape, one page wide, header rows repeated, run date and page numbers.
+
+        fit_width=False prints at full size across several pages (for sheets too wide to
+        read when shrunk to one page; the caller repeats the identifying columns).
+        """
         if landscape:
             ws.set_landscape()
         else:
             ws.set_portrait()
-        ws.fit_to_pages(1, 0)
+        if fit_width:
+            ws.fit_to_pages(1, 0)
         if header_row >= 0:
             ws.repeat_rows(header_row)
         ws.print_area(0, 0, max(last_row, header_row, 0), max(last_col, 0))

@@ -107,19 +107,20 @@ class Table:
 
 def write_summary(ctx: Context, ws: Worksheet) -> None:
     """Headlines, totals, status, charts, breakdowns, top items, what was read."""
-    ws.set_column(0, 0, 34)
+    ws.set_column(0, 0, 44)  # the longest total's label fits
     ws.set_column(1, _WIDTH - 1, 15)
     source = clean_text(ctx.report.source_name) or "(unnamed workbook)"
     ctx.w.text(ws, 0, 0, f"Stock policy for {source}", bold=True, font_size=15, font_color=INK)
     ctx.w.text(ws, 1, 0, f"Run on {ctx.run_text()}", font_color=MUTED)
     row = 3
     for text, colour in headlines(ctx):
-        ws.write_string(row, 0, text, ctx.styles.get(bold=True, font_color=colour))
-        row += 1
+        # merged across the page and wrapped, so a long headline is read, not cut off
+        row = ctx.paragraph(ws, row, text, _WIDTH, _CHARS, bold=True, font_color=colour)
     row = _totals(ctx, ws, row + 1)
     row = _status(ctx, ws, row + 1)
     glance = row + 1
     row = glance + 1 + _CHART_ROWS
+    ws.set_h_pagebreaks([row])  # charts end page 1; the breakdowns start a page
     abc = _breakdown(ctx, ws, row + 1, "By ABC class", "abc_class", abc=True)
     row = abc.last + 2 if abc else row + 1
     cat = _breakdown(ctx, ws, row + 1, "By category", "category")

@@ -6,6 +6,7 @@ jumps to the cell in their input sheet; in a standalone output it is plain text.
 
 from __future__ import annotations
 
+import math
 import re
 
 from xlsxwriter.worksheet import Worksheet
@@ -23,6 +24,9 @@ from .sheetkit import (
 TITLES = ("Severity", "Sheet", "Cell", "Item", "Value found", "Message")
 _A1 = re.compile(r"^\$?([A-Z]{1,3})\$?([1-9][0-9]{0,6})$")
 _MAX_LINKS = 65000  # Excel keeps at most 65,530 links per sheet
+
+
+_MESSAGE_CHARS = 80  # width of the message column, in characters
 
 
 def link_target(sheet: str, cell: str) -> str | None:
@@ -70,9 +74,13 @@ def write_warnings(ctx: Context, ws: Worksheet) -> None:
         ctx.w.any(ws, r, 4, p.value, **tint)
         widths[4] = max(widths[4], len(clean_text(p.value) or "") + 2)
         ctx.w.text(ws, r, 5, p.message, text_wrap=True, **tint)
+        # Row height for the wrapped message: not every program fits it on opening.
+        lines = max(1, math.ceil(len(p.message) * 1.1 / _MESSAGE_CHARS))
+        if lines > 1:
+            ws.set_row(r, 15 * lines + 2)
     for c in range(5):
         ws.set_column(c, c, min(max(widths[c], 8), 30))
-    ws.set_column(5, 5, 80)
+    ws.set_column(5, 5, _MESSAGE_CHARS)
     ws.freeze_panes(1, 0)
     ws.autofilter(0, 0, len(problems), len(TITLES) - 1)
     ws.ignore_errors({"number_stored_as_text": f"C2:E{len(problems) + 1}"})
