@@ -12,6 +12,7 @@ from pathlib import Path
 import pytest
 
 from xlpolicy.contract import ITEM_COLUMNS, SETTINGS
+from xlpolicy.docs import render
 
 REPO = Path(__file__).resolve().parent.parent
 README = (REPO / "README.md").read_text(encoding="utf-8")
@@ -36,12 +37,31 @@ def test_ci_runs_the_readme_test_command():
     assert readme_commands()[1] in ci
 
 
-def test_readme_names_every_input_column_and_setting():
-    tables = README.split("### Items", 1)[1]
+def test_readme_tables_are_generated_from_the_contract():
+    # `python -m xlpolicy.docs README.md` writes them; editing them by hand fails here
+    assert render(README) == README, "run: python -m xlpolicy.docs README.md"
     for col in ITEM_COLUMNS:
-        assert re.search(rf"\b{re.escape(col.title)}\b", tables), col.title
+        assert f"| {col.title} |" in README
     for s in SETTINGS:
-        assert f"| {s.title} |" in tables, s.title
+        assert f"| {s.title} |" in README
+
+
+def test_troubleshooting_table_quotes_real_messages():
+    # every message quoted under "When something goes wrong" is one the code can print
+    section = README.split("## When something goes wrong", 1)[1].split("\n## ", 1)[0]
+    quoted = re.findall(r"^\| `([^`]+)`", section, flags=re.MULTILINE)
+    assert len(quoted) >= 5
+    source = " ".join(p.read_text() for p in (REPO / "xlpolicy").rglob("*.py"))
+    source = re.sub(r'"\s*\n\s*f?"', "", source)  # join implicitly concatenated strings
+    for q in quoted:
+        for piece in (x.strip() for x in q.split("...")):
+            if piece:
+                assert piece in source, piece
+
+
+def test_readme_pictures_exist():
+    for name in re.findall(r"\]\((examples/pictures/[^)]+)\)", README):
+        assert (REPO / name).stat().st_size > 10_000, name
 
 
 def test_readme_and_output_carry_the_safety_caution():
