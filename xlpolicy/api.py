@@ -20,6 +20,7 @@ from typing import Any
 from .contract import SERVICE_MEASURES
 from .planner import build_report
 from .problems import Problem, ProblemLog, Severity, UnusableWorkbook
+from .progress import Progress, silent
 from .reading import read_input
 from .reading.cells import parse_number
 from .reading.settings import parse_measure
@@ -106,16 +107,18 @@ def _number(value: float | str, what: str, rate: bool = False) -> float:
 def analyse(path: str | Path, *, service_measure: str | None = None,
             service_target: float | str | None = None,
             holding_rate: float | str | None = None, order_cost: float | str | None = None,
-            run_date: _dt.date | None = None) -> Report:
+            run_date: _dt.date | None = None, progress: Progress = silent) -> Report:
     """Read, check and plan a workbook without writing anything.
 
-    Raises UnusableWorkbook when the workbook cannot be used at all.
+    Raises UnusableWorkbook when the workbook cannot be used at all. ``progress`` is called
+    as the run goes (stage, done, total), for a progress bar.
     """
     log = ProblemLog()
     overrides = _overrides(service_measure, service_target, holding_rate, order_cost)
-    data = read_input(Path(path), overrides, log)
+    data = read_input(Path(path), overrides, log, progress)
     if data is None:
         raise UnusableWorkbook([p for p in log.problems if p.severity is Severity.FATAL])
+    progress("Planning", 0, None)
     report = build_report(data, log, Path(path).name, run_date)
     if report.input_summary["items_planned"] == 0:
         reasons = [p for p in log.sorted() if p.severity in (Severity.ERROR, Severity.WARNING)]
@@ -142,7 +145,7 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
          json: str | Path | None = None, service_measure: str | None = None,
          service_target: float | str | None = None, holding_rate: float | str | None = None,
          order_cost: float | str | None = None, write_workbook: bool = True,
-         run_date: _dt.date | None = None) -> PlanResult:
+         run_date: _dt.date | None = None, progress: Progress = silent) -> PlanResult:
     """Plan every item in the workbook at ``path`` and write the results.
 
     The input file is never changed. By default the output is ``<name>-policy.xlsx`` beside
@@ -153,9 +156,11 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
     if write_workbook:
         _check_output_path(src, out)
     report = analyse(src, service_measure=service_measure, service_target=service_target,
-                     holding_rate=holding_rate, order_cost=order_cost, run_date=run_date)
+                     holding_rate=holding_rate, order_cost=order_cost, run_date=run_date,
+                     progress=progress)
     result = PlanResult(report)
     if write_workbook:
+        progress(f"Writing {out.name}", 0, None)
         result.output, result.standalone, result.sheets = write_policy_workbook(src, out, report)
     if csv is not None:
         write_csv(Path(csv), report)
@@ -240,7 +245,7 @@ def write_policy_workbook(src: Path, out: Path, report: Report) -> tuple[Path, b
         return out, True, sheets
 
 
-def demo(folder: str | Path = "xlpolicy-demo") -> PlanResult:
+def demo(folder: str | Path = "xlpolicy-demo", progress: Progress = silent) -> PlanResult:
     """Write the demo workbook of an invented bicycle shop into ``folder`` and plan it.
 
     The workbook is generated (seeded), so it is the same as examples/demo-shop.xlsx.
@@ -250,9 +255,10 @@ def demo(folder: str | Path = "xlpolicy-demo") -> PlanResult:
     out = Path(folder)
     out.mkdir(parents=True, exist_ok=True)
     src = out / "demo-shop.xlsx"
+    progress("Writing the demo workbook", 0, None)
     with atomic_output(src) as tmp:
         build_shop(Path(tmp))
-    return plan(src)
+    return plan(src, progress=progress)
 
 
 def template(path: str | Path) -> Path:

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import os
 import sys
+import time
 from pathlib import Path
 from typing import Any
 
@@ -24,6 +25,36 @@ _SEVERITY_STYLE = {
     Severity.WARNING: {"fg": "yellow"},
     Severity.INFO: {"fg": "cyan"},
 }
+
+
+class _Bar:
+    """A one-line progress bar on stderr; drawn only on a terminal, never with --quiet."""
+
+    def __init__(self, quiet: bool = False):
+        self.enabled = not quiet and sys.stderr.isatty()
+        self.last = 0.0
+        self.shown = False
+
+    def __call__(self, stage: str, done: int, total: int | None) -> None:
+        if not self.enabled:
+            return
+        now = time.monotonic()
+        if now - self.last < 0.1 and done not in (0, total):
+            return
+        self.last = now
+        if total:
+            frac = min(max(done / total, 0.0), 1.0)
+            filled = int(frac * 24)
+            text = f"{stage} [{'#' * filled}{'.' * (24 - filled)}] {frac:4.0%}"
+        else:
+            text = f"{stage} ..."
+        click.echo("\r\x1b[K" + text, nl=False, err=True, color=True)
+        self.shown = True
+
+    def close(self) -> None:
+        if self.shown:
+            click.echo("\r\x1b[K", nl=False, err=True, color=True)
+            self.shown = False
 
 
 def _override_options(f: Any) -> Any:
@@ -72,9 +103,11 @@ def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: 
     Your WORKBOOK is never changed. The output holds your own sheets plus Policy, Summary,
     Reorder now and Warnings.
     """
+    bar = _Bar(quiet)
     result = _run(lambda: api.plan(
         workbook, output, csv=csv_path, json=json_path, service_measure=service_measure,
-        service_target=service_target, holding_rate=holding_rate, order_cost=order_cost))
+        service_target=service_target, holding_rate=holding_rate, order_cost=order_cost,
+        progress=bar), bar)
     _print_run(result, quiet)
 
 
@@ -87,7 +120,8 @@ def demo(folder: Path, quiet: bool) -> None:
     A quick way to see what xlpolicy makes: open FOLDER/demo-shop-policy.xlsx afterwards.
     The demo holds a few deliberate mistakes, to show the warnings.
     """
-    result = _run(lambda: api.demo(folder))
+    bar = _Bar(quiet)
+    result = _run(lambda: api.demo(folder, progress=bar), bar)
     if not quiet:
         click.echo(f"Wrote the demo workbook {folder / 'demo-shop.xlsx'}")
     _print_run(result, quiet)
@@ -116,9 +150,10 @@ def check(workbook: Path, service_measure: str | None, service_target: str | Non
 
     Exit status 0 if it can be planned (possibly with warnings), 1 if it cannot.
     """
+    bar = _Bar()
     report = _run(lambda: api.analyse(
         workbook, service_measure=service_measure, service_target=service_target,
-        holding_rate=holding_rate, order_cost=order_cost))
+        holding_rate=holding_rate, order_cost=order_cost, progress=bar), bar)
     _print_read(report)
     _print_problems(report.problems, limit=None)
     if not report.problems:
@@ -138,10 +173,18 @@ def template(path: Path, force: bool) -> None:
     click.echo(f"Wrote {path}")
 
 
-def _run(fn: Any) -> Any:
+def _run(fn: Any, bar: _Bar | None = None) -> Any:
     """Call into the API, turning the user's mistakes into messages and exit codes."""
+
+    def call() -> Any:
+        try:
+            return fn()
+        finally:  # clear the progress line before anything else is printed
+            if bar is not None:
+                bar.close()
+
     try:
-        return fn()
+        return call()
     except api.UsageError as exc:
         raise click.UsageError(str(exc)) from None
     except UnusableWorkbook as exc:

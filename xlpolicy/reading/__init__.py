@@ -9,10 +9,12 @@ from typing import Any
 import numpy as np
 
 from ..problems import ProblemLog
+from ..progress import Progress, silent
 from .history import History, aggregate_daily_to_weeks, read_history
 from .items import ItemTable, read_items
 from .settings import finish_period, read_settings, resolve_settings
 from .sources import open_source
+from .workbook import WorkbookFile
 
 
 @dataclass
@@ -26,14 +28,24 @@ class InputData:
     sheet_names: list[str]
 
 
-def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog) -> InputData | None:
+def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
+               progress: Progress = silent) -> InputData | None:
     """Read Settings, Items and History; None when the workbook cannot be used (fatal logged).
 
     ``path`` may be an .xlsx/.xlsm, .ods or .xls workbook or a folder of CSV files.
     """
     wb = open_source(Path(path), log)
+    progress("Opening the workbook", 0, None)
     if not wb.open():
         return None
+
+    def read(name: str) -> Any:
+        """A sheet, reporting progress where the source can (large .xlsx files)."""
+        if isinstance(wb, WorkbookFile):
+            return wb.read(name, progress)
+        progress(f"Reading {name}", 0, None)
+        return wb.read(name)
+
     try:
         items_name = wb.find_sheet("Items")
         if items_name is None:
@@ -44,15 +56,15 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog) -> InputD
                 "(run 'xlpolicy template' for an example).", code="items-sheet-missing")
             return None
         settings_name = wb.find_sheet("Settings")
-        settings_sheet = wb.read(settings_name) if settings_name else None
+        settings_sheet = read(settings_name) if settings_name else None
         settings = resolve_settings(read_settings(settings_sheet, log), overrides, log,
                                     settings_name or "Settings")
-        items = read_items(wb.read(items_name), settings, log)
+        items = read_items(read(items_name), settings, log)
         if items is None:
             return None
         history_name = wb.find_sheet("History")
         history = None
-        history_sheet = wb.read(history_name) if history_name is not None else None
+        history_sheet = read(history_name) if history_name is not None else None
         if history_sheet is not None and not history_sheet.rows:
             log.info(f"The sheet '{history_name}' is empty; demand comes from the Items sheet's "
                      "annual figures.", sheet=history_name, code="history-empty")

@@ -20,6 +20,7 @@ from openpyxl.utils import get_column_letter
 
 from ..contract import Column, header_forms, normalise
 from ..problems import ProblemLog
+from ..progress import Progress, silent
 
 SUPPORTED_SUFFIXES = (".xlsx", ".xlsm")
 
@@ -160,11 +161,16 @@ class WorkbookFile:
                 return name
         return None
 
-    def read(self, name: str) -> RawSheet:
+    def read(self, name: str, progress: Progress = silent) -> RawSheet:
         """All rows of a sheet, values and number formats, trailing empty rows dropped."""
         ws = self._wb[name]
         sheet = RawSheet(name)
-        for row in ws.iter_rows():
+        expected = ws.max_row if isinstance(ws.max_row, int) and ws.max_row > 0 else None
+        stage = f"Reading {name}"
+        progress(stage, 0, expected)
+        for k, row in enumerate(ws.iter_rows(), start=1):
+            if k % 5000 == 0:
+                progress(stage, k, expected)
             values = []
             formats = []
             rownum = None
@@ -184,6 +190,7 @@ class WorkbookFile:
             sheet.formats.append(formats)
             sheet.row_numbers.append(rownum if rownum is not None else len(sheet.rows))
         sheet.uncalculated = self._uncalculated_cells(name)
+        progress(stage, expected or len(sheet.rows), expected)
         return sheet
 
     def _uncalculated_cells(self, name: str) -> set[str]:
