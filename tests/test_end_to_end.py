@@ -193,6 +193,9 @@ def test_template_command_writes_a_workbook_that_plans(tmp_path):
     result = xlpolicy.plan(t)
     assert result.report.input_summary["items_skipped"] == 0
     assert not [p for p in result.problems if p.severity.value in ("fatal", "error")]
+    # ... and says that the example rows are still there, by cell
+    examples = [p for p in result.problems if p.code == "template-example-row"]
+    assert [p.cell for p in examples] == ["B2", "B3", "B4"]
 
 
 def test_usage_errors_exit_2(tmp_path):

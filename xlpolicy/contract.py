@@ -251,6 +251,10 @@ EXTRA_RESULT_KEYS: tuple[str, ...] = (
     "current_annual_total_cost", "annual_saving",
 )
 
+#: How the template marks its example rows (the description starts with it), so a run can
+#: say when they were left in.
+EXAMPLE_PREFIX = "EXAMPLE -"
+
 #: Result keys that hold text; every other result key is a number (NaN when empty).
 TEXT_RESULT_KEYS: frozenset[str] = frozenset({
     "item", "status", "model", "service_measure", "description", "category", "supplier",

@@ -209,9 +209,13 @@ def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
                     "was computed. Decide by hand whether to keep stocking it.", sheet=hsheet,
                     cell=first.get(codes[i], ""), item=codes[i], value=0, code="demand-zero")
     for i in np.flatnonzero(short):
-        log.warning(f"Short history: {int(periods[i])} {period}s, {int(nonzero[i])} with sales. "
-                    "The demand spread, and so the safety stock, is uncertain; review it by "
-                    "hand and re-run as history builds up.", sheet=hsheet,
+        few = nonzero[i] < MIN_NONZERO_PERIODS
+        why = (f"only {int(nonzero[i])} {period}s with sales, too few for a reliable estimate "
+               "of how demand varies" if few else
+               "less than a year, so seasonal swings cannot be seen yet and the spread is "
+               "a rough estimate")
+        log.warning(f"Short history: {int(periods[i])} {period}s, {why}. Review the safety "
+                    "stock by hand, and re-run as history builds up.", sheet=hsheet,
                     cell=first.get(codes[i], ""), item=codes[i], code="history-short")
     for i in np.flatnonzero(zero_fig):
         log.warning("Annual demand is 0, so no stock policy was computed.", sheet=sheet,

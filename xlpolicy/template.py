@@ -17,12 +17,11 @@ from typing import Any
 import xlsxwriter
 
 from xlpolicy import contract
-from xlpolicy.contract import ITEM_COLUMNS, NUMBER, RATE, SETTINGS, Column
+from xlpolicy.contract import EXAMPLE_PREFIX, ITEM_COLUMNS, NUMBER, RATE, SETTINGS, Column
 
 TEMPLATE_FILE_NAME = "xlpolicy-template.xlsx"
 
 #: Every example row's description starts with this, so people (and the planner) can spot them.
-EXAMPLE_PREFIX = "EXAMPLE -"
 
 #: Fixed document date, so that regenerating the template gives the same file.
 _CREATED = datetime(2025, 1, 6, 9, 0, 0)

@@ -14,7 +14,15 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from ..contract import ITEM_COLUMN_BY_KEY, ITEM_COLUMNS, NUMBER, RATE, SHORTAGE_COST, TEXT
+from ..contract import (
+    EXAMPLE_PREFIX,
+    ITEM_COLUMN_BY_KEY,
+    ITEM_COLUMNS,
+    NUMBER,
+    RATE,
+    SHORTAGE_COST,
+    TEXT,
+)
 from ..problems import ProblemLog, Severity
 from .cells import describe, is_blank, item_code, parse_number, text
 from .settings import parse_model
@@ -188,6 +196,11 @@ def _read_row(values: list[Any], fmts: list[str], rownum: int, header: Header,
     reported: set[str] = set()  # keys whose cell already has a problem in this row
     for key in TEXT_KEYS:
         rec[key] = text(raw(key)[0])
+    if (rec["description"] or "").startswith(EXAMPLE_PREFIX):
+        log.warning("This is one of the template's example rows. It was planned like any "
+                    "other; delete it (and its History rows) once your own items are in.",
+                    sheet=sheet.name, cell=ref("description"), item=code,
+                    value=rec["description"], code="template-example-row")
     rec["history_start"] = None if is_blank(raw("history_start")[0]) else raw("history_start")[0]
     model_raw = raw("demand_model")[0]
     rec["demand_model"] = parse_model(model_raw)
