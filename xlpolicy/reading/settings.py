@@ -21,38 +21,29 @@ from .cells import describe, is_blank, parse_number
 from .workbook import RawSheet, cell_ref
 
 _SETTING_LOOKUP = {name: s.key for s in SETTINGS for name in s.names()}
-_MEASURE_LOOKUP = {normalise(m): m for m in SERVICE_MEASURES} | {
-    normalise(a): m
-    for m, aliases in {
-        "cycle service": ("cycle service level", "csl", "type 1", "probability of no stockout",
-                          "alpha", "cycle"),
-        "fill rate": ("fill", "type 2", "beta", "fill rate service", "unit fill rate"),
-        "shortage cost": ("cost", "backorder cost", "stockout cost", "shortage", "penalty cost"),
-    }.items()
-    for a in aliases
-}
-_PERIOD_LOOKUP = {
-    normalise(a): p
-    for p, aliases in {
-        "day": ("day", "days", "daily", "d"),
-        "week": ("week", "weeks", "weekly", "w", "wk"),
-        "month": ("month", "months", "monthly", "m", "mo"),
-    }.items()
-    for a in aliases
-}
+def _words(table: dict[str, tuple[str, ...]]) -> dict[str, str]:
+    """Normalised spelling -> canonical word, for each canonical word and its other names."""
+    return {normalise(w): name for name, others in table.items() for w in (name, *others)}
 
 
-_MODEL_LOOKUP = {
-    normalise(a): m
-    for m, aliases in {
-        "auto": ("auto", "automatic", "choose", "best"),
-        "normal": ("normal", "gaussian", "norm"),
-        "poisson": ("poisson", "pois"),
-        "negative binomial": ("negative binomial", "negbin", "nb", "neg binomial", "nbinom"),
-        "gamma": ("gamma",),
-    }.items()
-    for a in aliases
-}
+_MEASURE_LOOKUP = _words({
+    "cycle service": ("cycle service level", "csl", "type 1", "probability of no stockout",
+                      "alpha", "cycle"),
+    "fill rate": ("fill", "type 2", "beta", "fill rate service", "unit fill rate"),
+    "shortage cost": ("cost", "backorder cost", "stockout cost", "shortage", "penalty cost"),
+})
+_PERIOD_LOOKUP = _words({
+    "day": ("days", "daily", "d"),
+    "week": ("weeks", "weekly", "w", "wk"),
+    "month": ("months", "monthly", "m", "mo"),
+})
+_MODEL_LOOKUP = _words({
+    "auto": ("automatic", "choose", "best"),
+    "normal": ("gaussian", "norm"),
+    "poisson": ("pois",),
+    "negative binomial": ("negbin", "nb", "neg binomial", "nbinom"),
+    "gamma": (),
+})
 _YES = {"yes", "y", "true", "1", "on"}
 _NO = {"no", "n", "false", "0", "off"}
 
