@@ -284,8 +284,9 @@ class _NonNormalModel(LeadTimeDemandModel):
         with np.errstate(all="ignore"):
             self._setup()
 
-    def _setup(self) -> None:  # pragma: no cover - every subclass overrides it
-        raise NotImplementedError
+    @abstractmethod
+    def _setup(self) -> None:
+        """Set the safe parameters, the bad-input mask and the point-mass mask."""
 
     # raw functions on broadcast arrays with safe parameters ---------------------------
     @abstractmethod
