@@ -220,7 +220,14 @@ def header_width(title: str) -> int:
 
 def display_len(values: Any, kind: str, currency_len: int) -> int:
     """Roughly how many characters the widest formatted value takes."""
-    nums = floats(values)
+    if isinstance(values, list) and len(values) == 1 and isinstance(
+            values[0], (int, float, np.integer, np.floating)) and not isinstance(
+            values[0], (bool, np.bool_)):
+        # One plain number (a cell at a time, the common case): skip the pandas round trip.
+        nums = np.array([float(values[0])])
+        nums = nums[np.isfinite(nums)]
+    else:
+        nums = floats(values)
     nums = nums[np.isfinite(nums)]
     if nums.size == 0:
         return 0
