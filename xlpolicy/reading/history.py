@@ -269,45 +269,103 @@ def _read_wide(sheet: RawSheet, hidx: int, ji: int, pcols: list[int], known: set
                     "the column was ignored.", sheet=sheet.name,
                     cell=cell_ref(pcols[pos], hrow), value=raw_periods[pos],
                     code="history-period-bad")
+    # Row by row: which rows are items (codes are few, one per row); each row's problems are
+    # kept with its place so that all problems come out in sheet order, as they are found.
     items: list[str] = []
     first_cell: dict[str, str] = {}
-    rows_out: list[np.ndarray] = []
-    for values, fmts, rownum in zip(sheet.rows[hidx + 1:], sheet.formats[hidx + 1:],
-                                    sheet.row_numbers[hidx + 1:], strict=True):
-        if all(is_blank(v) for v in values):
-            continue
+    data_rows: list[int] = []
+    row_problems: list[tuple[int, dict[str, Any]]] = []
+    for k in range(hidx + 1, len(sheet.rows)):
+        values, fmts, rownum = sheet.rows[k], sheet.formats[k], sheet.row_numbers[k]
         code = item_code(values[ji] if ji < len(values) else None,
                          fmts[ji] if ji < len(fmts) else "")
         ref = cell_ref(ji, rownum)
         if code is None:
-            log.warning("A History row has no item code; it was ignored.", sheet=sheet.name,
-                        cell=ref, code="history-item-missing")
+            if not all(is_blank(v) for v in values):
+                row_problems.append((k, dict(
+                    message="A History row has no item code; it was ignored.",
+                    sheet=sheet.name, cell=ref, code="history-item-missing")))
             continue
         if code not in known:
-            log.warning(
-                f"History has item {code!r}, which is not in the Items sheet; its row was "
-                "ignored. Add the item to Items or correct the code.",
+            row_problems.append((k, dict(
+                message=f"History has item {code!r}, which is not in the Items sheet; its row "
+                "was ignored. Add the item to Items or correct the code.",
                 sheet=sheet.name, cell=ref, item=code, value=values[ji],
-                code="history-unknown-item")
+                code="history-unknown-item")))
             continue
         if code in first_cell:
-            log.warning(f"Item {code!r} has a second History row (first at {first_cell[code]}); "
-                        "the second was ignored. Keep one row per item.", sheet=sheet.name,
-                        cell=ref, item=code, value=values[ji], code="history-duplicate-item")
+            row_problems.append((k, dict(
+                message=f"Item {code!r} has a second History row (first at {first_cell[code]}); "
+                "the second was ignored. Keep one row per item.", sheet=sheet.name,
+                cell=ref, item=code, value=values[ji], code="history-duplicate-item")))
             continue
         first_cell[code] = ref
-        row = np.zeros(len(labels), dtype=float)
-        for pos, j in enumerate(pcols):
-            if pidx[pos] < 0:
-                continue
-            v = values[j] if j < len(values) else None
-            x = _quantity(v, cell_ref(j, rownum), sheet, code, log,
-                          uncalculated=cell_ref(j, rownum) in sheet.uncalculated)
-            row[pidx[pos]] += x
         items.append(code)
-        rows_out.append(row)
-    matrix = np.vstack(rows_out) if rows_out else np.zeros((0, len(labels)))
+        data_rows.append(k)
+
+    # The quantities as one block: plain numbers are taken as they are, all at once; only
+    # the cells that are not (text, dates, negatives, formulas without a result) go one by
+    # one through the same check as always, which reports each by its cell.
+    used = np.flatnonzero(pidx >= 0)
+    cols = [pcols[p] for p in used]
+    blk, kinds = _block(sheet, data_rows, cols)
+    num = np.equal(kinds, int) | np.equal(kinds, float)
+    vals = np.zeros(blk.shape, dtype=float)
+    if num.any():
+        vals[num] = blk[num].astype(float)
+    slow = ~num & np.not_equal(kinds, type(None))
+    slow |= num & ~(np.isfinite(vals) & (vals >= 0))
+    if sheet.uncalculated:
+        at_row = {sheet.row_numbers[k]: i for i, k in enumerate(data_rows)}
+        at_col = {j: q for q, j in enumerate(cols)}
+        for ref in sheet.uncalculated:
+            r, c = _split_ref(ref)
+            if r in at_row and c in at_col:
+                slow[at_row[r], at_col[c]] = True
+    cell_problems = np.nonzero(slow)  # row-major: sheet order
+    events = sorted([(k, -1, i) for i, (k, _) in enumerate(row_problems)]
+                    + [(data_rows[i], q, i) for i, q in zip(*cell_problems, strict=True)])
+    for k, q, i in events:
+        if q < 0:
+            kw = row_problems[i][1]
+            log.warning(kw.pop("message"), **kw)
+            continue
+        rownum, ref = sheet.row_numbers[k], cell_ref(cols[q], sheet.row_numbers[k])
+        vals[i, q] = _quantity(blk[i, q], ref, sheet, items[i], log,
+                               uncalculated=ref in sheet.uncalculated)
+    matrix = np.zeros((len(items), len(labels)), dtype=float)
+    for q, p in enumerate(used):
+        matrix[:, pidx[p]] += vals[:, q]
     return History(sheet.name, "wide", items, matrix, labels, period, first_cell)
+
+
+def _block(sheet: RawSheet, rows: list[int], cols: list[int]) -> tuple[np.ndarray, np.ndarray]:
+    """The cells at ``rows`` x ``cols`` as an object array, and each cell's Python type."""
+    grid = sheet.grid
+    if grid is not None and sheet.kinds is not None and grid.shape[0] == len(sheet.rows):
+        inside = [j for j in cols if j < grid.shape[1]]
+        if len(inside) == len(cols):
+            at = np.ix_(np.asarray(rows, dtype=np.int64), np.asarray(cols, dtype=np.int64))
+            return grid[at], sheet.kinds[at]
+    blk = np.empty((len(rows), len(cols)), dtype=object)
+    for i, k in enumerate(rows):
+        values = sheet.rows[k]
+        blk[i] = [values[j] if j < len(values) else None for j in cols]
+    return blk, np.frompyfunc(type, 1, 1)(blk)
+
+
+_REF_PARTS = re.compile(r"^\$?([A-Za-z]{1,3})\$?(\d+)$")
+
+
+def _split_ref(ref: str) -> tuple[int, int]:
+    """(1-based row, 0-based column) of an A1 reference; (0, -1) if it is not one."""
+    m = _REF_PARTS.match(ref)
+    if m is None:
+        return 0, -1
+    col = 0
+    for ch in m.group(1).upper():
+        col = col * 26 + ord(ch) - 64
+    return int(m.group(2)), col - 1
 
 
 def _quantity(value: Any, ref: str, sheet: RawSheet, code: str, log: ProblemLog,
