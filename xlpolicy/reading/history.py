@@ -308,7 +308,7 @@ def _read_wide(sheet: RawSheet, hidx: int, ji: int, pcols: list[int], known: set
     # one through the same check as always, which reports each by its cell.
     used = np.flatnonzero(pidx >= 0)
     cols = [pcols[p] for p in used]
-    blk, kinds = _block(sheet, data_rows, cols)
+    blk, kinds = sheet.block(data_rows, cols)
     num = np.equal(kinds, int) | np.equal(kinds, float)
     vals = np.zeros(blk.shape, dtype=float)
     if num.any():
@@ -337,21 +337,6 @@ def _read_wide(sheet: RawSheet, hidx: int, ji: int, pcols: list[int], known: set
     for q, p in enumerate(used):
         matrix[:, pidx[p]] += vals[:, q]
     return History(sheet.name, "wide", items, matrix, labels, period, first_cell)
-
-
-def _block(sheet: RawSheet, rows: list[int], cols: list[int]) -> tuple[np.ndarray, np.ndarray]:
-    """The cells at ``rows`` x ``cols`` as an object array, and each cell's Python type."""
-    grid = sheet.grid
-    if grid is not None and sheet.kinds is not None and grid.shape[0] == len(sheet.rows):
-        inside = [j for j in cols if j < grid.shape[1]]
-        if len(inside) == len(cols):
-            at = np.ix_(np.asarray(rows, dtype=np.int64), np.asarray(cols, dtype=np.int64))
-            return grid[at], sheet.kinds[at]
-    blk = np.empty((len(rows), len(cols)), dtype=object)
-    for i, k in enumerate(rows):
-        values = sheet.rows[k]
-        blk[i] = [values[j] if j < len(values) else None for j in cols]
-    return blk, np.frompyfunc(type, 1, 1)(blk)
 
 
 _REF_PARTS = re.compile(r"^\$?([A-Za-z]{1,3})\$?(\d+)$")

@@ -67,6 +67,20 @@ class RawSheet:
     grid: np.ndarray | None = None
     kinds: np.ndarray | None = None
 
+    def block(self, rows: list[int], cols: list[int]) -> tuple[np.ndarray, np.ndarray]:
+        """The cells at ``rows`` x ``cols`` (indices into ``rows``, 0-based columns) as an
+        object array (None for blank or beyond a row's end), and each cell's Python type."""
+        grid = self.grid
+        if (grid is not None and self.kinds is not None and grid.shape[0] == len(self.rows)
+                and all(j < grid.shape[1] for j in cols)):
+            at = np.ix_(np.asarray(rows, dtype=np.int64), np.asarray(cols, dtype=np.int64))
+            return grid[at], self.kinds[at]
+        blk = np.empty((len(rows), len(cols)), dtype=object)
+        for i, k in enumerate(rows):
+            values = self.rows[k]
+            blk[i] = [values[j] if j < len(values) else None for j in cols]
+        return blk, np.frompyfunc(type, 1, 1)(blk)
+
 
 def cell_ref(col_index: int, row_number: int) -> str:
     """A1 reference from a 0-based column index and a 1-based row number."""
