@@ -19,6 +19,7 @@ import datetime as _dt
 import posixpath
 import re
 import zipfile
+import zlib
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -222,8 +223,8 @@ class WorkbookFile:
         """The sheet via python-calamine plus an XML scan; None where it cannot be exact."""
         stage = f"Reading {name}"
         progress(stage, 0, None)
-        data = self._part(name)
-        if data is None or not _cells_addressed(data):
+        scan = self._scan(name)
+        if scan is None:
             return None
         try:
             raw = self._fast.get_sheet_by_name(name).to_python(skip_empty_area=False)
@@ -232,7 +233,7 @@ class WorkbookFile:
         width = max((len(r) for r in raw), default=0)
         if not raw or width == 0:
             sheet = RawSheet(name)
-            sheet.uncalculated = self._uncalculated_cells(name, data)
+            sheet.uncalculated = self._uncalculated_cells(name) if scan.formulas else set()
             progress(stage, 0, 0)
             return sheet
         if any(len(r) != width for r in raw):
@@ -243,7 +244,7 @@ class WorkbookFile:
         blank = grid == ""
         grid[blank] = None
         # Errors (#N/A, #DIV/0!) come back empty: put their text back, as openpyxl gives it.
-        for (r, c), text in _error_cells(data).items():
+        for (r, c), text in scan.errors.items():
             if r < grid.shape[0] and c < width:
                 grid[r, c] = text
                 blank[r, c] = False
@@ -265,14 +266,16 @@ class WorkbookFile:
             kinds[r, c] = _dt.datetime
         keep = ~blank.all(axis=1)
         last_col = np.flatnonzero(~blank.all(axis=0))
+        full = width
         width = int(last_col[-1]) + 1 if last_col.size else 0
         row_numbers = (np.flatnonzero(keep) + 1).tolist()
-        grid = grid[keep, :width]
-        kinds = kinds[keep, :width]
+        if not keep.all() or width != full:  # (a copy of the whole grid otherwise)
+            grid = grid[keep, :width]
+            kinds = kinds[keep, :width]
         sheet = RawSheet(name, grid.tolist(), [], row_numbers, grid=grid, kinds=kinds)
         general = ["General"] * width
         sheet.formats = [general] * len(row_numbers)
-        special = self._special_formats(data)
+        special = scan.formats
         if special:
             index_of = {n: k for k, n in enumerate(row_numbers)}
             for (r, c), fmt in special.items():
@@ -282,42 +285,68 @@ class WorkbookFile:
                 if sheet.formats[k] is general:
                     sheet.formats[k] = list(general)
                 sheet.formats[k][c] = fmt
-        sheet.uncalculated = self._uncalculated_cells(name, data)
+        sheet.uncalculated = self._uncalculated_cells(name) if scan.formulas else set()
         progress(stage, len(row_numbers), len(row_numbers))
         return sheet
 
-    def _part(self, name: str) -> bytes | None:
-        """The sheet's XML, or None when it cannot be found."""
+    def _scan(self, name: str) -> _Scan | None:
+        """One streamed pass over the sheet's XML for what calamine does not give.
+
+        Finds error cells (#N/A), the cells whose number format the checks read, and
+        whether there are formulas at all; None when the sheet cannot be placed exactly
+        (cells without their own reference, a namespace prefix, no such part).
+
+        Only zero-padded formats (item codes shown as 000123) and percentages (rates)
+        change what a value means; every other cell reads as General. The styles tell which
+        style indices carry such a format, and a search finds the cells that use them.
+        """
         part = self._sheet_parts.get(name)
         if not part:
             return None
-        try:
-            with zipfile.ZipFile(self.path) as zf:
-                return zf.read(part)
-        except (KeyError, zipfile.BadZipFile, OSError):
-            return None
-
-    def _special_formats(self, data: bytes) -> dict[tuple[int, int], str]:
-        """(row, column) -> number format, 0-based, for cells whose format the checks read.
-
-        Only zero-padded formats (item codes shown as 000123) and percentages (rates) change
-        what a value means; every other cell reads as General. Found without parsing the
-        whole sheet: the styles tell which style indices carry such a format, and a search
-        finds the few cells that use them.
-        """
         if self._styles is None:
             self._styles = _formats_that_matter(self.path)
-        if not self._styles:
-            return {}
-        out: dict[tuple[int, int], str] = {}
-        alts = b"|".join(str(k).encode() for k in self._styles)
-        for m in re.finditer(rb'<c\b[^>]*?\ss="(' + alts + rb')"[^>]*>', data):
-            ref = _REF.search(m.group(0))
-            if ref is None:
-                continue
-            out[(int(ref.group(2)) - 1, column_index_from_string(ref.group(1).decode()) - 1)] = (
-                self._styles[int(m.group(1))])
-        return out
+        styled = None
+        if self._styles:
+            alts = b"|".join(str(k).encode() for k in self._styles)
+            styled = re.compile(rb'<c\b[^>]*?\ss="(' + alts + rb')"[^>]*>')
+        scan = _Scan()
+        cells = refs = 0
+        first = True
+        try:
+            with zipfile.ZipFile(self.path) as zf, zf.open(part) as fh:
+                carry = b""
+                while True:
+                    chunk = fh.read(1 << 24)
+                    buf = carry + chunk
+                    cut = len(buf) if not chunk else buf.rfind(b"</row>")
+                    if chunk and cut < 0:
+                        carry = buf
+                        continue
+                    if chunk:
+                        cut += len(b"</row>")
+                    piece, carry = buf[:cut], buf[cut:]
+                    if first:
+                        root = _ROOT.search(piece[:8192])
+                        if root is None or root.group(1):
+                            return None
+                        first = False
+                    cells += piece.count(b"<c ") + piece.count(b"<c>")
+                    refs += piece.count(b' r="') - piece.count(b"<row ")
+                    scan.formulas = scan.formulas or b"<f" in piece or b":f" in piece
+                    if b't="e"' in piece:
+                        scan.errors.update(_error_cells(piece))
+                    if styled is not None:
+                        for m in styled.finditer(piece):
+                            ref = _REF.search(m.group(0))
+                            if ref is not None:
+                                at = (int(ref.group(2)) - 1,
+                                      column_index_from_string(ref.group(1).decode()) - 1)
+                                scan.formats[at] = self._styles[int(m.group(1))]
+                    if not chunk:
+                        break
+        except (KeyError, zipfile.BadZipFile, OSError, zlib.error, EOFError):
+            return None
+        return scan if refs >= cells else None
 
     def _read_openpyxl(self, name: str, progress: Progress = silent) -> RawSheet:
         """All rows of a sheet via openpyxl, values and number formats, empty rows dropped."""
@@ -347,31 +376,46 @@ class WorkbookFile:
             sheet.rows.append(values)
             sheet.formats.append(formats)
             sheet.row_numbers.append(rownum if rownum is not None else len(sheet.rows))
-        sheet.uncalculated = self._uncalculated_cells(name)
+        sheet.uncalculated = self._uncalculated_cells(name) if self._has_formulas(name) else set()
         progress(stage, expected or len(sheet.rows), expected)
         return sheet
 
-    def _uncalculated_cells(self, name: str, data: bytes | None = None) -> set[str]:
+    def _has_formulas(self, name: str) -> bool:
+        """Whether the sheet's XML holds any formula (a quick search, in chunks)."""
+        part = self._sheet_parts.get(name)
+        if not part:
+            return False
+        try:
+            with zipfile.ZipFile(self.path) as zf, zf.open(part) as fh:
+                tail = b""
+                while chunk := fh.read(1 << 24):
+                    buf = tail + chunk
+                    if b"<f" in buf or b":f" in buf:
+                        return True
+                    tail = buf[-2:]
+        except (KeyError, zipfile.BadZipFile, OSError, zlib.error, EOFError):
+            return False
+        return False
+
+    def _uncalculated_cells(self, name: str) -> set[str]:
         """A1 references of formula cells that carry no saved result."""
-        if data is None:
-            data = self._part(name)
-        if data is None:
-            return set()
-        if b"<f" not in data and b":f" not in data:
+        part = self._sheet_parts.get(name)
+        if not part:
             return set()
         out: set[str] = set()
         c_tag, f_tag, v_tag = f"{{{_NS_MAIN}}}c", f"{{{_NS_MAIN}}}f", f"{{{_NS_MAIN}}}v"
         try:
-            for _event, elem in ET.iterparse(_BytesReader(data), events=("end",)):
-                if elem.tag == c_tag:
-                    f = elem.find(f_tag)
-                    if f is not None:
-                        v = elem.find(v_tag)
-                        if v is None or not (v.text or "").strip():
-                            out.add(elem.get("r", ""))
-                    elem.clear()
-        except ET.ParseError:
-            return out
+            with zipfile.ZipFile(self.path) as zf, zf.open(part) as fh:
+                for _event, elem in ET.iterparse(fh, events=("end",)):
+                    if elem.tag == c_tag:
+                        f = elem.find(f_tag)
+                        if f is not None:
+                            v = elem.find(v_tag)
+                            if v is None or not (v.text or "").strip():
+                                out.add(elem.get("r", ""))
+                        elem.clear()
+        except (ET.ParseError, KeyError, zipfile.BadZipFile, OSError, zlib.error, EOFError):
+            pass
         out.discard("")
         return out
 
@@ -380,7 +424,16 @@ _REF = re.compile(rb'\sr="\$?([A-Z]{1,3})\$?(\d+)"')
 _ERROR_CELL = re.compile(rb'<c\b([^>]*\st="e"[^>]*)>(.*?)</c>', re.S)
 _VALUE = re.compile(rb"<v>([^<]*)</v>")
 _ZERO_PAD_FORMAT = re.compile(r"^0+$")
-_PREFIXED_CELL = re.compile(rb"<[A-Za-z_][\w.-]*:c[\s>/]")
+_ROOT = re.compile(rb"<([A-Za-z_][\w.-]*:)?worksheet[\s>]")
+
+
+@dataclass
+class _Scan:
+    """What the fast path learns from a sheet's XML (see WorkbookFile._scan)."""
+
+    formulas: bool = False
+    errors: dict[tuple[int, int], str] = field(default_factory=dict)
+    formats: dict[tuple[int, int], str] = field(default_factory=dict)
 
 
 def _open_calamine(path: Path) -> Any:
@@ -393,17 +446,6 @@ def _open_calamine(path: Path) -> Any:
         return CalamineWorkbook.from_path(str(path))
     except Exception:  # the openpyxl path gives the user a proper message
         return None
-
-
-def _cells_addressed(data: bytes) -> bool:
-    """Whether every cell in the sheet XML names its own place (r="B7"), unprefixed.
-
-    The fast path places error values and formats by those references; a sheet written
-    without them (allowed, rare) or with a namespace prefix goes the openpyxl way.
-    """
-    cells = data.count(b"<c ") + data.count(b"<c>")
-    refs = data.count(b' r="') - data.count(b"<row ")
-    return refs >= cells and _PREFIXED_CELL.search(data) is None
 
 
 def _error_cells(data: bytes) -> dict[tuple[int, int], str]:
@@ -450,21 +492,6 @@ def _formats_that_matter(path: Path) -> dict[int, str]:
         if "%" in fmt or _ZERO_PAD_FORMAT.match(fmt):
             out[k] = fmt
     return out
-
-
-class _BytesReader:
-    """Minimal file-like wrapper so iterparse can read bytes already in memory."""
-
-    def __init__(self, data: bytes):
-        self._data = data
-        self._pos = 0
-
-    def read(self, n: int = -1) -> bytes:
-        if n is None or n < 0:
-            n = len(self._data) - self._pos
-        chunk = self._data[self._pos : self._pos + n]
-        self._pos += len(chunk)
-        return chunk
 
 
 def _sheet_parts(path: Path) -> dict[str, str]:
