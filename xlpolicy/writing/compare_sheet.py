@@ -144,6 +144,9 @@ def write_compare(ctx: Context, ws: Worksheet) -> None:
     text_of = {col.key: texts(df, col.key) for col in cols if col.kind in ("text", "code")}
     num_of = {col.key: column(df, col.key) for col in cols
               if col.kind not in ("text", "code")}
+    col_props = {col.key: {**ctx.num_props(col.kind), **line} for col in cols
+                 if col.kind not in ("text", "code")}
+    col_fmt = {key: ctx.styles.get(**props) for key, props in col_props.items()}
     for k, i in enumerate(rows):
         row = first + k
         for c, col in enumerate(cols):
@@ -152,7 +155,7 @@ def write_compare(ctx: Context, ws: Worksheet) -> None:
                 n = ctx.w.text(ws, row, c, value, num_format="@", **line)
                 widths[c] = max(widths[c], min(n, 40) + 2)
                 continue
-            props = {**ctx.num_props(col.kind), **line}
+            props = col_props[col.key]
             value = num_of[col.key][i]
             if col.key == "current_annual_total_cost":
                 _current_cell(ctx, ws, row, where, float(reported_cur[i]), float(rebuilt[i]),
@@ -162,8 +165,10 @@ def write_compare(ctx: Context, ws: Worksheet) -> None:
             elif col.key == "annual_saving":
                 _saving_cell(ctx, ws, row, where, float(reported_cur[i]), float(rec[i]),
                              float(saving[i]), props)
+            elif np.isfinite(value):  # what ctx.w.number does, with the column's format
+                ws.write_number(row, c, float(value), col_fmt[col.key])
             else:
-                ctx.w.number(ws, row, c, value, **props)
+                ws.write_blank(row, c, None, col_fmt[col.key])
             widths[c] = max(widths[c], display_len([value], col.kind, len(ctx.currency)) + 2)
         for key, arr in (("cur", reported_cur), ("rec", rec), ("sav", saving)):
             if np.isfinite(arr[i]):

@@ -223,16 +223,18 @@ def display_len(values: Any, kind: str, currency_len: int) -> int:
     if isinstance(values, list) and len(values) == 1 and isinstance(
             values[0], (int, float, np.integer, np.floating)) and not isinstance(
             values[0], (bool, np.bool_)):
-        # One plain number (a cell at a time, the common case): skip the pandas round trip.
-        nums = np.array([float(values[0])])
-        nums = nums[np.isfinite(nums)]
+        # One plain number (a cell at a time, the common case): no arrays at all.
+        x = float(values[0])
+        if not math.isfinite(x):
+            return 0
+        big, neg = abs(x), 1 if x < 0 else 0
     else:
         nums = floats(values)
-    nums = nums[np.isfinite(nums)]
-    if nums.size == 0:
-        return 0
-    big = float(np.max(np.abs(nums)))
-    neg = 1 if (nums < 0).any() else 0
+        nums = nums[np.isfinite(nums)]
+        if nums.size == 0:
+            return 0
+        big = float(np.max(np.abs(nums)))
+        neg = 1 if (nums < 0).any() else 0
     if kind == "percent":
         return len(f"{big * 100:.2f}%") + neg
     decimals = {"units": 0, "count": 0, "units1": 1, "decimal1": 1, "days": 1}.get(kind, 2)
