@@ -97,6 +97,12 @@ def write_workbook(path: Path, n_items: int, *, layout: str = "wide", weeks: int
             ws.write_string(i + 1, 0, code)
             ws.write_row(i + 1, 1, demand[i])
     elif layout == "long":
+        rows = int(np.count_nonzero(d["demand"]))
+        if rows >= 1_048_576:
+            wb.close()
+            Path(path).unlink(missing_ok=True)
+            raise SystemExit(f"a long History of {n_items:,} items would need {rows:,} rows, "
+                             "more than a sheet holds (1,048,576); use the wide layout")
         ws.write_row(0, 0, ("Item", "Period", "Quantity"), bold)
         stamps = [_dt.datetime.combine(day, _dt.time()) for day in dates]
         r = 1
