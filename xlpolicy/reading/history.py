@@ -210,15 +210,27 @@ def _read_long(sheet: RawSheet, cols: dict[str, int], hidx: int, known: set[str]
     rows: list[int] = []
     unknown_seen: set[str] = set()
     first_cell: dict[str, str] = {}
-    for values, fmts, rownum in zip(sheet.rows[hidx + 1:], sheet.formats[hidx + 1:],
-                                    sheet.row_numbers[hidx + 1:], strict=True):
-        def get(j: int, vals: list[Any] = values) -> Any:
-            return vals[j] if j < len(vals) else None
-
-        if all(is_blank(v) for v in values):
-            continue
-        code = item_code(get(ji), fmts[ji] if ji < len(fmts) else "")
+    # The three columns as one block: plain quantities are read all at once; only cells
+    # that are not (text, negatives, formulas without a result) are checked one by one.
+    at = list(range(hidx + 1, len(sheet.rows)))
+    blk, kinds = sheet.block(at, [ji, jp, jq])
+    num = np.equal(kinds[:, 2], int) | np.equal(kinds[:, 2], float)
+    qv = np.zeros(len(at), dtype=float)
+    if num.any():
+        qv[num] = blk[num, 2].astype(float)
+    slow = (~num & np.not_equal(kinds[:, 2], type(None))) | (
+        num & ~(np.isfinite(qv) & (qv >= 0)))
+    raw_codes, raw_periods, raw_qty = (blk[:, q].tolist() for q in range(3))
+    qv_list, slow_list = qv.tolist(), slow.tolist()
+    code_of: dict[tuple[Any, ...], str | None] = {}  # codes repeat: each is worked out once
+    for pos, k in enumerate(at):
+        rownum, fmts, v = sheet.row_numbers[k], sheet.formats[k], raw_codes[pos]
+        fmt = fmts[ji] if ji < len(fmts) else ""
+        key = (type(v), v, fmt)
+        code = code_of[key] if key in code_of else code_of.setdefault(key, item_code(v, fmt))
         if code is None:
+            if all(is_blank(x) for x in sheet.rows[k]):
+                continue
             log.warning("A History row has no item code; it was ignored. Fill in the item code "
                         "or delete the row.", sheet=sheet.name, cell=cell_ref(ji, rownum),
                         code="history-item-missing")
@@ -229,14 +241,19 @@ def _read_long(sheet: RawSheet, cols: dict[str, int], hidx: int, known: set[str]
                 log.warning(
                     f"History has item {code!r}, which is not in the Items sheet; its rows were "
                     "ignored. Add the item to Items or correct the code.",
-                    sheet=sheet.name, cell=cell_ref(ji, rownum), item=code, value=get(ji),
+                    sheet=sheet.name, cell=cell_ref(ji, rownum), item=code, value=v,
                     code="history-unknown-item")
             continue
-        first_cell.setdefault(code, cell_ref(ji, rownum))
-        x = _quantity(get(jq), cell_ref(jq, rownum), sheet, code, log,
-                      uncalculated=cell_ref(jq, rownum) in sheet.uncalculated)
+        if code not in first_cell:
+            first_cell[code] = cell_ref(ji, rownum)
+        if slow_list[pos] or sheet.uncalculated:
+            ref = cell_ref(jq, rownum)
+            x = _quantity(raw_qty[pos], ref, sheet, code, log,
+                          uncalculated=ref in sheet.uncalculated)
+        else:
+            x = qv_list[pos]
         codes.append(code)
-        periods.append(get(jp))
+        periods.append(raw_periods[pos])
         qty.append(x)
         rows.append(rownum)
     pidx, labels, period, bad = _period_axis(periods, settings, sheet.name, log)
