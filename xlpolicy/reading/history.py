@@ -210,15 +210,27 @@ def _read_long(sheet: RawSheet, cols: dict[str, int], hidx: int, known: set[str]
     rows: list[int] = []
     unknown_seen: set[str] = set()
     first_cell: dict[str, str] = {}
-    for values, fmts, rownum in zip(sheet.rows[hidx + 1:], sheet.formats[hidx + 1:],
-                                    sheet.row_numbers[hidx + 1:], strict=True):
-        def get(j: int, vals: list[Any] = values) -> Any:
-            return vals[j] if j < len(vals) else None
-
-        if all(is_blank(v) for v in values):
-            continue
-        code = item_code(get(ji), fmts[ji] if ji < len(fmts) else "")
+    # The three columns as one block: plain quantities are read all at once; only cells
+    # that are not (text, negatives, formulas without a result) are checked one by one.
+    at = list(range(hidx + 1, len(sheet.rows)))
+    blk, kinds = sheet.block(at, [ji, jp, jq])
+    num = np.equal(kinds[:, 2], int) | np.equal(kinds[:, 2], float)
+    qv = np.zeros(len(at), dtype=float)
+    if num.any():
+        qv[num] = blk[num, 2].astype(float)
+    slow = (~num & np.not_equal(kinds[:, 2], type(None))) | (
+        num & ~(np.isfinite(qv) & (qv >= 0)))
+    raw_codes, raw_periods, raw_qty = (blk[:, q].tolist() for q in range(3))
+    qv_list, slow_list = qv.tolist(), slow.tolist()
+    code_of: dict[tuple[Any, ...], str | None] = {}  # codes repeat: each is worked out once
+    for pos, k in enumerate(at):
+        rownum, fmts, v = sheet.row_numbers[k], sheet.formats[k], raw_codes[pos]
+        fmt = fmts[ji] if ji < len(fmts) else ""
+        key = (type(v), v, fmt)
+        code = code_of[key] if key in code_of else code_of.setdefault(key, item_code(v, fmt))
         if code is None:
+            if all(is_blank(x) for x in sheet.rows[k]):
+                continue
             log.warning("A History row has no item code; it was ignored. Fill in the item code "
                         "or delete the row.", sheet=sheet.name, cell=cell_ref(ji, rownum),
                         code="history-item-missing")
@@ -229,14 +241,19 @@ def _read_long(sheet: RawSheet, cols: dict[str, int], hidx: int, known: set[str]
                 log.warning(
                     f"History has item {code!r}, which is not in the Items sheet; its rows were "
                     "ignored. Add the item to Items or correct the code.",
-                    sheet=sheet.name, cell=cell_ref(ji, rownum), item=code, value=get(ji),
+                    sheet=sheet.name, cell=cell_ref(ji, rownum), item=code, value=v,
                     code="history-unknown-item")
             continue
-        first_cell.setdefault(code, cell_ref(ji, rownum))
-        x = _quantity(get(jq), cell_ref(jq, rownum), sheet, code, log,
-                      uncalculated=cell_ref(jq, rownum) in sheet.uncalculated)
+        if code not in first_cell:
+            first_cell[code] = cell_ref(ji, rownum)
+        if slow_list[pos] or sheet.uncalculated:
+            ref = cell_ref(jq, rownum)
+            x = _quantity(raw_qty[pos], ref, sheet, code, log,
+                          uncalculated=ref in sheet.uncalculated)
+        else:
+            x = qv_list[pos]
         codes.append(code)
-        periods.append(get(jp))
+        periods.append(raw_periods[pos])
         qty.append(x)
         rows.append(rownum)
     pidx, labels, period, bad = _period_axis(periods, settings, sheet.name, log)
@@ -269,45 +286,88 @@ def _read_wide(sheet: RawSheet, hidx: int, ji: int, pcols: list[int], known: set
                     "the column was ignored.", sheet=sheet.name,
                     cell=cell_ref(pcols[pos], hrow), value=raw_periods[pos],
                     code="history-period-bad")
+    # Row by row: which rows are items (codes are few, one per row); each row's problems are
+    # kept with its place so that all problems come out in sheet order, as they are found.
     items: list[str] = []
     first_cell: dict[str, str] = {}
-    rows_out: list[np.ndarray] = []
-    for values, fmts, rownum in zip(sheet.rows[hidx + 1:], sheet.formats[hidx + 1:],
-                                    sheet.row_numbers[hidx + 1:], strict=True):
-        if all(is_blank(v) for v in values):
-            continue
+    data_rows: list[int] = []
+    row_problems: list[tuple[int, dict[str, Any]]] = []
+    for k in range(hidx + 1, len(sheet.rows)):
+        values, fmts, rownum = sheet.rows[k], sheet.formats[k], sheet.row_numbers[k]
         code = item_code(values[ji] if ji < len(values) else None,
                          fmts[ji] if ji < len(fmts) else "")
         ref = cell_ref(ji, rownum)
         if code is None:
-            log.warning("A History row has no item code; it was ignored.", sheet=sheet.name,
-                        cell=ref, code="history-item-missing")
+            if not all(is_blank(v) for v in values):
+                row_problems.append((k, dict(
+                    message="A History row has no item code; it was ignored.",
+                    sheet=sheet.name, cell=ref, code="history-item-missing")))
             continue
         if code not in known:
-            log.warning(
-                f"History has item {code!r}, which is not in the Items sheet; its row was "
-                "ignored. Add the item to Items or correct the code.",
+            row_problems.append((k, dict(
+                message=f"History has item {code!r}, which is not in the Items sheet; its row "
+                "was ignored. Add the item to Items or correct the code.",
                 sheet=sheet.name, cell=ref, item=code, value=values[ji],
-                code="history-unknown-item")
+                code="history-unknown-item")))
             continue
         if code in first_cell:
-            log.warning(f"Item {code!r} has a second History row (first at {first_cell[code]}); "
-                        "the second was ignored. Keep one row per item.", sheet=sheet.name,
-                        cell=ref, item=code, value=values[ji], code="history-duplicate-item")
+            row_problems.append((k, dict(
+                message=f"Item {code!r} has a second History row (first at {first_cell[code]}); "
+                "the second was ignored. Keep one row per item.", sheet=sheet.name,
+                cell=ref, item=code, value=values[ji], code="history-duplicate-item")))
             continue
         first_cell[code] = ref
-        row = np.zeros(len(labels), dtype=float)
-        for pos, j in enumerate(pcols):
-            if pidx[pos] < 0:
-                continue
-            v = values[j] if j < len(values) else None
-            x = _quantity(v, cell_ref(j, rownum), sheet, code, log,
-                          uncalculated=cell_ref(j, rownum) in sheet.uncalculated)
-            row[pidx[pos]] += x
         items.append(code)
-        rows_out.append(row)
-    matrix = np.vstack(rows_out) if rows_out else np.zeros((0, len(labels)))
+        data_rows.append(k)
+
+    # The quantities as one block: plain numbers are taken as they are, all at once; only
+    # the cells that are not (text, dates, negatives, formulas without a result) go one by
+    # one through the same check as always, which reports each by its cell.
+    used = np.flatnonzero(pidx >= 0)
+    cols = [pcols[p] for p in used]
+    blk, kinds = sheet.block(data_rows, cols)
+    num = np.equal(kinds, int) | np.equal(kinds, float)
+    vals = np.zeros(blk.shape, dtype=float)
+    if num.any():
+        vals[num] = blk[num].astype(float)
+    slow = ~num & np.not_equal(kinds, type(None))
+    slow |= num & ~(np.isfinite(vals) & (vals >= 0))
+    if sheet.uncalculated:
+        at_row = {sheet.row_numbers[k]: i for i, k in enumerate(data_rows)}
+        at_col = {j: q for q, j in enumerate(cols)}
+        for ref in sheet.uncalculated:
+            r, c = _split_ref(ref)
+            if r in at_row and c in at_col:
+                slow[at_row[r], at_col[c]] = True
+    cell_problems = np.nonzero(slow)  # row-major: sheet order
+    events = sorted([(k, -1, i) for i, (k, _) in enumerate(row_problems)]
+                    + [(data_rows[i], q, i) for i, q in zip(*cell_problems, strict=True)])
+    for k, q, i in events:
+        if q < 0:
+            kw = row_problems[i][1]
+            log.warning(kw.pop("message"), **kw)
+            continue
+        rownum, ref = sheet.row_numbers[k], cell_ref(cols[q], sheet.row_numbers[k])
+        vals[i, q] = _quantity(blk[i, q], ref, sheet, items[i], log,
+                               uncalculated=ref in sheet.uncalculated)
+    matrix = np.zeros((len(items), len(labels)), dtype=float)
+    for q, p in enumerate(used):
+        matrix[:, pidx[p]] += vals[:, q]
     return History(sheet.name, "wide", items, matrix, labels, period, first_cell)
+
+
+_REF_PARTS = re.compile(r"^\$?([A-Za-z]{1,3})\$?(\d+)$")
+
+
+def _split_ref(ref: str) -> tuple[int, int]:
+    """(1-based row, 0-based column) of an A1 reference; (0, -1) if it is not one."""
+    m = _REF_PARTS.match(ref)
+    if m is None:
+        return 0, -1
+    col = 0
+    for ch in m.group(1).upper():
+        col = col * 26 + ord(ch) - 64
+    return int(m.group(2)), col - 1
 
 
 def _quantity(value: Any, ref: str, sheet: RawSheet, code: str, log: ProblemLog,

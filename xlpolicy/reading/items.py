@@ -8,11 +8,13 @@ left blank. Nothing is turned into a blank without saying so.
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
 import pandas as pd
+from openpyxl.utils import column_index_from_string
 
 from ..contract import (
     EXAMPLE_PREFIX,
@@ -127,19 +129,26 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
                 sheet=sheet.name, cell=cell_ref(j, hrow), value=sheet.rows[header.row_index][j],
                 code="items-duplicate-column")
 
-    records: list[dict[str, Any]] = []
+    measure = settings.get("service_measure")
+    first = header.row_index + 1
+    clean = _clean_rows(sheet, header, settings, measure)
+    records: list[dict[str, Any] | None] = []  # None: a clean row, taken from ``clean``
+    kept: list[int] = []  # position (from the first data row) of each item kept
     usable: list[bool] = []
     first_row_of: dict[str, int] = {}
-    measure = settings.get("service_measure")
-    for values, fmts, rownum in zip(sheet.rows[header.row_index + 1:],
-                                    sheet.formats[header.row_index + 1:],
-                                    sheet.row_numbers[header.row_index + 1:], strict=True):
-        if all(is_blank(v) for v in values):
-            continue
-        rec, ok = _read_row(values, fmts, rownum, header, sheet, settings, measure, log)
-        if rec is None:
-            continue
-        code = rec["item"]
+    for pos, k in enumerate(range(first, len(sheet.rows))):
+        values, rownum = sheet.rows[k], sheet.row_numbers[k]
+        if clean.ok[pos]:
+            # Nothing to report in this row: its values were read with the whole column.
+            code, rec, ok = clean.codes[pos], None, True
+        else:
+            if all(is_blank(v) for v in values):
+                continue
+            rec, ok = _read_row(values, sheet.formats[k], rownum, header, sheet, settings,
+                                measure, log)
+            if rec is None:
+                continue
+            code = rec["item"]
         if code in first_row_of:
             log.error(
                 f"Item code {code!r} appears again (first in row {first_row_of[code]}); this "
@@ -149,10 +158,21 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
             continue
         first_row_of[code] = rownum
         records.append(rec)
+        kept.append(pos)
         usable.append(ok)
 
     keys = [c.key for c in ITEM_COLUMNS]
-    df = pd.DataFrame.from_records(records, columns=keys + ["row"])
+    at = np.asarray(kept, dtype=np.int64)
+    data: dict[str, Any] = {}
+    for key in keys + ["row"]:
+        column = clean.columns[key]
+        out = column[at] if isinstance(column, np.ndarray) else np.asarray(
+            [column[p] for p in kept], dtype=object)
+        for n, rec in enumerate(records):
+            if rec is not None:
+                out[n] = rec.get(key)
+        data[key] = out
+    df = pd.DataFrame(data, columns=keys + ["row"])
     for k in NUMERIC_KEYS:
         df[k] = pd.to_numeric(df[k], errors="coerce").astype(float)
     for k in ("item",) + TEXT_KEYS + OTHER_KEYS:
@@ -160,6 +180,123 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
     df["row"] = df["row"].astype(int)
     return ItemTable(sheet.name, df, dict(cols), hrow, np.asarray(usable, dtype=bool),
                      dict(header.units))
+
+
+@dataclass
+class _CleanRows:
+    """Every data row's values read a column at a time, and which rows need no message.
+
+    ``ok[p]`` is True for a row with nothing to report (its code, numbers and defaults all
+    fine); such rows take their values from ``columns`` without a look at each cell. Any
+    other row is read by :func:`_read_row`, which writes its problems exactly as before.
+    """
+
+    ok: np.ndarray
+    codes: list[str | None]
+    columns: dict[str, Any]
+
+
+def _clean_rows(sheet: RawSheet, header: Header, settings: dict[str, Any],
+                measure: str | None) -> _CleanRows:
+    cols, units = header.columns, header.units
+    first = header.row_index + 1
+    rows = list(range(first, len(sheet.rows)))
+    n = len(rows)
+    ok = np.ones(n, dtype=bool)
+    columns: dict[str, Any] = {}
+    keys = [key for key in ITEM_COLUMN_BY_KEY if key in cols]
+    blk, kinds = sheet.block(rows, [cols[key] for key in keys])
+    at = {key: q for q, key in enumerate(keys)}
+
+    def raw(key: str) -> np.ndarray:
+        q = at.get(key)
+        return blk[:, q] if q is not None else np.full(n, None, dtype=object)
+
+    def formats(key: str) -> list[str]:
+        j = cols.get(key)
+        if j is None:
+            return [""] * n
+        return [f[j] if j < len(f) else "" for f in sheet.formats[first:]]
+
+    codes = [item_code(v, f) for v, f in zip(raw("item").tolist(), formats("item"),
+                                              strict=True)]
+    ok &= np.fromiter((c is not None for c in codes), dtype=bool, count=n)
+    columns["item"] = np.asarray(codes, dtype=object)
+    columns["row"] = np.asarray(sheet.row_numbers[first:], dtype=np.int64)
+    for key in TEXT_KEYS:
+        columns[key] = np.asarray([text(v) for v in raw(key).tolist()], dtype=object)
+    ok &= np.fromiter((not (d or "").startswith(EXAMPLE_PREFIX) for d in columns["description"]),
+                      dtype=bool, count=n)
+    columns["history_start"] = np.asarray(
+        [None if is_blank(v) else v for v in raw("history_start").tolist()], dtype=object)
+    models: dict[Any, Any] = {}
+    model_raw = raw("demand_model").tolist()
+    for v in model_raw:
+        if v not in models:
+            models[v] = parse_model(v)
+    columns["demand_model"] = np.asarray([models[v] for v in model_raw], dtype=object)
+    ok &= np.fromiter((models[v] is not None or is_blank(v) for v in model_raw), dtype=bool,
+                      count=n)
+
+    uncalculated = _cells_by_column(sheet, cols) if sheet.uncalculated else {}
+    for key in NUMERIC_KEYS:
+        q = at.get(key)
+        x = np.full(n, np.nan)
+        columns[key] = x
+        if q is None:
+            continue
+        kind = kinds[:, q]
+        num = np.equal(kind, int) | np.equal(kind, float)
+        blank = np.equal(kind, type(None))
+        if num.any():
+            x[num] = blk[num, q].astype(float)
+        good = num & np.isfinite(x)
+        col = ITEM_COLUMN_BY_KEY[key]
+        if col.kind == RATE and units.get(key) == "%":
+            shown_pct = np.fromiter(("%" in f for f in formats(key)), dtype=bool, count=n)
+            scale = good & ~shown_pct & (x > 1)
+            x[scale] /= 100.0
+        test = _RULES[key][0]
+        if good.any():
+            passed = np.fromiter((bool(test(v)) for v in x[good].tolist()), dtype=bool,
+                                 count=int(good.sum()))
+            good[good] = passed
+        x[~good] = np.nan
+        ok &= good | blank
+        for i in uncalculated.get(cols[key], ()):
+            ok[i - first] = False
+
+    for key in REQUIRED_ALWAYS[1:]:
+        ok &= np.isfinite(columns[key])
+    for key in ("order_cost", "holding_rate", "service_target"):
+        missing = np.isnan(columns[key])
+        default = settings.get(key)
+        if default is not None:
+            columns[key][missing] = float(default)
+        else:
+            ok &= ~missing
+    if measure == SHORTAGE_COST:
+        ok &= np.isfinite(columns["shortage_cost"])
+    return _CleanRows(ok, codes, columns)
+
+
+def _cells_by_column(sheet: RawSheet, cols: dict[str, int]) -> dict[int, list[int]]:
+    """Column -> row indices (into ``sheet.rows``) of formula cells with no saved result."""
+    index_of = {r: k for k, r in enumerate(sheet.row_numbers)}
+    wanted = set(cols.values())
+    out: dict[int, list[int]] = {}
+    for ref in sheet.uncalculated:
+        m = _A1.match(ref)
+        if m is None:
+            continue
+        j = column_index_from_string(m.group(1)) - 1
+        k = index_of.get(int(m.group(2)))
+        if j in wanted and k is not None:
+            out.setdefault(j, []).append(k)
+    return out
+
+
+_A1 = re.compile(r"^\$?([A-Z]{1,3})\$?(\d+)$")
 
 
 def _read_row(values: list[Any], fmts: list[str], rownum: int, header: Header,

@@ -1,6 +1,13 @@
 """Opening a workbook and getting its sheets as plain rows of values.
 
-openpyxl is used in read-only, values-only mode: formulas are read as their saved results.
+Values are read with python-calamine (a Rust reader, several times faster than openpyxl on
+a large sheet). It gives each cell's own value with no guessing of a column's type, so a
+stray "n/a" in row 50,000 stays text and "000123" stays "000123". What it does not give is
+filled in from the sheet's XML: error values (#N/A) it would show as empty, and the number
+formats the checks need (zero-padded codes, percentages), found by a scan of the styles and
+of only the cells that carry such a style. openpyxl (read-only, values only) is the fallback
+for any sheet the fast path cannot place exactly, and gives the same values.
+
 A formula with no saved result (a file written by a program that never calculated it) is
 found by a separate scan of that sheet's XML, so it can be reported by cell instead of
 being read as an empty cell.
@@ -8,15 +15,20 @@ being read as an empty cell.
 
 from __future__ import annotations
 
+import datetime as _dt
 import posixpath
+import re
 import zipfile
+import zlib
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 from xml.etree import ElementTree as ET
 
+import numpy as np
 from openpyxl import load_workbook
-from openpyxl.utils import get_column_letter
+from openpyxl.styles.numbers import BUILTIN_FORMATS
+from openpyxl.utils import column_index_from_string, get_column_letter
 
 from ..contract import Column, header_forms, normalise
 from ..problems import ProblemLog
@@ -50,6 +62,25 @@ class RawSheet:
     formats: list[list[str]] = field(default_factory=list)
     row_numbers: list[int] = field(default_factory=list)
     uncalculated: set[str] = field(default_factory=set)
+    #: The same cells as a 2-D object array (rows x columns, None for blank) and each cell's
+    #: Python type, when the reader made them (the fast path); lets History be checked as
+    #: whole blocks instead of cell by cell. None otherwise.
+    grid: np.ndarray | None = None
+    kinds: np.ndarray | None = None
+
+    def block(self, rows: list[int], cols: list[int]) -> tuple[np.ndarray, np.ndarray]:
+        """The cells at ``rows`` x ``cols`` (indices into ``rows``, 0-based columns) as an
+        object array (None for blank or beyond a row's end), and each cell's Python type."""
+        grid = self.grid
+        if (grid is not None and self.kinds is not None and grid.shape[0] == len(self.rows)
+                and all(j < grid.shape[1] for j in cols)):
+            at = np.ix_(np.asarray(rows, dtype=np.int64), np.asarray(cols, dtype=np.int64))
+            return grid[at], self.kinds[at]
+        blk = np.empty((len(rows), len(cols)), dtype=object)
+        for i, k in enumerate(rows):
+            values = self.rows[k]
+            blk[i] = [values[j] if j < len(values) else None for j in cols]
+        return blk, np.frompyfunc(type, 1, 1)(blk)
 
 
 def cell_ref(col_index: int, row_number: int) -> str:
@@ -110,6 +141,8 @@ class WorkbookFile:
         self.path = Path(path)
         self.log = log
         self._wb: Any = None
+        self._fast: Any = None  # a python-calamine workbook, when it opened the file
+        self._styles: dict[int, str] | None = None  # style index -> format, checks need
         self.sheet_names: list[str] = []
         self._sheet_parts: dict[str, str] = {}
 
@@ -136,6 +169,17 @@ class WorkbookFile:
                 "protected, or another kind of file renamed). Open it in your spreadsheet "
                 "program and save it again as .xlsx.", value=str(p), code="file-not-zip")
             return False
+        self._sheet_parts = _sheet_parts(p)
+        self._fast = _open_calamine(p)
+        if self._fast is not None and set(self._fast.sheet_names) == set(self._sheet_parts):
+            self.sheet_names = list(self._fast.sheet_names)
+            return True
+        self._fast = None
+        return self._open_openpyxl()
+
+    def _open_openpyxl(self) -> bool:
+        """Open with openpyxl (the fallback); on failure record a fatal problem."""
+        p = self.path
         try:
             self._wb = load_workbook(p, read_only=True, data_only=True, keep_links=False)
         except Exception as exc:  # openpyxl raises many kinds; none may reach the user raw
@@ -145,13 +189,17 @@ class WorkbookFile:
                 value=str(p), code="file-unreadable")
             return False
         self.sheet_names = list(self._wb.sheetnames)
-        self._sheet_parts = _sheet_parts(p)
         return True
 
     def close(self) -> None:
         if self._wb is not None:
             self._wb.close()
             self._wb = None
+        if self._fast is not None:
+            close = getattr(self._fast, "close", None)
+            if close is not None:
+                close()
+            self._fast = None
 
     def find_sheet(self, canonical: str) -> str | None:
         """The user's name for one of our sheets (Items, History, Settings), matched loosely."""
@@ -162,7 +210,146 @@ class WorkbookFile:
         return None
 
     def read(self, name: str, progress: Progress = silent) -> RawSheet:
-        """All rows of a sheet, values and number formats, trailing empty rows dropped."""
+        """All rows of a sheet, values and number formats, empty rows dropped."""
+        if self._fast is not None:
+            sheet = self._read_fast(name, progress)
+            if sheet is not None:
+                return sheet
+        if self._wb is None and not self._open_openpyxl():
+            return RawSheet(name)
+        return self._read_openpyxl(name, progress)
+
+    def _read_fast(self, name: str, progress: Progress) -> RawSheet | None:
+        """The sheet via python-calamine plus an XML scan; None where it cannot be exact."""
+        stage = f"Reading {name}"
+        progress(stage, 0, None)
+        scan = self._scan(name)
+        if scan is None:
+            return None
+        try:
+            raw = self._fast.get_sheet_by_name(name).to_python(skip_empty_area=False)
+        except Exception:  # a sheet calamine cannot read goes the openpyxl way
+            return None
+        width = max((len(r) for r in raw), default=0)
+        if not raw or width == 0:
+            sheet = RawSheet(name)
+            sheet.uncalculated = self._uncalculated_cells(name) if scan.formulas else set()
+            progress(stage, 0, 0)
+            return sheet
+        if any(len(r) != width for r in raw):
+            raw = [list(r) + [""] * (width - len(r)) for r in raw]
+        grid = np.empty((len(raw), width), dtype=object)
+        grid[:] = raw
+        del raw
+        blank = grid == ""
+        grid[blank] = None
+        # Errors (#N/A, #DIV/0!) come back empty: put their text back, as openpyxl gives it.
+        for (r, c), text in scan.errors.items():
+            if r < grid.shape[0] and c < width:
+                grid[r, c] = text
+                blank[r, c] = False
+        kinds = np.frompyfunc(type, 1, 1)(grid)
+        # Whole numbers are stored without a decimal point, and openpyxl reads those as int;
+        # calamine gives every number as a float. Give them as int here too.
+        floats = np.equal(kinds, float)
+        if floats.any():
+            x = grid[floats].astype(float)
+            whole = np.isfinite(x) & (np.abs(x) < 1e15)
+            whole[whole] = x[whole] == np.trunc(x[whole])
+            if whole.any():
+                at = tuple(ix[whole] for ix in np.nonzero(floats))
+                grid[at] = x[whole].astype(np.int64).astype(object)
+                kinds[at] = int
+        # openpyxl gives a date cell as a datetime; so does this path.
+        for r, c in zip(*np.nonzero(kinds == _dt.date), strict=True):
+            grid[r, c] = _dt.datetime.combine(grid[r, c], _dt.time())
+            kinds[r, c] = _dt.datetime
+        keep = ~blank.all(axis=1)
+        last_col = np.flatnonzero(~blank.all(axis=0))
+        full = width
+        width = int(last_col[-1]) + 1 if last_col.size else 0
+        row_numbers = (np.flatnonzero(keep) + 1).tolist()
+        if not keep.all() or width != full:  # (a copy of the whole grid otherwise)
+            grid = grid[keep, :width]
+            kinds = kinds[keep, :width]
+        sheet = RawSheet(name, grid.tolist(), [], row_numbers, grid=grid, kinds=kinds)
+        general = ["General"] * width
+        sheet.formats = [general] * len(row_numbers)
+        special = scan.formats
+        if special:
+            index_of = {n: k for k, n in enumerate(row_numbers)}
+            for (r, c), fmt in special.items():
+                k = index_of.get(r + 1)
+                if k is None or c >= width:
+                    continue
+                if sheet.formats[k] is general:
+                    sheet.formats[k] = list(general)
+                sheet.formats[k][c] = fmt
+        sheet.uncalculated = self._uncalculated_cells(name) if scan.formulas else set()
+        progress(stage, len(row_numbers), len(row_numbers))
+        return sheet
+
+    def _scan(self, name: str) -> _Scan | None:
+        """One streamed pass over the sheet's XML for what calamine does not give.
+
+        Finds error cells (#N/A), the cells whose number format the checks read, and
+        whether there are formulas at all; None when the sheet cannot be placed exactly
+        (cells without their own reference, a namespace prefix, no such part).
+
+        Only zero-padded formats (item codes shown as 000123) and percentages (rates)
+        change what a value means; every other cell reads as General. The styles tell which
+        style indices carry such a format, and a search finds the cells that use them.
+        """
+        part = self._sheet_parts.get(name)
+        if not part:
+            return None
+        if self._styles is None:
+            self._styles = _formats_that_matter(self.path)
+        styled = None
+        if self._styles:
+            alts = b"|".join(str(k).encode() for k in self._styles)
+            styled = re.compile(rb'<c\b[^>]*?\ss="(' + alts + rb')"[^>]*>')
+        scan = _Scan()
+        cells = refs = 0
+        first = True
+        try:
+            with zipfile.ZipFile(self.path) as zf, zf.open(part) as fh:
+                carry = b""
+                while True:
+                    chunk = fh.read(1 << 24)
+                    buf = carry + chunk
+                    cut = len(buf) if not chunk else buf.rfind(b"</row>")
+                    if chunk and cut < 0:
+                        carry = buf
+                        continue
+                    if chunk:
+                        cut += len(b"</row>")
+                    piece, carry = buf[:cut], buf[cut:]
+                    if first:
+                        root = _ROOT.search(piece[:8192])
+                        if root is None or root.group(1):
+                            return None
+                        first = False
+                    cells += piece.count(b"<c ") + piece.count(b"<c>")
+                    refs += piece.count(b' r="') - piece.count(b"<row ")
+                    scan.formulas = scan.formulas or b"<f" in piece or b":f" in piece
+                    if b't="e"' in piece:
+                        scan.errors.update(_error_cells(piece))
+                    if styled is not None:
+                        for m in styled.finditer(piece):
+                            ref = _REF.search(m.group(0))
+                            if ref is not None:
+                                at = (int(ref.group(2)) - 1,
+                                      column_index_from_string(ref.group(1).decode()) - 1)
+                                scan.formats[at] = self._styles[int(m.group(1))]
+                    if not chunk:
+                        break
+        except (KeyError, zipfile.BadZipFile, OSError, zlib.error, EOFError):
+            return None
+        return scan if refs >= cells else None
+
+    def _read_openpyxl(self, name: str, progress: Progress = silent) -> RawSheet:
+        """All rows of a sheet via openpyxl, values and number formats, empty rows dropped."""
         ws = self._wb[name]
         sheet = RawSheet(name)
         expected = ws.max_row if isinstance(ws.max_row, int) and ws.max_row > 0 else None
@@ -189,52 +376,122 @@ class WorkbookFile:
             sheet.rows.append(values)
             sheet.formats.append(formats)
             sheet.row_numbers.append(rownum if rownum is not None else len(sheet.rows))
-        sheet.uncalculated = self._uncalculated_cells(name)
+        sheet.uncalculated = self._uncalculated_cells(name) if self._has_formulas(name) else set()
         progress(stage, expected or len(sheet.rows), expected)
         return sheet
+
+    def _has_formulas(self, name: str) -> bool:
+        """Whether the sheet's XML holds any formula (a quick search, in chunks)."""
+        part = self._sheet_parts.get(name)
+        if not part:
+            return False
+        try:
+            with zipfile.ZipFile(self.path) as zf, zf.open(part) as fh:
+                tail = b""
+                while chunk := fh.read(1 << 24):
+                    buf = tail + chunk
+                    if b"<f" in buf or b":f" in buf:
+                        return True
+                    tail = buf[-2:]
+        except (KeyError, zipfile.BadZipFile, OSError, zlib.error, EOFError):
+            return False
+        return False
 
     def _uncalculated_cells(self, name: str) -> set[str]:
         """A1 references of formula cells that carry no saved result."""
         part = self._sheet_parts.get(name)
         if not part:
             return set()
-        try:
-            with zipfile.ZipFile(self.path) as zf:
-                data = zf.read(part)
-        except (KeyError, zipfile.BadZipFile, OSError):
-            return set()
-        if b"<f" not in data and b":f" not in data:
-            return set()
         out: set[str] = set()
         c_tag, f_tag, v_tag = f"{{{_NS_MAIN}}}c", f"{{{_NS_MAIN}}}f", f"{{{_NS_MAIN}}}v"
         try:
-            for _event, elem in ET.iterparse(_BytesReader(data), events=("end",)):
-                if elem.tag == c_tag:
-                    f = elem.find(f_tag)
-                    if f is not None:
-                        v = elem.find(v_tag)
-                        if v is None or not (v.text or "").strip():
-                            out.add(elem.get("r", ""))
-                    elem.clear()
-        except ET.ParseError:
-            return out
+            with zipfile.ZipFile(self.path) as zf, zf.open(part) as fh:
+                for _event, elem in ET.iterparse(fh, events=("end",)):
+                    if elem.tag == c_tag:
+                        f = elem.find(f_tag)
+                        if f is not None:
+                            v = elem.find(v_tag)
+                            if v is None or not (v.text or "").strip():
+                                out.add(elem.get("r", ""))
+                        elem.clear()
+        except (ET.ParseError, KeyError, zipfile.BadZipFile, OSError, zlib.error, EOFError):
+            pass
         out.discard("")
         return out
 
 
-class _BytesReader:
-    """Minimal file-like wrapper so iterparse can read bytes already in memory."""
+_REF = re.compile(rb'\sr="\$?([A-Z]{1,3})\$?(\d+)"')
+_ERROR_CELL = re.compile(rb'<c\b([^>]*\st="e"[^>]*)>(.*?)</c>', re.S)
+_VALUE = re.compile(rb"<v>([^<]*)</v>")
+_ZERO_PAD_FORMAT = re.compile(r"^0+$")
+_ROOT = re.compile(rb"<([A-Za-z_][\w.-]*:)?worksheet[\s>]")
 
-    def __init__(self, data: bytes):
-        self._data = data
-        self._pos = 0
 
-    def read(self, n: int = -1) -> bytes:
-        if n is None or n < 0:
-            n = len(self._data) - self._pos
-        chunk = self._data[self._pos : self._pos + n]
-        self._pos += len(chunk)
-        return chunk
+@dataclass
+class _Scan:
+    """What the fast path learns from a sheet's XML (see WorkbookFile._scan)."""
+
+    formulas: bool = False
+    errors: dict[tuple[int, int], str] = field(default_factory=dict)
+    formats: dict[tuple[int, int], str] = field(default_factory=dict)
+
+
+def _open_calamine(path: Path) -> Any:
+    """A python-calamine workbook, or None when it is not installed or cannot open the file."""
+    try:
+        from python_calamine import CalamineWorkbook
+    except ImportError:
+        return None
+    try:
+        return CalamineWorkbook.from_path(str(path))
+    except Exception:  # the openpyxl path gives the user a proper message
+        return None
+
+
+def _error_cells(data: bytes) -> dict[tuple[int, int], str]:
+    """(row, column) -> error text (#N/A, #DIV/0!) for cells of type error, 0-based."""
+    if b't="e"' not in data:
+        return {}
+    out: dict[tuple[int, int], str] = {}
+    for m in _ERROR_CELL.finditer(data):
+        ref = _REF.search(b" " + m.group(1))
+        v = _VALUE.search(m.group(2))
+        if ref is None or v is None:
+            continue
+        text = v.group(1).decode("utf-8", "replace")
+        out[(int(ref.group(2)) - 1, column_index_from_string(ref.group(1).decode()) - 1)] = text
+    return out
+
+
+def _formats_that_matter(path: Path) -> dict[int, str]:
+    """Style index -> number format, for the styles whose format changes a value's meaning.
+
+    Those are zero-padded formats (000000, for item codes) and percentages (for rates).
+    """
+    try:
+        with zipfile.ZipFile(path) as zf:
+            names = zf.namelist()
+            part = next((n for n in names if n.lower() == "xl/styles.xml"), None)
+            if part is None:
+                return {}
+            root = ET.fromstring(zf.read(part))
+    except (KeyError, ET.ParseError, zipfile.BadZipFile, OSError):
+        return {}
+    custom = {int(f.get("numFmtId", "-1")): f.get("formatCode", "")
+              for f in root.iter(f"{{{_NS_MAIN}}}numFmt")}
+    out: dict[int, str] = {}
+    xfs = root.find(f"{{{_NS_MAIN}}}cellXfs")
+    if xfs is None:
+        return {}
+    for k, xf in enumerate(xfs.findall(f"{{{_NS_MAIN}}}xf")):
+        try:
+            fid = int(xf.get("numFmtId", "0"))
+        except ValueError:
+            continue
+        fmt = custom.get(fid, BUILTIN_FORMATS.get(fid, "General"))
+        if "%" in fmt or _ZERO_PAD_FORMAT.match(fmt):
+            out[k] = fmt
+    return out
 
 
 def _sheet_parts(path: Path) -> dict[str, str]:

@@ -140,16 +140,23 @@ def write_compare(ctx: Context, ws: Worksheet) -> None:
     line = {"bottom": 1, "bottom_color": LIGHT_RULE}
     first = HEADER_ROW + 1
     sums = {"cur": 0.0, "rec": 0.0, "sav": 0.0}
+    # Each column once as a whole (a row-by-row lookup in the frame costs a copy per cell).
+    text_of = {col.key: texts(df, col.key) for col in cols if col.kind in ("text", "code")}
+    num_of = {col.key: column(df, col.key) for col in cols
+              if col.kind not in ("text", "code")}
+    col_props = {col.key: {**ctx.num_props(col.kind), **line} for col in cols
+                 if col.kind not in ("text", "code")}
+    col_fmt = {key: ctx.styles.get(**props) for key, props in col_props.items()}
     for k, i in enumerate(rows):
         row = first + k
         for c, col in enumerate(cols):
             if col.kind in ("text", "code"):
-                value = texts(df.iloc[[i]], col.key)[0]
+                value = text_of[col.key][i]
                 n = ctx.w.text(ws, row, c, value, num_format="@", **line)
                 widths[c] = max(widths[c], min(n, 40) + 2)
                 continue
-            props = {**ctx.num_props(col.kind), **line}
-            value = column(df.iloc[[i]], col.key)[0]
+            props = col_props[col.key]
+            value = num_of[col.key][i]
             if col.key == "current_annual_total_cost":
                 _current_cell(ctx, ws, row, where, float(reported_cur[i]), float(rebuilt[i]),
                               props)
@@ -158,8 +165,10 @@ def write_compare(ctx: Context, ws: Worksheet) -> None:
             elif col.key == "annual_saving":
                 _saving_cell(ctx, ws, row, where, float(reported_cur[i]), float(rec[i]),
                              float(saving[i]), props)
+            elif np.isfinite(value):  # what ctx.w.number does, with the column's format
+                ws.write_number(row, c, float(value), col_fmt[col.key])
             else:
-                ctx.w.number(ws, row, c, value, **props)
+                ws.write_blank(row, c, None, col_fmt[col.key])
             widths[c] = max(widths[c], display_len([value], col.kind, len(ctx.currency)) + 2)
         for key, arr in (("cur", reported_cur), ("rec", rec), ("sav", saving)):
             if np.isfinite(arr[i]):

@@ -29,7 +29,9 @@ from .sheetkit import (
     Context,
     column,
     display_len,
+    finite,
     header_width,
+    write_formula,
 )
 
 FORMULA_HEADER_FILL = "#DDEBE3"
@@ -259,18 +261,29 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
             width = min(max(header_width(col.title), longest + 2, 8), cap)
         else:
             props = {**ctx.num_props(col.kind), **line}
+            fmt = ctx.styles.get(**props)
             live = plan.get(col.key)
-            template = FORMULAS[col.key][0] if live is not None else ""
             reported = column(df, col.key)
+            # The column's formula with its letters in place, once: each row only adds its
+            # row number (what _refs gives for that row, without 13 lookups a cell).
+            pattern = ("=" + FORMULAS[col.key][0].format(**_refs(ctx, None))
+                       if live is not None and live[0].any() else "")
             for r, v in enumerate(data, start=1):
                 k = r - 1
                 if live is not None and live[0][k]:
-                    formula = "=" + template.format(**_refs(ctx, r))
-                    ctx.w.formula(ws, r, c, formula, float(reported[k]), **props)
+                    write_formula(ws, r, c, pattern.replace(_ROW, str(r + 1)), fmt,
+                                  float(reported[k]))
                 else:
                     if live is not None and np.isfinite(reported[k]):
                         ctx.policy_fallbacks.append((col.key, r))
-                    ctx.w.number(ws, r, c, v, **props)
+                    if isinstance(v, str):
+                        ctx.w.text(ws, r, c, v, **props)
+                        continue
+                    f = finite(v)
+                    if f is None:
+                        ws.write_blank(r, c, None, fmt)
+                    else:
+                        ws.write_number(r, c, f, fmt)
             data_len = display_len(values, col.kind, cur_len)
             width = min(max(header_width(col.title), data_len + 2, 8), 20)
         ws.set_column(c, c, width)
@@ -301,13 +314,19 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
     ws.repeat_columns(0)
 
 
-def _refs(ctx: Context, row: int) -> dict[str, str]:
-    """The cell of each symbol's column on this row (relative, e.g. 'G5')."""
+_ROW = "\x00"  # stands for the row number in a column's formula pattern
+
+
+def _refs(ctx: Context, row: int | None) -> dict[str, str]:
+    """The cell of each symbol's column on this row (relative, e.g. 'G5').
+
+    ``row`` None gives each column's letters followed by a marker for the row number.
+    """
     out = {}
     for sym, key in SYMBOLS.items():
         c = ctx.policy_cols.get(key)
         if c is not None:
-            out[sym] = xl_rowcol_to_cell(row, c)
+            out[sym] = xl_col_to_name(c) + _ROW if row is None else xl_rowcol_to_cell(row, c)
     return out
 
 

@@ -220,12 +220,21 @@ def header_width(title: str) -> int:
 
 def display_len(values: Any, kind: str, currency_len: int) -> int:
     """Roughly how many characters the widest formatted value takes."""
-    nums = floats(values)
-    nums = nums[np.isfinite(nums)]
-    if nums.size == 0:
-        return 0
-    big = float(np.max(np.abs(nums)))
-    neg = 1 if (nums < 0).any() else 0
+    if isinstance(values, list) and len(values) == 1 and isinstance(
+            values[0], (int, float, np.integer, np.floating)) and not isinstance(
+            values[0], (bool, np.bool_)):
+        # One plain number (a cell at a time, the common case): no arrays at all.
+        x = float(values[0])
+        if not math.isfinite(x):
+            return 0
+        big, neg = abs(x), 1 if x < 0 else 0
+    else:
+        nums = floats(values)
+        nums = nums[np.isfinite(nums)]
+        if nums.size == 0:
+            return 0
+        big = float(np.max(np.abs(nums)))
+        neg = 1 if (nums < 0).any() else 0
     if kind == "percent":
         return len(f"{big * 100:.2f}%") + neg
     decimals = {"units": 0, "count": 0, "units1": 1, "decimal1": 1, "days": 1}.get(kind, 2)
@@ -245,6 +254,43 @@ class Col:
 # ---------------------------------------------------------------------------
 # Formats and writing
 # ---------------------------------------------------------------------------
+
+
+#: Functions xlsxwriter stores as written (no _xlfn. prefix, no dynamic-array handling).
+_CLASSIC_FUNCTIONS = frozenset({
+    "ABS", "AND", "AVERAGE", "CEILING", "COUNT", "COUNTA", "COUNTIF", "FLOOR", "HYPERLINK",
+    "IF", "IFERROR", "INDEX", "INT", "ISBLANK", "ISNUMBER", "LEN", "MATCH", "MAX", "MIN",
+    "MOD", "NOT", "OR", "ROUND", "ROUNDDOWN", "ROUNDUP", "SQRT", "SUM", "SUMIF", "SUMIFS",
+    "SUMPRODUCT", "TEXT", "VLOOKUP",
+})
+_FUNCTION_NAME = re.compile(r"([A-Za-z_][\w.]*)\(")
+try:  # xlsxwriter's own cell record; without it every formula goes the public way
+    from xlsxwriter.worksheet import CellFormulaTuple as _CellFormula
+except ImportError:  # pragma: no cover - other xlsxwriter versions
+    _CellFormula = None
+
+
+def write_formula(ws: Worksheet, row: int, col: int, formula: str, fmt: Format | None,
+                  value: Any) -> None:
+    """``ws.write_formula``, minus its cost where it would store the formula unchanged.
+
+    xlsxwriter runs some thirty regular-expression substitutions on every formula (for
+    newer functions that need a prefix); at ~90 us a cell that is two minutes for the
+    Policy sheet of 100,000 items. A formula that names only classic functions comes out
+    of those substitutions as it went in, so it is stored directly, as write_formula
+    would store it; anything else goes through write_formula.
+    """
+    body = formula[1:] if formula.startswith("=") else formula
+    if (_CellFormula is None or getattr(ws, "use_future_functions", True) or not body
+            or body[0] == "{" or body[-1] == "}"
+            or not all(f.upper() in _CLASSIC_FUNCTIONS for f in _FUNCTION_NAME.findall(body))):
+        ws.write_formula(row, col, formula, fmt, value)
+        return
+    if ws._check_dimensions(row, col):
+        return
+    if ws.constant_memory and row > ws.previous_row:
+        ws._write_single_row(row)
+    ws.table[row][col] = _CellFormula(body, fmt, value)
 
 
 class Styles:
@@ -301,7 +347,9 @@ class Writer:
     def formula(self, ws: Worksheet, row: int, col: int, formula: str, value: float,
                 **props: Any) -> None:
         """Write one of our formulas with its computed value as the cached result."""
-        ws.write_formula(row, col, formula, self.styles.get(**props), value)
+        write_formula(ws, row, col, formula, self.styles.get(**props), value)
+
+
 
     def any(self, ws: Worksheet, row: int, col: int, value: Any, **props: Any) -> None:
         """Write a value of unknown kind: date, number or text."""

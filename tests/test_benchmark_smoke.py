@@ -1,0 +1,48 @@
+"""The benchmark runs end to end at 1,000 items (a smoke check: no timing is asserted)."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parent.parent
+
+
+def test_quick_benchmark_completes_and_prints_its_table(tmp_path: Path) -> None:
+    pytest.importorskip("python_calamine")
+    proc = subprocess.run([sys.executable, str(ROOT / "benchmarks" / "run.py"), "--quick",
+                           "--dir", str(tmp_path)], capture_output=True, text=True,
+                          cwd=ROOT, timeout=600)
+    assert proc.returncode == 0, proc.stderr
+    lines = proc.stdout.splitlines()
+    header = next(ln for ln in lines if ln.startswith("| items"))
+    assert "plan / floor" in header and "plan peak RSS MB" in header
+    rows = [ln for ln in lines if ln.startswith("| 1,000 | wide")]
+    assert len(rows) == 1
+    cells = [c.strip() for c in rows[0].strip("|").split("|")]
+    assert len(cells) == 11
+    # Every measured time and ratio is a positive number (the run really happened).
+    assert float(cells[6].removesuffix(" s")) > 0  # plan
+    assert float(cells[7]) > 0  # plan / floor
+    assert float(cells[10]) > 0  # peak RSS
+    # The generated workbook was planned: the output exists beside the inputs.
+    assert (tmp_path / "plan-1000-wide.xlsx").stat().st_size > 0
+
+
+def test_generated_codes_stay_text(tmp_path: Path) -> None:
+    """The generator's zero-padded codes come back as text through xlpolicy's reader."""
+    sys.path.insert(0, str(ROOT / "benchmarks"))
+    try:
+        import make_workbook
+    finally:
+        sys.path.pop(0)
+    import xlpolicy
+
+    path = make_workbook.write_workbook(tmp_path / "b.xlsx", 50)
+    report = xlpolicy.analyse(path)
+    items = report.results["item"].tolist()
+    assert items[:3] == ["000001", "000002", "000003"]
+    assert report.input_summary["items_planned"] == 50
