@@ -10,6 +10,7 @@ import numpy as np
 
 from ..problems import ProblemLog
 from ..progress import Progress, silent
+from .guard import Refused, unreadable_message
 from .history import History, aggregate_daily_to_weeks, read_history
 from .items import ItemTable, read_items
 from .settings import finish_period, read_settings, resolve_settings
@@ -41,10 +42,13 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
 
     def read(name: str) -> Any:
         """A sheet, reporting progress where the source can (large .xlsx files)."""
-        if isinstance(wb, WorkbookFile):
-            return wb.read(name, progress)
-        progress(f"Reading {name}", 0, None)
-        return wb.read(name)
+        try:
+            if isinstance(wb, WorkbookFile):
+                return wb.read(name, progress)
+            progress(f"Reading {name}", 0, None)
+            return wb.read(name)
+        except Exception as exc:  # a damaged or hostile part: a message, never a traceback
+            raise _SheetUnreadable(name, exc) from exc
 
     try:
         items_name = wb.find_sheet("Items")
@@ -81,8 +85,24 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
                 settings["sources"]["period"] = f"inferred from {history_name} dates"
                 finish_period(settings)
         return InputData(Path(path), items, history, settings, list(wb.sheet_names))
+    except _SheetUnreadable as exc:
+        if isinstance(exc.cause, Refused):
+            message, code = exc.cause.message, exc.cause.code
+        else:
+            message, code = unreadable_message(Path(path).name, exc.cause, exc.sheet)
+        log.fatal(message, sheet=exc.sheet, value=str(path), code=code)
+        return None
     finally:
         wb.close()
+
+
+class _SheetUnreadable(Exception):
+    """Reading one sheet's cells from the file failed: the file is damaged or hostile."""
+
+    def __init__(self, sheet: str, cause: BaseException):
+        super().__init__(sheet)
+        self.sheet = sheet
+        self.cause = cause
 
 
 def _steadier_period(history: History, items: ItemTable, settings: dict[str, Any],

@@ -9,18 +9,21 @@ being read as an empty cell.
 from __future__ import annotations
 
 import posixpath
+import re
 import zipfile
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
-from xml.etree import ElementTree as ET
 
+from defusedxml import DefusedXmlException
+from defusedxml import ElementTree as ET
 from openpyxl import load_workbook
 from openpyxl.utils import get_column_letter
 
 from ..contract import Column, header_forms, normalise
 from ..problems import ProblemLog
 from ..progress import Progress, silent
+from .guard import refusal, unreadable_message
 
 SUPPORTED_SUFFIXES = (".xlsx", ".xlsm")
 
@@ -124,6 +127,10 @@ class WorkbookFile:
             self.log.fatal(f"{p.name} is a folder, not a workbook. Give the path of an .xlsx file.",
                            value=str(p), code="file-is-folder")
             return False
+        refused = refusal(p, "xlsx")  # lock files, fakes, zip bombs, DTDs: before any parser
+        if refused is not None:
+            self.log.fatal(refused.message, value=str(p), code=refused.code)
+            return False
         if p.suffix.lower() not in SUPPORTED_SUFFIXES:
             self.log.fatal(
                 f"{p.name} is not an .xlsx or .xlsm workbook. Save it from your spreadsheet "
@@ -139,13 +146,12 @@ class WorkbookFile:
         try:
             self._wb = load_workbook(p, read_only=True, data_only=True, keep_links=False)
         except Exception as exc:  # openpyxl raises many kinds; none may reach the user raw
-            self.log.fatal(
-                f"{p.name} could not be read as a workbook ({type(exc).__name__}: {exc}). "
-                "Open it in your spreadsheet program and save it again as .xlsx.",
-                value=str(p), code="file-unreadable")
+            message, code = unreadable_message(p.name, exc)
+            self.log.fatal(message, value=str(p), code=code)
             return False
         self.sheet_names = list(self._wb.sheetnames)
         self._sheet_parts = _sheet_parts(p)
+        _ignore_recorded_size(self._wb)
         return True
 
     def close(self) -> None:
@@ -216,7 +222,7 @@ class WorkbookFile:
                         if v is None or not (v.text or "").strip():
                             out.add(elem.get("r", ""))
                     elem.clear()
-        except ET.ParseError:
+        except (ET.ParseError, DefusedXmlException):
             return out
         out.discard("")
         return out
@@ -263,5 +269,90 @@ def _sheet_parts(path: Path) -> dict[str, str]:
                 if target in names:
                     out[s.get("name")] = target
             return out
-    except (KeyError, ET.ParseError, zipfile.BadZipFile, OSError):
+    except (KeyError, ET.ParseError, DefusedXmlException, zipfile.BadZipFile, OSError):
         return {}
+
+
+def _ignore_recorded_size(wb: Any) -> None:
+    """Make openpyxl read each sheet's real rows, not the size the file records for it.
+
+    A sheet records its used range ("A1:G200"), and openpyxl's read-only mode trusts it: a
+    range that is too small silently drops the rows beyond it, and one that is too large
+    ("A1:XFD1048576") pads every row to 16,384 cells and fills the gaps with empty rows.
+    Writers that get it wrong exist, so rows are read as they are in the file; the recorded
+    size stays readable (``ws.max_row``) for the progress bar only. Reading also stops after
+    the last row that holds a value or formula (found by a quick scan of the sheet's bytes),
+    so a million formatted empty rows below the data cost neither time nor memory.
+    """
+    for ws in getattr(wb, "worksheets", []):
+        if hasattr(ws, "reset_dimensions") and hasattr(ws, "_cells_by_row"):
+            ws._cells_by_row = _rows_as_present(ws)
+
+
+def _rows_as_present(ws: Any) -> Any:
+    """A replacement for ``ws._cells_by_row`` that ignores the recorded used range."""
+    original = type(ws)._cells_by_row
+
+    def rows(min_col: int, min_row: int, max_col: int | None, max_row: int | None,
+             values_only: bool = False) -> Any:
+        claimed = (ws._max_row, ws._max_column)
+        if max_row == claimed[0]:
+            max_row = None
+        if max_col == claimed[1]:
+            max_col = None
+        if max_row is None:
+            max_row = _last_row_with_content(ws)  # None: unknown, read to the end
+        ws._max_row = ws._max_column = None
+        try:
+            for k, row in enumerate(original(ws, min_col, min_row, max_col, max_row,
+                                             values_only)):
+                if max_row is not None and min_row + k > max_row:
+                    return
+                yield row
+        finally:
+            ws._max_row, ws._max_column = claimed
+
+    return rows
+
+
+_CONTENT_TAGS = re.compile(rb"<(?:[A-Za-z_][\w.-]*:)?(row|v|is|f)\b([^>]*)>")
+_ROW_NUMBER = re.compile(rb"\br\s*=\s*[\"'](\d+)[\"']")
+
+
+def _last_row_with_content(ws: Any, chunk: int = 1 << 20) -> int | None:
+    """The number of the last row holding a value, text or formula; None if it can't be told.
+
+    Streams the sheet's XML once (1 MB at a time, in bounded memory) looking only at tags:
+    the last ``<row r="N">`` seen before a ``<v>``, ``<is>`` or ``<f>``. 0 for a sheet with
+    no content at all.
+    """
+    try:
+        src = ws.parent._archive.open(ws._worksheet_path)
+    except Exception:  # no archive to look at (a different openpyxl): read everything
+        return None
+    last, current = 0, None
+    try:
+        with src:
+            carry = b""
+            while True:
+                data = src.read(chunk)
+                buf = carry + data
+                cut = buf.rfind(b">") + 1 if data else len(buf)
+                for m in _CONTENT_TAGS.finditer(buf, 0, cut):
+                    if m.group(1) == b"row":
+                        r = _ROW_NUMBER.search(m.group(2))
+                        if r is None:
+                            return None  # rows without numbers: count them the slow way
+                        current = int(r.group(1))
+                    elif current is None:
+                        return None
+                    else:
+                        last = current
+                if not data:
+                    break
+                carry = buf[cut:]
+                if len(carry) > 16 * chunk:  # no '>' for megabytes: not a sheet we can scan
+                    return None
+    except Exception:  # damaged data: the parser will say so with a message
+        return None
+    return last
