@@ -28,7 +28,7 @@ from .reading.sources import KIND_NAMES, source_kind
 from .report import Report
 from .writing.atomic import atomic_output
 from .writing.package import CannotMerge, merge_generated_sheets, user_sheet_names
-from .writing.sheets import DEFAULT_SHEET_NAMES, write_generated_workbook
+from .writing.sheets import DEFAULT_SHEET_NAMES, OutputTooLarge, write_generated_workbook
 from .writing.tables import write_csv, write_json
 
 
@@ -165,7 +165,12 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
     result = PlanResult(report)
     if write_workbook:
         progress(f"Writing {out.name}", 0, None)
-        result.output, result.standalone, result.sheets = write_policy_workbook(src, out, report)
+        try:
+            result.output, result.standalone, result.sheets = write_policy_workbook(
+                src, out, report)
+        except OutputTooLarge as exc:
+            raise UnusableWorkbook([Problem(Severity.FATAL, "", "", "", None, str(exc),
+                                            "output-too-large")]) from None
     if csv is not None:
         write_csv(Path(csv), report)
         result.csv = Path(csv)
@@ -188,6 +193,10 @@ def _check_output_path(src: Path, out: Path) -> None:
     if src.is_file() and src.suffix.lower() == ".xlsm" and out.suffix.lower() != ".xlsm":
         raise UsageError(f"{src.name} holds macros; its output must end in .xlsm to keep them "
                          f"(e.g. {default_output_path(src).name})")
+    if out.suffix.lower() == ".xlsm" and not (src.is_file() and src.suffix.lower() == ".xlsm"):
+        raise UsageError(f"the output {out.name} ends in .xlsm, but {src.name} holds no macros "
+                         "to keep; name it .xlsx (Excel refuses an .xlsm without macros "
+                         "inside)")
     if not out.parent.exists():
         raise UsageError(f"the folder {out.parent} does not exist")
 

@@ -6,7 +6,9 @@ used at all (or the output cannot be written), 2 for a usage error.
 
 from __future__ import annotations
 
+import contextlib
 import os
+import signal
 import sys
 import time
 from pathlib import Path
@@ -194,8 +196,15 @@ def _run(fn: Any, bar: _Bar | None = None) -> Any:
             if bar is not None:
                 bar.close()
 
+    previous = _stop_on_sigterm()
     try:
         return call()
+    except KeyboardInterrupt:
+        click.echo(click.style(
+            "Stopped before the end. Nothing half-written was left behind: an output file is "
+            "only put in place once complete, and your workbook is unchanged.", fg="red"),
+            err=True)
+        sys.exit(130)
     except api.UsageError as exc:
         raise click.UsageError(str(exc)) from None
     except UnusableWorkbook as exc:
@@ -217,6 +226,25 @@ def _run(fn: Any, bar: _Bar | None = None) -> Any:
             "not changed. Please report this with the workbook if you can; set "
             "XLPOLICY_DEBUG=1 for details.", fg="red"), err=True)
         sys.exit(1)
+    finally:
+        _restore_sigterm(previous)
+
+
+def _stop_on_sigterm() -> Any:
+    """Let a termination signal stop the run like Ctrl-C, so temporary files are removed."""
+    def stop(signum: int, frame: Any) -> None:
+        raise KeyboardInterrupt
+
+    try:
+        return signal.signal(signal.SIGTERM, stop)
+    except (ValueError, OSError):  # not the main thread: leave signals alone
+        return None
+
+
+def _restore_sigterm(previous: Any) -> None:
+    if previous is not None:
+        with contextlib.suppress(ValueError, OSError):
+            signal.signal(signal.SIGTERM, previous)
 
 
 def _print_read(report: Report) -> None:

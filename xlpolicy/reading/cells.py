@@ -17,6 +17,20 @@ _PLAIN_NUMBER = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
 _THOUSANDS = re.compile(r"^[+-]?\d{1,3}(,\d{3})+(\.\d*)?$")
 
 
+_XML_ESCAPE = re.compile(r"_x([0-9A-Fa-f]{4})_")
+
+
+def unescape(value: str) -> str:
+    """Text with Excel's _xHHHH_ escapes decoded (how a workbook stores a control character).
+
+    openpyxl leaves them as written, so "a_x0009_b" would otherwise reach the output as
+    such; "_x005F_" is Excel's escape for a literal underscore before one.
+    """
+    if "_x" not in value:
+        return value
+    return _XML_ESCAPE.sub(lambda m: chr(int(m.group(1), 16)), value)
+
+
 def is_blank(value: Any) -> bool:
     """True for an empty cell or one holding only spaces."""
     if value is None:
@@ -46,7 +60,7 @@ def item_code(value: Any, number_format: str = "") -> str | None:
         return digits
     if isinstance(value, (_dt.datetime, _dt.date)):
         return value.isoformat()
-    return _SPACES.sub(" ", str(value)).strip()
+    return _SPACES.sub(" ", unescape(str(value))).strip()
 
 
 def text(value: Any) -> str | None:
@@ -55,7 +69,7 @@ def text(value: Any) -> str | None:
         return None
     if isinstance(value, float) and value == int(value):
         return str(int(value))
-    return str(value).strip()
+    return unescape(str(value)).strip()
 
 
 def parse_number(
