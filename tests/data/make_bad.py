@@ -399,6 +399,74 @@ def ods_bomb(path: Path) -> None:
     _ods(path, _ODS_HEAD + _ODS_OPEN + pad + _ODS_CLOSE, level=9)
 
 
+# --- (3) cells as people type them, (4) text that must land as text ------------------------
+
+def typed_numbers(path: Path) -> None:
+    """Costs typed with currency signs, separators and decimal commas; rates as '25 %'."""
+    good_workbook(path, items=[
+        ["BOLT-10", "bolts", "Velo Parts", "$4.50", "$18.00", "22%", "10"],
+        ["CHAIN-7", "chains", "Velo Parts", "5,50\u00a0€", "18,00 €", "22 %", "12"],
+        ["LAMP-2", "lamps", "Velo Parts", "EUR 1.006,50", "(18.00)", "0,22", "14,0"],
+    ])
+
+
+def text_dates(path: Path) -> None:
+    """History periods typed as text, day first (31/01/2024)."""
+    rng = np.random.default_rng(11)
+    rows = [[c, (dt.date(2024, 1, 1) + dt.timedelta(weeks=w)).strftime("%d/%m/%Y"), int(q)]
+            for c in CODES for w, q in enumerate(rng.poisson(25, 30))]
+    good_workbook(path, history_rows=rows)
+
+
+def serial_dates(path: Path) -> None:
+    """History periods as bare day numbers (a date column that lost its format)."""
+    rng = np.random.default_rng(11)
+    rows = [[c, 45292 + 7 * w, int(q)] for c in CODES for w, q in enumerate(rng.poisson(25, 30))]
+    good_workbook(path, history_rows=rows)
+
+
+def epoch_1904(path: Path) -> None:
+    """A workbook in the 1904 date system (old Mac Excel)."""
+    from openpyxl.utils.datetime import CALENDAR_MAC_1904
+
+    def extra(wb: Workbook) -> None:
+        wb.epoch = CALENDAR_MAC_1904
+    good_workbook(path, extra=extra)
+
+
+def hidden_parts(path: Path) -> None:
+    """Two Items rows hidden and the History sheet hidden."""
+    def extra(wb: Workbook) -> None:
+        wb["Items"].row_dimensions[3].hidden = True
+        wb["Items"].row_dimensions[4].hidden = True
+        wb["History"].sheet_state = "hidden"
+    good_workbook(path, extra=extra)
+
+
+def merged_in_data(path: Path) -> None:
+    """The supplier typed once and merged over all three items."""
+    def extra(wb: Workbook) -> None:
+        wb["Items"].merge_cells("C2:C4")
+    good_workbook(path, extra=extra)
+
+
+def formulas_no_cache(path: Path) -> None:
+    """A cost as a formula saved by a program that never calculated it."""
+    def extra(wb: Workbook) -> None:
+        wb["Items"]["D3"] = "=2*2.75"
+    good_workbook(path, extra=extra)
+
+
+def formula_text(path: Path) -> None:
+    """Descriptions and suppliers that a spreadsheet would run if written as formulas."""
+    good_workbook(path, items=[
+        ["BOLT-10", '=HYPERLINK("http://example.invalid","x")', "+cmd|' /C calc'!A0",
+         4.5, 18.0, 0.22, 10],
+        ["CHAIN-7", "@SUM(1,2)", "-2+3", 5.5, 18.0, 0.22, 12],
+        ["LAMP-2", "lamp_x0007__x001B_set", "Velo Parts", 6.5, 18.0, 0.22, 14],
+    ])
+
+
 _BOMB = ("zip bomb", "--allow-large")
 _DTD = ("document type declaration",)
 CASES: list[Case] = [
@@ -464,6 +532,27 @@ CASES: list[Case] = [
          ("file-type",), "an Excel binary workbook (no reader)"),
     Case("random-bytes.xlsx", random_bytes, 1, ("random-bytes.xlsx", "not a readable"),
          ("file-not-zip",), "noise with an .xlsx name"),
+    # (3) cells as people type them
+    Case("typed-numbers.xlsx", typed_numbers, 0, ("Wrote", "Items!E4", "(18.00)"),
+         ("order_cost-out-of-range",),
+         "costs with currency signs, separators, decimal commas; one bracketed negative",
+         planned=2),
+    Case("dates-as-text.xlsx", text_dates, 0, ("Wrote", "read as dates"),
+         ("history-typed-dates-info",), "periods typed as 31/01/2024", planned=3),
+    Case("dates-as-numbers.xlsx", serial_dates, 0, ("Wrote", "45292 = 2024-01-01"),
+         ("history-typed-dates-info",), "periods as bare day numbers", planned=3),
+    Case("epoch-1904.xlsx", epoch_1904, 0, ("Wrote",), (), "the 1904 date system",
+         planned=3),
+    Case("hidden-rows-and-sheet.xlsx", hidden_parts, 0, ("Wrote", "hidden row"),
+         ("rows-hidden", "sheet-hidden"), "hidden rows and a hidden History sheet",
+         planned=3),
+    Case("merged-in-data.xlsx", merged_in_data, 0, ("Wrote", "C2:C4", "merged"),
+         ("cells-merged",), "a supplier merged over three rows", planned=3),
+    Case("formula-no-saved-result.xlsx", formulas_no_cache, 0, ("Wrote", "Items!D3"),
+         ("cell-uncalculated",), "a formula never calculated", planned=2),
+    # (4) text that must land as text
+    Case("formula-text.xlsx", formula_text, 0, ("Wrote",), (),
+         "user text starting with = + - @ and control characters", planned=3),
 ]
 
 

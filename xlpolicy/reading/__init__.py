@@ -15,7 +15,7 @@ from .history import History, aggregate_daily_to_weeks, read_history
 from .items import ItemTable, read_items
 from .settings import finish_period, read_settings, resolve_settings
 from .sources import open_source
-from .workbook import WorkbookFile
+from .workbook import WorkbookFile, layout_notes
 
 
 @dataclass
@@ -44,7 +44,9 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
         """A sheet, reporting progress where the source can (large .xlsx files)."""
         try:
             if isinstance(wb, WorkbookFile):
-                return wb.read(name, progress)
+                sheet = wb.read(name, progress)
+                layout_notes(wb, name, sheet, log)
+                return sheet
             progress(f"Reading {name}", 0, None)
             return wb.read(name)
         except Exception as exc:  # a damaged or hostile part: a message, never a traceback

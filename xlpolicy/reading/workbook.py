@@ -273,6 +273,85 @@ def _sheet_parts(path: Path) -> dict[str, str]:
         return {}
 
 
+_ROW_OR_MERGE = re.compile(rb"<(?:[A-Za-z_][\w.-]*:)?(row|mergeCell)\b([^>]*)>")
+_HIDDEN = re.compile(rb"\bhidden\s*=\s*[\"'](?:1|true)[\"']")
+_REF = re.compile(rb"\bref\s*=\s*[\"']([A-Z]{1,3})(\d+):([A-Z]{1,3})(\d+)[\"']")
+
+
+def layout_notes(wb: WorkbookFile, name: str, sheet: RawSheet, log: ProblemLog) -> None:
+    """Tell the user about a sheet's hidden parts and merged cells that touch its data.
+
+    Hidden rows are read like the others (a sheet's data is what it holds, not what is on
+    screen), with a warning naming them; a hidden sheet is found and read all the same, with
+    a note. A merged range over several rows of data keeps its value in its first row only,
+    so the rows below read as blank there: a warning names the range. The sheet's XML is
+    scanned once in 1 MB pieces, so this costs little even for a large sheet.
+    """
+    ws = wb._wb[name] if wb._wb is not None else None
+    state = getattr(ws, "sheet_state", "visible")
+    if state in ("hidden", "veryHidden"):
+        log.info(f"The sheet '{name}' is hidden in the workbook; it was read all the same. "
+                 "Unhide it (right-click a sheet tab > Unhide) to see what was read.",
+                 sheet=name, code="sheet-hidden")
+    part = wb._sheet_parts.get(name)
+    if not part or not sheet.row_numbers:
+        return
+    data_rows = set(sheet.row_numbers)
+    hidden: list[int] = []
+    merged: list[str] = []
+    try:
+        with zipfile.ZipFile(wb.path) as zf, zf.open(part) as src:
+            carry = b""
+            while True:
+                data = src.read(1 << 20)
+                buf = carry + data
+                cut = buf.rfind(b">") + 1 if data else len(buf)
+                for m in _ROW_OR_MERGE.finditer(buf, 0, cut):
+                    if m.group(1) == b"row":
+                        if _HIDDEN.search(m.group(2)):
+                            r = _ROW_NUMBER.search(m.group(2))
+                            if r is not None and int(r.group(1)) in data_rows:
+                                hidden.append(int(r.group(1)))
+                    else:
+                        ref = _REF.search(m.group(2))
+                        if ref is not None and len(merged) < 1000 and _spans_data(ref, data_rows):
+                            merged.append(ref.group(0).split(b"=", 1)[1].strip(b"\"' "))
+                carry = buf[cut:]
+                if not data or len(carry) > (16 << 20):
+                    break
+    except Exception:  # a scan for notes must never stop a run
+        return
+    if hidden:
+        log.warning(f"The sheet '{name}' has {len(hidden)} hidden row(s) with data "
+                    f"({_ranges(hidden)}); they were read like the others. Unhide them to "
+                    "check them, and delete any row that should not be planned.",
+                    sheet=name, code="rows-hidden")
+    for ref in merged[:20]:
+        text = ref.decode()
+        log.warning(f"The cells {text} of '{name}' are merged: only the first row holds the "
+                    "value, so the rows below read as blank there. Unmerge them and fill the "
+                    "value into each row.", sheet=name, cell=text.split(":")[0],
+                    code="cells-merged")
+
+
+def _spans_data(ref: re.Match, data_rows: set[int]) -> bool:
+    """Whether a merged range covers a row of data below its first row."""
+    r1, r2 = int(ref.group(2)), int(ref.group(4))
+    return any(r in data_rows for r in range(r1 + 1, min(r2, r1 + 5000) + 1))
+
+
+def _ranges(rows: list[int]) -> str:
+    """1, 2, 3, 7 -> '1-3, 7' (at most ten runs shown)."""
+    runs: list[list[int]] = []
+    for r in sorted(set(rows)):
+        if runs and r == runs[-1][1] + 1:
+            runs[-1][1] = r
+        else:
+            runs.append([r, r])
+    text = ", ".join(f"{a}" if a == b else f"{a}-{b}" for a, b in runs[:10])
+    return text + (", ..." if len(runs) > 10 else "")
+
+
 def _ignore_recorded_size(wb: Any) -> None:
     """Make openpyxl read each sheet's real rows, not the size the file records for it.
 
