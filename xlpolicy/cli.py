@@ -11,6 +11,7 @@ import os
 import signal
 import sys
 import time
+import warnings
 from pathlib import Path
 from typing import Any
 
@@ -191,7 +192,11 @@ def _run(fn: Any, bar: _Bar | None = None) -> Any:
 
     def call() -> Any:
         try:
-            return fn()
+            with warnings.catch_warnings():
+                # openpyxl warns about parts of a file it skips (extensions, odd numbers) on
+                # stderr with its own source line; what matters reaches the user as problems
+                warnings.filterwarnings("ignore", module=r"openpyxl(\.|$)")
+                return fn()
         finally:  # clear the progress line before anything else is printed
             if bar is not None:
                 bar.close()

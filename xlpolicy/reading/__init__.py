@@ -37,7 +37,13 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
     """
     wb = open_source(Path(path), log)
     progress("Opening the workbook", 0, None)
-    if not wb.open():
+    try:
+        opened = wb.open()
+    except Exception as exc:  # each reader reports what it expects; this is the backstop
+        message, code = unreadable_message(Path(path).name, exc)
+        log.fatal(message, value=str(path), code=code)
+        return None
+    if not opened:
         return None
 
     def read(name: str) -> Any:

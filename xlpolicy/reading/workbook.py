@@ -11,6 +11,7 @@ from __future__ import annotations
 import posixpath
 import re
 import zipfile
+import zlib
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -269,7 +270,8 @@ def _sheet_parts(path: Path) -> dict[str, str]:
                 if target in names:
                     out[s.get("name")] = target
             return out
-    except (KeyError, ET.ParseError, DefusedXmlException, zipfile.BadZipFile, OSError):
+    except (KeyError, ET.ParseError, DefusedXmlException, zipfile.BadZipFile, OSError,
+            zlib.error, EOFError, ValueError):
         return {}
 
 
