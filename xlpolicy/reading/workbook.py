@@ -207,41 +207,52 @@ class WorkbookFile:
             return set()
         try:
             with zipfile.ZipFile(self.path) as zf:
-                data = zf.read(part)
-        except (KeyError, zipfile.BadZipFile, OSError):
+                if not _has_formula(zf, part):
+                    return set()
+                with zf.open(part) as src:
+                    return _formulas_without_result(src)
+        except (KeyError, zipfile.BadZipFile, OSError, zlib.error, EOFError):
             return set()
-        if b"<f" not in data and b":f" not in data:
-            return set()
-        out: set[str] = set()
-        c_tag, f_tag, v_tag = f"{{{_NS_MAIN}}}c", f"{{{_NS_MAIN}}}f", f"{{{_NS_MAIN}}}v"
-        try:
-            for _event, elem in ET.iterparse(_BytesReader(data), events=("end",)):
-                if elem.tag == c_tag:
-                    f = elem.find(f_tag)
-                    if f is not None:
-                        v = elem.find(v_tag)
-                        if v is None or not (v.text or "").strip():
-                            out.add(elem.get("r", ""))
-                    elem.clear()
-        except (ET.ParseError, DefusedXmlException):
-            return out
-        out.discard("")
-        return out
 
 
-class _BytesReader:
-    """Minimal file-like wrapper so iterparse can read bytes already in memory."""
+def _has_formula(zf: zipfile.ZipFile, part: str, chunk: int = 1 << 20) -> bool:
+    """Whether a sheet part holds a formula element, read 1 MB at a time (bounded memory)."""
+    with zf.open(part) as src:
+        tail = b""
+        while True:
+            data = src.read(chunk)
+            if not data:
+                return False
+            buf = tail + data
+            if b"<f" in buf or b":f" in buf:
+                return True
+            tail = buf[-2:]
 
-    def __init__(self, data: bytes):
-        self._data = data
-        self._pos = 0
 
-    def read(self, n: int = -1) -> bytes:
-        if n is None or n < 0:
-            n = len(self._data) - self._pos
-        chunk = self._data[self._pos : self._pos + n]
-        self._pos += len(chunk)
-        return chunk
+def _formulas_without_result(src: Any) -> set[str]:
+    """A1 references of formula cells with no saved value, parsed as a stream (defusedxml).
+
+    Each cell, and each row once read, is cleared, so memory stays small however long the
+    sheet.
+    """
+    out: set[str] = set()
+    c_tag, f_tag, v_tag = f"{{{_NS_MAIN}}}c", f"{{{_NS_MAIN}}}f", f"{{{_NS_MAIN}}}v"
+    row_tag = f"{{{_NS_MAIN}}}row"
+    try:
+        for _event, elem in ET.iterparse(src, events=("end",)):
+            if elem.tag == c_tag:
+                f = elem.find(f_tag)
+                if f is not None:
+                    v = elem.find(v_tag)
+                    if v is None or not (v.text or "").strip():
+                        out.add(elem.get("r", ""))
+                elem.clear()
+            elif elem.tag == row_tag:
+                elem.clear()
+    except (ET.ParseError, DefusedXmlException):
+        pass
+    out.discard("")
+    return out
 
 
 def _sheet_parts(path: Path) -> dict[str, str]:
