@@ -112,6 +112,7 @@ def test_bad_file_through_the_cli(runs, case):
     for w in case.words:
         assert w.lower() in text.lower(), (w, text)
     assert "Traceback" not in text and "internal error" not in text, text
+    assert "Warning:" not in text, text  # no library warnings with their source lines
     assert r["unchanged"], "the input file was changed"
     assert r["wrote"] == (case.exit_code == 0)
     assert r["seconds"] < TIME_LIMIT_S, r["seconds"]
@@ -145,3 +146,12 @@ def test_allow_large_lets_a_trusted_large_part_through(tmp_path):
         xlpolicy.analyse(path)
     report = xlpolicy.analyse(path, allow_large=True)
     assert report.input_summary["items_planned"] == 3
+    from click.testing import CliRunner
+
+    from xlpolicy.cli import main
+
+    out = tmp_path / "out.xlsx"
+    res = CliRunner().invoke(main, ["plan", str(path), "-o", str(out), "--allow-large"])
+    assert res.exit_code == 0 and out.exists(), res.output
+    res = CliRunner().invoke(main, ["check", str(path)])
+    assert res.exit_code == 1 and "--allow-large" in res.output
