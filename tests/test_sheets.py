@@ -424,7 +424,9 @@ def test_csv_round_trip(tmp_path):
     assert list(back["item"]) == ["000123", "A-77", "B-9", "C-3", "D-10"]
     # Unrounded: 0.1 + 0.2 = 0.30000000000000004 in binary floating point (IEEE 754).
     assert back.loc[3, "annual_demand"] == 0.1 + 0.2
-    assert back.loc[0, "description"] == "=SUM(A1:A3) spare filter"
+    # text a spreadsheet program would run gets a leading apostrophe (common practice
+    # against formula injection, OWASP "CSV Injection"); the JSON keeps it exactly
+    assert back.loc[0, "description"] == "'=SUM(A1:A3) spare filter"
     skipped = back[back["item"] == "B-9"].iloc[0]
     assert skipped["status"] == "skipped" and math.isnan(skipped["order_qty"])
     assert sorted(p.name for p in tmp_path.iterdir()) == ["items.csv"]

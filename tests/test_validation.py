@@ -87,7 +87,7 @@ def test_missing_order_cost_column_without_settings_default_is_fatal(tmp_path):
 
 @pytest.mark.parametrize("content, name, code", [
     (b"item,cost\nA,1\n", "w.xlsx", "file-not-zip"),
-    (b"", "w.xlsx", "file-not-zip"),
+    (b"", "w.xlsx", "file-empty"),
     (b"\xd0\xcf\x11\xe0" + b"\0" * 60, "w.xlsx", "file-not-zip"),
     (b"a,b\n", "w.csv", "file-type"),
 ])

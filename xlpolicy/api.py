@@ -21,14 +21,14 @@ from .contract import SERVICE_MEASURES
 from .planner import build_report
 from .problems import Problem, ProblemLog, Severity, UnusableWorkbook
 from .progress import Progress, silent
-from .reading import read_input
+from .reading import guard, read_input
 from .reading.cells import parse_number
 from .reading.settings import parse_measure
 from .reading.sources import KIND_NAMES, source_kind
 from .report import Report
 from .writing.atomic import atomic_output
 from .writing.package import CannotMerge, merge_generated_sheets, user_sheet_names
-from .writing.sheets import DEFAULT_SHEET_NAMES, write_generated_workbook
+from .writing.sheets import DEFAULT_SHEET_NAMES, OutputTooLarge, write_generated_workbook
 from .writing.tables import write_csv, write_json
 
 
@@ -107,15 +107,18 @@ def _number(value: float | str, what: str, rate: bool = False) -> float:
 def analyse(path: str | Path, *, service_measure: str | None = None,
             service_target: float | str | None = None,
             holding_rate: float | str | None = None, order_cost: float | str | None = None,
-            run_date: _dt.date | None = None, progress: Progress = silent) -> Report:
+            run_date: _dt.date | None = None, progress: Progress = silent,
+            allow_large: bool = False) -> Report:
     """Read, check and plan a workbook without writing anything.
 
     Raises UnusableWorkbook when the workbook cannot be used at all. ``progress`` is called
-    as the run goes (stage, done, total), for a progress bar.
+    as the run goes (stage, done, total), for a progress bar. ``allow_large`` raises the
+    size limits that protect against zip bombs tenfold (see xlpolicy.reading.guard).
     """
     log = ProblemLog()
     overrides = _overrides(service_measure, service_target, holding_rate, order_cost)
-    data = read_input(Path(path), overrides, log, progress)
+    with guard.allow_large(allow_large):
+        data = read_input(Path(path), overrides, log, progress)
     if data is None:
         raise UnusableWorkbook([p for p in log.problems if p.severity is Severity.FATAL])
     progress("Planning", 0, None)
@@ -145,7 +148,8 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
          json: str | Path | None = None, service_measure: str | None = None,
          service_target: float | str | None = None, holding_rate: float | str | None = None,
          order_cost: float | str | None = None, write_workbook: bool = True,
-         run_date: _dt.date | None = None, progress: Progress = silent) -> PlanResult:
+         run_date: _dt.date | None = None, progress: Progress = silent,
+         allow_large: bool = False) -> PlanResult:
     """Plan every item in the workbook at ``path`` and write the results.
 
     The input file is never changed. By default the output is ``<name>-policy.xlsx`` beside
@@ -157,11 +161,16 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
         _check_output_path(src, out)
     report = analyse(src, service_measure=service_measure, service_target=service_target,
                      holding_rate=holding_rate, order_cost=order_cost, run_date=run_date,
-                     progress=progress)
+                     progress=progress, allow_large=allow_large)
     result = PlanResult(report)
     if write_workbook:
         progress(f"Writing {out.name}", 0, None)
-        result.output, result.standalone, result.sheets = write_policy_workbook(src, out, report)
+        try:
+            result.output, result.standalone, result.sheets = write_policy_workbook(
+                src, out, report)
+        except OutputTooLarge as exc:
+            raise UnusableWorkbook([Problem(Severity.FATAL, "", "", "", None, str(exc),
+                                            "output-too-large")]) from None
     if csv is not None:
         write_csv(Path(csv), report)
         result.csv = Path(csv)
@@ -184,6 +193,10 @@ def _check_output_path(src: Path, out: Path) -> None:
     if src.is_file() and src.suffix.lower() == ".xlsm" and out.suffix.lower() != ".xlsm":
         raise UsageError(f"{src.name} holds macros; its output must end in .xlsm to keep them "
                          f"(e.g. {default_output_path(src).name})")
+    if out.suffix.lower() == ".xlsm" and not (src.is_file() and src.suffix.lower() == ".xlsm"):
+        raise UsageError(f"the output {out.name} ends in .xlsm, but {src.name} holds no macros "
+                         "to keep; name it .xlsx (Excel refuses an .xlsm without macros "
+                         "inside)")
     if not out.parent.exists():
         raise UsageError(f"the folder {out.parent} does not exist")
 

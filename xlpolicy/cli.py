@@ -6,9 +6,12 @@ used at all (or the output cannot be written), 2 for a usage error.
 
 from __future__ import annotations
 
+import contextlib
 import os
+import signal
 import sys
 import time
+import warnings
 from pathlib import Path
 from typing import Any
 
@@ -74,6 +77,14 @@ def _override_options(f: Any) -> Any:
     return f
 
 
+def _allow_large_option(f: Any) -> Any:
+    """--allow-large: raise the limits that keep zip bombs out (for a trusted, huge file)."""
+    return click.option("--allow-large", is_flag=True,
+                        help="Read a trusted workbook that unpacks to more than the safety "
+                             "limits allow (they keep out files made to exhaust memory); "
+                             "raises them tenfold. Same as XLPOLICY_ALLOW_LARGE=1.")(f)
+
+
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
 @click.version_option(__version__, prog_name="xlpolicy")
 def main() -> None:
@@ -94,10 +105,11 @@ def main() -> None:
 @click.option("--json", "json_path", type=click.Path(path_type=Path), default=None,
               help="Also write the per-item table, problems and totals as JSON.")
 @_override_options
+@_allow_large_option
 @click.option("-q", "--quiet", is_flag=True, help="Print only the path written and errors.")
 def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: Path | None,
          service_measure: str | None, service_target: str | None, holding_rate: str | None,
-         order_cost: str | None, quiet: bool) -> None:
+         order_cost: str | None, allow_large: bool, quiet: bool) -> None:
     """Compute the policy for every item and write the policy workbook.
 
     Your WORKBOOK is never changed. The output holds your own sheets plus Policy, Summary,
@@ -107,7 +119,7 @@ def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: 
     result = _run(lambda: api.plan(
         workbook, output, csv=csv_path, json=json_path, service_measure=service_measure,
         service_target=service_target, holding_rate=holding_rate, order_cost=order_cost,
-        progress=bar), bar)
+        progress=bar, allow_large=allow_large), bar)
     _print_run(result, quiet)
 
 
@@ -144,8 +156,9 @@ def _print_run(result: api.PlanResult, quiet: bool) -> None:
 @main.command()
 @click.argument("workbook", type=click.Path(path_type=Path))
 @_override_options
+@_allow_large_option
 def check(workbook: Path, service_measure: str | None, service_target: str | None,
-          holding_rate: str | None, order_cost: str | None) -> None:
+          holding_rate: str | None, order_cost: str | None, allow_large: bool) -> None:
     """Report every problem in WORKBOOK without writing anything.
 
     Exit status 0 if it can be planned (possibly with warnings), 1 if it cannot.
@@ -153,7 +166,8 @@ def check(workbook: Path, service_measure: str | None, service_target: str | Non
     bar = _Bar()
     report = _run(lambda: api.analyse(
         workbook, service_measure=service_measure, service_target=service_target,
-        holding_rate=holding_rate, order_cost=order_cost, progress=bar), bar)
+        holding_rate=holding_rate, order_cost=order_cost, progress=bar,
+        allow_large=allow_large), bar)
     _print_read(report)
     _print_problems(report.problems, limit=None)
     if not report.problems:
@@ -178,13 +192,24 @@ def _run(fn: Any, bar: _Bar | None = None) -> Any:
 
     def call() -> Any:
         try:
-            return fn()
+            with warnings.catch_warnings():
+                # openpyxl warns about parts of a file it skips (extensions, odd numbers) on
+                # stderr with its own source line; what matters reaches the user as problems
+                warnings.filterwarnings("ignore", module=r"openpyxl(\.|$)")
+                return fn()
         finally:  # clear the progress line before anything else is printed
             if bar is not None:
                 bar.close()
 
+    previous = _stop_on_sigterm()
     try:
         return call()
+    except KeyboardInterrupt:
+        click.echo(click.style(
+            "Stopped before the end. Nothing half-written was left behind: an output file is "
+            "only put in place once complete, and your workbook is unchanged.", fg="red"),
+            err=True)
+        sys.exit(130)
     except api.UsageError as exc:
         raise click.UsageError(str(exc)) from None
     except UnusableWorkbook as exc:
@@ -206,6 +231,25 @@ def _run(fn: Any, bar: _Bar | None = None) -> Any:
             "not changed. Please report this with the workbook if you can; set "
             "XLPOLICY_DEBUG=1 for details.", fg="red"), err=True)
         sys.exit(1)
+    finally:
+        _restore_sigterm(previous)
+
+
+def _stop_on_sigterm() -> Any:
+    """Let a termination signal stop the run like Ctrl-C, so temporary files are removed."""
+    def stop(signum: int, frame: Any) -> None:
+        raise KeyboardInterrupt
+
+    try:
+        return signal.signal(signal.SIGTERM, stop)
+    except (ValueError, OSError):  # not the main thread: leave signals alone
+        return None
+
+
+def _restore_sigterm(previous: Any) -> None:
+    if previous is not None:
+        with contextlib.suppress(ValueError, OSError):
+            signal.signal(signal.SIGTERM, previous)
 
 
 def _print_read(report: Report) -> None:

@@ -10,11 +10,12 @@ import numpy as np
 
 from ..problems import ProblemLog
 from ..progress import Progress, silent
+from .guard import Refused, unreadable_message
 from .history import History, aggregate_daily_to_weeks, read_history
 from .items import ItemTable, read_items
 from .settings import finish_period, read_settings, resolve_settings
 from .sources import open_source
-from .workbook import WorkbookFile
+from .workbook import WorkbookFile, layout_notes
 
 
 @dataclass
@@ -36,15 +37,29 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
     """
     wb = open_source(Path(path), log)
     progress("Opening the workbook", 0, None)
-    if not wb.open():
+    try:
+        opened = wb.open()
+    except Exception as exc:  # each reader reports what it expects; this is the backstop
+        message, code = unreadable_message(Path(path).name, exc)
+        log.fatal(message, value=str(path), code=code)
+        return None
+    if not opened:
         return None
 
     def read(name: str) -> Any:
         """A sheet, reporting progress where the source can (large .xlsx files)."""
-        if isinstance(wb, WorkbookFile):
-            return wb.read(name, progress)
-        progress(f"Reading {name}", 0, None)
-        return wb.read(name)
+        try:
+            if isinstance(wb, WorkbookFile):
+                sheet = wb.read(name, progress)
+                layout_notes(wb, name, sheet, log)
+            else:
+                progress(f"Reading {name}", 0, None)
+                sheet = wb.read(name)
+        except Exception as exc:  # a damaged or hostile part: a message, never a traceback
+            raise _SheetUnreadable(name, exc) from exc
+        if log.has_fatal:  # the reader said why it could not read the sheet: stop there
+            raise _AlreadyReported
+        return sheet
 
     try:
         items_name = wb.find_sheet("Items")
@@ -81,8 +96,30 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
                 settings["sources"]["period"] = f"inferred from {history_name} dates"
                 finish_period(settings)
         return InputData(Path(path), items, history, settings, list(wb.sheet_names))
+    except _AlreadyReported:
+        return None
+    except _SheetUnreadable as exc:
+        if isinstance(exc.cause, Refused):
+            message, code = exc.cause.message, exc.cause.code
+        else:
+            message, code = unreadable_message(Path(path).name, exc.cause, exc.sheet)
+        log.fatal(message, sheet=exc.sheet, value=str(path), code=code)
+        return None
     finally:
         wb.close()
+
+
+class _AlreadyReported(Exception):
+    """A reader logged a fatal problem for a sheet; reading stops without another message."""
+
+
+class _SheetUnreadable(Exception):
+    """Reading one sheet's cells from the file failed: the file is damaged or hostile."""
+
+    def __init__(self, sheet: str, cause: BaseException):
+        super().__init__(sheet)
+        self.sheet = sheet
+        self.cause = cause
 
 
 def _steadier_period(history: History, items: ItemTable, settings: dict[str, Any],

@@ -17,6 +17,20 @@ _PLAIN_NUMBER = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
 _THOUSANDS = re.compile(r"^[+-]?\d{1,3}(,\d{3})+(\.\d*)?$")
 
 
+_XML_ESCAPE = re.compile(r"_x([0-9A-Fa-f]{4})_")
+
+
+def unescape(value: str) -> str:
+    """Text with Excel's _xHHHH_ escapes decoded (how a workbook stores a control character).
+
+    openpyxl leaves them as written, so "a_x0009_b" would otherwise reach the output as
+    such; "_x005F_" is Excel's escape for a literal underscore before one.
+    """
+    if "_x" not in value:
+        return value
+    return _XML_ESCAPE.sub(lambda m: chr(int(m.group(1), 16)), value)
+
+
 def is_blank(value: Any) -> bool:
     """True for an empty cell or one holding only spaces."""
     if value is None:
@@ -46,7 +60,7 @@ def item_code(value: Any, number_format: str = "") -> str | None:
         return digits
     if isinstance(value, (_dt.datetime, _dt.date)):
         return value.isoformat()
-    return _SPACES.sub(" ", str(value)).strip()
+    return _SPACES.sub(" ", unescape(str(value))).strip()
 
 
 def text(value: Any) -> str | None:
@@ -55,7 +69,7 @@ def text(value: Any) -> str | None:
         return None
     if isinstance(value, float) and value == int(value):
         return str(int(value))
-    return str(value).strip()
+    return unescape(str(value)).strip()
 
 
 def parse_number(
@@ -80,20 +94,98 @@ def parse_number(
         if rate and percent_unit and "%" not in number_format and x > 1:
             x /= 100.0
         return x, None
-    s = _SPACES.sub("", str(value))
+    s = _SPACES.sub("", unescape(str(value)))
     if s.startswith("#"):
         return None, f"the spreadsheet error {s}"
     pct = s.endswith("%")
     if pct:
         s = s[:-1]
-    if _THOUSANDS.match(s):
-        s = s.replace(",", "")
-    if not _PLAIN_NUMBER.match(s):
+    typed = number_from_text(s)
+    if typed is None:
         return None, "text where a number belongs"
-    x = float(s)
+    x = typed
+    if not math.isfinite(x):
+        return None, "not a finite number"
     if pct or (rate and percent_unit and x > 1):
         x /= 100.0
     return x, None
+
+
+_CURRENCY_SIGNS = "$€£¥₹₽¢₩₺₪฿₫"
+_CURRENCY = re.compile(r"^(?:[A-Z]{3}|[A-Z]{1,2}\$|[" + _CURRENCY_SIGNS + r"])|"
+                       r"(?:[A-Z]{3}|[" + _CURRENCY_SIGNS + r"]|kr|zł|,-|\.-)$")
+_COMMA_GROUPS = re.compile(r"^\d{1,3}(,\d{3})+$")
+_DOT_GROUPS = re.compile(r"^\d{1,3}(\.\d{3})+$")
+_QUOTE_GROUPS = re.compile(r"^\d{1,3}(['’]\d{3})+$")
+
+
+def number_from_text(s: str) -> float | None:
+    """A number typed as text, as people type them; None when it is not one.
+
+    ``s`` has no spaces (non-breaking and thin ones included) and no trailing "%". Read:
+    a currency sign or code before or after ("$12.50", "12,50€", "EUR 12", "12.50 USD"),
+    a sign before or after the currency, accounting brackets for a negative ("(12.50)"),
+    thousands separators (1,250.50; 1.250,50; 1'250.50; 1 250,50), and the decimal comma
+    (12,5). Where both marks appear, the last one is the decimal mark. "1,250" alone reads
+    as one thousand two hundred and fifty, as a spreadsheet in English would.
+    """
+    if _PLAIN_NUMBER.match(s):
+        return float(s)
+    neg = False
+    bracketed = s.startswith("(") and s.endswith(")")
+    if bracketed:
+        neg, s = True, s[1:-1]
+    signed = False
+    for _ in range(3):  # a sign and a currency, in either order, at either end
+        if s[:1] in ("+", "-"):
+            if signed:
+                return None
+            signed, neg = True, neg ^ (s[0] == "-")
+            s = s[1:]
+            continue
+        stripped = _CURRENCY.sub("", s, count=1)
+        if stripped == s or not stripped:
+            break
+        s = stripped
+    if bracketed and signed:
+        return None
+    if s.endswith("-") and s[:-1].replace(",", "").replace(".", "").isdigit():
+        neg, s = not neg, s[:-1]  # 12.50- as some ledgers print a debit
+    plain = _separators(s)
+    if plain is None or not _PLAIN_NUMBER.match(plain) or plain[:1] in "+-":
+        return None
+    x = float(plain)
+    return -x if neg else x
+
+
+def _separators(s: str) -> str | None:
+    """``s`` with thousands separators removed and a decimal comma made a point."""
+    if not s or not s[0].isdigit() and s[0] != ".":
+        return None
+    comma, dot = s.rfind(","), s.rfind(".")
+    if comma >= 0 and dot >= 0:
+        mark = "," if comma > dot else "."
+        whole, frac = s.rsplit(mark, 1)
+        groups = _DOT_GROUPS if mark == "," else _COMMA_GROUPS
+        if not frac.isdigit() or not (groups.match(whole) or _QUOTE_GROUPS.match(whole)
+                                      or whole.isdigit()):
+            return None
+        return whole.replace(",", "").replace(".", "").replace("'", "").replace("’", "") \
+            + "." + frac
+    if comma >= 0:
+        if _COMMA_GROUPS.match(s):
+            return s.replace(",", "")
+        whole, frac = s.rsplit(",", 1)
+        if (whole.isdigit() or _DOT_GROUPS.match(whole) or _QUOTE_GROUPS.match(whole)) \
+                and frac.isdigit():
+            return whole.replace("'", "").replace("’", "") + "." + frac
+        return None
+    if _DOT_GROUPS.match(s) and s.count(".") > 1:
+        return s.replace(".", "")
+    whole, _, frac = s.partition(".")
+    if _QUOTE_GROUPS.match(whole):
+        return whole.replace("'", "").replace("’", "") + ("." + frac if frac else "")
+    return s
 
 
 def describe(value: Any) -> str:
@@ -103,3 +195,113 @@ def describe(value: Any) -> str:
     if isinstance(value, float) and value == int(value) and abs(value) < 1e15:
         return str(int(value))
     return str(value)
+
+
+# --- dates typed as text, or stored as plain numbers ---------------------------------------
+
+_MONTHS = {m: k + 1 for k, m in enumerate(
+    ("jan", "feb", "mar", "apr", "may", "jun", "jul", "aug", "sep", "oct", "nov", "dec"))}
+_NUMERIC_DATE = re.compile(r"^(\d{1,2})([/.-])(\d{1,2})\2(\d{4})$")
+_DAY_MONTH_YEAR = re.compile(r"^(\d{1,2})[\s./-]*([A-Za-z]{3,9})\.?[\s./,-]*(\d{4})$")
+_MONTH_DAY_YEAR = re.compile(r"^([A-Za-z]{3,9})\.?\s*(\d{1,2})(?:st|nd|rd|th)?,?\s+(\d{4})$")
+_MONTH_YEAR = re.compile(r"^([A-Za-z]{3,9})\.?[\s./-]*(\d{4})$")
+SERIAL_RANGE = (20_000, 80_000)  # Excel day numbers of 1954-10-03 .. 2119-01-10
+_EXCEL_DAY0 = _dt.datetime(1899, 12, 30)  # day 0 of the 1900 date system (after 1900-03-01)
+
+
+def _month(word: str) -> int | None:
+    w = word.lower()
+    k = _MONTHS.get(w[:3])
+    full = ("january", "february", "march", "april", "may", "june", "july", "august",
+            "september", "october", "november", "december")
+    if k is None or not (w == w[:3] or w == "sept" or full[k - 1].startswith(w)):
+        return None
+    return k
+
+
+def typed_periods(raw: list[Any]) -> tuple[list[Any], str | None, str]:
+    """History periods with dates typed as text or stored as day numbers made dates.
+
+    Returns the values (a date for each one read as such, the rest unchanged), a note for
+    the user when something was read this way (or could not be: day/month order that
+    nothing in the column settles) and the note's severity ("info" or "warning"). ISO dates
+    (2024-01-31) and real date cells are left as they are. Numbers become dates only when
+    every period is a whole number in :data:`SERIAL_RANGE`, which period numbers (1, 2,
+    3 ...) never are.
+    """
+    values = [v for v in raw if not is_blank(v)]
+    if not values:
+        return raw, None, "info"
+    nums = [v for v in values if isinstance(v, (int, float)) and not isinstance(v, bool)]
+    if len(nums) == len(values) and all(
+            float(v).is_integer() and SERIAL_RANGE[0] <= v <= SERIAL_RANGE[1] for v in nums):
+        out = [_EXCEL_DAY0 + _dt.timedelta(days=int(v)) if not is_blank(v) else v for v in raw]
+        first = min(nums)
+        return out, (f"The periods are plain numbers such as {int(first)}, which is how a "
+                     "spreadsheet stores a date whose cell lost its date format, so they were "
+                     f"read as dates ({int(first)} = "
+                     f"{(_EXCEL_DAY0 + _dt.timedelta(days=int(first))).date().isoformat()}). "
+                     "Format the column as dates to see them as such."), "info"
+    texts = [str(v).strip() for v in values if isinstance(v, str)]
+    if not texts:
+        return raw, None, "info"
+    order = _day_month_order(texts)
+    out, example, ambiguous = [], None, None
+    for v in raw:
+        d = _text_date(v.strip(), order) if isinstance(v, str) else None
+        if d is None and isinstance(v, str) and order is None and _NUMERIC_DATE.match(v.strip()):
+            ambiguous = ambiguous or v.strip()
+        if d is not None and example is None:
+            example = (v.strip(), d)
+        out.append(d if d is not None else v)
+    if ambiguous is not None:
+        return raw, (f"Periods are written like '{ambiguous}', which could be day/month or "
+                     "month/day, and no date in the column settles it (no day above 12), so "
+                     "they were read as labels, not dates. Write them as 2024-04-03 "
+                     "(year-month-day) or make the cells real dates."), "warning"
+    if example is None:
+        return raw, None, "info"
+    shown, d = example
+    return out, (f"Periods typed as text, such as '{shown}', were read as dates "
+                 f"('{shown}' = {d.date().isoformat()})."), "info"
+
+
+def _day_month_order(texts: list[str]) -> str | None:
+    """"dmy" or "mdy" for numeric dates like 03/04/2024, when the column settles it."""
+    day_first = month_first = False
+    for t in texts:
+        m = _NUMERIC_DATE.match(t)
+        if m:
+            a, b = int(m.group(1)), int(m.group(3))
+            day_first |= a > 12
+            month_first |= b > 12
+            if m.group(2) == ".":  # 31.01.2024: the dotted form is day first everywhere
+                day_first = True
+    if day_first and not month_first:
+        return "dmy"
+    if month_first and not day_first:
+        return "mdy"
+    return None
+
+
+def _text_date(t: str, order: str | None) -> _dt.datetime | None:
+    """One text date, or None."""
+    try:
+        m = _NUMERIC_DATE.match(t)
+        if m:
+            if order is None:
+                return None
+            a, b, y = int(m.group(1)), int(m.group(3)), int(m.group(4))
+            return _dt.datetime(y, b, a) if order == "dmy" else _dt.datetime(y, a, b)
+        m = _DAY_MONTH_YEAR.match(t)
+        if m and _month(m.group(2)):
+            return _dt.datetime(int(m.group(3)), _month(m.group(2)), int(m.group(1)))
+        m = _MONTH_DAY_YEAR.match(t)
+        if m and _month(m.group(1)):
+            return _dt.datetime(int(m.group(3)), _month(m.group(1)), int(m.group(2)))
+        m = _MONTH_YEAR.match(t)
+        if m and _month(m.group(1)):
+            return _dt.datetime(int(m.group(2)), _month(m.group(1)), 1)
+    except ValueError:  # 31 February and the like: not a date
+        return None
+    return None

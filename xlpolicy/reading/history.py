@@ -20,7 +20,7 @@ import numpy as np
 
 from ..contract import HISTORY_LONG_COLUMNS, ITEM_COLUMNS, PERIODS, normalise
 from ..problems import ProblemLog
-from .cells import describe, is_blank, item_code, parse_number
+from .cells import describe, is_blank, item_code, parse_number, typed_periods
 from .workbook import RawSheet, cell_ref, find_header
 
 _ISO_DATE = re.compile(r"^\d{4}-\d{2}-\d{2}([ T].*)?$")
@@ -167,6 +167,9 @@ def _period_axis(raw_periods: list[Any], settings: dict[str, Any], sheet: str,
     Returns (index per value, -1 where unusable), the labels of the axis, the period if
     dates, and the positions of unusable values.
     """
+    raw_periods, note, level = typed_periods(raw_periods)
+    if note:
+        getattr(log, level)(note, sheet=sheet, code=f"history-typed-dates-{level}")
     dates = [_as_date(v) for v in raw_periods]
     n_dates = sum(d is not None for d in dates)
     bad: list[int] = []

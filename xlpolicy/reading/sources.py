@@ -29,8 +29,11 @@ from pathlib import Path
 from typing import Any, Protocol
 from xml.etree import ElementTree as ET
 
+from defusedxml.ElementTree import fromstring as _safe_fromstring
+
 from ..contract import normalise
 from ..problems import ProblemLog
+from .guard import current_limits, refusal, too_many_cells
 from .workbook import SHEET_ALIASES, RawSheet, WorkbookFile, cell_ref
 
 CSV_SUFFIXES = (".csv", ".tsv")
@@ -211,6 +214,10 @@ class OdsFile:
                 f"kind of file renamed). {resave}")
             self.log.fatal(msg, value=str(p), code="file-not-ods")
             return False
+        refused = refusal(p, "ods")  # zip bombs, DTDs, truncation: before any parser
+        if refused is not None:
+            self.log.fatal(refused.message, value=str(p), code=refused.code)
+            return False
         try:
             with zipfile.ZipFile(p) as zf:
                 names = set(zf.namelist())
@@ -234,7 +241,7 @@ class OdsFile:
                         f"spreadsheet. {resave}", value=mime, code="file-not-ods")
                     return False
                 content = zf.read("content.xml")
-            root = ET.fromstring(content)
+            root = _safe_fromstring(content)  # no DTD, no entities (defusedxml)
         except (zipfile.BadZipFile, KeyError, ET.ParseError, OSError, ValueError) as exc:
             self.log.fatal(
                 f"{p.name} is not a readable .ods spreadsheet ({type(exc).__name__}: {exc}); "
@@ -262,6 +269,7 @@ class OdsFile:
         """All rows of a sheet, values and number formats, empty rows dropped."""
         sheet = RawSheet(name)
         rownum = 0
+        cells, max_cells = 0, current_limits().max_cells
         for row in _ods_rows(self._tables[name]):
             repeat = _repeat(row, "rows")
             values: list[Any] = []
@@ -288,6 +296,9 @@ class OdsFile:
                 values.extend([value] * n)
                 formats.extend([fmt] * n)
             if values:
+                cells += len(values) * min(repeat, _MAX_ROWS - rownum)
+                if cells > max_cells:
+                    raise too_many_cells(self.path.name, name, max_cells)
                 for k in range(min(repeat, _MAX_ROWS - rownum)):
                     sheet.rows.append(list(values))
                     sheet.formats.append(list(formats))

@@ -23,9 +23,10 @@ import zlib
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
-from xml.etree import ElementTree as ET
 
 import numpy as np
+from defusedxml import DefusedXmlException
+from defusedxml import ElementTree as ET
 from openpyxl import load_workbook
 from openpyxl.styles.numbers import BUILTIN_FORMATS
 from openpyxl.utils import column_index_from_string, get_column_letter
@@ -33,6 +34,7 @@ from openpyxl.utils import column_index_from_string, get_column_letter
 from ..contract import Column, header_forms, normalise
 from ..problems import ProblemLog
 from ..progress import Progress, silent
+from .guard import refusal, unreadable_message
 
 SUPPORTED_SUFFIXES = (".xlsx", ".xlsm")
 
@@ -157,6 +159,10 @@ class WorkbookFile:
             self.log.fatal(f"{p.name} is a folder, not a workbook. Give the path of an .xlsx file.",
                            value=str(p), code="file-is-folder")
             return False
+        refused = refusal(p, "xlsx")  # lock files, fakes, zip bombs, DTDs: before any parser
+        if refused is not None:
+            self.log.fatal(refused.message, value=str(p), code=refused.code)
+            return False
         if p.suffix.lower() not in SUPPORTED_SUFFIXES:
             self.log.fatal(
                 f"{p.name} is not an .xlsx or .xlsm workbook. Save it from your spreadsheet "
@@ -183,12 +189,11 @@ class WorkbookFile:
         try:
             self._wb = load_workbook(p, read_only=True, data_only=True, keep_links=False)
         except Exception as exc:  # openpyxl raises many kinds; none may reach the user raw
-            self.log.fatal(
-                f"{p.name} could not be read as a workbook ({type(exc).__name__}: {exc}). "
-                "Open it in your spreadsheet program and save it again as .xlsx.",
-                value=str(p), code="file-unreadable")
+            message, code = unreadable_message(p.name, exc)
+            self.log.fatal(message, value=str(p), code=code)
             return False
         self.sheet_names = list(self._wb.sheetnames)
+        _ignore_recorded_size(self._wb)
         return True
 
     def close(self) -> None:
@@ -376,48 +381,63 @@ class WorkbookFile:
             sheet.rows.append(values)
             sheet.formats.append(formats)
             sheet.row_numbers.append(rownum if rownum is not None else len(sheet.rows))
-        sheet.uncalculated = self._uncalculated_cells(name) if self._has_formulas(name) else set()
+        sheet.uncalculated = self._uncalculated_cells(name)
         progress(stage, expected or len(sheet.rows), expected)
         return sheet
-
-    def _has_formulas(self, name: str) -> bool:
-        """Whether the sheet's XML holds any formula (a quick search, in chunks)."""
-        part = self._sheet_parts.get(name)
-        if not part:
-            return False
-        try:
-            with zipfile.ZipFile(self.path) as zf, zf.open(part) as fh:
-                tail = b""
-                while chunk := fh.read(1 << 24):
-                    buf = tail + chunk
-                    if b"<f" in buf or b":f" in buf:
-                        return True
-                    tail = buf[-2:]
-        except (KeyError, zipfile.BadZipFile, OSError, zlib.error, EOFError):
-            return False
-        return False
 
     def _uncalculated_cells(self, name: str) -> set[str]:
         """A1 references of formula cells that carry no saved result."""
         part = self._sheet_parts.get(name)
         if not part:
             return set()
-        out: set[str] = set()
-        c_tag, f_tag, v_tag = f"{{{_NS_MAIN}}}c", f"{{{_NS_MAIN}}}f", f"{{{_NS_MAIN}}}v"
         try:
-            with zipfile.ZipFile(self.path) as zf, zf.open(part) as fh:
-                for _event, elem in ET.iterparse(fh, events=("end",)):
-                    if elem.tag == c_tag:
-                        f = elem.find(f_tag)
-                        if f is not None:
-                            v = elem.find(v_tag)
-                            if v is None or not (v.text or "").strip():
-                                out.add(elem.get("r", ""))
-                        elem.clear()
-        except (ET.ParseError, KeyError, zipfile.BadZipFile, OSError, zlib.error, EOFError):
-            pass
-        out.discard("")
-        return out
+            with zipfile.ZipFile(self.path) as zf:
+                if not _has_formula(zf, part):
+                    return set()
+                with zf.open(part) as src:
+                    return _formulas_without_result(src)
+        except (KeyError, zipfile.BadZipFile, OSError, zlib.error, EOFError):
+            return set()
+
+
+def _has_formula(zf: zipfile.ZipFile, part: str, chunk: int = 1 << 20) -> bool:
+    """Whether a sheet part holds a formula element, read 1 MB at a time (bounded memory)."""
+    with zf.open(part) as src:
+        tail = b""
+        while True:
+            data = src.read(chunk)
+            if not data:
+                return False
+            buf = tail + data
+            if b"<f" in buf or b":f" in buf:
+                return True
+            tail = buf[-2:]
+
+
+def _formulas_without_result(src: Any) -> set[str]:
+    """A1 references of formula cells with no saved value, parsed as a stream (defusedxml).
+
+    Each cell, and each row once read, is cleared, so memory stays small however long the
+    sheet.
+    """
+    out: set[str] = set()
+    c_tag, f_tag, v_tag = f"{{{_NS_MAIN}}}c", f"{{{_NS_MAIN}}}f", f"{{{_NS_MAIN}}}v"
+    row_tag = f"{{{_NS_MAIN}}}row"
+    try:
+        for _event, elem in ET.iterparse(src, events=("end",)):
+            if elem.tag == c_tag:
+                f = elem.find(f_tag)
+                if f is not None:
+                    v = elem.find(v_tag)
+                    if v is None or not (v.text or "").strip():
+                        out.add(elem.get("r", ""))
+                elem.clear()
+            elif elem.tag == row_tag:
+                elem.clear()
+    except (ET.ParseError, DefusedXmlException):
+        pass
+    out.discard("")
+    return out
 
 
 _REF = re.compile(rb'\sr="\$?([A-Z]{1,3})\$?(\d+)"')
@@ -475,7 +495,8 @@ def _formats_that_matter(path: Path) -> dict[int, str]:
             if part is None:
                 return {}
             root = ET.fromstring(zf.read(part))
-    except (KeyError, ET.ParseError, zipfile.BadZipFile, OSError):
+    except (KeyError, ET.ParseError, DefusedXmlException, zipfile.BadZipFile, OSError,
+            zlib.error):
         return {}
     custom = {int(f.get("numFmtId", "-1")): f.get("formatCode", "")
               for f in root.iter(f"{{{_NS_MAIN}}}numFmt")}
@@ -520,5 +541,183 @@ def _sheet_parts(path: Path) -> dict[str, str]:
                 if target in names:
                     out[s.get("name")] = target
             return out
-    except (KeyError, ET.ParseError, zipfile.BadZipFile, OSError):
+    except (KeyError, ET.ParseError, DefusedXmlException, zipfile.BadZipFile, OSError,
+            zlib.error, EOFError, ValueError):
         return {}
+
+
+def _hidden_sheets(path: Path) -> set[str]:
+    """Names of the sheets the workbook marks hidden (state="hidden" or "veryHidden")."""
+    try:
+        with zipfile.ZipFile(path) as zf:
+            part = next((n for n in zf.namelist() if n.lower() == "xl/workbook.xml"), None)
+            if part is None:
+                return set()
+            root = ET.fromstring(zf.read(part))
+    except (KeyError, ET.ParseError, DefusedXmlException, zipfile.BadZipFile, OSError,
+            zlib.error, EOFError, ValueError):
+        return set()
+    return {s.get("name", "") for s in root.iter(f"{{{_NS_MAIN}}}sheet")
+            if s.get("state") in ("hidden", "veryHidden")}
+
+
+_ROW_OR_MERGE = re.compile(rb"<(?:[A-Za-z_][\w.-]*:)?(row|mergeCell)\b([^>]*)>")
+_HIDDEN = re.compile(rb"\bhidden\s*=\s*[\"'](?:1|true)[\"']")
+_MERGE_REF = re.compile(rb"\bref\s*=\s*[\"']([A-Z]{1,3})(\d+):([A-Z]{1,3})(\d+)[\"']")
+
+
+def layout_notes(wb: WorkbookFile, name: str, sheet: RawSheet, log: ProblemLog) -> None:
+    """Tell the user about a sheet's hidden parts and merged cells that touch its data.
+
+    Hidden rows are read like the others (a sheet's data is what it holds, not what is on
+    screen), with a warning naming them; a hidden sheet is found and read all the same, with
+    a note. A merged range over several rows of data keeps its value in its first row only,
+    so the rows below read as blank there: a warning names the range. The sheet's XML is
+    scanned once in 1 MB pieces, so this costs little even for a large sheet.
+    """
+    if name in _hidden_sheets(wb.path):
+        log.info(f"The sheet '{name}' is hidden in the workbook; it was read all the same. "
+                 "Unhide it (right-click a sheet tab > Unhide) to see what was read.",
+                 sheet=name, code="sheet-hidden")
+    part = wb._sheet_parts.get(name)
+    if not part or not sheet.row_numbers:
+        return
+    data_rows = set(sheet.row_numbers)
+    hidden: list[int] = []
+    merged: list[str] = []
+    try:
+        with zipfile.ZipFile(wb.path) as zf, zf.open(part) as src:
+            carry = b""
+            while True:
+                data = src.read(1 << 20)
+                buf = carry + data
+                cut = buf.rfind(b">") + 1 if data else len(buf)
+                for m in _ROW_OR_MERGE.finditer(buf, 0, cut):
+                    if m.group(1) == b"row":
+                        if _HIDDEN.search(m.group(2)):
+                            r = _ROW_NUMBER.search(m.group(2))
+                            if r is not None and int(r.group(1)) in data_rows:
+                                hidden.append(int(r.group(1)))
+                    else:
+                        ref = _MERGE_REF.search(m.group(2))
+                        if ref is not None and len(merged) < 1000 and _spans_data(ref, data_rows):
+                            merged.append(ref.group(0).split(b"=", 1)[1].strip(b"\"' "))
+                carry = buf[cut:]
+                if not data or len(carry) > (16 << 20):
+                    break
+    except Exception:  # a scan for notes must never stop a run
+        return
+    if hidden:
+        log.warning(f"The sheet '{name}' has {len(hidden)} hidden row(s) with data "
+                    f"({_ranges(hidden)}); they were read like the others. Unhide them to "
+                    "check them, and delete any row that should not be planned.",
+                    sheet=name, code="rows-hidden")
+    for ref in merged[:20]:
+        text = ref.decode()
+        log.warning(f"The cells {text} of '{name}' are merged: only the first row holds the "
+                    "value, so the rows below read as blank there. Unmerge them and fill the "
+                    "value into each row.", sheet=name, cell=text.split(":")[0],
+                    code="cells-merged")
+
+
+def _spans_data(ref: re.Match, data_rows: set[int]) -> bool:
+    """Whether a merged range covers a row of data below its first row."""
+    r1, r2 = int(ref.group(2)), int(ref.group(4))
+    return any(r in data_rows for r in range(r1 + 1, min(r2, r1 + 5000) + 1))
+
+
+def _ranges(rows: list[int]) -> str:
+    """1, 2, 3, 7 -> '1-3, 7' (at most ten runs shown)."""
+    runs: list[list[int]] = []
+    for r in sorted(set(rows)):
+        if runs and r == runs[-1][1] + 1:
+            runs[-1][1] = r
+        else:
+            runs.append([r, r])
+    text = ", ".join(f"{a}" if a == b else f"{a}-{b}" for a, b in runs[:10])
+    return text + (", ..." if len(runs) > 10 else "")
+
+
+def _ignore_recorded_size(wb: Any) -> None:
+    """Make openpyxl read each sheet's real rows, not the size the file records for it.
+
+    A sheet records its used range ("A1:G200"), and openpyxl's read-only mode trusts it: a
+    range that is too small silently drops the rows beyond it, and one that is too large
+    ("A1:XFD1048576") pads every row to 16,384 cells and fills the gaps with empty rows.
+    Writers that get it wrong exist, so rows are read as they are in the file; the recorded
+    size stays readable (``ws.max_row``) for the progress bar only. Reading also stops after
+    the last row that holds a value or formula (found by a quick scan of the sheet's bytes),
+    so a million formatted empty rows below the data cost neither time nor memory.
+    """
+    for ws in getattr(wb, "worksheets", []):
+        if hasattr(ws, "reset_dimensions") and hasattr(ws, "_cells_by_row"):
+            ws._cells_by_row = _rows_as_present(ws)
+
+
+def _rows_as_present(ws: Any) -> Any:
+    """A replacement for ``ws._cells_by_row`` that ignores the recorded used range."""
+    original = type(ws)._cells_by_row
+
+    def rows(min_col: int, min_row: int, max_col: int | None, max_row: int | None,
+             values_only: bool = False) -> Any:
+        claimed = (ws._max_row, ws._max_column)
+        if max_row == claimed[0]:
+            max_row = None
+        if max_col == claimed[1]:
+            max_col = None
+        if max_row is None:
+            max_row = _last_row_with_content(ws)  # None: unknown, read to the end
+        ws._max_row = ws._max_column = None
+        try:
+            for k, row in enumerate(original(ws, min_col, min_row, max_col, max_row,
+                                             values_only)):
+                if max_row is not None and min_row + k > max_row:
+                    return
+                yield row
+        finally:
+            ws._max_row, ws._max_column = claimed
+
+    return rows
+
+
+_CONTENT_TAGS = re.compile(rb"<(?:[A-Za-z_][\w.-]*:)?(row|v|is|f)\b([^>]*)>")
+_ROW_NUMBER = re.compile(rb"\br\s*=\s*[\"'](\d+)[\"']")
+
+
+def _last_row_with_content(ws: Any, chunk: int = 1 << 20) -> int | None:
+    """The number of the last row holding a value, text or formula; None if it can't be told.
+
+    Streams the sheet's XML once (1 MB at a time, in bounded memory) looking only at tags:
+    the last ``<row r="N">`` seen before a ``<v>``, ``<is>`` or ``<f>``. 0 for a sheet with
+    no content at all.
+    """
+    try:
+        src = ws.parent._archive.open(ws._worksheet_path)
+    except Exception:  # no archive to look at (a different openpyxl): read everything
+        return None
+    last, current = 0, None
+    try:
+        with src:
+            carry = b""
+            while True:
+                data = src.read(chunk)
+                buf = carry + data
+                cut = buf.rfind(b">") + 1 if data else len(buf)
+                for m in _CONTENT_TAGS.finditer(buf, 0, cut):
+                    if m.group(1) == b"row":
+                        r = _ROW_NUMBER.search(m.group(2))
+                        if r is None:
+                            return None  # rows without numbers: count them the slow way
+                        current = int(r.group(1))
+                    elif current is None:
+                        return None
+                    else:
+                        last = current
+                if not data:
+                    break
+                carry = buf[cut:]
+                if len(carry) > 16 * chunk:  # no '>' for megabytes: not a sheet we can scan
+                    return None
+    except Exception:  # damaged data: the parser will say so with a message
+        return None
+    return last

@@ -1066,6 +1066,30 @@ def _zip_info(name: str, like: zipfile.ZipInfo | None) -> zipfile.ZipInfo:
     return info
 
 
+def _copy_user_part(user: _Package, info: zipfile.ZipInfo, zout: zipfile.ZipFile,
+                    target: zipfile.ZipInfo) -> None:
+    """Copy one of the user's parts unchanged; a part that cannot be read is _Unexpected.
+
+    Reading errors (a damaged entry: bad offsets, CRC, deflate data) are told apart from
+    writing errors, which stay OSError (a full disk, a locked output).
+    """
+    damaged = (OSError, zipfile.BadZipFile, zlib.error, EOFError, ValueError,
+               NotImplementedError)
+    try:
+        src = user.zf.open(info)
+    except damaged as exc:
+        raise _Unexpected(f"its part {info.filename} cannot be read ({exc})") from exc
+    with src, zout.open(target, "w") as dst:
+        while True:
+            try:
+                chunk = src.read(_CHUNK)
+            except damaged as exc:
+                raise _Unexpected(f"its part {info.filename} cannot be read ({exc})") from exc
+            if not chunk:
+                break
+            dst.write(chunk)
+
+
 def _write(out: Path, user: _Package, gen: _Package, plan: _Plan) -> int:
     """Write the output package; return how many user parts were copied unchanged."""
     drop, replaced_parts, new_parts = plan.drop, plan.replaced_parts, plan.new_parts
@@ -1082,8 +1106,7 @@ def _write(out: Path, user: _Package, gen: _Package, plan: _Plan) -> int:
                 zout.writestr(target, b"")
                 continue
             target.file_size = info.file_size
-            with user.zf.open(info) as src, zout.open(target, "w") as dst:
-                shutil.copyfileobj(src, dst, _CHUNK)
+            _copy_user_part(user, info, zout, target)
             kept += 1
         for part in new_parts:
             target = _zip_info(part.name, None)

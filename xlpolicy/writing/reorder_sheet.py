@@ -137,7 +137,8 @@ def _groups(ctx: Context, ws: Worksheet, df: pd.DataFrame, cols: Sequence[Col], 
                                                            len(ctx.currency)) + 2)
             row += 1
         letter = xl_col_to_name(value_col)
-        ws.write_string(row, value_col - 1, f"Total for {supplier}"[:MAX_CELL_TEXT],
+        ws.write_string(row, value_col - 1,
+                        f"Total for {clean_text(supplier) or ''}"[:MAX_CELL_TEXT],
                         ctx.styles.get(bold=True, align="right"))
         ctx.w.formula(ws, row, value_col, f"=SUM({letter}{first + 1}:{letter}{row})", sub,
                       bold=True, num_format=ctx.money, top=1, top_color=RULE)

@@ -101,6 +101,50 @@ def resolve_sheet_names(sheet_names: Mapping[str, str] | None) -> dict[str, str]
     return out
 
 
+#: Rows in one sheet (Excel's and LibreOffice's limit since 2007 / 7.x).
+MAX_SHEET_ROWS = 1_048_576
+
+
+class OutputTooLarge(ValueError):
+    """The results would not fit in a sheet; nothing is written."""
+
+
+def rows_needed(report: Report) -> dict[str, int]:
+    """An upper bound on the rows each list-like generated sheet takes, by role.
+
+    Policy: a header and one row per item; Reorder now: a title block, one row per item to
+    order, a subtotal and a blank line per supplier, the total and the lines to sign; Today
+    vs plan: a title block, one row per item compared and the totals. The Warnings sheet is
+    cut rather than refused (see warnings_sheet), so it is not counted here.
+    """
+    n = len(report.results) if report.results is not None else 0
+    reorder = report.reorder if report.reorder is not None else None
+    n_reorder = len(reorder) if reorder is not None else 0
+    suppliers = (reorder["supplier"].nunique(dropna=False)
+                 if reorder is not None and "supplier" in getattr(reorder, "columns", ())
+                 else n_reorder)
+    return {"policy": 1 + n, "reorder": 5 + n_reorder + 3 * suppliers + 10,
+            "compare": 5 + n + 5}
+
+
+def check_fits(report: Report) -> None:
+    """Raise :class:`OutputTooLarge` when a generated sheet would pass the row limit.
+
+    xlsxwriter silently drops rows past the limit, so this is checked before writing.
+    """
+    needed = rows_needed(report)
+    over = {k: v for k, v in needed.items() if v > MAX_SHEET_ROWS}
+    if over:
+        role, rows = max(over.items(), key=lambda kv: kv[1])
+        n = len(report.results) if report.results is not None else 0
+        raise OutputTooLarge(
+            f"The results for {n:,} items would take {rows:,} rows in the "
+            f"'{DEFAULT_SHEET_NAMES[role]}' sheet, more than the {MAX_SHEET_ROWS:,} a sheet "
+            "can hold, so no workbook was written. Split the items into several workbooks "
+            "(by supplier or category, say) and plan each, or write the table with --csv or "
+            "--json alone.")
+
+
 def write_generated_workbook(
     path: Path, report: Report, sheet_names: Mapping[str, str] | None = None, *,
     link_to_input: bool = True,
@@ -116,6 +160,7 @@ def write_generated_workbook(
     """
     names = resolve_sheet_names(sheet_names)
     path = Path(path)
+    check_fits(report)
     with atomic_output(path) as tmp:
         wb = xlsxwriter.Workbook(str(tmp), WORKBOOK_OPTIONS)
         try:

@@ -10,6 +10,7 @@ from __future__ import annotations
 import datetime as _dt
 import json
 import math
+import re
 from enum import Enum
 from pathlib import Path
 from typing import Any
@@ -50,13 +51,38 @@ def results_for_export(report: Report) -> pd.DataFrame:
     return out
 
 
+_FORMULA_LEAD = ("=", "+", "-", "@", "\t", "\r")
+_PLAIN_NUMBER = re.compile(r"^[+-]?(\d+(\.\d*)?|\.\d+)([eE][+-]?\d+)?$")
+_CONTROL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]")
+
+
+def csv_safe(value: Any) -> Any:
+    """Text from the user as a CSV field that a spreadsheet program will not run.
+
+    A field starting with = + - @, a tab or a carriage return is taken as a formula when
+    the CSV file is opened in a spreadsheet program; such text gets a leading apostrophe
+    (the usual defence), unless it is a plain number such as -12. Control characters other
+    than tab and line breaks are removed. Anything that is not text is left as it is.
+    """
+    if not isinstance(value, str):
+        return value
+    value = _CONTROL.sub("", value)
+    if value.startswith(_FORMULA_LEAD) and not _PLAIN_NUMBER.match(value):
+        return "'" + value
+    return value
+
+
 def write_csv(path: Path, report: Report) -> None:
     """Write the per-item table as UTF-8 CSV.
 
     Header = the keys; empty field for a missing value; floats at full (repr) precision so
-    a reader gets back exactly the computed number.
+    a reader gets back exactly the computed number; text that a spreadsheet program would
+    run as a formula is made inert (:func:`csv_safe`).
     """
     table = results_for_export(report)
+    for col in table.columns:
+        if table[col].dtype == object or pd.api.types.is_string_dtype(table[col]):
+            table[col] = table[col].map(csv_safe)
     with atomic_output(Path(path)) as tmp:
         table.to_csv(tmp, index=False, encoding="utf-8", na_rep="", lineterminator="\n")
 

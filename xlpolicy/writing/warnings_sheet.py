@@ -11,7 +11,7 @@ import re
 
 from xlsxwriter.worksheet import Worksheet
 
-from ..problems import Problem
+from ..problems import Problem, Severity
 from .sheetkit import (
     SEVERITY_FILL,
     SEVERITY_WORDS,
@@ -23,6 +23,7 @@ from .sheetkit import (
 
 TITLES = ("Severity", "Sheet", "Cell", "Item", "Value found", "Message")
 _A1 = re.compile(r"^\$?([A-Z]{1,3})\$?([1-9][0-9]{0,6})$")
+MAX_PROBLEM_ROWS = 1_048_575  # a sheet's rows less the header
 _MAX_LINKS = 65000  # Excel keeps at most 65,530 links per sheet
 
 
@@ -45,6 +46,13 @@ def write_warnings(ctx: Context, ws: Worksheet) -> None:
     """One row per problem, most severe first (stable within a severity)."""
     problems: list[Problem] = sorted(ctx.report.problems or [],
                                      key=lambda p: severity(p).rank)
+    cut = len(problems) - MAX_PROBLEM_ROWS
+    if cut > 0:  # a sheet holds 1,048,576 rows: keep the most severe, say how many are left
+        problems = problems[:MAX_PROBLEM_ROWS - 1] + [Problem(
+            Severity.INFO, "", "", "", None,
+            f"... and {cut + 1:,} more problems, not listed: a sheet cannot hold them all. "
+            "Run 'xlpolicy check' or 'xlpolicy plan --json FILE' to see every one.",
+            "warnings-cut")]
     if not problems:
         ws.write_string(0, 0, "No problems found.", ctx.styles.get(bold=True))
         ws.set_column(0, 0, 24)
