@@ -32,6 +32,7 @@ from hypothesis import strategies as st
 from openpyxl import Workbook
 
 sys.path.insert(0, str(Path(__file__).resolve().parent / "data"))
+sys.path.insert(1, str(Path(__file__).resolve().parent.parent))  # run as a script, too
 import make_bad  # noqa: E402
 
 import xlpolicy  # noqa: E402
