@@ -70,3 +70,24 @@ def test_missing_or_bad_policy_gives_nan():
                           ["", "normal", "poisson"], [100] * 3, [5] * 3, [1] * 3, [4] * 3,
                           [np.nan] * 3)
     assert out["annual_total_cost"].isna().all()
+
+
+def test_rounding_penalty_is_the_cost_of_whole_packs_over_the_eoq():
+    # At the EOQ the ordering + cycle holding cost is sqrt(2 D S H) (Harris 1913 / Wilson
+    # 1934; common practice); the penalty of ordering Q instead is D S/Q + H Q/2 minus that.
+    n = 3
+    one = np.ones(n)
+    D, S, c, i = 5200.0, 30.0, 4.0, 0.25
+    pol = compute_policy(PolicyInputs(
+        annual_demand=D * one, demand_per_period=100 * one, demand_sd_per_period=20 * one,
+        lead_time_days=14 * one, lead_time_sd_days=0 * one, unit_cost=c * one,
+        order_cost=S * one, holding_rate=i * one,
+        measure=np.full(n, "cycle service", dtype=object), service_target=0.95 * one,
+        shortage_cost=np.full(n, np.nan), pack_size=np.array([1.0, 48.0, 500.0]),
+        minimum_order=0 * one, days_per_period=7.0))
+    H = i * c
+    best = math.sqrt(2 * D * S * H)
+    expected = D * S / pol["order_qty"] + H * pol["order_qty"] / 2 - best
+    np.testing.assert_allclose(pol["rounding_penalty"], expected, rtol=1e-9, atol=1e-9)
+    assert pol["rounding_penalty"].iloc[0] < 0.01     # whole units: next to nothing
+    assert pol["rounding_penalty"].iloc[2] > pol["rounding_penalty"].iloc[1] > 0

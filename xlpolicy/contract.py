@@ -248,7 +248,7 @@ EXTRA_RESULT_KEYS: tuple[str, ...] = (
     "current_cycle_service", "current_fill_rate", "current_units_short_per_cycle",
     "current_annual_ordering_cost", "current_annual_cycle_holding_cost",
     "current_annual_safety_holding_cost", "current_annual_shortage_cost",
-    "current_annual_total_cost", "annual_saving",
+    "current_annual_total_cost", "annual_saving", "rounding_cost_ratio", "rounding_penalty",
 )
 
 #: How the template marks its example rows (the description starts with it), so a run can

@@ -467,6 +467,7 @@ def _totals(results: pd.DataFrame, reorder: pd.DataFrame) -> dict[str, float]:
         "safety_stock_value": ss_value,
         "inventory_turns": purchase / avg_value if avg_value > 0 else float("nan"),
         "orders_per_year": s("orders_per_year"),
+        "rounding_penalty": s("rounding_penalty"),
         "items_to_reorder": float(len(reorder)),
         "reorder_value": float(np.nansum(reorder["order_now_value"].to_numpy(float))),
         "items_compared": float(compared.sum()),

@@ -53,5 +53,5 @@ TOTAL_KEYS: tuple[str, ...] = (
     "annual_safety_holding_cost", "annual_shortage_cost", "annual_total_cost",
     "average_inventory_value", "safety_stock_value", "inventory_turns", "orders_per_year",
     "items_to_reorder", "reorder_value", "items_compared", "current_annual_total_cost",
-    "compared_recommended_annual_total_cost", "annual_saving",
+    "compared_recommended_annual_total_cost", "annual_saving", "rounding_penalty",
 )

@@ -73,7 +73,7 @@ POLICY_COLUMNS: tuple[str, ...] = (
     "fill_rate", "expected_units_short_per_cycle", "orders_per_year", "annual_ordering_cost",
     "annual_cycle_holding_cost", "annual_safety_holding_cost", "annual_shortage_cost",
     "annual_total_cost", "annual_purchase_cost", "average_inventory_value",
-    "rounding_cost_ratio", "flag_no_safety_stock_pays", "flag_normal_doubtful",
+    "rounding_cost_ratio", "rounding_penalty", "flag_no_safety_stock_pays", "flag_normal_doubtful",
     "flag_reorder_point_floored", "flag_shortage_cost_missing",
 )
 
@@ -608,6 +608,11 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
         orders, ordering, cycle_hold = ach["orders"], ach["ordering"], ach["cycle_hold"]
         ss_hold, shortage, total = ach["ss_hold"], ach["shortage"], ach["total"]
         purchase, avg_value = ach["purchase"], ach["avg_value"]
+        # What whole packs and minimum orders cost a year over the continuous optimum, on
+        # the curve D S'/Q + H Q/2 (S' = S, plus the expected shortage cost per order for
+        # the shortage-cost measure): the price of ordering in what the supplier sells.
+        rounding_penalty = (order_cost_terms(Q, Dw, s_eff, Hw)
+                            - order_cost_terms(q_cont, Dw, s_eff, Hw))
         rounding_ratio = np.where(
             s_eff > 0,
             order_cost_terms(Q, Dw, s_eff, Hw) / order_cost_terms(q_cont, Dw, s_eff, Hw),
@@ -651,6 +656,7 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
             "annual_purchase_cost": out(purchase),
             "average_inventory_value": out(avg_value),
             "rounding_cost_ratio": out(rounding_ratio),
+            "rounding_penalty": out(np.maximum(rounding_penalty, 0.0)),
             "flag_no_safety_stock_pays": ok & no_ss,
             "flag_normal_doubtful": doubtful,
             "flag_reorder_point_floored": floored,

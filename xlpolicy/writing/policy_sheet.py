@@ -71,6 +71,7 @@ POLICY_COLUMNS: tuple[Col, ...] = (
     Col("eoq", "EOQ before rounding (units)", "demand"),
     Col("pack_size", "Pack size (units)", "units"),
     Col("minimum_order", "Minimum order (units)", "units"),
+    Col("rounding_penalty", "Yearly cost of rounding to packs and minimums", "money"),
     # where the demand figures come from
     Col("demand_per_period", "Demand per period (units)", "demand"),
     Col("demand_sd_per_period", "Demand sd per period (units)", "demand"),

@@ -60,6 +60,7 @@ TOTAL_LABELS: tuple[tuple[str, str, str], ...] = (
     ("safety_stock_value", "Safety stock value", "money"),
     ("inventory_turns", "Inventory turns (per year)", "decimal1"),
     ("orders_per_year", "Orders per year, all items", "decimal1"),
+    ("rounding_penalty", "Yearly cost of ordering in whole packs and minimums", "money"),
     ("items_to_reorder", "Items to reorder now", "count"),
     ("reorder_value", "Value to reorder now", "money"),
     ("items_compared", "Items compared with today's policy", "count"),
@@ -79,6 +80,7 @@ SUM_TOTALS = {
     "annual_purchase_cost": "annual_purchase_cost",
     "average_inventory_value": "average_inventory_value",
     "orders_per_year": "orders_per_year",
+    "rounding_penalty": "rounding_penalty",
 }
 
 #: Breakdown table columns: (title, kind, result keys summed).
