@@ -245,19 +245,31 @@ def _not_a_package(p: Path, head: bytes, kind: str) -> str:
     if found == "biff":
         return (f"{name} is a very old Excel file (Excel 4 or earlier) with an {ext} name, which "
                 f"xlpolicy has no reader for. {resave}")
-    if found == "html":
-        return (f"{name} is a web page (HTML) with an {ext} name, not a real workbook; some "
-                f"programs and websites export tables this way. {resave}")
-    if found == "xml":
-        return (f"{name} is an XML file with an {ext} name (perhaps an 'XML Spreadsheet "
-                f"2003'), not a real workbook. {resave}")
-    if found == "text":
-        return (f"{name} is a text (CSV) file with an {ext} name, not a real workbook. {resave} "
-                "Or name it Items.csv, put it in a folder of its own with History.csv, and "
-                "give xlpolicy the folder.")
+    foreign = foreign_file_message(name, f"an {ext}", found, resave)
+    if foreign is not None:
+        return foreign
     return (f"{name} is not a readable {ext} workbook: it is neither a workbook nor a kind of "
             "file xlpolicy recognises (it may be damaged, or another kind of file renamed). "
             f"{resave}")
+
+
+def foreign_file_message(name: str, kind: str, found: str, resave: str) -> str | None:
+    """The message for a web page, XML or text file saved under a spreadsheet's name.
+
+    ``kind`` is the extension as said ("an .xlsx", "an .ods", "an .xls"); None when
+    ``found`` is none of those three. Shared by every reader, so they speak alike.
+    """
+    if found == "html":
+        return (f"{name} is a web page (HTML) with {kind} name, not a real spreadsheet file; "
+                f"some programs and websites export tables this way. {resave}")
+    if found == "xml":
+        return (f"{name} is an XML file with {kind} name (perhaps an 'XML Spreadsheet 2003'), "
+                f"not a real spreadsheet file. {resave}")
+    if found == "text":
+        return (f"{name} is a text (CSV) file with {kind} name, not a real spreadsheet file. "
+                f"{resave} Or name it Items.csv, put it in a folder of its own with "
+                "History.csv, and give xlpolicy the folder.")
+    return None
 
 
 def _ole2_kind(p: Path, max_scan: int = 64 * _MB) -> str:

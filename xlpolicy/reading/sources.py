@@ -33,7 +33,7 @@ from defusedxml.ElementTree import fromstring as _safe_fromstring
 
 from ..contract import normalise
 from ..problems import ProblemLog
-from .guard import current_limits, refusal, too_many_cells
+from .guard import current_limits, foreign_file_message, refusal, too_many_cells
 from .workbook import SHEET_ALIASES, RawSheet, WorkbookFile, cell_ref
 
 CSV_SUFFIXES = (".csv", ".tsv")
@@ -139,16 +139,9 @@ def sniff(head: bytes) -> str:
 def _renamed_message(name: str, kind: str, found: str) -> str | None:
     """A plain message for a file whose contents are not what its extension says."""
     resave = "Open it in your spreadsheet program and save it as 'Excel Workbook (.xlsx)'."
-    if found == "html":
-        return (f"{name} is a web page (HTML) with {kind} name, not a real spreadsheet file; "
-                f"some programs export tables this way. {resave}")
-    if found == "xml":
-        return (f"{name} is an XML file with {kind} name (perhaps an 'XML Spreadsheet 2003'), "
-                f"not a real {kind} file. {resave}")
-    if found == "text":
-        return (f"{name} is a text (CSV) file with {kind} name, not a real spreadsheet file. "
-                f"{resave} Or name it Items.csv, put it in a folder of its own with "
-                "History.csv, and give xlpolicy the folder.")
+    foreign = foreign_file_message(name, kind, found, resave)
+    if foreign is not None:
+        return foreign
     if found == "zip":
         return (f"{name} is really an .xlsx workbook saved with {kind} name. Rename it to end "
                 "in .xlsx and run again.")
