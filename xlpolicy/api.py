@@ -27,6 +27,7 @@ from .reading.settings import parse_measure
 from .reading.sources import KIND_NAMES, source_kind
 from .report import Report
 from .writing.atomic import atomic_output
+from .writing.bulk import CellBlock
 from .writing.package import CannotMerge, merge_generated_sheets, user_sheet_names
 from .writing.sheets import DEFAULT_SHEET_NAMES, OutputTooLarge, write_generated_workbook
 from .writing.tables import write_csv, write_json
@@ -234,9 +235,10 @@ def write_policy_workbook(src: Path, out: Path, report: Report) -> tuple[Path, b
         gen = Path(tmp) / "generated.xlsx"
         if standalone_reason is None:
             names = _sheet_names(taken)
-            sheets = write_generated_workbook(gen, report, names)
+            blocks: dict[int, CellBlock] = {}
+            sheets = write_generated_workbook(gen, report, names, deferred=blocks)
             try:
-                merge_generated_sheets(src, gen, out)
+                merge_generated_sheets(src, gen, out, blocks)
                 return out, False, sheets
             except CannotMerge as exc:
                 standalone_reason = str(exc)

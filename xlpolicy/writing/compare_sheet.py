@@ -11,10 +11,11 @@ their difference. A one-line headline on top says what the change is worth.
 from __future__ import annotations
 
 import numpy as np
-from xlsxwriter.utility import xl_col_to_name, xl_rowcol_to_cell
+from xlsxwriter.utility import xl_col_to_name
 from xlsxwriter.worksheet import Worksheet
 
 from .. import contract
+from .bulk import ROW, CellBlock
 from .sheetkit import (
     GOOD,
     INK,
@@ -27,6 +28,7 @@ from .sheetkit import (
     column,
     display_len,
     header_width,
+    longest_line,
     money_text,
     percent_text,
     texts,
@@ -133,46 +135,37 @@ def write_compare(ctx: Context, ws: Worksheet) -> None:
         "recommended policy's."), {"x_scale": 1.8, "y_scale": 0.9})
 
     widths = [max(header_width(c.title), 8) for c in cols]
-    rebuilt = current_cost(ctx)
-    reported_cur = column(df, "current_annual_total_cost")
-    rec = column(df, "annual_total_cost")
-    saving = column(df, "annual_saving")
     line = {"bottom": 1, "bottom_color": LIGHT_RULE}
     first = HEADER_ROW + 1
-    sums = {"cur": 0.0, "rec": 0.0, "sav": 0.0}
-    # Each column once as a whole (a row-by-row lookup in the frame costs a copy per cell).
-    text_of = {col.key: texts(df, col.key) for col in cols if col.kind in ("text", "code")}
-    num_of = {col.key: column(df, col.key) for col in cols
-              if col.kind not in ("text", "code")}
-    col_props = {col.key: {**ctx.num_props(col.kind), **line} for col in cols
-                 if col.kind not in ("text", "code")}
-    col_fmt = {key: ctx.styles.get(**props) for key, props in col_props.items()}
-    for k, i in enumerate(rows):
-        row = first + k
-        for c, col in enumerate(cols):
-            if col.kind in ("text", "code"):
-                value = text_of[col.key][i]
-                n = ctx.w.text(ws, row, c, value, num_format="@", **line)
-                widths[c] = max(widths[c], min(n, 40) + 2)
-                continue
-            props = col_props[col.key]
-            value = num_of[col.key][i]
-            if col.key == "current_annual_total_cost":
-                _current_cell(ctx, ws, row, where, float(reported_cur[i]), float(rebuilt[i]),
-                              props)
-            elif col.key == "annual_total_cost":
-                _recommended_cell(ctx, ws, row, c, int(i), float(rec[i]), props)
-            elif col.key == "annual_saving":
-                _saving_cell(ctx, ws, row, where, float(reported_cur[i]), float(rec[i]),
-                             float(saving[i]), props)
-            elif np.isfinite(value):  # what ctx.w.number does, with the column's format
-                ws.write_number(row, c, float(value), col_fmt[col.key])
-            else:
-                ws.write_blank(row, c, None, col_fmt[col.key])
-            widths[c] = max(widths[c], display_len([value], col.kind, len(ctx.currency)) + 2)
-        for key, arr in (("cur", reported_cur), ("rec", rec), ("sav", saving)):
-            if np.isfinite(arr[i]):
-                sums[key] += float(arr[i])
+    # The rows go into one block, a column at a time (see bulk.py).
+    block = CellBlock(first, len(rows))
+    for c, col in enumerate(cols):
+        if col.kind in ("text", "code"):
+            props = {"num_format": "@", **line}
+            every = texts(df, col.key)
+            data = [every[i] for i in rows]
+            block.texts(c, data, ctx.styles.get(**props),
+                        ctx.styles.get(**props, quote_prefix=True))
+            widths[c] = max(widths[c], min(longest_line(data), 40) + 2)
+            continue
+        fmt = ctx.styles.get(**ctx.num_props(col.kind), **line)
+        values = column(df, col.key)[rows]
+        if col.key == "current_annual_total_cost":
+            values, live, formula = _current_cells(ctx, rows, where)
+        elif col.key == "annual_total_cost":
+            live, formula = _recommended_cells(ctx, rows, values)
+        elif col.key == "annual_saving":
+            values, live, formula = _saving_cells(ctx, rows, where)
+        else:
+            block.numbers(c, values, fmt)
+            live = None
+        if live is not None:
+            block.formulas(c, formula, live, values, fmt, otherwise=values)
+        widths[c] = max(widths[c], display_len(values, col.kind, len(ctx.currency)) + 2)
+    ws.add_block(block)
+    sums = {key: float(np.nansum(column(df, k)[rows])) for key, k in (
+        ("cur", "current_annual_total_cost"), ("rec", "annual_total_cost"),
+        ("sav", "annual_saving"))}
     last = first + len(rows) - 1
     total_row = last + 1
     _total_row(ctx, ws, total_row, first, last, where, sums, rows)
@@ -193,40 +186,46 @@ def _item_title(key: str, default: str) -> str:
     return col.title if col is not None else default
 
 
-def _current_cell(ctx: Context, ws: Worksheet, row: int, where: dict[str, int],
-                  reported: float, rebuilt: float, props: dict) -> None:
-    c = where["current_annual_total_cost"]
-    if np.isfinite(reported) and np.isfinite(rebuilt) and abs(rebuilt - reported) <= max(
-            _REL * abs(reported), _ABS):
-        refs = {s: xl_rowcol_to_cell(row, where[k]) for s, k in _SYMBOLS.items()}
-        ctx.w.formula(ws, row, c, "=" + CURRENT_COST.format(**refs), reported, **props)
-    else:
-        ctx.w.number(ws, row, c, reported, **props)
+def _current_cells(ctx: Context, rows: np.ndarray, where: dict[str, int]
+                   ) -> tuple[np.ndarray, np.ndarray, str]:
+    """Today's annual cost: a formula over this row where it rebuilds the report's number."""
+    reported = column(ctx.results, "current_annual_total_cost")[rows]
+    rebuilt = current_cost(ctx)[rows]
+    with np.errstate(invalid="ignore"):
+        live = (np.isfinite(reported) & np.isfinite(rebuilt)
+                & (np.abs(rebuilt - reported) <= np.maximum(_REL * np.abs(reported), _ABS)))
+    refs = {s: xl_col_to_name(where[k]) + ROW for s, k in _SYMBOLS.items()}
+    return reported, live, "=" + CURRENT_COST.format(**refs)
 
 
-def _recommended_cell(ctx: Context, ws: Worksheet, row: int, c: int, i: int, value: float,
-                      props: dict) -> None:
+def _recommended_cells(ctx: Context, rows: np.ndarray, values: np.ndarray
+                       ) -> tuple[np.ndarray, list[str]]:
+    """The recommended cost: a reference to the item's total on the Policy sheet."""
     pc = ctx.policy_cols.get("annual_total_cost")
-    pr = ctx.policy_row_of.get(i)
-    if np.isfinite(value) and pc is not None and pr is not None:
-        ctx.w.formula(ws, row, c, "=" + abs_cell(ctx.names["policy"], pr, pc), value, **props)
-    else:
-        ctx.w.number(ws, row, c, value, **props)
+    prs = [ctx.policy_row_of.get(int(i)) for i in rows]
+    live = np.isfinite(values) & np.array([pr is not None for pr in prs], dtype=bool)
+    if pc is None:
+        return np.zeros(len(rows), dtype=bool), [""] * len(rows)
+    head = abs_cell(ctx.names["policy"], 0, pc)[:-1]  # ...!$X$ without the row number
+    return live, [f"={head}{pr + 1}" if pr is not None else "" for pr in prs]
 
 
-def _saving_cell(ctx: Context, ws: Worksheet, row: int, where: dict[str, int], cur: float,
-                 rec: float, saving: float, props: dict) -> None:
-    c = where["annual_saving"]
+def _saving_cells(ctx: Context, rows: np.ndarray, where: dict[str, int]
+                  ) -> tuple[np.ndarray, np.ndarray, str]:
+    """The saving: today's cost less the recommended one, as a formula where it agrees."""
+    df = ctx.results
+    cur = column(df, "current_annual_total_cost")[rows]
+    rec = column(df, "annual_total_cost")[rows]
+    saving = column(df, "annual_saving")[rows]
     diff = cur - rec
-    if not np.isfinite(saving) and np.isfinite(diff):
-        saving = diff  # the report has no saving yet: it is today's cost less the plan's
-    if np.isfinite(saving) and np.isfinite(diff) and abs(diff - saving) <= max(
-            _REL * max(abs(cur), abs(rec)), _ABS):
-        a = xl_rowcol_to_cell(row, where["current_annual_total_cost"])
-        b = xl_rowcol_to_cell(row, where["annual_total_cost"])
-        ctx.w.formula(ws, row, c, f"={a}-{b}", saving, **props)
-    else:
-        ctx.w.number(ws, row, c, saving, **props)
+    # The report has no saving yet: it is today's cost less the plan's.
+    saving = np.where(~np.isfinite(saving) & np.isfinite(diff), diff, saving)
+    with np.errstate(invalid="ignore"):
+        live = (np.isfinite(saving) & np.isfinite(diff) & (np.abs(diff - saving) <= np.maximum(
+            _REL * np.maximum(np.abs(cur), np.abs(rec)), _ABS)))
+    a = xl_col_to_name(where["current_annual_total_cost"]) + ROW
+    b = xl_col_to_name(where["annual_total_cost"]) + ROW
+    return saving, live, f"={a}-{b}"
 
 
 def _total_row(ctx: Context, ws: Worksheet, row: int, first: int, last: int,

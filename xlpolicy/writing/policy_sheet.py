@@ -16,10 +16,11 @@ from collections.abc import Callable
 
 import numpy as np
 import pandas as pd
-from xlsxwriter.utility import xl_col_to_name, xl_rowcol_to_cell
+from xlsxwriter.utility import xl_col_to_name
 from xlsxwriter.worksheet import Worksheet
 
 from .. import contract
+from .bulk import ROW, CellBlock
 from .sheetkit import (
     LIGHT_RULE,
     MUTED,
@@ -29,9 +30,9 @@ from .sheetkit import (
     Context,
     column,
     display_len,
-    finite,
     header_width,
-    write_formula,
+    longest_line,
+    texts,
 )
 
 FORMULA_HEADER_FILL = "#DDEBE3"
@@ -250,44 +251,40 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
 
     cur_len = len(ctx.currency)
     line = {"bottom": 1, "bottom_color": LIGHT_RULE}
+    # The cells go into one block, a column at a time (see bulk.py: xlsxwriter's per-cell
+    # objects cost most of a run's time and memory at 100,000 items).
+    block = CellBlock(1, n) if n else None
     for c, col in enumerate(cols):
-        values = df[col.key] if col.key in df.columns else pd.Series([None] * n, dtype=object)
-        data = values.tolist()
         if col.kind in ("text", "code"):
             props = {"num_format": "@", **line}
-            longest = 0
-            for r, v in enumerate(data, start=1):
-                longest = max(longest, ctx.w.text(ws, r, c, v, **props))
+            data = texts(df, col.key)
+            if block is not None:
+                block.texts(c, data, ctx.styles.get(**props),
+                            ctx.styles.get(**props, quote_prefix=True))
             cap = 45 if col.key in ("description", "model_reason") else 30
-            width = min(max(header_width(col.title), longest + 2, 8), cap)
+            width = min(max(header_width(col.title), longest_line(data) + 2, 8), cap)
         else:
             props = {**ctx.num_props(col.kind), **line}
             fmt = ctx.styles.get(**props)
             live = plan.get(col.key)
-            reported = column(df, col.key)
-            # The column's formula with its letters in place, once: each row only adds its
-            # row number (what _refs gives for that row, without 13 lookups a cell).
-            pattern = ("=" + FORMULAS[col.key][0].format(**_refs(ctx, None))
-                       if live is not None and live[0].any() else "")
-            for r, v in enumerate(data, start=1):
-                k = r - 1
-                if live is not None and live[0][k]:
-                    write_formula(ws, r, c, pattern.replace(_ROW, str(r + 1)), fmt,
-                                  float(reported[k]))
-                else:
-                    if live is not None and np.isfinite(reported[k]):
-                        ctx.policy_fallbacks.append((col.key, r))
-                    if isinstance(v, str):
-                        ctx.w.text(ws, r, c, v, **props)
-                        continue
-                    f = finite(v)
-                    if f is None:
-                        ws.write_blank(r, c, None, fmt)
-                    else:
-                        ws.write_number(r, c, f, fmt)
+            values = df[col.key] if col.key in df.columns else pd.Series(np.nan, index=df.index)
+            if live is not None:  # rows where the formula could not be rebuilt
+                reported = column(df, col.key)
+                ctx.policy_fallbacks.extend(
+                    (col.key, int(r) + 1) for r in np.flatnonzero(~live[0] & np.isfinite(
+                        reported)))
+            if block is not None and live is not None and live[0].any():
+                # The column's formula with its letters in place, once; each row only adds
+                # its row number.
+                pattern = "=" + FORMULAS[col.key][0].format(**_refs(ctx))
+                block.formulas(c, pattern, live[0], reported, fmt, otherwise=reported)
+            elif block is not None:
+                block.numbers(c, values.tolist() if values.dtype == object else values, fmt)
             data_len = display_len(values, col.kind, cur_len)
             width = min(max(header_width(col.title), data_len + 2, 8), 20)
         ws.set_column(c, c, width)
+    if block is not None:
+        ws.add_block(block)
 
     last_col = len(cols) - 1
     ws.freeze_panes(1, 1)
@@ -315,20 +312,10 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
     ws.repeat_columns(0)
 
 
-_ROW = "\x00"  # stands for the row number in a column's formula pattern
-
-
-def _refs(ctx: Context, row: int | None) -> dict[str, str]:
-    """The cell of each symbol's column on this row (relative, e.g. 'G5').
-
-    ``row`` None gives each column's letters followed by a marker for the row number.
-    """
-    out = {}
-    for sym, key in SYMBOLS.items():
-        c = ctx.policy_cols.get(key)
-        if c is not None:
-            out[sym] = xl_col_to_name(c) + _ROW if row is None else xl_rowcol_to_cell(row, c)
-    return out
+def _refs(ctx: Context) -> dict[str, str]:
+    """Each symbol's column letters followed by the row marker (a relative reference)."""
+    return {sym: xl_col_to_name(c) + ROW for sym, key in SYMBOLS.items()
+            if (c := ctx.policy_cols.get(key)) is not None}
 
 
 def _header_note(key: str) -> str:

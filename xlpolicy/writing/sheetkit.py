@@ -145,6 +145,12 @@ def texts(df: pd.DataFrame, key: str) -> list[str]:
     return [(clean_text(v) or "") for v in df[key].tolist()]
 
 
+def longest_line(values: list[str]) -> int:
+    """The length of the longest line among cleaned texts, for a column's width."""
+    return max((max(map(len, t.split("\n"))) if "\n" in t else len(t) for t in values if t),
+               default=0)
+
+
 def same(a: float | None, b: float | None, rel: float = 1e-9, abs_tol: float = 1e-9) -> bool:
     """Whether a formula's value matches the computed one (to rounding noise)."""
     if a is None or b is None:

@@ -1,0 +1,285 @@
+"""Big tables written straight to a sheet's XML, a column at a time, in row chunks.
+
+xlsxwriter stores every cell as a Python object and writes each through a chain of calls
+when the workbook is closed: for the Policy sheet of 100,000 items (some six million cells)
+that is most of a run's time and memory. A :class:`CellBlock` holds a table's columns as
+arrays instead (numbers, text, one formula pattern per column with its cached values) and
+renders them as ``<row>`` elements when the sheet's XML is written, a few thousand rows at a
+time, so memory stays flat. :class:`BlockSheet` is an xlsxwriter worksheet that writes its
+blocks in place among its ordinary rows, with everything else (column widths, filters,
+conditional formats, notes, print setup) left to xlsxwriter.
+
+A block's cells are what xlsxwriter would write for the same calls (``write_number``,
+``write_blank``, ``write_string``, ``write_formula`` with a cached value), except that text
+is written as an inline string, as xlsxwriter itself does in its constant-memory mode and
+as the splice into the user's workbook needs anyway (it never touches their shared strings).
+
+Deferred blocks: when the sheets are spliced into a copy of the user's workbook, a block is
+not rendered into the intermediate workbook at all; a marker stands in its place and the
+splice renders the block with the final style numbers (:func:`block_marker`), which saves
+writing, compressing, reading and re-numbering the biggest part twice.
+"""
+
+from __future__ import annotations
+
+import re
+from collections.abc import Callable, Iterator, Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from xlsxwriter.format import Format
+from xlsxwriter.utility import xl_col_to_name
+from xlsxwriter.worksheet import Worksheet
+
+from .sheetkit import clean_text
+
+__all__ = ["ROW", "BlockSheet", "CellBlock", "block_marker", "BLOCK_MARKER"]
+
+#: Stands for the row number (1-based, as in A1 references) in a formula pattern.
+ROW = "\x00"
+#: Rows rendered at a time: big enough to amortise the per-chunk work, small enough that a
+#: chunk of a 60-column table stays a few megabytes.
+CHUNK_ROWS = 4096
+#: What stands in a deferred block's place in the intermediate sheet XML.
+BLOCK_MARKER = re.compile(rb"<!--xlpolicy-block (\d+)-->")
+
+_ESCAPE = str.maketrans({"&": "&amp;", "<": "&lt;", ">": "&gt;"})
+# A literal _xHHHH_ in a cell is read by spreadsheet programs as an escaped character;
+# ECMA-376 Part 1, 22.9.2.19 (ST_Xstring): escape its underscore as _x005F_.
+_X_ESCAPE = re.compile(r"_(x[0-9A-Fa-f]{4}_)")
+_FORMULA_LEAD = ("=", "+", "-", "@")
+
+XfOf = Callable[[Format], int]
+
+
+def block_marker(block_id: int) -> str:
+    """The XML comment that stands for deferred block ``block_id``."""
+    return f"<!--xlpolicy-block {block_id}-->"
+
+
+def _xml_text(text: str) -> str:
+    text = text.translate(_ESCAPE)
+    if "_x" in text:
+        text = _X_ESCAPE.sub(r"_x005F_\1", text)
+    return text
+
+
+@dataclass
+class _Column:
+    col: int
+    kind: str  # "number", "text", "formula"
+    fmt: Format
+    values: Any  # float array (number, formula cached) or list of str | None (text)
+    quoted: Format | None = None  # text: the format with the quote prefix
+    pieces: tuple[str, ...] = ()  # formula: the pattern split at the row marker
+    each: list[str] | None = None  # formula: or each row's own formula
+    live: np.ndarray | None = None  # formula: rows that get the formula
+
+
+class CellBlock:
+    """A rectangle of rows ``first_row`` .. ``first_row + n_rows - 1`` filled by columns.
+
+    Each column is given whole (one array or list per column, one entry per row); rows are
+    0-based like xlsxwriter's. Columns may be given in any order and may leave gaps.
+    """
+
+    def __init__(self, first_row: int, n_rows: int) -> None:
+        if first_row < 0 or n_rows < 1:
+            raise ValueError("a block needs a first row >= 0 and at least one row")
+        self.first_row = first_row
+        self.n_rows = n_rows
+        self._cols: dict[int, _Column] = {}
+        #: Set when the splice renders this block (see the module docstring): its number.
+        self.deferred_id: int | None = None
+
+    @property
+    def last_row(self) -> int:
+        return self.first_row + self.n_rows - 1
+
+    @property
+    def columns(self) -> list[int]:
+        return sorted(self._cols)
+
+    def _add(self, column: _Column, length: int) -> None:
+        if length != self.n_rows:
+            raise ValueError(f"column {column.col} has {length} values for {self.n_rows} rows")
+        if column.col in self._cols:
+            raise ValueError(f"column {column.col} is given twice")
+        self._cols[column.col] = column
+
+    def numbers(self, col: int, values: Any, fmt: Format) -> None:
+        """Numbers; NaN, infinite or missing values become blank cells that keep ``fmt``.
+
+        A text value among them (which a number column should not hold) is kept as text
+        rather than lost.
+        """
+        try:
+            arr = np.asarray(values, dtype=float)
+        except (TypeError, ValueError):
+            mixed = [clean_text(v) if isinstance(v, str) else finite_or_none(v) for v in values]
+            self._add(_Column(col, "mixed", fmt, mixed), len(mixed))
+            return
+        arr = np.where(np.isfinite(arr), arr, np.nan)
+        self._add(_Column(col, "number", fmt, arr), len(arr))
+
+    def texts(self, col: int, values: Sequence[str | None], fmt: Format,
+              quoted: Format) -> None:
+        """Text cells, already cleaned (sheetkit.clean_text); None or "" gives a blank cell.
+
+        Text that starts with = + - or @ gets ``quoted`` (the same format with the quote
+        prefix), so editing the cell later keeps it text, as sheetkit.Writer.text does.
+        """
+        self._add(_Column(col, "text", fmt, list(values), quoted=quoted), len(values))
+
+    def formulas(self, col: int, pattern: str | Sequence[str], live: np.ndarray, cached: Any,
+                 fmt: Format, otherwise: Any | None = None) -> None:
+        """One formula per row from ``pattern`` (``ROW`` marks the row number), where ``live``.
+
+        ``pattern`` may instead be a list with each row's own formula. ``cached`` is each
+        formula's value, stored with it so programs that do not recalculate (and readers)
+        see the tool's own number. Rows where ``live`` is False get the number in
+        ``otherwise`` (blank where that is NaN or not given). Formulas are our own, built
+        from cell references (sheetkit.ALLOWED_FUNCTIONS), never user text.
+        """
+        live = np.asarray(live, dtype=bool)
+        cached = np.asarray(cached, dtype=float)
+        values = np.where(live, cached, np.nan if otherwise is None
+                          else np.asarray(otherwise, dtype=float))
+        values = np.where(np.isfinite(values), values, np.nan)
+        live = live & np.isfinite(values)
+        if isinstance(pattern, str):
+            body = pattern[1:] if pattern.startswith("=") else pattern
+            pieces = tuple(_xml_text(body).split(ROW))
+            self._add(_Column(col, "formula", fmt, values, pieces=pieces, live=live), len(live))
+            return
+        if len(pattern) != len(live):
+            raise ValueError(f"column {col} has {len(pattern)} formulas for {len(live)} rows")
+        each = [_xml_text(f[1:] if f.startswith("=") else f) for f in pattern]
+        self._add(_Column(col, "formula", fmt, values, each=each, live=live), len(live))
+
+    def formats(self) -> list[Format]:
+        """Every format a cell of the block may use."""
+        out = [c.fmt for c in self._cols.values()]
+        out += [c.quoted for c in self._cols.values() if c.quoted is not None]
+        return out
+
+    def rows_xml(self, xf_of: XfOf, chunk_rows: int = CHUNK_ROWS) -> Iterator[str]:
+        """The block's ``<row>`` elements, ``chunk_rows`` rows per string.
+
+        ``xf_of`` gives a format's style number in the package being written.
+        """
+        cols = [self._cols[c] for c in self.columns]
+        letters = [xl_col_to_name(c.col) for c in cols]
+        styles = [(xf_of(c.fmt), xf_of(c.quoted) if c.quoted is not None else 0)
+                  for c in cols]
+        for a in range(0, self.n_rows, chunk_rows):
+            b = min(a + chunk_rows, self.n_rows)
+            rows = [str(r) for r in range(self.first_row + a + 1, self.first_row + b + 1)]
+            cells = [_render(c, letter, xf, a, b, rows)
+                     for c, letter, xf in zip(cols, letters, styles, strict=True)]
+            yield "".join([f'<row r="{r}">' + "".join(parts) + "</row>"
+                           for r, *parts in zip(rows, *cells, strict=True)])
+
+
+def _render(c: _Column, letter: str, xf: tuple[int, int], a: int, b: int,
+            rows: list[str]) -> list[str]:
+    """One column's cells for rows a..b-1 of the block (``rows``: their numbers)."""
+    s, sq = xf
+    open_ = f'<c r="{letter}'
+    plain = f'" s="{s}"'
+    if c.kind == "text":
+        quoted = f'" s="{sq}"'
+        return [_text_cell(f"{open_}{r}", plain, quoted, v) if v else f"{open_}{r}{plain}/>"
+                for r, v in zip(rows, c.values[a:b], strict=True)]
+    if c.kind == "mixed":
+        return [f"{open_}{r}{plain}><v>{v!r}</v></c>" if isinstance(v, float)
+                else _text_cell(f"{open_}{r}", plain, f'" s="{sq}"', v) if v
+                else f"{open_}{r}{plain}/>" for r, v in zip(rows, c.values[a:b], strict=True)]
+    values = c.values[a:b].tolist()
+    if c.kind == "number":
+        return [f"{open_}{r}{plain}><v>{v!r}</v></c>" if v == v else f"{open_}{r}{plain}/>"
+                for r, v in zip(rows, values, strict=True)]
+    live = c.live[a:b].tolist()
+    if c.each is not None:
+        return [(f"{open_}{r}{plain}><f>{f}</f><v>{v!r}</v></c>" if on
+                 else f"{open_}{r}{plain}><v>{v!r}</v></c>" if v == v
+                 else f"{open_}{r}{plain}/>")
+                for r, v, on, f in zip(rows, values, live, c.each[a:b], strict=True)]
+    pieces = c.pieces
+    return [(f"{open_}{r}{plain}><f>{r.join(pieces)}</f><v>{v!r}</v></c>" if on
+             else f"{open_}{r}{plain}><v>{v!r}</v></c>" if v == v
+             else f"{open_}{r}{plain}/>")
+            for r, v, on in zip(rows, values, live, strict=True)]
+
+
+def _text_cell(start: str, plain: str, quoted: str, v: str) -> str:
+    """An inline-string cell; ``start`` is '<c r="B7', the styles are ' s="n"' pieces."""
+    style = quoted if v.startswith(_FORMULA_LEAD) else plain
+    space = ' xml:space="preserve"' if v[0].isspace() or v[-1].isspace() else ""
+    return f'{start}{style} t="inlineStr"><is><t{space}>{_xml_text(v)}</t></is></c>'
+
+
+def finite_or_none(value: Any) -> float | None:
+    """A finite float, or None (blank) for anything else that is not text."""
+    try:
+        f = float(value)
+    except (TypeError, ValueError):
+        return None
+    return f if np.isfinite(f) else None
+
+
+class BlockSheet(Worksheet):
+    """An xlsxwriter worksheet that also writes :class:`CellBlock` rectangles.
+
+    Add it with ``workbook.add_worksheet(name, worksheet_class=BlockSheet)``. Ordinary
+    cells may sit above, below or beside a block's rows, not on them.
+    """
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.blocks: list[CellBlock] = []
+
+    def add_block(self, block: CellBlock) -> None:
+        """Place ``block`` on this sheet (its dimensions count for the sheet's used range)."""
+        cols = block.columns
+        if not cols:
+            raise ValueError("a block needs at least one column")
+        for row, col in ((block.first_row, cols[0]), (block.last_row, cols[-1])):
+            if self._check_dimensions(row, col):
+                raise ValueError("a block lies outside the sheet's limits")
+        self.blocks.append(block)
+
+    def _write_rows(self) -> None:
+        if not self.blocks:
+            super()._write_rows()
+            return
+        blocks = sorted(self.blocks, key=lambda b: b.first_row)
+        for block in blocks:
+            clash = [r for r, cells in self.table.items()
+                     if cells and block.first_row <= r <= block.last_row]
+            if clash:
+                raise ValueError(f"ordinary cells written on a block's rows ({clash[:3]})")
+        lo, hi = self.dim_rowmin, self.dim_rowmax
+        start = lo
+        try:
+            for block in blocks:
+                if start <= block.first_row - 1:
+                    self.dim_rowmin, self.dim_rowmax = start, block.first_row - 1
+                    super()._write_rows()
+                self._write_block(block)
+                start = block.last_row + 1
+            if start <= hi:
+                self.dim_rowmin, self.dim_rowmax = start, hi
+                super()._write_rows()
+        finally:
+            self.dim_rowmin, self.dim_rowmax = lo, hi
+
+    def _write_block(self, block: CellBlock) -> None:
+        if block.deferred_id is not None:
+            for fmt in block.formats():  # registered now, so the styles part lists them
+                fmt._get_xf_index()
+            self.fh.write(block_marker(block.deferred_id))
+            return
+        for text in block.rows_xml(lambda f: f._get_xf_index()):
+            self.fh.write(text)
