@@ -592,7 +592,9 @@ def layout_notes(wb: WorkbookFile, name: str, sheet: RawSheet, log: ProblemLog) 
                 data = src.read(1 << 20)
                 buf = carry + data
                 cut = buf.rfind(b">") + 1 if data else len(buf)
-                for m in _ROW_OR_MERGE.finditer(buf, 0, cut):
+                # Most sheets have neither: two searches in C skip the tag-by-tag scan.
+                maybe = buf.find(b"hidden", 0, cut) >= 0 or buf.find(b"mergeCell", 0, cut) >= 0
+                for m in _ROW_OR_MERGE.finditer(buf, 0, cut if maybe else 0):
                     if m.group(1) == b"row":
                         if _HIDDEN.search(m.group(2)):
                             r = _ROW_NUMBER.search(m.group(2))

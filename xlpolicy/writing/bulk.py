@@ -49,6 +49,8 @@ _ESCAPE = str.maketrans({"&": "&amp;", "<": "&lt;", ">": "&gt;"})
 # ECMA-376 Part 1, 22.9.2.19 (ST_Xstring): escape its underscore as _x005F_.
 _X_ESCAPE = re.compile(r"_(x[0-9A-Fa-f]{4}_)")
 _FORMULA_LEAD = ("=", "+", "-", "@")
+_PLAIN_BREAKERS = frozenset(_FORMULA_LEAD)
+_NEEDS_ESCAPE = re.compile(r"[&<>]|_x[0-9A-Fa-f]{4}_")
 
 XfOf = Callable[[Format], int]
 
@@ -69,12 +71,13 @@ def _xml_text(text: str) -> str:
 class _Column:
     col: int
     kind: str  # "number", "text", "formula"
-    fmt: Format
+    fmt: Format | None
     values: Any  # float array (number, formula cached) or list of str | None (text)
     quoted: Format | None = None  # text: the format with the quote prefix
     pieces: tuple[str, ...] = ()  # formula: the pattern split at the row marker
     each: list[str] | None = None  # formula: or each row's own formula
     live: np.ndarray | None = None  # formula: rows that get the formula
+    plain: bool = False  # text: no cell needs escaping, a quote prefix or kept spaces
 
 
 class CellBlock:
@@ -108,7 +111,7 @@ class CellBlock:
             raise ValueError(f"column {column.col} is given twice")
         self._cols[column.col] = column
 
-    def numbers(self, col: int, values: Any, fmt: Format) -> None:
+    def numbers(self, col: int, values: Any, fmt: Format | None) -> None:
         """Numbers; NaN, infinite or missing values become blank cells that keep ``fmt``.
 
         A text value among them (which a number column should not hold) is kept as text
@@ -130,10 +133,16 @@ class CellBlock:
         Text that starts with = + - or @ gets ``quoted`` (the same format with the quote
         prefix), so editing the cell later keeps it text, as sheetkit.Writer.text does.
         """
-        self._add(_Column(col, "text", fmt, list(values), quoted=quoted), len(values))
+        values = list(values)
+        # Most columns need no escaping, no quote prefix and no kept spaces: one check of
+        # the whole column lets each cell be a single format string.
+        plain = not any(v and (v[0] in _PLAIN_BREAKERS or v[-1].isspace() or v[0].isspace())
+                        for v in values)
+        plain = plain and not _NEEDS_ESCAPE.search("\n".join(v or "" for v in values))
+        self._add(_Column(col, "text", fmt, values, quoted=quoted, plain=plain), len(values))
 
     def formulas(self, col: int, pattern: str | Sequence[str], live: np.ndarray, cached: Any,
-                 fmt: Format, otherwise: Any | None = None) -> None:
+                 fmt: Format | None, otherwise: Any | None = None) -> None:
         """One formula per row from ``pattern`` (``ROW`` marks the row number), where ``live``.
 
         ``pattern`` may instead be a list with each row's own formula. ``cached`` is each
@@ -160,9 +169,7 @@ class CellBlock:
 
     def formats(self) -> list[Format]:
         """Every format a cell of the block may use."""
-        out = [c.fmt for c in self._cols.values()]
-        out += [c.quoted for c in self._cols.values() if c.quoted is not None]
-        return out
+        return [f for c in self._cols.values() for f in (c.fmt, c.quoted) if f is not None]
 
     def rows_xml(self, xf_of: XfOf, chunk_rows: int = CHUNK_ROWS) -> Iterator[str]:
         """The block's ``<row>`` elements, ``chunk_rows`` rows per string.
@@ -171,8 +178,7 @@ class CellBlock:
         """
         cols = [self._cols[c] for c in self.columns]
         letters = [xl_col_to_name(c.col) for c in cols]
-        styles = [(xf_of(c.fmt), xf_of(c.quoted) if c.quoted is not None else 0)
-                  for c in cols]
+        styles = [(_style(xf_of, c.fmt), _style(xf_of, c.quoted)) for c in cols]
         for a in range(0, self.n_rows, chunk_rows):
             b = min(a + chunk_rows, self.n_rows)
             rows = [str(r) for r in range(self.first_row + a + 1, self.first_row + b + 1)]
@@ -182,19 +188,25 @@ class CellBlock:
                            for r, *parts in zip(rows, *cells, strict=True)])
 
 
-def _render(c: _Column, letter: str, xf: tuple[int, int], a: int, b: int,
+def _style(xf_of: XfOf, fmt: Format | None) -> str:
+    """The end of a cell's reference and its style attribute: '" s="7"' (or '"': none)."""
+    return '"' if fmt is None else f'" s="{xf_of(fmt)}"'
+
+
+def _render(c: _Column, letter: str, xf: tuple[str, str], a: int, b: int,
             rows: list[str]) -> list[str]:
     """One column's cells for rows a..b-1 of the block (``rows``: their numbers)."""
-    s, sq = xf
+    plain, quoted = xf
     open_ = f'<c r="{letter}'
-    plain = f'" s="{s}"'
+    if c.kind == "text" and c.plain:
+        return [f'{open_}{r}{plain} t="inlineStr"><is><t>{v}</t></is></c>' if v
+                else f"{open_}{r}{plain}/>" for r, v in zip(rows, c.values[a:b], strict=True)]
     if c.kind == "text":
-        quoted = f'" s="{sq}"'
         return [_text_cell(f"{open_}{r}", plain, quoted, v) if v else f"{open_}{r}{plain}/>"
                 for r, v in zip(rows, c.values[a:b], strict=True)]
     if c.kind == "mixed":
         return [f"{open_}{r}{plain}><v>{v!r}</v></c>" if isinstance(v, float)
-                else _text_cell(f"{open_}{r}", plain, f'" s="{sq}"', v) if v
+                else _text_cell(f"{open_}{r}", plain, plain, v) if v
                 else f"{open_}{r}{plain}/>" for r, v in zip(rows, c.values[a:b], strict=True)]
     values = c.values[a:b].tolist()
     if c.kind == "number":

@@ -138,11 +138,22 @@ def column(df: pd.DataFrame, key: str) -> np.ndarray:
     return np.full(len(df), np.nan)
 
 
+_UNCLEAN = re.compile(r"[\r\x00-\x08\x0b-\x1f\x7f-\x9f]")
+
+
 def texts(df: pd.DataFrame, key: str) -> list[str]:
-    """A text column as cleaned strings ("" for missing); all "" when absent."""
+    """A text column as cleaned strings ("" for missing); all "" when absent.
+
+    A column of plain text that clean_text would leave as it is (the usual case) is
+    checked as a whole, with one search, rather than value by value.
+    """
     if key not in df.columns:
         return [""] * len(df)
-    return [(clean_text(v) or "") for v in df[key].tolist()]
+    values = df[key].tolist()
+    if (all(type(v) is str for v in values) and not _UNCLEAN.search("\n".join(values))
+            and max(map(len, values), default=0) <= MAX_CELL_TEXT):
+        return values
+    return [(clean_text(v) or "") for v in values]
 
 
 def longest_line(values: list[str]) -> int:
