@@ -2,6 +2,11 @@
 
     python benchmarks/make_workbook.py 100000 -o /tmp/bench-100k.xlsx            # wide History
     python benchmarks/make_workbook.py 10000 --layout long -o /tmp/bench-10k.xlsx
+    python benchmarks/make_workbook.py 100000 --layout file -o /tmp/bench-100k-file.xlsx
+
+Layout "file" leaves the History sheet out and writes the long history beside the workbook
+(``<name>-history.parquet``, or ``.csv`` with ``--history-format csv``), named by the
+Settings row "History file": the way past the sheet's 1,048,576 rows.
 
 Items carries the contract's columns (codes as zero-padded text, so a reader that turns
 "000123" into 123 shows up at once); History holds 104 weekly columns (wide) or one row per
@@ -61,9 +66,27 @@ def item_codes(n_items: int) -> list[str]:
     return [f"{k:06d}" for k in range(1, n_items + 1)]
 
 
+def write_history_file(path: Path, codes: list[str], demand: np.ndarray,
+                       dates: list[_dt.date]) -> Path:
+    """The long history (a row per item and week with a sale) as CSV or Parquet."""
+    import pandas as pd
+
+    i, t = np.nonzero(demand)
+    frame = pd.DataFrame({
+        "Item": np.asarray(codes, dtype=object)[i],
+        "Period": np.asarray([d.isoformat() for d in dates], dtype=object)[t],
+        "Quantity": demand[i, t],
+    })
+    if path.suffix == ".csv":
+        frame.to_csv(path, index=False)
+    else:
+        frame.to_parquet(path, index=False)
+    return path
+
+
 def write_workbook(path: Path, n_items: int, *, layout: str = "wide", weeks: int = WEEKS,
-                   seed: int = 2024) -> Path:
-    """Write the workbook and return its path."""
+                   seed: int = 2024, history_format: str = "parquet") -> Path:
+    """Write the workbook (and for layout "file" its history file); return its path."""
     d = make_data(n_items, weeks, seed)
     codes = item_codes(n_items)
     wb = xlsxwriter.Workbook(str(path), {"constant_memory": True, "strings_to_numbers": False,
@@ -86,9 +109,16 @@ def write_workbook(path: Path, n_items: int, *, layout: str = "wide", weeks: int
         for j, col in enumerate(numeric):
             ws.write_number(r, 4 + j, col[i])
 
-    ws = wb.add_worksheet("History")
     dates = [FIRST_WEEK + _dt.timedelta(weeks=t) for t in range(weeks)]
-    if layout == "wide":
+    history_file = None
+    if layout == "file":
+        history_file = Path(path).with_name(f"{Path(path).stem}-history.{history_format}")
+        write_history_file(history_file, codes, d["demand"], dates)
+    else:
+        ws = wb.add_worksheet("History")
+    if layout == "file":
+        pass
+    elif layout == "wide":
         ws.write_string(0, 0, "Item", bold)
         for t, day in enumerate(dates):
             ws.write_datetime(0, 1 + t, _dt.datetime.combine(day, _dt.time()), date_fmt)
@@ -115,12 +145,14 @@ def write_workbook(path: Path, n_items: int, *, layout: str = "wide", weeks: int
                 ws.write_number(r, 2, row[t])
                 r += 1
     else:
-        raise ValueError(f"layout must be wide or long, not {layout!r}")
+        raise ValueError(f"layout must be wide, long or file, not {layout!r}")
 
     ws = wb.add_worksheet("Settings")
     ws.write_row(0, 0, ("Setting", "Value"), bold)
     ws.write_row(1, 0, ("Service measure", "cycle service"))
     ws.write_row(2, 0, ("Currency", "EUR"))
+    if history_file is not None:
+        ws.write_row(3, 0, ("History file", history_file.name))
     wb.close()
     return Path(path)
 
@@ -129,12 +161,14 @@ def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("items", type=int, help="number of items, e.g. 1000, 10000, 100000")
     ap.add_argument("-o", "--output", type=Path, default=None)
-    ap.add_argument("--layout", choices=("wide", "long"), default="wide")
+    ap.add_argument("--layout", choices=("wide", "long", "file"), default="wide")
+    ap.add_argument("--history-format", choices=("parquet", "csv"), default="parquet")
     ap.add_argument("--weeks", type=int, default=WEEKS)
     ap.add_argument("--seed", type=int, default=2024)
     a = ap.parse_args(argv)
     out = a.output or Path(f"bench-{a.items}-{a.layout}.xlsx")
-    write_workbook(out, a.items, layout=a.layout, weeks=a.weeks, seed=a.seed)
+    write_workbook(out, a.items, layout=a.layout, weeks=a.weeks, seed=a.seed,
+                   history_format=a.history_format)
     print(out)
     return 0
 

@@ -383,3 +383,29 @@ def test_no_warnings_on_empty_rows() -> None:
     assert np.isnan(a.mean[1]) and a.mean[0] == 0.0
     assert chosen.tolist() == ["", "", "", "", ""]
     assert reasons[0] == "no sales in the history" and reasons[1] == ""
+
+
+def test_blocks_of_items_give_the_same_analysis(monkeypatch) -> None:
+    """Big sheets are analysed a block of items at a time; the answer must not change.
+
+    The reference is the same function on the whole matrix at once (every statistic is per
+    item, so any split of the rows must give identical arrays).
+    """
+    import dataclasses
+
+    import xlpolicy.core.history as history
+
+    rng = np.random.default_rng(11)
+    m = rng.poisson(rng.gamma(1.0, 3.0, (700, 1)), (700, 60)).astype(float)
+    m[rng.random(m.shape) < 0.01] = np.nan
+    start = np.where(rng.random(700) < 0.2, rng.integers(0, 30, 700), -1)
+    whole = history.analyse_history(m, 52, start=start, cap_outliers=True)
+    monkeypatch.setattr(history, "ANALYSIS_BLOCK", 128)
+    split = history.analyse_history(m, 52, start=start, cap_outliers=True)
+    for f in dataclasses.fields(whole):
+        a, b = getattr(whole, f.name), getattr(split, f.name)
+        assert len(a) == 700
+        if a.dtype.kind == "f":
+            np.testing.assert_array_equal(a, b, err_msg=f.name)
+        else:
+            assert (a == b).all(), f.name

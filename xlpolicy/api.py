@@ -69,9 +69,15 @@ def default_output_path(path: str | Path) -> Path:
 
 def _overrides(service_measure: str | None, service_target: float | str | None,
                holding_rate: float | str | None,
-               order_cost: float | str | None) -> dict[str, Any]:
+               order_cost: float | str | None,
+               history: str | Path | None = None) -> dict[str, Any]:
     """Check command-line overrides of the Settings; raise UsageError if one is bad."""
     out: dict[str, Any] = {}
+    if history is not None:
+        h = Path(history).expanduser()
+        if not h.is_file():
+            raise UsageError(f"the history file {history} does not exist")
+        out["history_file"] = str(h.resolve())
     if service_measure is not None:
         m = parse_measure(service_measure)
         if m is None:
@@ -109,15 +115,18 @@ def analyse(path: str | Path, *, service_measure: str | None = None,
             service_target: float | str | None = None,
             holding_rate: float | str | None = None, order_cost: float | str | None = None,
             run_date: _dt.date | None = None, progress: Progress = silent,
-            allow_large: bool = False) -> Report:
+            allow_large: bool = False, history: str | Path | None = None) -> Report:
     """Read, check and plan a workbook without writing anything.
 
     Raises UnusableWorkbook when the workbook cannot be used at all. ``progress`` is called
     as the run goes (stage, done, total), for a progress bar. ``allow_large`` raises the
     size limits that protect against zip bombs tenfold (see xlpolicy.reading.guard).
+    ``history``: a CSV or Parquet file of sales history (Item, Period, Quantity) read instead
+    of the History sheet, as the Settings row "History file" does.
     """
     log = ProblemLog()
-    overrides = _overrides(service_measure, service_target, holding_rate, order_cost)
+    overrides = _overrides(service_measure, service_target, holding_rate, order_cost,
+                           history)
     with guard.allow_large(allow_large):
         data = read_input(Path(path), overrides, log, progress)
     if data is None:
@@ -150,7 +159,7 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
          service_target: float | str | None = None, holding_rate: float | str | None = None,
          order_cost: float | str | None = None, write_workbook: bool = True,
          run_date: _dt.date | None = None, progress: Progress = silent,
-         allow_large: bool = False) -> PlanResult:
+         allow_large: bool = False, history: str | Path | None = None) -> PlanResult:
     """Plan every item in the workbook at ``path`` and write the results.
 
     The input file is never changed. By default the output is ``<name>-policy.xlsx`` beside
@@ -162,7 +171,7 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
         _check_output_path(src, out)
     report = analyse(src, service_measure=service_measure, service_target=service_target,
                      holding_rate=holding_rate, order_cost=order_cost, run_date=run_date,
-                     progress=progress, allow_large=allow_large)
+                     progress=progress, allow_large=allow_large, history=history)
     result = PlanResult(report)
     if write_workbook:
         progress(f"Writing {out.name}", 0, None)

@@ -62,6 +62,12 @@ class _Bar:
 
 def _override_options(f: Any) -> Any:
     """Options that override the workbook's Settings sheet, shared by plan and check."""
+    f = click.option("--history", "history", type=click.Path(path_type=Path, exists=True,
+                                                            dir_okay=False),
+                     default=None, metavar="FILE",
+                     help="Read the sales history from this CSV or Parquet file (columns Item, "
+                          "Period, Quantity) instead of the History sheet: for a history "
+                          "longer than a sheet holds.")(f)
     f = click.option("--order-cost", type=str, default=None, metavar="MONEY",
                      help="Cost of one order, for items that leave it blank.")(f)
     f = click.option("--holding-rate", type=str, default=None, metavar="RATE",
@@ -109,7 +115,8 @@ def main() -> None:
 @click.option("-q", "--quiet", is_flag=True, help="Print only the path written and errors.")
 def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: Path | None,
          service_measure: str | None, service_target: str | None, holding_rate: str | None,
-         order_cost: str | None, allow_large: bool, quiet: bool) -> None:
+         order_cost: str | None, history: Path | None, allow_large: bool,
+         quiet: bool) -> None:
     """Compute the policy for every item and write the policy workbook.
 
     Your WORKBOOK is never changed. The output holds your own sheets plus Policy, Summary,
@@ -119,7 +126,7 @@ def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: 
     result = _run(lambda: api.plan(
         workbook, output, csv=csv_path, json=json_path, service_measure=service_measure,
         service_target=service_target, holding_rate=holding_rate, order_cost=order_cost,
-        progress=bar, allow_large=allow_large), bar)
+        progress=bar, allow_large=allow_large, history=history), bar)
     _print_run(result, quiet)
 
 
@@ -158,7 +165,8 @@ def _print_run(result: api.PlanResult, quiet: bool) -> None:
 @_override_options
 @_allow_large_option
 def check(workbook: Path, service_measure: str | None, service_target: str | None,
-          holding_rate: str | None, order_cost: str | None, allow_large: bool) -> None:
+          holding_rate: str | None, order_cost: str | None, history: Path | None,
+          allow_large: bool) -> None:
     """Report every problem in WORKBOOK without writing anything.
 
     Exit status 0 if it can be planned (possibly with warnings), 1 if it cannot.
@@ -167,7 +175,7 @@ def check(workbook: Path, service_measure: str | None, service_target: str | Non
     report = _run(lambda: api.analyse(
         workbook, service_measure=service_measure, service_target=service_target,
         holding_rate=holding_rate, order_cost=order_cost, progress=bar,
-        allow_large=allow_large), bar)
+        allow_large=allow_large, history=history), bar)
     _print_read(report)
     _print_problems(report.problems, limit=None)
     if not report.problems:

@@ -219,6 +219,11 @@ SETTINGS: tuple[Setting, ...] = (
     Setting("currency", "Currency", None,
             "Symbol or code shown in money formats, e.g. $, EUR, £.",
             ("currency symbol", "money")),
+    Setting("history_file", "History file", None,
+            "A CSV or Parquet file with the sales history (columns Item, Period, Quantity), "
+            "read instead of the History sheet: for a history longer than a sheet holds. "
+            "A path relative to the workbook's folder.",
+            ("history path", "sales history file", "history csv")),
 )
 
 SETTING_BY_KEY = {s.key: s for s in SETTINGS}

@@ -12,7 +12,7 @@ standards; the SBC cut-offs, Croston's method and the SBA are published (sources
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, fields
 
 import numpy as np
 import pandas as pd
@@ -198,6 +198,30 @@ def analyse_history(
     m = np.asarray(matrix, dtype=float)
     if m.ndim == 1:
         m = m.reshape(1, -1)
+    if m.shape[0] <= ANALYSIS_BLOCK:
+        return _analyse_block(m, periods_per_year, start, dormant_periods, cap_outliers,
+                              smoothing)
+    # Every statistic is per item (row), so blocks of items give the same answer with the
+    # temporaries (a few dozen items x periods arrays) bounded by the block, not the sheet.
+    starts = (None if start is None
+              else np.broadcast_to(np.asarray(start, dtype=float), (m.shape[0],)))
+    parts = [_analyse_block(m[a:a + ANALYSIS_BLOCK], periods_per_year,
+                            None if starts is None else starts[a:a + ANALYSIS_BLOCK],
+                            dormant_periods, cap_outliers, smoothing)
+             for a in range(0, m.shape[0], ANALYSIS_BLOCK)]
+    return HistoryAnalysis(**{f.name: np.concatenate([getattr(p, f.name) for p in parts])
+                              for f in fields(HistoryAnalysis)})
+
+
+#: Items analysed at a time (see analyse_history): 16,384 x 104 weekly periods is 13 MB a
+#: temporary array, against 83 MB for 100,000 items at once.
+ANALYSIS_BLOCK = 16_384
+
+
+def _analyse_block(m: np.ndarray, periods_per_year: float, start: ArrayLike | None,
+                   dormant_periods: int | None, cap_outliers: bool,
+                   smoothing: float) -> HistoryAnalysis:
+    """analyse_history for one block of items (rows of ``m``)."""
     n_items, n_cols = m.shape
     cols = np.arange(n_cols)
     rows = np.arange(n_items)

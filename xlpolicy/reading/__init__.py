@@ -12,6 +12,7 @@ from ..problems import ProblemLog
 from ..progress import Progress, silent
 from .guard import Refused, unreadable_message
 from .history import History, aggregate_daily_to_weeks, read_history
+from .history_file import read_history_file
 from .items import ItemTable, read_items
 from .settings import finish_period, read_settings, resolve_settings
 from .sources import open_source
@@ -79,7 +80,20 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
             return None
         history_name = wb.find_sheet("History")
         history = None
-        history_sheet = read(history_name) if history_name is not None else None
+        history_file = _history_file(Path(path), settings)
+        if history_file is not None:
+            if history_name is not None:
+                log.info(f"The history was read from {history_file.name}, as the 'History file' "
+                         f"setting says; the sheet '{history_name}' was not used.",
+                         sheet=history_name, code="history-from-file")
+            progress(f"Reading {history_file.name}", 0, None)
+            history = read_history_file(history_file, set(items.df["item"]), settings, log)
+            if history is None:
+                return None
+            history_name = history_file.name
+            history_sheet = None
+        else:
+            history_sheet = read(history_name) if history_name is not None else None
         if history_sheet is not None and not history_sheet.rows:
             log.info(f"The sheet '{history_name}' is empty; demand comes from the Items sheet's "
                      "annual figures.", sheet=history_name, code="history-empty")
@@ -88,6 +102,7 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
             history = read_history(history_sheet, set(items.df["item"]), settings, log)
             if history is None:
                 return None
+        if history is not None:
             history = _steadier_period(history, items, settings, log)
             if history.period is not None and (
                     history.period != settings["period"]
@@ -107,6 +122,18 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
         return None
     finally:
         wb.close()
+
+
+def _history_file(workbook: Path, settings: dict[str, Any]) -> Path | None:
+    """The history file to read, if the settings name one (relative to the workbook)."""
+    name = settings.get("history_file")
+    if not name:
+        return None
+    p = Path(str(name)).expanduser()
+    if not p.is_absolute():
+        base = workbook if workbook.is_dir() else workbook.parent
+        p = base / p
+    return p
 
 
 class _AlreadyReported(Exception):

@@ -142,7 +142,7 @@ def resolve_settings(
                 bad(key, raw, cell, "write " + ", ".join(f"'{m}'" for m in SERVICE_MEASURES))
                 continue
             out[key] = m
-        elif key == "currency":
+        elif key in ("currency", "history_file"):
             out[key] = str(raw).strip()
         elif key == "demand_model":
             m = parse_model(raw)
