@@ -197,3 +197,40 @@ def _curve_block(ctx: Context, ws: Worksheet, row: int, curve: pd.DataFrame) -> 
     chart.set_size({"width": 760, "height": 20 * _CHART_ROWS - 10})
     ws.insert_chart(row + 1, 0, chart, {"x_offset": 2, "y_offset": 4})
     return row + 1 + _CHART_ROWS
+
+
+def method_sentences(ctx: Context) -> list[str]:
+    """For the 'How it works' sheet: how the cap and the exchange curve are made."""
+    port = ctx.report.portfolio or {}
+    out = [
+        "Exchange curve (Silver, Pyke & Peterson 1998): every item is planned again at a "
+        "range of one common setting, the service target of the items on the Settings "
+        "default (items with a target of their own move with it, their odds of running "
+        "short scaled by the same factor) or, under the shortage-cost measure, every "
+        "shortage cost times a common multiplier. For each point: the money in safety "
+        "stock (unit cost x safety stock, where above 0), the expected units short a year "
+        "(orders a year x expected units short per order cycle) and the expected stockout "
+        "occasions a year (orders a year x the chance that lead-time demand exceeds the "
+        "reorder point), each under the item's own demand model. Today's settings are one "
+        "of the points, worked out by the same calculation as the Policy sheet.",
+    ]
+    if "exchange_curve" not in port:
+        out[0] += " (Left out of this run: Settings 'Exchange curve' is no.)"
+    cap = port.get("cap")
+    if isinstance(cap, CapResult):
+        out.append(
+            "Stock budget or orders cap (Lagrangian relaxation): the cap's multiplier is added "
+            "to every item's holding rate (a stock budget) or order cost (an orders cap); "
+            "with it, each item's order quantity (and, under the shortage-cost measure, its "
+            "reorder point) is worked out as usual, whole packs and minimum orders included. "
+            "The multiplier is raised by bisection until the policies meet the cap; the slack "
+            "that whole packs leave is then spent on one-item steps (one pack, one unit of "
+            "reorder point) that lower the yearly cost most per unit of the cap. Service "
+            "targets are kept: the cap changes order quantities, not the chance of running "
+            "short in a cycle, except under the shortage-cost measure, where reorder points "
+            "fall too.")
+        out.append(
+            "Where stock is medicine, food or anything safety-critical, check every item a "
+            "cap changed before acting: smaller orders mean more orders to place on time, and "
+            "under the shortage-cost measure lower reorder points mean more shortages.")
+    return out
