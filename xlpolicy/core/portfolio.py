@@ -32,8 +32,12 @@ its best R) with pack sizes and minimum orders respected; bisection on lambda fi
 smallest multiplier whose policy meets the cap. Because Q moves in whole packs, the usage
 is a step function of lambda and usually some slack is left: a greedy pass then spends it
 on single-item steps (one pack, one unit of reorder point) that lower the true cost, best
-saving per unit of the cap first, until none fits. The result meets the cap, and no
-single-item step that stays within it lowers the total cost.
+saving per unit of the cap first, until none fits. The result meets the cap, and (for the
+cycle-service and shortage-cost measures) no single-item change that stays within it
+lowers the total cost. Under the fill-rate measure R follows Q (the smallest R meeting the
+target for that Q), so there the multiplier chooses Q and each R is re-set to keep the
+target: a policy that meets the cap and every target, not a proven least-cost one (the
+fill-rate rule itself sets Q by the EOQ without regard to R).
 """
 
 from __future__ import annotations
@@ -44,6 +48,7 @@ import numpy as np
 import pandas as pd
 
 from xlpolicy.contract import CYCLE_SERVICE, FILL_RATE, SHORTAGE_COST
+from xlpolicy.core.models import MODEL_NAMES, NormalLeadTimeDemand, model_factory
 from xlpolicy.core.policy import PROB_TOL, PolicyInputs, compute_policy, evaluate_policy
 
 __all__ = [
@@ -272,6 +277,28 @@ class _Costing:
         moq = np.nan_to_num(_item_column(inp, "minimum_order", n))
         self.q_min = self.pack * np.maximum(1.0, np.ceil(moq / self.pack - 1e-9))
 
+    def fill_rate_reorder(self, q: np.ndarray, which: np.ndarray) -> np.ndarray:
+        """For the items in ``which``: the smallest whole R >= 0 whose fill rate with
+        order quantity q meets the target (as compute_policy sets it); NaN elsewhere."""
+        out = np.full(q.shape, np.nan)
+        names = np.where(self.model == "", NormalLeadTimeDemand.name, self.model)
+        for name in MODEL_NAMES:
+            k = np.flatnonzero(which & (names == name))
+            if not k.size:
+                continue
+            model = model_factory(name)(self.mu[k], self.sd[k])
+            t, qk = self.target[k], q[k]
+            with np.errstate(all="ignore"):
+                start = np.ceil(model.min_r_for_shortage((1.0 - t) * qk) - 1e-9)
+                meets = lambda x, m=model, t=t, qk=qk: (  # noqa: E731
+                    1.0 - m.expected_shortage(x) / qk >= t - PROB_TOL)
+                r = start
+                for _ in range(2):
+                    r = np.where(meets(r - 1.0), r - 1.0, r)
+                    r = np.where(meets(r), r, r + 1.0)
+            out[k] = np.maximum(r, 0.0)
+        return out
+
     def evaluate(self, q: np.ndarray, r: np.ndarray, reps: int = 1) -> pd.DataFrame:
         """evaluate_policy at the true costs; q and r hold ``reps`` stacked copies."""
         def t(x: np.ndarray) -> np.ndarray:
@@ -350,7 +377,7 @@ def apply_cap(inp: PolicyInputs, base: pd.DataFrame, kind: str, cap: float) -> C
     cost = _Costing(inp, base, kind)
     steps = 0
     if feasible:
-        q, r, steps = _polish(cost, q, r, ok, cap)
+        q, r, steps = _polish(cost, q, r, ok, cap, base["order_qty"].to_numpy(float))
     policy = _restate(base, cost, q, r, ok)
     use = cap_usage(policy, kind)
     changed = ok & ((policy["order_qty"].to_numpy(float) != base["order_qty"].to_numpy(float))
@@ -361,37 +388,50 @@ def apply_cap(inp: PolicyInputs, base: pd.DataFrame, kind: str, cap: float) -> C
                      use if not feasible else float("nan"), policy, changed, steps)
 
 
-def _polish(cost: _Costing, q: np.ndarray, r: np.ndarray, ok: np.ndarray, cap: float
-            ) -> tuple[np.ndarray, np.ndarray, int]:
+def _polish(cost: _Costing, q: np.ndarray, r: np.ndarray, ok: np.ndarray, cap: float,
+            q_free: np.ndarray) -> tuple[np.ndarray, np.ndarray, int]:
     """Spend the slack the whole-pack rounding left on single-item steps that save cost.
 
-    Each round, every item's eight neighbours (Q one pack down, same or up; R one unit
-    down, same or up) are costed at the true costs; of those its rules allow, the best is
-    the one saving most per unit of the cap used (a step that saves cost and frees some of
-    the cap is taken first). Steps are taken in that order while they fit in the slack.
-    Rounds repeat until no allowed saving step fits.
+    Each round, every item's neighbours are costed at the true costs: Q one pack down, the
+    same or up with R one unit down, the same or up. Fill-rate items instead step Q one
+    pack towards their unconstrained order quantity (``q_free``, never past it), with R
+    re-set to the smallest that meets the target, as compute_policy's rule sets it: under
+    that measure R follows Q, and the rule does not choose Q and R together, so moving
+    them freely could "save" against a policy the rule would never give. Of the steps its
+    rules allow, an item's best is the one saving most per unit of the cap used (a step
+    that saves cost and frees some of the cap ranks first). Steps are taken in that order
+    while they fit in the slack; rounds repeat until no allowed saving step fits.
     """
     n = q.shape[0]
     dq = np.array([-1.0, -1.0, -1.0, 0.0, 0.0, 1.0, 1.0, 1.0])
     dr = np.array([-1.0, 0.0, 1.0, -1.0, 1.0, -1.0, 0.0, 1.0])
-    m = dq.shape[0]
+    fr = cost.is_fr & ok
+    lo_free, hi_free = np.minimum(q, q_free), np.maximum(q, q_free)
     steps = 0
     for _ in range(_POLISH_ROUNDS):
         ev_now = cost.evaluate(q, r)
         cost_now = ev_now["annual_total_cost"].to_numpy(float)
         use_now = cost.usage(q, r)
         slack = cap - float(np.nansum(np.where(ok, use_now, np.nan)))
-        q_c = np.tile(q, m) + np.repeat(dq, n) * np.tile(cost.pack, m)
-        r_c = np.tile(r, m) + np.repeat(dr, n)
+        cands_q = [np.where(fr, np.nan, q + a * cost.pack) for a in dq]
+        cands_r = [r + b for b in dr]
+        if fr.any():  # along the fill-rate rule: R follows Q, Q back towards q_free
+            for a in (-1.0, 1.0):
+                q_f = q + a * cost.pack
+                inside = fr & (q_f >= lo_free - 1e-9) & (q_f <= hi_free + 1e-9)
+                cands_q.append(np.where(inside, q_f, np.nan))
+                cands_r.append(np.where(inside, cost.fill_rate_reorder(q_f, inside), np.nan))
+        m = len(cands_q)
+        q_c, r_c = np.concatenate(cands_q), np.concatenate(cands_r)
         ev = cost.evaluate(q_c, r_c, m)
         allowed = cost.allowed(q_c, r_c, ev, m) & np.tile(ok, m)
         with np.errstate(all="ignore"):
             d_cost = (ev["annual_total_cost"].to_numpy(float) - np.tile(cost_now, m)
                       ).reshape(m, n)
             d_use = (cost.usage(q_c, r_c, m) - np.tile(use_now, m)).reshape(m, n)
-        gain = allowed.reshape(m, n) & (d_cost < -1e-9 * np.maximum(1.0, np.abs(cost_now)))
-        # score: saving per unit of the cap; a step that frees the cap and saves ranks first
-        with np.errstate(all="ignore"):
+            gain = allowed.reshape(m, n) & (
+                d_cost < -1e-9 * np.maximum(1.0, np.abs(cost_now)))
+            # score: saving per unit of the cap; a step that frees the cap and saves first
             score = np.where(d_use <= 0, -1e300, d_cost / d_use)
         score = np.where(gain, score, np.inf)
         best = np.argmin(score, axis=0)
@@ -410,8 +450,9 @@ def _polish(cost: _Costing, q: np.ndarray, r: np.ndarray, ok: np.ndarray, cap: f
         take = np.cumsum(need) <= slack + 1e-9 * max(abs(cap), 1.0)
         take[0] = True  # the first fits on its own
         chosen = cand[take]
-        q[chosen] += dq[best[chosen]] * cost.pack[chosen]
-        r[chosen] += dr[best[chosen]]
+        q_all, r_all = q_c.reshape(m, n), r_c.reshape(m, n)
+        q[chosen] = q_all[best[chosen], chosen]
+        r[chosen] = r_all[best[chosen], chosen]
         steps += int(chosen.size)
     return q, r, steps
 

@@ -32,6 +32,10 @@ def cap_headline(ctx: Context) -> str | None:
     if not cap.feasible:
         return (f"The {what} cannot be met with these service targets and minimum orders; "
                 "see 'Limits across all items' below.")
+    if cap.cost_of_cap < 0:
+        return (f"The {what} is met, and the capped policy even costs about "
+                f"{money_text(-cap.cost_of_cap, ctx.currency)} a year less (see 'Limits "
+                "across all items' below).")
     return (f"The {what} is met; keeping to it costs about "
             f"{money_text(cap.cost_of_cap, ctx.currency)} a year more than without it.")
 
@@ -46,15 +50,19 @@ def cap_sentence(cap: CapResult, currency: Any) -> str:
                 + (", with the reorder points the service targets need," if cap.kind == BUDGET
                    else "") + " do not meet the cap, so the policy that comes closest is "
                 "used. Raise the cap, or lower the service targets.")
+    cheaper = (" The capped policy costs less than the plan without the cap: under the "
+               "fill-rate measure the order quantity is set by the EOQ and the reorder point "
+               "then follows it, so a larger order that lets the reorder point fall can cost "
+               "less in all." if cap.cost_of_cap < 0 else "")
     if cap.kind == BUDGET:
         return (f"Each extra {money_text(1.0, currency)} of stock budget would save about "
                 f"{money_text(lam, currency)} a year (the Lagrange multiplier): keeping to "
                 f"the budget works as if every holding rate were {lam:.1%} higher, so order "
-                "quantities are smaller and orders more frequent.")
+                "quantities are smaller and orders more frequent." + cheaper)
     return (f"Each extra order a year the cap allowed would save about "
             f"{money_text(lam, currency)} a year (the Lagrange multiplier): keeping to the cap "
             f"works as if every order cost {money_text(lam, currency)} more, so order "
-            "quantities are larger and stock higher.")
+            "quantities are larger and stock higher." + cheaper)
 
 
 def write_portfolio(ctx: Context, ws: Worksheet, row: int) -> int:
