@@ -218,7 +218,8 @@ class CapResult:
     yearly cost per $ of average stock (budget) or per order a year (orders).
     ``feasible`` is False when even the least the policies allow (one pack or the minimum
     order per item, and the reorder points the service targets need) is above the cap;
-    ``least`` is that least usage. ``changed``: items whose Q or R differs.
+    ``least`` is then that least usage (NaN otherwise). ``changed``: items whose Q or R
+    differs.
     """
 
     kind: str
@@ -340,8 +341,8 @@ def apply_cap(inp: PolicyInputs, base: pd.DataFrame, kind: str, cap: float) -> C
     use0 = cap_usage(base, kind)
     n = len(base)
     if use0 <= cap or n == 0:
-        return CapResult(kind, cap, False, True, 0.0, use0, use0, cost0, cost0, use0, base,
-                         np.zeros(n, dtype=bool))
+        return CapResult(kind, cap, False, True, 0.0, use0, use0, cost0, cost0, float("nan"),
+                         base, np.zeros(n, dtype=bool))
 
     def usage_at(lam: float) -> tuple[float, pd.DataFrame]:
         pol = compute_policy(_relaxed(inp, kind, lam))

@@ -57,8 +57,10 @@ def cap_sentence(cap: CapResult, currency: Any) -> str:
     if cap.kind == BUDGET:
         return (f"Each extra {money_text(1.0, currency)} of stock budget would save about "
                 f"{money_text(lam, currency)} a year (the Lagrange multiplier): keeping to "
-                f"the budget works as if every holding rate were {lam:.1%} higher, so order "
-                "quantities are smaller and orders more frequent." + cheaper)
+                f"the budget works as if each {money_text(1.0, currency)} of stock held for a "
+                f"year cost {money_text(lam, currency)} more than its holding rate says "
+                f"(a holding rate {lam:.1%} higher), so order quantities are smaller and "
+                "orders more frequent." + cheaper)
     return (f"Each extra order a year the cap allowed would save about "
             f"{money_text(lam, currency)} a year (the Lagrange multiplier): keeping to the cap "
             f"works as if every order cost {money_text(lam, currency)} more, so order "
