@@ -82,7 +82,7 @@ EXCHANGE_COLUMNS: tuple[str, ...] = (
 BUDGET = "budget"
 ORDERS = "orders"
 
-_BISECTION_REL = 1e-7
+_BISECTION_REL = 1e-4  # the polish spends what a coarser multiplier leaves
 _BISECTION_MAX = 80
 _BRACKET_MAX = 80
 _POLISH_ROUNDS = 10_000
