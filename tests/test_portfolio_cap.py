@@ -1,13 +1,14 @@
 """Aggregate caps: a stock budget or a cap on orders a year, across all items.
 
 Method: Lagrangian relaxation of the cap (any operations research text on Lagrange
-multipliers, e.g. Hillier & Lieberman, "Introduction to Operations Research"; for order
-quantities under an aggregate budget or orders limit, Silver, Pyke & Peterson, "Inventory
-Management and Production Planning and Scheduling", 3rd ed., 1998, ch. 5, chapter number
-from memory). Checked here: the cap is met; no single-item change the item's rules allow
-and the cap still admits lowers the total cost (brute force over each item's order
-quantities and reorder points, costed independently with scipy.stats); a slack cap returns
-the unconstrained policy; the multiplier agrees with the closed-form continuous optimum.
+multipliers, e.g. Hillier & Lieberman, "Introduction to Operations Research", from memory;
+for order quantities under an aggregate budget or orders limit, Silver, Pyke & Peterson,
+"Inventory Management and Production Planning and Scheduling", 3rd ed., 1998, ch. 5,
+chapter number from memory). Checked here: the cap is met; no single-item change the
+item's rules allow and the cap still admits lowers the total cost (brute force over each
+item's order quantities and reorder points, costed independently with scipy.stats); a
+slack cap returns the unconstrained policy; the multiplier agrees with the closed-form
+continuous optimum.
 """
 
 from __future__ import annotations

@@ -6,38 +6,39 @@ uses and call :func:`~xlpolicy.core.policy.compute_policy` and
 by the same formulas, under each item's own demand model, as the Policy sheet's.
 
 Exchange curve (Silver, Pyke & Peterson, *Inventory Management and Production Planning and
-Scheduling*, 3rd ed., 1998, ch. 7, "exchange curves"): total safety-stock investment
-against expected units short and stockout occasions per year, across all items, traced by
-one common parameter. The parameter is the one the owner actually sets: the service
-target (or, under the shortage-cost measure, the shortage cost). Each point moves every
-item's setting together: the odds of running short in a cycle, (1 - target) / target, are
-multiplied by one common factor f (so items on the Settings default all get the same new
-target, and an item with its own target keeps its place relative to the others), and a
-shortage cost is divided by f (the cost-optimal chance of running short is about
-Q H / (p D), inversely proportional to p). f = 1 is today's settings, so today's policy is
-a point of the curve, computed in the same call. Items x points are computed at once by
-tiling the inputs; there is no per-item loop.
+Scheduling*, 3rd ed., 1998, ch. 7, "exchange curves"; chapter from memory): total safety-
+stock investment against expected units short and stockout occasions per year, across all
+items, traced by one common parameter. The parameter is the one the owner actually sets:
+the service target (or, under the shortage-cost measure, the shortage cost). Each point
+moves every item's setting together: the odds of running short in a cycle, (1 - target) /
+target, are multiplied by one common factor f (so items on the Settings default all get
+the same new target, and an item with its own target keeps its place relative to the
+others), and a shortage cost is divided by f (the cost-optimal chance of running short is
+about Q H / (p D), inversely proportional to p). f = 1 is today's settings, so today's
+policy is a point of the curve, computed in the same call. Items x points are computed at
+once by tiling the inputs; there is no per-item loop.
 
 Aggregate caps (Lagrangian relaxation; e.g. Hillier & Lieberman, *Introduction to
 Operations Research*, on Lagrange multipliers for constrained optimisation; Silver, Pyke &
 Peterson 1998, ch. 5, on order quantities under an aggregate budget or a limit on the
-number of orders): minimise the total annual cost subject to a cap on the total average
-inventory value, sum c (Q/2 + max(R - mu, 0)) <= B, or on the total orders a year,
-sum D / Q <= N. Adding lambda times the capped quantity to the cost splits the problem by
-item, and each item's relaxed problem is the ordinary one with a changed input: a budget
-multiplier lambda (per $ of average stock per year) raises every holding rate to i + lambda;
-an orders multiplier lambda (per order) raises every order cost to S + lambda. So for a given
-lambda, compute_policy gives every item's best Q (and, under the shortage-cost measure,
-its best R) with pack sizes and minimum orders respected; bisection on lambda finds the
-smallest multiplier whose policy meets the cap. Because Q moves in whole packs, the usage
-is a step function of lambda and usually some slack is left: a greedy pass then spends it
-on single-item steps (one pack, one unit of reorder point) that lower the true cost, best
-saving per unit of the cap first, until none fits. The result meets the cap, and (for the
-cycle-service and shortage-cost measures) no single-item change that stays within it
-lowers the total cost. Under the fill-rate measure R follows Q (the smallest R meeting the
-target for that Q), so there the multiplier chooses Q and each R is re-set to keep the
-target: a policy that meets the cap and every target, not a proven least-cost one (the
-fill-rate rule itself sets Q by the EOQ without regard to R).
+number of orders; both references from memory): minimise the total annual cost subject to
+a cap on the total average inventory value, sum c (Q/2 + max(R - mu, 0)) <= B, or on the
+total orders a year, sum D / Q <= N. Adding lambda times the capped quantity to the cost
+splits the problem by item, and each item's relaxed problem is the ordinary one with a
+changed input: a budget multiplier lambda (per $ of average stock per year) raises every
+holding rate to i + lambda; an orders multiplier lambda (per order) raises every order
+cost to S + lambda. So for a given lambda, compute_policy gives every item's best Q (and,
+under the shortage-cost measure, its best R) with pack sizes and minimum orders respected;
+bisection on lambda finds the smallest multiplier whose policy meets the cap. Because Q
+moves in whole packs, the usage is a step function of lambda and usually some slack is
+left: a greedy pass then spends it on single-item steps (one pack, one unit of reorder
+point) that lower the true cost, best saving per unit of the cap first, until none fits.
+The result meets the cap, and (for the cycle-service and shortage-cost measures) no
+single-item change that stays within it lowers the total cost. Under the fill-rate measure
+R follows Q (the smallest R meeting the target for that Q), so there the multiplier
+chooses Q and each R is re-set to keep the target: a policy that meets the cap and every
+target, not a proven least-cost one (the fill-rate rule itself sets Q by the EOQ without
+regard to R).
 """
 
 from __future__ import annotations
