@@ -33,12 +33,12 @@ bisection on lambda finds the smallest multiplier whose policy meets the cap. Be
 moves in whole packs, the usage is a step function of lambda and usually some slack is
 left: a greedy pass then spends it on single-item steps (one pack, one unit of reorder
 point) that lower the true cost, best saving per unit of the cap first, until none fits.
-The result meets the cap, and (for the cycle-service and shortage-cost measures) no
-single-item change that stays within it lowers the total cost. Under the fill-rate measure
-R follows Q (the smallest R meeting the target for that Q), so there the multiplier
-chooses Q and each R is re-set to keep the target: a policy that meets the cap and every
-target, not a proven least-cost one (the fill-rate rule itself sets Q by the EOQ without
-regard to R).
+The result meets the cap, and (for the cycle-service and shortage-cost measures) no such
+step that stays within it lowers the total cost (the tests check any single-item change by
+brute force). Under the fill-rate measure R follows Q (the smallest R meeting the target
+for that Q), so there the multiplier chooses Q and each R is re-set to keep the target: a
+policy that meets the cap and every target, not a proven least-cost one (the fill-rate
+rule itself sets Q by the EOQ without regard to R).
 """
 
 from __future__ import annotations

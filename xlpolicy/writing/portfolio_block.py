@@ -109,7 +109,8 @@ def _cap_block(ctx: Context, ws: Worksheet, row: int, cap: CapResult) -> int:
     row += 1
     if cap.binding and cap.feasible:
         ctx.w.text(ws, row, 0, "Lagrange multiplier" + (
-            " (per $ of stock a year)" if cap.kind == BUDGET else " (per order)"))
+            " (yearly cost per unit of money in stock)" if cap.kind == BUDGET
+            else " (yearly cost per order)"))
         ctx.w.number(ws, row, 2, cap.multiplier,
                      num_format="0.0000" if cap.kind == BUDGET else ctx.money)
         row += 1
