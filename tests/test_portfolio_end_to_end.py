@@ -83,6 +83,11 @@ def test_stock_budget_from_settings_is_met_in_the_written_workbook(tmp_path):
     text = " ".join(str(r[0]) for r in rows[k:k + 12] if r and r[0])
     assert "Each extra" in text and "of stock budget would save about" in text
 
+    method = [c.value for row in load_workbook(out)["How it works"].iter_rows() for c in row
+              if isinstance(c.value, str)]
+    k = method.index("Across all items")
+    assert "Lagrangian relaxation" in method[k + 2] and "safety-critical" in method[k + 3]
+
     doc = json.loads((tmp_path / "p.json").read_text())
     cap = doc["portfolio"]["cap"]
     assert cap["binding"] and cap["feasible"] and cap["usage"] <= budget
