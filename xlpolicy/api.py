@@ -70,9 +70,9 @@ def default_output_path(path: str | Path) -> Path:
 def _overrides(service_measure: str | None, service_target: float | str | None,
                holding_rate: float | str | None,
                order_cost: float | str | None,
-               history: str | Path | None = None) -> dict[str, Any]:
+               history: str | Path | None = None, **caps: Any) -> dict[str, Any]:
     """Check command-line overrides of the Settings; raise UsageError if one is bad."""
-    out: dict[str, Any] = {}
+    out: dict[str, Any] = _cap_overrides(**caps)
     if history is not None:
         h = Path(history).expanduser()
         if not h.is_file():
@@ -103,6 +103,24 @@ def _overrides(service_measure: str | None, service_target: float | str | None,
     return out
 
 
+def _cap_overrides(stock_budget: float | str | None = None,
+                   orders_cap: float | str | None = None,
+                   exchange_curve: bool | None = None) -> dict[str, Any]:
+    """The portfolio overrides (issue 4, parts 6 and 7): a cap, and the exchange curve."""
+    out: dict[str, Any] = {}
+    for key, value, what in (("stock_budget", stock_budget, "stock budget"),
+                             ("orders_cap", orders_cap, "orders cap")):
+        if value is None:
+            continue
+        x = _number(value, what)
+        if not x > 0:
+            raise UsageError(f"the {what} must be more than 0")
+        out[key] = x
+    if exchange_curve is not None:
+        out["exchange_curve"] = "yes" if exchange_curve else "no"
+    return out
+
+
 def _number(value: float | str, what: str, rate: bool = False) -> float:
     """A number given on the command line or to the API, as 0.95 or "95%"."""
     x, why = parse_number(value, rate=rate)
@@ -115,18 +133,25 @@ def analyse(path: str | Path, *, service_measure: str | None = None,
             service_target: float | str | None = None,
             holding_rate: float | str | None = None, order_cost: float | str | None = None,
             run_date: _dt.date | None = None, progress: Progress = silent,
-            allow_large: bool = False, history: str | Path | None = None) -> Report:
+            allow_large: bool = False, stock_budget: float | str | None = None,
+            orders_cap: float | str | None = None,
+            exchange_curve: bool | None = None,
+            history: str | Path | None = None) -> Report:
     """Read, check and plan a workbook without writing anything.
 
     Raises UnusableWorkbook when the workbook cannot be used at all. ``progress`` is called
     as the run goes (stage, done, total), for a progress bar. ``allow_large`` raises the
     size limits that protect against zip bombs tenfold (see xlpolicy.reading.guard).
-    ``history``: a CSV or Parquet file of sales history (Item, Period, Quantity) read instead
-    of the History sheet, as the Settings row "History file" does.
+    ``stock_budget`` / ``orders_cap`` cap the average stock value or the orders a year
+    across all items, ``exchange_curve`` turns the curve on or off (all three override
+    Settings); the results are in ``report.portfolio``. ``history``: a CSV or Parquet
+    file of sales history (Item, Period, Quantity) read instead of the History sheet, as
+    the Settings row "History file" does.
     """
     log = ProblemLog()
     overrides = _overrides(service_measure, service_target, holding_rate, order_cost,
-                           history)
+                           stock_budget=stock_budget, orders_cap=orders_cap,
+                           exchange_curve=exchange_curve, history=history)
     with guard.allow_large(allow_large):
         data = read_input(Path(path), overrides, log, progress)
     if data is None:
@@ -159,7 +184,10 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
          service_target: float | str | None = None, holding_rate: float | str | None = None,
          order_cost: float | str | None = None, write_workbook: bool = True,
          run_date: _dt.date | None = None, progress: Progress = silent,
-         allow_large: bool = False, history: str | Path | None = None) -> PlanResult:
+         allow_large: bool = False, stock_budget: float | str | None = None,
+         orders_cap: float | str | None = None,
+         exchange_curve: bool | None = None,
+         history: str | Path | None = None) -> PlanResult:
     """Plan every item in the workbook at ``path`` and write the results.
 
     The input file is never changed. By default the output is ``<name>-policy.xlsx`` beside
@@ -171,7 +199,9 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
         _check_output_path(src, out)
     report = analyse(src, service_measure=service_measure, service_target=service_target,
                      holding_rate=holding_rate, order_cost=order_cost, run_date=run_date,
-                     progress=progress, allow_large=allow_large, history=history)
+                     progress=progress, allow_large=allow_large, stock_budget=stock_budget,
+                     orders_cap=orders_cap, exchange_curve=exchange_curve,
+                     history=history)
     result = PlanResult(report)
     if write_workbook:
         progress(f"Writing {out.name}", 0, None)

@@ -83,6 +83,24 @@ def _override_options(f: Any) -> Any:
     return f
 
 
+def _portfolio_options(f: Any) -> Any:
+    """--budget, --orders-cap, --no-curve: decisions across all items (override Settings)."""
+    f = click.option("--no-curve", "no_curve", is_flag=True,
+                     help="Leave the exchange curve out of the Summary (a faster run).")(f)
+    f = click.option("--orders-cap", type=str, default=None, metavar="N",
+                     help="Cap on the orders a year, all items together; order quantities "
+                          "are raised at least cost to meet it.")(f)
+    f = click.option("--budget", "stock_budget", type=str, default=None, metavar="MONEY",
+                     help="Cap on the average value of all stock held; order quantities "
+                          "are lowered at least cost to meet it.")(f)
+    return f
+
+
+def _caps(stock_budget: str | None, orders_cap: str | None, no_curve: bool) -> dict[str, Any]:
+    return {"stock_budget": stock_budget, "orders_cap": orders_cap,
+            "exchange_curve": False if no_curve else None}
+
+
 def _allow_large_option(f: Any) -> Any:
     """--allow-large: raise the limits that keep zip bombs out (for a trusted, huge file)."""
     return click.option("--allow-large", is_flag=True,
@@ -111,12 +129,13 @@ def main() -> None:
 @click.option("--json", "json_path", type=click.Path(path_type=Path), default=None,
               help="Also write the per-item table, problems and totals as JSON.")
 @_override_options
+@_portfolio_options
 @_allow_large_option
 @click.option("-q", "--quiet", is_flag=True, help="Print only the path written and errors.")
 def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: Path | None,
          service_measure: str | None, service_target: str | None, holding_rate: str | None,
-         order_cost: str | None, history: Path | None, allow_large: bool,
-         quiet: bool) -> None:
+         order_cost: str | None, history: Path | None, stock_budget: str | None,
+         orders_cap: str | None, no_curve: bool, allow_large: bool, quiet: bool) -> None:
     """Compute the policy for every item and write the policy workbook.
 
     Your WORKBOOK is never changed. The output holds your own sheets plus Policy, Summary,
@@ -126,7 +145,8 @@ def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: 
     result = _run(lambda: api.plan(
         workbook, output, csv=csv_path, json=json_path, service_measure=service_measure,
         service_target=service_target, holding_rate=holding_rate, order_cost=order_cost,
-        progress=bar, allow_large=allow_large, history=history), bar)
+        progress=bar, allow_large=allow_large, history=history,
+        **_caps(stock_budget, orders_cap, no_curve)), bar)
     _print_run(result, quiet)
 
 
@@ -163,9 +183,11 @@ def _print_run(result: api.PlanResult, quiet: bool) -> None:
 @main.command()
 @click.argument("workbook", type=click.Path(path_type=Path))
 @_override_options
+@_portfolio_options
 @_allow_large_option
 def check(workbook: Path, service_measure: str | None, service_target: str | None,
           holding_rate: str | None, order_cost: str | None, history: Path | None,
+          stock_budget: str | None, orders_cap: str | None, no_curve: bool,
           allow_large: bool) -> None:
     """Report every problem in WORKBOOK without writing anything.
 
@@ -175,7 +197,8 @@ def check(workbook: Path, service_measure: str | None, service_target: str | Non
     report = _run(lambda: api.analyse(
         workbook, service_measure=service_measure, service_target=service_target,
         holding_rate=holding_rate, order_cost=order_cost, progress=bar,
-        allow_large=allow_large, history=history), bar)
+        allow_large=allow_large, history=history,
+        **_caps(stock_budget, orders_cap, no_curve)), bar)
     _print_read(report)
     _print_problems(report.problems, limit=None)
     if not report.problems:
@@ -304,6 +327,9 @@ def _print_totals(report: Report) -> None:
         ("Items to reorder now", f"{int(t['items_to_reorder'])} "
                                  f"({money(t['reorder_value'])})"),
     ]
+    cap = (report.portfolio or {}).get("cap")
+    if cap is not None and cap.binding:
+        rows.append(("Yearly cost of keeping to the cap", money(cap.cost_of_cap)))
     width = max(len(k) for k, _ in rows)
     for k, v in rows:
         click.echo(f"  {k:<{width}}  {v:>16}")

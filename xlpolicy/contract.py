@@ -224,6 +224,19 @@ SETTINGS: tuple[Setting, ...] = (
             "read instead of the History sheet: for a history longer than a sheet holds. "
             "A path relative to the workbook's folder.",
             ("history path", "sales history file", "history csv")),
+    Setting("stock_budget", "Stock budget", None,
+            "A cap on the average value of all stock held (money, at unit cost). Where the "
+            "policy would hold more, order quantities (and, under 'shortage cost', reorder "
+            "points) are lowered at least cost to meet it. Blank: no cap.",
+            ("inventory budget", "stock value cap", "budget")),
+    Setting("orders_cap", "Orders a year cap", None,
+            "A cap on the orders placed a year, all items together. Where the policy would "
+            "place more, order quantities are raised at least cost to meet it. Blank: no cap.",
+            ("orders per year cap", "order limit", "max orders per year")),
+    Setting("exchange_curve", "Exchange curve", "yes",
+            "yes: the Summary shows what other service targets (or shortage costs) would cost "
+            "in safety stock and give in shortages; no: leave it out (a faster run).",
+            ("tradeoff curve", "service curve")),
 )
 
 SETTING_BY_KEY = {s.key: s for s in SETTINGS}
@@ -254,6 +267,7 @@ EXTRA_RESULT_KEYS: tuple[str, ...] = (
     "current_annual_ordering_cost", "current_annual_cycle_holding_cost",
     "current_annual_safety_holding_cost", "current_annual_shortage_cost",
     "current_annual_total_cost", "annual_saving", "rounding_cost_ratio", "rounding_penalty",
+    "uncapped_order_qty", "uncapped_reorder_point", "uncapped_annual_total_cost",
 )
 
 #: How the template marks its example rows (the description starts with it), so a run can

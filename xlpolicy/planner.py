@@ -25,6 +25,7 @@ from .contract import (
 from .core.classes import DEFAULT_CUTOFFS, abc_classes
 from .core.history import analyse_history, analysis_from_figures, choose_model
 from .core.policy import PolicyInputs, compute_policy, evaluate_policy
+from .core.portfolio import BUDGET, ORDERS, apply_cap, exchange_curve
 from .problems import ProblemLog, Severity
 from .reading import InputData
 from .report import REORDER_KEYS, Report
@@ -58,6 +59,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
     results["service_measure"] = settings["service_measure"]
 
     idx = np.flatnonzero(planned)
+    portfolio: dict[str, Any] = {}
     if len(idx):
         sub = df.iloc[idx]
         measure = np.full(len(idx), settings["service_measure"], dtype=object)
@@ -79,6 +81,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
             model=demand["model"][idx],
         )
         pol = compute_policy(inp)
+        pol, portfolio = _portfolio(inp, pol, settings, log)
         for key in pol.columns:
             if key in results.columns:
                 results.loc[idx, key] = pol[key].to_numpy()
@@ -108,7 +111,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
     }
     return Report(results=results, reorder=reorder, problems=log.sorted(), settings=settings,
                   totals=totals, input_summary=summary, source_name=source_name,
-                  run_date=run_date or _dt.date.today())
+                  run_date=run_date or _dt.date.today(), portfolio=portfolio)
 
 
 def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
@@ -477,3 +480,52 @@ def _totals(results: pd.DataFrame, reorder: pd.DataFrame) -> dict[str, float]:
             results.loc[compared, "annual_total_cost"].to_numpy(float))),
         "annual_saving": float(np.nansum(results.loc[compared, "annual_saving"].to_numpy(float))),
     }
+
+
+def _portfolio(inp: PolicyInputs, pol: pd.DataFrame, settings: dict[str, Any],
+               log: ProblemLog) -> tuple[pd.DataFrame, dict[str, Any]]:
+    """Decisions across all items (issue 4, parts 6 and 7): a cap, then the exchange curve.
+
+    A stock budget or an orders cap from Settings (or the command line) replaces the policy
+    by the least-cost one that meets it; the unconstrained order quantity, reorder point and
+    cost are kept beside it (``uncapped_*``). The exchange curve is traced around the
+    settings as given, i.e. for the policy before any cap (the cap is a different question:
+    what the limit costs). Returns the policy to report and what the Summary shows.
+    """
+    out: dict[str, Any] = {}
+    budget, orders = settings.get("stock_budget"), settings.get("orders_cap")
+    sources = settings.get("sources", {})
+
+    def where(key: str) -> dict[str, str]:
+        src = str(sources.get(key, ""))
+        return ({"sheet": "Settings", "cell": src.split(" ", 1)[1]}
+                if src.startswith("Settings ") else {"sheet": "", "cell": ""})
+
+    if budget is not None and orders is not None:
+        log.warning("Both a stock budget and an orders cap are set; only the stock budget was "
+                    "applied (one cap at a time). Leave one of them blank.",
+                    **where("orders_cap"), value=orders, code="cap-both")
+        orders = None
+    cap = (BUDGET, float(budget)) if budget is not None else (
+        (ORDERS, float(orders)) if orders is not None else None)
+    if settings.get("exchange_curve", "yes") != "no":
+        out["exchange_curve"] = exchange_curve(inp, float(settings["service_target"]),
+                                               str(settings["service_measure"]))
+    if cap is None:
+        return pol, out
+    res = apply_cap(inp, pol, *cap)
+    out["cap"] = res
+    key = "stock_budget" if cap[0] == BUDGET else "orders_cap"
+    if res.binding and not res.feasible:
+        what = ("average stock value" if cap[0] == BUDGET else "orders a year")
+        log.warning(f"The {key.replace('_', ' ')} of {cap[1]:,.2f} cannot be met: even the "
+                    f"smallest orders the packs and minimums allow"
+                    + (" and the reorder points the service targets need" if cap[0] == BUDGET
+                       else "") + f" give {res.least:,.2f} {what}. The policy with the least "
+                    "was used; raise the cap or lower the service targets.",
+                    **where(key), value=cap[1], code="cap-infeasible")
+    capped = res.policy.copy()
+    capped["uncapped_order_qty"] = pol["order_qty"].to_numpy(float)
+    capped["uncapped_reorder_point"] = pol["reorder_point"].to_numpy(float)
+    capped["uncapped_annual_total_cost"] = pol["annual_total_cost"].to_numpy(float)
+    return capped, out

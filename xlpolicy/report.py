@@ -39,6 +39,9 @@ class Report:
     input_summary: dict[str, Any]
     source_name: str
     run_date: _dt.date = field(default_factory=_dt.date.today)
+    #: Decisions across all items (core.portfolio): "exchange_curve" (a DataFrame of
+    #: EXCHANGE_COLUMNS) and "cap" (a CapResult), each present when computed.
+    portfolio: dict[str, Any] = field(default_factory=dict)
 
 
 REORDER_KEYS: tuple[str, ...] = (

@@ -150,7 +150,7 @@ def resolve_settings(
                 bad(key, raw, cell, "write auto, normal, poisson, negative binomial or gamma")
                 continue
             out[key] = m
-        elif key == "cap_outliers":
+        elif key in ("cap_outliers", "exchange_curve"):
             yes = parse_yes_no(raw)
             if yes is None:
                 bad(key, raw, cell, "write yes or no")
@@ -178,6 +178,9 @@ def resolve_settings(
                 continue
             if key == "dormant_after" and (x < 1 or not float(x).is_integer()):
                 bad(key, raw, cell, "write a whole number of periods, 1 or more")
+                continue
+            if key in ("stock_budget", "orders_cap") and not x > 0:
+                bad(key, raw, cell, "a cap must be more than 0; leave it blank for no cap")
                 continue
             out[key] = x
         sources[key] = f"Settings {cell}"
@@ -208,6 +211,9 @@ def finish_period(settings: dict[str, Any]) -> None:
 SETTING_DEFAULT_TEXT = {
     "demand_model": "auto",
     "cap_outliers": "no",
+    "exchange_curve": "yes",
+    "stock_budget": "no cap",
+    "orders_cap": "no cap",
     "dormant_after": "about a quarter of a year",
     "period": "week",
     "periods_per_year": "365, 52 or 12 by period",

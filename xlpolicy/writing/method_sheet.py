@@ -14,6 +14,7 @@ from xlsxwriter.worksheet import Worksheet
 
 from .. import contract
 from .policy_sheet import FORMULAS, POLICY_COLUMNS, VALUE_NOTES
+from .portfolio_block import method_sentences as portfolio_sentences
 from .sheetkit import MUTED, PERCENT, Context, clean_text, finite
 
 _WIDTH = 4  # columns A..D
@@ -33,6 +34,7 @@ def write_method(ctx: Context, ws: Worksheet) -> None:
     row = _paragraphs(ctx, ws, row + 1, "How the demand model is chosen", model_rule())
     row = _formulas(ctx, ws, row + 1)
     row = _paragraphs(ctx, ws, row + 1, "ABC classes", abc_sentences(ctx))
+    row = _paragraphs(ctx, ws, row + 1, "Across all items", portfolio_sentences(ctx))
     row = _settings(ctx, ws, row + 1)
     row = _paragraphs(ctx, ws, row + 1, "Cautions", cautions(ctx))
     ws.hide_gridlines(2)

@@ -105,6 +105,10 @@ POLICY_COLUMNS: tuple[Col, ...] = (
     Col("current_annual_shortage_cost", "Today: annual shortage cost", "money"),
     Col("current_annual_total_cost", "Today: annual total cost", "money"),
     Col("annual_saving", "Annual saving with the recommended policy", "money"),
+    # without the stock budget or orders cap, where one is set
+    Col("uncapped_order_qty", "Without the cap: order quantity (units)", "units"),
+    Col("uncapped_reorder_point", "Without the cap: reorder point (units)", "units"),
+    Col("uncapped_annual_total_cost", "Without the cap: annual total cost", "money"),
 )
 
 #: The inputs the formulas name, by symbol.

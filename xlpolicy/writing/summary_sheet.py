@@ -19,6 +19,7 @@ from xlsxwriter.worksheet import Worksheet
 
 from .. import contract
 from ..problems import Severity
+from .portfolio_block import cap_headline, write_portfolio
 from .sheetkit import (
     GOOD,
     INK,
@@ -130,6 +131,7 @@ def write_summary(ctx: Context, ws: Worksheet) -> None:
     sup = _breakdown(ctx, ws, row + 1, "By supplier", "supplier")
     row = sup.last + 2 if sup else row + 1
     row = _top_items(ctx, ws, row + 1)
+    row = write_portfolio(ctx, ws, row + 1)
     row = _read(ctx, ws, row + 1)
     row = ctx.paragraph(ws, row + 1, (
         f"How these numbers are made, the settings used and the cautions (including those "
@@ -168,6 +170,9 @@ def headlines(ctx: Context) -> list[tuple[str, str]]:
         colour = GOOD if (finite(t.get("annual_saving")) or 0) >= 0 else INK
         out.append((ctx.compare_headline.rstrip(".") + f" (see '{ctx.names['compare']}').",
                     colour))
+    cap = cap_headline(ctx)
+    if cap:
+        out.append((cap, INK))
     avg = finite(t.get("average_inventory_value"))
     turns = finite(t.get("inventory_turns"))
     if avg is not None and turns is not None:

@@ -119,6 +119,26 @@ def plain(value: Any) -> Any:
     return str(value)
 
 
+def portfolio_for_export(report: Report) -> dict[str, Any]:
+    """The exchange curve (one record per point) and the cap's totals, JSON-ready."""
+    port = getattr(report, "portfolio", None) or {}
+    out: dict[str, Any] = {}
+    curve = port.get("exchange_curve")
+    if curve is not None:
+        out["exchange_curve"] = [{k: plain(v) for k, v in rec.items()}
+                                 for rec in curve.to_dict("records")]
+    cap = port.get("cap")
+    if cap is not None:
+        out["cap"] = plain({
+            "kind": cap.kind, "cap": cap.cap, "binding": cap.binding, "feasible": cap.feasible,
+            "multiplier": cap.multiplier, "usage": cap.usage,
+            "uncapped_usage": cap.uncapped_usage, "annual_total_cost": cap.cost,
+            "uncapped_annual_total_cost": cap.uncapped_cost, "cost_of_cap": cap.cost_of_cap,
+            "items_changed": int(cap.changed.sum()), "least_usage": cap.least,
+        })
+    return out
+
+
 def write_json(path: Path, report: Report) -> None:
     """Write items, problems, settings and totals as strict JSON (NaN becomes null).
 
@@ -135,6 +155,7 @@ def write_json(path: Path, report: Report) -> None:
         "problems": [plain(p.as_dict()) for p in report.problems or []],
         "settings": plain(dict(report.settings or {})),
         "totals": plain(dict(report.totals or {})),
+        "portfolio": portfolio_for_export(report),
     }
     text = json.dumps(doc, ensure_ascii=False, indent=2, allow_nan=False)
     with atomic_output(Path(path)) as tmp:

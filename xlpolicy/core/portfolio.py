@@ -1,0 +1,487 @@
+"""Decisions across all items at once: the exchange curve and aggregate caps.
+
+Both work on the same :class:`~xlpolicy.core.policy.PolicyInputs` the single-item policy
+uses and call :func:`~xlpolicy.core.policy.compute_policy` and
+:func:`~xlpolicy.core.policy.evaluate_policy` on whole columns, so every number here is made
+by the same formulas, under each item's own demand model, as the Policy sheet's.
+
+Exchange curve (Silver, Pyke & Peterson, *Inventory Management and Production Planning and
+Scheduling*, 3rd ed., 1998, ch. 7, "exchange curves"; chapter from memory): total safety-
+stock investment against expected units short and stockout occasions per year, across all
+items, traced by one common parameter. The parameter is the one the owner actually sets:
+the service target (or, under the shortage-cost measure, the shortage cost). Each point
+moves every item's setting together: the odds of running short in a cycle, (1 - target) /
+target, are multiplied by one common factor f (so items on the Settings default all get
+the same new target, and an item with its own target keeps its place relative to the
+others), and a shortage cost is divided by f (the cost-optimal chance of running short is
+about Q H / (p D), inversely proportional to p). f = 1 is today's settings, so today's
+policy is a point of the curve, computed in the same call. Items x points are computed at
+once by tiling the inputs; there is no per-item loop.
+
+Aggregate caps (Lagrangian relaxation; e.g. Hillier & Lieberman, *Introduction to
+Operations Research*, on Lagrange multipliers for constrained optimisation; Silver, Pyke &
+Peterson 1998, ch. 5, on order quantities under an aggregate budget or a limit on the
+number of orders; both references from memory): minimise the total annual cost subject to
+a cap on the total average inventory value, sum c (Q/2 + max(R - mu, 0)) <= B, or on the
+total orders a year, sum D / Q <= N. Adding lambda times the capped quantity to the cost
+splits the problem by item, and each item's relaxed problem is the ordinary one with a
+changed input: a budget multiplier lambda (per $ of average stock per year) raises every
+holding rate to i + lambda; an orders multiplier lambda (per order) raises every order
+cost to S + lambda. So for a given lambda, compute_policy gives every item's best Q (and,
+under the shortage-cost measure, its best R) with pack sizes and minimum orders respected;
+bisection on lambda finds the smallest multiplier whose policy meets the cap. Because Q
+moves in whole packs, the usage is a step function of lambda and usually some slack is
+left: a greedy pass then spends it on single-item steps (one pack, one unit of reorder
+point) that lower the true cost, best saving per unit of the cap first, until none fits.
+The result meets the cap, and (for the cycle-service and shortage-cost measures) no such
+step that stays within it lowers the total cost (the tests check any single-item change by
+brute force). Under the fill-rate measure R follows Q (the smallest R meeting the target
+for that Q), so there the multiplier chooses Q and each R is re-set to keep the target: a
+policy that meets the cap and every target, not a proven least-cost one (the fill-rate
+rule itself sets Q by the EOQ without regard to R).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, fields, replace
+
+import numpy as np
+import pandas as pd
+
+from xlpolicy.contract import CYCLE_SERVICE, FILL_RATE, SHORTAGE_COST
+from xlpolicy.core.models import MODEL_NAMES, NormalLeadTimeDemand, model_factory
+from xlpolicy.core.policy import PROB_TOL, PolicyInputs, compute_policy, evaluate_policy
+
+__all__ = [
+    "EXCHANGE_COLUMNS",
+    "DEFAULT_CURVE_TARGETS",
+    "DEFAULT_CURVE_MULTIPLIERS",
+    "BUDGET",
+    "ORDERS",
+    "CapResult",
+    "exchange_curve",
+    "scaled_inputs",
+    "tile_inputs",
+    "apply_cap",
+    "cap_usage",
+]
+
+#: Service targets (for the items on the Settings default) at which the curve is traced;
+#: today's default target is always added.
+DEFAULT_CURVE_TARGETS: tuple[float, ...] = (
+    0.5, 0.75, 0.8, 0.85, 0.9, 0.925, 0.95, 0.97, 0.98, 0.99, 0.995, 0.999)
+#: Multipliers on every shortage cost (shortage-cost measure); 1 (today) is among them.
+DEFAULT_CURVE_MULTIPLIERS: tuple[float, ...] = (0.1, 0.2, 0.5, 1.0, 2.0, 5.0, 10.0, 20.0, 50.0)
+
+#: Columns of :func:`exchange_curve`, one row per point, lowest investment first.
+EXCHANGE_COLUMNS: tuple[str, ...] = (
+    "default_target", "shortage_cost_multiplier", "shortage_odds_factor",
+    "safety_stock_investment", "units_short_per_year", "stockout_occasions_per_year",
+    "fill_rate_overall", "annual_safety_holding_cost", "items", "current",
+)
+
+BUDGET = "budget"
+ORDERS = "orders"
+
+_BISECTION_REL = 1e-4  # the polish spends what a coarser multiplier leaves
+_BISECTION_MAX = 80
+_BRACKET_MAX = 80
+_POLISH_ROUNDS = 10_000
+
+
+def tile_inputs(inp: PolicyInputs, k: int) -> PolicyInputs:
+    """The inputs repeated k times, point-major (row p * n + i is item i at point p).
+
+    Every per-item field (a 1-D array of the items' length) is tiled; scalars and the
+    scalar days_per_period are left as they are, so fields added to PolicyInputs later are
+    carried along.
+    """
+    n = np.asarray(inp.annual_demand).reshape(-1).shape[0]
+    out = {}
+    for f in fields(inp):
+        val = getattr(inp, f.name)
+        if val is not None and np.ndim(val) == 1 and len(val) == n:
+            out[f.name] = np.tile(np.asarray(val), k)
+    return replace(inp, **out)
+
+
+def _item_column(inp: PolicyInputs, name: str, n: int, dtype: type = float) -> np.ndarray:
+    return np.broadcast_to(np.asarray(getattr(inp, name), dtype=dtype), (n,)).copy()
+
+
+def _measures(inp: PolicyInputs, n: int) -> np.ndarray:
+    raw = _item_column(inp, "measure", n, object).astype(str)
+    return np.char.lower(np.char.strip(raw))
+
+
+def scaled_inputs(inp: PolicyInputs, factors: np.ndarray) -> PolicyInputs:
+    """The inputs tiled once per factor f, each item's setting moved by f.
+
+    Service measures: the odds of running short, (1 - t) / t, times f, i.e.
+    t' = t / (t + f (1 - t)). Shortage cost: p' = p / f. f = 1 leaves the inputs exactly
+    as they are (today's settings).
+    """
+    f_arr = np.asarray(factors, dtype=float).reshape(-1)
+    n = np.asarray(inp.annual_demand).reshape(-1).shape[0]
+    k = f_arr.shape[0]
+    t = np.tile(_item_column(inp, "service_target", n), k)
+    p = np.tile(_item_column(inp, "shortage_cost", n), k)
+    f = np.repeat(f_arr, n)
+    with np.errstate(all="ignore"):
+        t_new = np.where(f == 1.0, t, t / (t + f * (1.0 - t)))
+        p_new = np.where(f == 1.0, p, p / f)
+    tiled = tile_inputs(inp, k)
+    return replace(tiled, service_target=t_new, shortage_cost=p_new,
+                   measure=np.tile(_item_column(inp, "measure", n, object), k))
+
+
+def _odds(t: float) -> float:
+    return (1.0 - t) / t
+
+
+def exchange_curve(inp: PolicyInputs, default_target: float, measure: str,
+                   targets: tuple[float, ...] = DEFAULT_CURVE_TARGETS,
+                   multipliers: tuple[float, ...] = DEFAULT_CURVE_MULTIPLIERS) -> pd.DataFrame:
+    """Safety-stock investment against shortages per year, across all items, per point.
+
+    ``measure`` (the Settings service measure) picks the parameter: the default service
+    target (points at ``targets`` plus ``default_target``) or a multiplier on every
+    shortage cost (``multipliers``, which should include 1). Per point, over the items
+    compute_policy can plan: safety_stock_investment = sum c max(R - mu, 0) (as the
+    Summary's safety stock value); units_short_per_year = sum D/Q n(R);
+    stockout_occasions_per_year = sum D/Q P(X > R); fill_rate_overall = 1 - units short /
+    demand; annual_safety_holding_cost = sum H (R - mu). ``current`` marks today's point
+    (f = 1). Rows run from the lowest investment to the highest.
+    """
+    key = str(measure).strip().lower()
+    if key == SHORTAGE_COST:
+        mult = np.array(sorted({float(m) for m in multipliers if m > 0} | {1.0}))
+        factors = 1.0 / mult
+        shown_t = np.full(mult.shape, np.nan)
+        shown_m = mult
+    else:
+        t0 = float(default_target)
+        grid = np.array(sorted({float(t) for t in targets if 0 < t < 1} | {t0}))
+        factors = np.array([1.0 if g == t0 else _odds(g) / _odds(t0) for g in grid])
+        shown_t = grid
+        shown_m = np.full(grid.shape, np.nan)
+    n = np.asarray(inp.annual_demand).reshape(-1).shape[0]
+    k = factors.shape[0]
+    pol = compute_policy(scaled_inputs(inp, factors))
+
+    def per_point(x: pd.Series | np.ndarray) -> np.ndarray:
+        return np.asarray(x, dtype=float).reshape(k, n)
+
+    c = np.tile(_item_column(inp, "unit_cost", n), k).reshape(k, n)
+    q = per_point(pol["order_qty"])
+    orders = per_point(pol["orders_per_year"])
+    ss = per_point(pol["safety_stock"])
+    short = per_point(pol["expected_units_short_per_cycle"])
+    csl = per_point(pol["cycle_service"])
+    demand = per_point(pol["annual_demand"])
+    planned = np.isfinite(q)
+    with np.errstate(all="ignore"):
+        units_short = np.nansum(orders * short, axis=1)
+        total_demand = np.nansum(np.where(planned, demand, np.nan), axis=1)
+        frame = pd.DataFrame({
+            "default_target": shown_t,
+            "shortage_cost_multiplier": shown_m,
+            "shortage_odds_factor": factors,
+            "safety_stock_investment": np.nansum(np.maximum(ss, 0.0) * c, axis=1),
+            "units_short_per_year": units_short,
+            "stockout_occasions_per_year": np.nansum(orders * (1.0 - csl), axis=1),
+            "fill_rate_overall": np.where(total_demand > 0, 1.0 - units_short / total_demand,
+                                          np.nan),
+            "annual_safety_holding_cost": np.nansum(
+                per_point(pol["annual_safety_holding_cost"]), axis=1),
+            "items": planned.sum(axis=1).astype(float),
+            "current": factors == 1.0,
+        }, columns=list(EXCHANGE_COLUMNS))
+    # lower f = fewer shortages = more stock: order by falling factor
+    return frame.sort_values("shortage_odds_factor", ascending=False,
+                             kind="stable").reset_index(drop=True)
+
+
+# ---------------------------------------------------------------------------------------
+# Aggregate caps
+# ---------------------------------------------------------------------------------------
+
+
+@dataclass
+class CapResult:
+    """What capping the whole portfolio did.
+
+    ``policy``: compute_policy's columns for every item, at the true costs (the
+    unconstrained frame itself when the cap does not bind). ``usage`` and
+    ``uncapped_usage``: the capped total (average inventory value, or orders a year) with
+    and without the cap; ``cost``/``uncapped_cost``: the annual total cost. ``multiplier``:
+    the Lagrange multiplier at which the cap is met (0 when it does not bind), in $ of
+    yearly cost per $ of average stock (budget) or per order a year (orders).
+    ``feasible`` is False when even the least the policies allow (one pack or the minimum
+    order per item, and the reorder points the service targets need) is above the cap;
+    ``least`` is then that least usage (NaN otherwise). ``changed``: items whose Q or R
+    differs.
+    """
+
+    kind: str
+    cap: float
+    binding: bool
+    feasible: bool
+    multiplier: float
+    usage: float
+    uncapped_usage: float
+    cost: float
+    uncapped_cost: float
+    least: float
+    policy: pd.DataFrame
+    changed: np.ndarray = field(default_factory=lambda: np.zeros(0, dtype=bool))
+    polish_steps: int = 0
+
+    @property
+    def cost_of_cap(self) -> float:
+        """Yearly total cost with the cap minus without it."""
+        return self.cost - self.uncapped_cost
+
+
+def cap_usage(policy: pd.DataFrame, kind: str) -> float:
+    """The capped total of a policy frame: average inventory value or orders a year."""
+    key = "average_inventory_value" if kind == BUDGET else "orders_per_year"
+    return float(np.nansum(policy[key].to_numpy(float)))
+
+
+def _relaxed(inp: PolicyInputs, kind: str, lam: float) -> PolicyInputs:
+    """The item problems with the multiplier folded in (holding rate or order cost)."""
+    if kind == BUDGET:
+        return replace(inp, holding_rate=np.asarray(inp.holding_rate, dtype=float) + lam)
+    return replace(inp, order_cost=np.asarray(inp.order_cost, dtype=float) + lam)
+
+
+class _Costing:
+    """Per-item true costs, usage and rule checks of (Q, R) pairs, all items at once."""
+
+    def __init__(self, inp: PolicyInputs, base: pd.DataFrame, kind: str):
+        n = len(base)
+        self.kind = kind
+        self.mu = base["lead_time_demand_mean"].to_numpy(float)
+        self.sd = base["lead_time_demand_sd"].to_numpy(float)
+        self.model = base["model"].to_numpy(object)
+        self.D = base["annual_demand"].to_numpy(float)
+        self.c = _item_column(inp, "unit_cost", n)
+        self.S = _item_column(inp, "order_cost", n)
+        self.H = _item_column(inp, "holding_rate", n) * self.c
+        self.p = _item_column(inp, "shortage_cost", n)
+        self.target = _item_column(inp, "service_target", n)
+        measure = _measures(inp, n)
+        self.is_cs = measure == CYCLE_SERVICE
+        self.is_fr = measure == FILL_RATE
+        pack = np.round(np.nan_to_num(_item_column(inp, "pack_size", n), nan=1.0))
+        self.pack = np.maximum(pack, 1.0)
+        moq = np.nan_to_num(_item_column(inp, "minimum_order", n))
+        self.q_min = self.pack * np.maximum(1.0, np.ceil(moq / self.pack - 1e-9))
+
+    def fill_rate_reorder(self, q: np.ndarray, which: np.ndarray) -> np.ndarray:
+        """For the items in ``which``: the smallest whole R >= 0 whose fill rate with
+        order quantity q meets the target (as compute_policy sets it); NaN elsewhere."""
+        out = np.full(q.shape, np.nan)
+        names = np.where(self.model == "", NormalLeadTimeDemand.name, self.model)
+        for name in MODEL_NAMES:
+            k = np.flatnonzero(which & (names == name))
+            if not k.size:
+                continue
+            model = model_factory(name)(self.mu[k], self.sd[k])
+            t, qk = self.target[k], q[k]
+            with np.errstate(all="ignore"):
+                start = np.ceil(model.min_r_for_shortage((1.0 - t) * qk) - 1e-9)
+                meets = lambda x, m=model, t=t, qk=qk: (  # noqa: E731
+                    1.0 - m.expected_shortage(x) / qk >= t - PROB_TOL)
+                r = start
+                for _ in range(2):
+                    r = np.where(meets(r - 1.0), r - 1.0, r)
+                    r = np.where(meets(r), r, r + 1.0)
+            out[k] = np.maximum(r, 0.0)
+        return out
+
+    def evaluate(self, q: np.ndarray, r: np.ndarray, reps: int = 1) -> pd.DataFrame:
+        """evaluate_policy at the true costs; q and r hold ``reps`` stacked copies."""
+        def t(x: np.ndarray) -> np.ndarray:
+            return np.tile(x, reps)
+
+        return evaluate_policy(q, r, t(self.mu), t(self.sd), t(self.model), t(self.D),
+                               t(self.S), t(self.H), t(self.c), t(self.p))
+
+    def usage(self, q: np.ndarray, r: np.ndarray, reps: int = 1) -> np.ndarray:
+        with np.errstate(all="ignore"):
+            if self.kind == BUDGET:
+                c, mu = np.tile(self.c, reps), np.tile(self.mu, reps)
+                return c * (q / 2.0 + np.maximum(r - mu, 0.0))
+            return np.tile(self.D, reps) / q
+
+    def allowed(self, q: np.ndarray, r: np.ndarray, ev: pd.DataFrame, reps: int = 1
+                ) -> np.ndarray:
+        """Whether (q, r) is a policy the item's rules accept (packs, minimum, target)."""
+        t = np.tile(self.target, reps)
+        cs, fr = np.tile(self.is_cs, reps), np.tile(self.is_fr, reps)
+        ok = (q >= np.tile(self.q_min, reps) - 1e-9) & (r >= 0) & np.isfinite(
+            ev["annual_total_cost"].to_numpy(float))
+        ok &= ~cs | (ev["cycle_service"].to_numpy(float) >= t - PROB_TOL)
+        ok &= ~fr | (ev["fill_rate"].to_numpy(float) >= t - PROB_TOL)
+        return ok
+
+
+def apply_cap(inp: PolicyInputs, base: pd.DataFrame, kind: str, cap: float) -> CapResult:
+    """The least-cost policies whose total average inventory value (kind "budget") or total
+    orders a year (kind "orders") is at most ``cap``; see the module docstring.
+
+    ``base`` is compute_policy(inp), the unconstrained policy. Where it already meets the
+    cap it is returned unchanged (binding False, multiplier 0). Items compute_policy cannot
+    plan (NaN) are left out of the totals and untouched.
+    """
+    if kind not in (BUDGET, ORDERS):
+        raise ValueError(f"unknown cap kind {kind!r}")
+    cost0 = float(np.nansum(base["annual_total_cost"].to_numpy(float)))
+    use0 = cap_usage(base, kind)
+    n = len(base)
+    if use0 <= cap or n == 0:
+        return CapResult(kind, cap, False, True, 0.0, use0, use0, cost0, cost0, float("nan"),
+                         base, np.zeros(n, dtype=bool))
+
+    def usage_at(lam: float) -> tuple[float, pd.DataFrame]:
+        pol = compute_policy(_relaxed(inp, kind, lam))
+        return cap_usage(pol, kind), pol
+
+    # bracket: double the multiplier until the cap is met (or it clearly cannot be)
+    scale = 0.05 if kind == BUDGET else max(float(np.nanmedian(
+        _item_column(inp, "order_cost", n))), 1.0)
+    lo, hi = 0.0, scale
+    use_hi, pol_hi = usage_at(hi)
+    for _ in range(_BRACKET_MAX):
+        if use_hi <= cap:
+            break
+        lo, hi = hi, hi * 4.0
+        prev = use_hi
+        use_hi, pol_hi = usage_at(hi)
+        if kind == BUDGET and prev - use_hi <= 1e-9 * max(prev, 1.0) and hi > 1e3:
+            break  # at the floor: the targets and minimum orders need more than the cap
+    feasible = use_hi <= cap
+    if feasible:
+        for _ in range(_BISECTION_MAX):
+            if hi - lo <= _BISECTION_REL * hi:
+                break
+            mid = 0.5 * (lo + hi)
+            use_mid, pol_mid = usage_at(mid)
+            if use_mid <= cap:
+                hi, use_hi, pol_hi = mid, use_mid, pol_mid
+            else:
+                lo = mid
+    q = pol_hi["order_qty"].to_numpy(float).copy()
+    r = pol_hi["reorder_point"].to_numpy(float).copy()
+    ok = np.isfinite(q) & np.isfinite(base["order_qty"].to_numpy(float))
+    cost = _Costing(inp, base, kind)
+    steps = 0
+    if feasible:
+        q, r, steps = _polish(cost, q, r, ok, cap, base["order_qty"].to_numpy(float))
+    policy = _restate(base, cost, q, r, ok)
+    use = cap_usage(policy, kind)
+    changed = ok & ((policy["order_qty"].to_numpy(float) != base["order_qty"].to_numpy(float))
+                    | (policy["reorder_point"].to_numpy(float)
+                       != base["reorder_point"].to_numpy(float)))
+    return CapResult(kind, cap, True, feasible, hi if feasible else float("nan"), use, use0,
+                     float(np.nansum(policy["annual_total_cost"].to_numpy(float))), cost0,
+                     use if not feasible else float("nan"), policy, changed, steps)
+
+
+def _polish(cost: _Costing, q: np.ndarray, r: np.ndarray, ok: np.ndarray, cap: float,
+            q_free: np.ndarray) -> tuple[np.ndarray, np.ndarray, int]:
+    """Spend the slack the whole-pack rounding left on single-item steps that save cost.
+
+    Each round, every item's neighbours are costed at the true costs: Q one pack down, the
+    same or up with R one unit down, the same or up. Fill-rate items instead step Q one
+    pack towards their unconstrained order quantity (``q_free``, never past it), with R
+    re-set to the smallest that meets the target, as compute_policy's rule sets it: under
+    that measure R follows Q, and the rule does not choose Q and R together, so moving
+    them freely could "save" against a policy the rule would never give. Of the steps its
+    rules allow, an item's best is the one saving most per unit of the cap used (a step
+    that saves cost and frees some of the cap ranks first). Steps are taken in that order
+    while they fit in the slack; rounds repeat until no allowed saving step fits.
+    """
+    n = q.shape[0]
+    dq = np.array([-1.0, -1.0, -1.0, 0.0, 0.0, 1.0, 1.0, 1.0])
+    dr = np.array([-1.0, 0.0, 1.0, -1.0, 1.0, -1.0, 0.0, 1.0])
+    fr = cost.is_fr & ok
+    lo_free, hi_free = np.minimum(q, q_free), np.maximum(q, q_free)
+    steps = 0
+    for _ in range(_POLISH_ROUNDS):
+        ev_now = cost.evaluate(q, r)
+        cost_now = ev_now["annual_total_cost"].to_numpy(float)
+        use_now = cost.usage(q, r)
+        slack = cap - float(np.nansum(np.where(ok, use_now, np.nan)))
+        cands_q = [np.where(fr, np.nan, q + a * cost.pack) for a in dq]
+        cands_r = [r + b for b in dr]
+        if fr.any():  # along the fill-rate rule: R follows Q, Q back towards q_free
+            for a in (-1.0, 1.0):
+                q_f = q + a * cost.pack
+                inside = fr & (q_f >= lo_free - 1e-9) & (q_f <= hi_free + 1e-9)
+                cands_q.append(np.where(inside, q_f, np.nan))
+                cands_r.append(np.where(inside, cost.fill_rate_reorder(q_f, inside), np.nan))
+        m = len(cands_q)
+        q_c, r_c = np.concatenate(cands_q), np.concatenate(cands_r)
+        ev = cost.evaluate(q_c, r_c, m)
+        allowed = cost.allowed(q_c, r_c, ev, m) & np.tile(ok, m)
+        with np.errstate(all="ignore"):
+            d_cost = (ev["annual_total_cost"].to_numpy(float) - np.tile(cost_now, m)
+                      ).reshape(m, n)
+            d_use = (cost.usage(q_c, r_c, m) - np.tile(use_now, m)).reshape(m, n)
+            gain = allowed.reshape(m, n) & (
+                d_cost < -1e-9 * np.maximum(1.0, np.abs(cost_now)))
+            # score: saving per unit of the cap; a step that frees the cap and saves first
+            score = np.where(d_use <= 0, -1e300, d_cost / d_use)
+        score = np.where(gain, score, np.inf)
+        best = np.argmin(score, axis=0)
+        cols = np.arange(n)
+        best_score = score[best, cols]
+        cand = np.flatnonzero(np.isfinite(best_score))
+        if cand.size == 0:
+            break
+        need = d_use[best[cand], cand]
+        fits = need <= slack
+        cand, need = cand[fits], need[fits]
+        if cand.size == 0:
+            break
+        order = np.argsort(best_score[cand], kind="stable")
+        cand, need = cand[order], need[order]
+        take = np.cumsum(need) <= slack + 1e-9 * max(abs(cap), 1.0)
+        take[0] = True  # the first fits on its own
+        chosen = cand[take]
+        q_all, r_all = q_c.reshape(m, n), r_c.reshape(m, n)
+        q[chosen] = q_all[best[chosen], chosen]
+        r[chosen] = r_all[best[chosen], chosen]
+        steps += int(chosen.size)
+    return q, r, steps
+
+
+def _restate(base: pd.DataFrame, cost: _Costing, q: np.ndarray, r: np.ndarray,
+             ok: np.ndarray) -> pd.DataFrame:
+    """The unconstrained frame with the capped Q and R and their true service and costs."""
+    out = base.copy()
+    k = np.flatnonzero(ok)
+    ev = cost.evaluate(q, r)
+    with np.errstate(all="ignore"):
+        values = {
+            "order_qty": q, "reorder_point": r,
+            "safety_stock": ev["safety_stock"].to_numpy(float),
+            "cycle_service": ev["cycle_service"].to_numpy(float),
+            "fill_rate": ev["fill_rate"].to_numpy(float),
+            "expected_units_short_per_cycle": ev["units_short_per_cycle"].to_numpy(float),
+            "orders_per_year": cost.D / q,
+            "annual_ordering_cost": ev["annual_ordering_cost"].to_numpy(float),
+            "annual_cycle_holding_cost": ev["annual_cycle_holding_cost"].to_numpy(float),
+            "annual_safety_holding_cost": ev["annual_safety_holding_cost"].to_numpy(float),
+            "annual_shortage_cost": ev["annual_shortage_cost"].to_numpy(float),
+            "annual_total_cost": ev["annual_total_cost"].to_numpy(float),
+            "average_inventory_value": cost.c * (q / 2.0 + np.maximum(r - cost.mu, 0.0)),
+        }
+    for key, val in values.items():
+        col = out[key].to_numpy(float).copy()
+        col[k] = val[k]
+        out[key] = col
+    return out
