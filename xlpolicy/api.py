@@ -17,13 +17,13 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from .contract import SERVICE_MEASURES
+from .contract import SERVICE_MEASURES, SETTINGS
 from .planner import build_report
 from .problems import Problem, ProblemLog, Severity, UnusableWorkbook
 from .progress import Progress, silent
 from .reading import guard, read_input
 from .reading.cells import parse_number
-from .reading.settings import parse_measure
+from .reading.settings import parse_measure, resolve_settings, setting_key
 from .reading.sources import KIND_NAMES, source_kind
 from .report import Report
 from .writing.atomic import atomic_output
@@ -96,6 +96,27 @@ def _overrides(service_measure: str | None, service_target: float | str | None,
     return out
 
 
+def _named_settings(values: dict[str, Any] | None) -> dict[str, Any]:
+    """Settings given by name ({"Service target A": "99%"}), checked like the Settings sheet.
+
+    Names match loosely, as on the sheet; an unknown name or a bad value is a UsageError.
+    """
+    if not values:
+        return {}
+    found: dict[str, tuple[Any, str]] = {}
+    for name, raw in values.items():
+        key = setting_key(name)
+        if key is None:
+            raise UsageError(f"unknown setting {name!r}; known settings: "
+                             + ", ".join(s.title for s in SETTINGS))
+        found[key] = (raw, "")
+    log = ProblemLog()
+    resolved = resolve_settings(found, {}, log)
+    if log.problems:
+        raise UsageError(log.problems[0].message.split(" The default")[0])
+    return {key: resolved[key] for key in found}
+
+
 def _number(value: float | str, what: str, rate: bool = False) -> float:
     """A number given on the command line or to the API, as 0.95 or "95%"."""
     x, why = parse_number(value, rate=rate)
@@ -108,15 +129,18 @@ def analyse(path: str | Path, *, service_measure: str | None = None,
             service_target: float | str | None = None,
             holding_rate: float | str | None = None, order_cost: float | str | None = None,
             run_date: _dt.date | None = None, progress: Progress = silent,
-            allow_large: bool = False) -> Report:
+            allow_large: bool = False, settings: dict[str, Any] | None = None) -> Report:
     """Read, check and plan a workbook without writing anything.
 
     Raises UnusableWorkbook when the workbook cannot be used at all. ``progress`` is called
     as the run goes (stage, done, total), for a progress bar. ``allow_large`` raises the
     size limits that protect against zip bombs tenfold (see xlpolicy.reading.guard).
+    ``settings`` gives any Settings-sheet row by name (e.g. {"Service target A": "99%"}); it
+    overrides the sheet, and the named options above override it.
     """
     log = ProblemLog()
-    overrides = _overrides(service_measure, service_target, holding_rate, order_cost)
+    overrides = {**_named_settings(settings),
+                 **_overrides(service_measure, service_target, holding_rate, order_cost)}
     with guard.allow_large(allow_large):
         data = read_input(Path(path), overrides, log, progress)
     if data is None:
@@ -149,7 +173,7 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
          service_target: float | str | None = None, holding_rate: float | str | None = None,
          order_cost: float | str | None = None, write_workbook: bool = True,
          run_date: _dt.date | None = None, progress: Progress = silent,
-         allow_large: bool = False) -> PlanResult:
+         allow_large: bool = False, settings: dict[str, Any] | None = None) -> PlanResult:
     """Plan every item in the workbook at ``path`` and write the results.
 
     The input file is never changed. By default the output is ``<name>-policy.xlsx`` beside
@@ -161,7 +185,7 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
         _check_output_path(src, out)
     report = analyse(src, service_measure=service_measure, service_target=service_target,
                      holding_rate=holding_rate, order_cost=order_cost, run_date=run_date,
-                     progress=progress, allow_large=allow_large)
+                     progress=progress, allow_large=allow_large, settings=settings)
     result = PlanResult(report)
     if write_workbook:
         progress(f"Writing {out.name}", 0, None)

@@ -219,7 +219,35 @@ SETTINGS: tuple[Setting, ...] = (
     Setting("currency", "Currency", None,
             "Symbol or code shown in money formats, e.g. $, EUR, £.",
             ("currency symbol", "money")),
+    # ABC classes by annual spend, and a service target per class (issue 4, part 4)
+    Setting("abc_share_a", "ABC share A", 0.80,
+            "Class A: the largest items by annual spend (annual demand x unit cost) that make "
+            "up this share of the total (common practice: 80%).",
+            ("class a share", "a class share", "abc cutoff a")),
+    Setting("abc_share_b", "ABC share B", 0.15,
+            "Class B: the next items, making up this share of the total (common practice: "
+            "15%); class C is the rest (5%).",
+            ("class b share", "b class share", "abc cutoff b")),
+    Setting("service_target_a", "Service target A", None,
+            "Service target for class A items that leave theirs blank. Blank: Service target.",
+            ("class a service target", "service level a", "target a")),
+    Setting("service_target_b", "Service target B", None,
+            "Service target for class B items that leave theirs blank. Blank: Service target.",
+            ("class b service target", "service level b", "target b")),
+    Setting("service_target_c", "Service target C", None,
+            "Service target for class C items that leave theirs blank. Blank: Service target.",
+            ("class c service target", "service level c", "target c")),
 )
+
+#: Settings read as rates (0.95, 95%, "95%").
+RATE_SETTINGS: frozenset[str] = frozenset({
+    "service_target", "holding_rate", "abc_share_a", "abc_share_b", "service_target_a",
+    "service_target_b", "service_target_c",
+})
+#: The per-class service target settings, by class.
+CLASS_TARGET_SETTINGS: dict[str, str] = {
+    "A": "service_target_a", "B": "service_target_b", "C": "service_target_c",
+}
 
 SETTING_BY_KEY = {s.key: s for s in SETTINGS}
 
@@ -249,6 +277,7 @@ EXTRA_RESULT_KEYS: tuple[str, ...] = (
     "current_annual_ordering_cost", "current_annual_cycle_holding_cost",
     "current_annual_safety_holding_cost", "current_annual_shortage_cost",
     "current_annual_total_cost", "annual_saving", "rounding_cost_ratio", "rounding_penalty",
+    "service_target_source",
 )
 
 #: How the template marks its example rows (the description starts with it), so a run can
@@ -259,7 +288,7 @@ EXAMPLE_PREFIX = "EXAMPLE -"
 TEXT_RESULT_KEYS: frozenset[str] = frozenset({
     "item", "status", "model", "service_measure", "description", "category", "supplier",
     "demand_source", "demand_class", "model_reason", "rate_method", "history_start",
-    "abc_class",
+    "abc_class", "service_target_source",
 })
 
 #: Lead-time demand models (core.models.MODEL_NAMES) and the word for "choose per item".

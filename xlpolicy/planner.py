@@ -16,6 +16,7 @@ import pandas as pd
 from .contract import (
     ALL_RESULT_KEYS,
     AUTO_MODEL,
+    CLASS_TARGET_SETTINGS,
     SHORTAGE_COST,
     STATUS_OK,
     STATUS_SKIPPED,
@@ -57,6 +58,13 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
                               "periods" if key == "history_periods" else key]
     results["service_measure"] = settings["service_measure"]
 
+    # Classes first, from annual demand x unit cost (neither depends on the service target),
+    # then each item's target: its own, else its class's, else the Settings default.
+    abc = _abc(df, demand["annual"], planned, settings)
+    target, target_source = _class_targets(df, items.own_target, abc, settings)
+    results["abc_class"] = abc
+    results["service_target_source"] = target_source
+
     idx = np.flatnonzero(planned)
     if len(idx):
         sub = df.iloc[idx]
@@ -71,7 +79,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
             order_cost=sub["order_cost"].to_numpy(float),
             holding_rate=sub["holding_rate"].to_numpy(float),
             measure=measure,
-            service_target=sub["service_target"].to_numpy(float),
+            service_target=target[idx],
             shortage_cost=sub["shortage_cost"].to_numpy(float),
             pack_size=np.nan_to_num(sub["pack_size"].to_numpy(float), nan=1.0),
             minimum_order=np.nan_to_num(sub["minimum_order"].to_numpy(float)),
@@ -85,7 +93,8 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
         _flag_problems(pol, df.iloc[idx], items, log)
     if settings["service_measure"] == SHORTAGE_COST:
         results["service_target"] = np.nan
-    results.loc[~planned, ["model", "model_reason"]] = ""
+        results["service_target_source"] = ""
+    results.loc[~planned, ["model", "model_reason", "service_target_source"]] = ""
 
     _reorder_columns(results, df, planned)
     _abc_and_today(results, df, planned, settings)
@@ -385,12 +394,37 @@ def _reorder_columns(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarra
     results["order_now_qty"] = qty
 
 
+def _abc(df: pd.DataFrame, annual_demand: np.ndarray, planned: np.ndarray,
+         settings: dict[str, Any]) -> np.ndarray:
+    """ABC class per item by annual spend D x unit cost ("" for items not planned)."""
+    spend = annual_demand * df["unit_cost"].to_numpy(float)
+    cutoffs = settings.setdefault("abc_cutoffs", DEFAULT_CUTOFFS)
+    return abc_classes(np.where(planned, spend, np.nan), cutoffs)
+
+
+def _class_targets(df: pd.DataFrame, own: np.ndarray | None, abc: np.ndarray,
+                   settings: dict[str, Any]) -> tuple[np.ndarray, np.ndarray]:
+    """Each item's service target and where it came from.
+
+    The item's own Service target wins; else its class's target (Service target A, B or C)
+    where that setting is given; else the Service target setting (already in the column).
+    """
+    target = df["service_target"].to_numpy(float).copy()
+    own_mask = np.ones(len(df), dtype=bool) if own is None else np.asarray(own, dtype=bool)
+    source = np.where(own_mask, "item", "Settings: Service target").astype(object)
+    for cls, key in CLASS_TARGET_SETTINGS.items():
+        value = settings.get(key)
+        if value is None:
+            continue
+        sel = ~own_mask & (abc == cls)
+        target[sel] = float(value)
+        source[sel] = f"Settings: Service target {cls}"
+    return target, source
+
+
 def _abc_and_today(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray,
                    settings: dict[str, Any]) -> None:
-    """ABC class by annual spend, and today's policy (where given) evaluated like ours."""
-    spend = pd.to_numeric(results["annual_purchase_cost"], errors="coerce").to_numpy(float)
-    cutoffs = settings.setdefault("abc_cutoffs", DEFAULT_CUTOFFS)
-    results["abc_class"] = abc_classes(np.where(planned, spend, np.nan), cutoffs)
+    """Today's policy (where given) evaluated like ours (the ABC class is set before)."""
     q_now = df["current_order_qty"].to_numpy(float)
     r_now = df["current_reorder_point"].to_numpy(float)
     results["current_order_qty"] = q_now

@@ -226,11 +226,15 @@ def _write_settings(wb: Any, fmt: dict[str, Any]) -> None:
         "service_target": _ITEM_VALIDATION["service_target"],
         "holding_rate": _ITEM_VALIDATION["holding_rate"],
         "order_cost": _ITEM_VALIDATION["order_cost"],
+        "abc_share_a": _ITEM_VALIDATION["service_target"],
+        "abc_share_b": _ITEM_VALIDATION["service_target"],
+        **{key: _ITEM_VALIDATION["service_target"]
+           for key in contract.CLASS_TARGET_SETTINGS.values()},
     }
     for row, setting in enumerate(SETTINGS, start=1):
         ws.write_string(row, 0, setting.title)
         value = setting.default
-        is_rate = setting.key in ("service_target", "holding_rate")
+        is_rate = setting.key in contract.RATE_SETTINGS
         if value is None:
             ws.write_blank(row, 1, None, fmt["pct"] if is_rate else None)
         elif isinstance(value, (int, float)):

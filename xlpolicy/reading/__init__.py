@@ -74,9 +74,12 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
         settings_sheet = read(settings_name) if settings_name else None
         settings = resolve_settings(read_settings(settings_sheet, log), overrides, log,
                                     settings_name or "Settings")
-        items = read_items(read(items_name), settings, log)
+        # Blank targets stay NaN while reading, so an item's own target can be told from a
+        # default: a class target (Service target A/B/C) may apply to it instead.
+        items = read_items(read(items_name), {**settings, "service_target": float("nan")}, log)
         if items is None:
             return None
+        _default_targets(items, settings)
         history_name = wb.find_sheet("History")
         history = None
         history_sheet = read(history_name) if history_name is not None else None
@@ -107,6 +110,14 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
         return None
     finally:
         wb.close()
+
+
+def _default_targets(items: ItemTable, settings: dict[str, Any]) -> None:
+    """Mark which items gave their own service target, and fill the others' from Settings."""
+    target = items.df["service_target"].to_numpy(float)
+    items.own_target = np.isfinite(target)
+    items.df["service_target"] = np.where(items.own_target, target,
+                                          float(settings["service_target"]))
 
 
 class _AlreadyReported(Exception):

@@ -88,6 +88,8 @@ class ItemTable:
     header_row: int
     usable: np.ndarray
     units: dict[str, str] = field(default_factory=dict)
+    #: True where the item's own Service target cell gave the target (not a default).
+    own_target: np.ndarray | None = None
 
     def cell(self, key: str, row: int) -> str:
         """A1 reference of ``key``'s cell in sheet row ``row`` ("" if the column is absent)."""

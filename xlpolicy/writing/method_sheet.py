@@ -168,7 +168,23 @@ def abc_sentences(ctx: Context) -> list[str]:
         f"the next {b - a:.0%}; class C: the last {1 - b:.0%}. Skipped items have no class "
         "(common practice; Silver, Pyke & Peterson 1998, ch. 3).",
         "A items deserve the closest watch: review their policies and stock most often.",
+        *_class_target_sentences(ctx),
     ]
+
+
+def _class_target_sentences(ctx: Context) -> list[str]:
+    """Which service target each class gets (Settings: Service target A, B, C)."""
+    settings = ctx.report.settings or {}
+    given = {cls: settings.get(key) for cls, key in contract.CLASS_TARGET_SETTINGS.items()
+             if finite(settings.get(key)) is not None}
+    if not given:
+        return []
+    parts = ", ".join(f"class {cls} {float(v):.1%}" for cls, v in given.items())
+    return [
+        f"Service targets by class: {parts}. The classes are set first, from annual demand "
+        "x unit cost, which does not depend on the target; an item's own Service target "
+        "still wins, and the column 'Service target from' on the Policy sheet says which "
+        "applied."]
 
 
 def _settings(ctx: Context, ws: Worksheet, row: int) -> int:
@@ -202,7 +218,7 @@ def _setting_value(ctx: Context, ws: Worksheet, row: int, key: str, value: Any) 
         ctx.w.text(ws, row, 1, " / ".join(parts), align="left")
     elif finite(value) is None and not isinstance(value, str) and clean_text(value) is None:
         ctx.w.text(ws, row, 1, "not set", font_color=MUTED, align="left")
-    elif key in ("service_target", "holding_rate") and finite(value) is not None:
+    elif key in contract.RATE_SETTINGS and finite(value) is not None:
         ctx.w.number(ws, row, 1, value, num_format=PERCENT, align="left")
     elif key == "order_cost" and finite(value) is not None:
         ctx.w.number(ws, row, 1, value, num_format=ctx.money, align="left")

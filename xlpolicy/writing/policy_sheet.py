@@ -49,6 +49,7 @@ POLICY_COLUMNS: tuple[Col, ...] = (
     Col("safety_stock", "Safety stock (units)", "units1"),
     Col("service_measure", "Service measure", "text"),
     Col("service_target", "Service target", "percent"),
+    Col("service_target_source", "Service target from", "text"),
     Col("cycle_service", "Cycle service achieved", "percent"),
     Col("fill_rate", "Fill rate achieved", "percent"),
     # what it costs
