@@ -50,7 +50,8 @@ def template(tmp_path_factory: pytest.TempPathFactory) -> Path:
 def test_committed_template_is_up_to_date(template: Path) -> None:
     fresh = sheet_values(template)
     committed = sheet_values(COMMITTED_TEMPLATE)
-    assert list(fresh) == list(committed) == ["Read me", "Items", "History", "Settings"]
+    assert list(fresh) == list(committed) == ["Read me", "Items", "History", "Settings",
+                                                        "Price breaks"]
     for name in fresh:
         assert fresh[name] == committed[name], (
             f"sheet {name!r} differs: run `python -m xlpolicy.template`")

@@ -155,6 +155,19 @@ HISTORY_LONG_COLUMNS: tuple[Column, ...] = (
            ("qty", "units", "demand", "sales", "units sold", "quantity sold", "sold")),
 )
 
+#: The optional "Price breaks" sheet (all-units quantity discounts), one row per break.
+PRICE_BREAK_COLUMNS: tuple[Column, ...] = (
+    Column("item", "Item", TEXT, "yes", "The item's code, as in Items.", ITEM_COLUMNS[0].aliases),
+    Column("min_qty", "Minimum quantity", NUMBER, "yes",
+           "Order size from which this price applies, more than 0: an order of at least this "
+           "many units pays the price on every unit (all-units discount).",
+           ("from quantity", "break quantity", "quantity from", "min qty", "break qty",
+            "order from", "from qty")),
+    Column("unit_price", "Unit price", NUMBER, "yes",
+           "What each unit costs in such an order, more than 0. Below the smallest break the "
+           "item's Unit cost applies.",
+           ("price", "discounted price", "price per unit", "break price", "discount price")),
+)
 
 # ---------------------------------------------------------------------------
 # Settings
@@ -277,7 +290,8 @@ EXTRA_RESULT_KEYS: tuple[str, ...] = (
     "current_annual_ordering_cost", "current_annual_cycle_holding_cost",
     "current_annual_safety_holding_cost", "current_annual_shortage_cost",
     "current_annual_total_cost", "annual_saving", "rounding_cost_ratio", "rounding_penalty",
-    "service_target_source",
+    "service_target_source", "unit_price", "price_break_qty", "plain_eoq_qty",
+    "discount_saving",
 )
 
 #: How the template marks its example rows (the description starts with it), so a run can

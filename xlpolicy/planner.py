@@ -24,6 +24,7 @@ from .contract import (
     TEXT_RESULT_KEYS,
 )
 from .core.classes import DEFAULT_CUTOFFS, abc_classes
+from .core.discounts import price_at
 from .core.history import analyse_history, analysis_from_figures, choose_model
 from .core.policy import PolicyInputs, compute_policy, evaluate_policy
 from .problems import ProblemLog, Severity
@@ -85,6 +86,9 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
             minimum_order=np.nan_to_num(sub["minimum_order"].to_numpy(float)),
             days_per_period=float(settings["days_per_period"]),
             model=demand["model"][idx],
+            break_qty=data.price_breaks.qty[idx] if data.price_breaks is not None else None,
+            break_price=(data.price_breaks.price[idx] if data.price_breaks is not None
+                         else None),
         )
         pol = compute_policy(inp)
         for key in pol.columns:
@@ -97,7 +101,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
     results.loc[~planned, ["model", "model_reason", "service_target_source"]] = ""
 
     _reorder_columns(results, df, planned)
-    _abc_and_today(results, df, planned, settings)
+    _abc_and_today(results, df, planned, settings, data.price_breaks)
     results["status"] = _statuses(results["item"], planned, log)
     results = _typed(results)
     reorder = _reorder_list(results, df)
@@ -423,8 +427,11 @@ def _class_targets(df: pd.DataFrame, own: np.ndarray | None, abc: np.ndarray,
 
 
 def _abc_and_today(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray,
-                   settings: dict[str, Any]) -> None:
-    """Today's policy (where given) evaluated like ours (the ABC class is set before)."""
+                   settings: dict[str, Any], breaks: Any = None) -> None:
+    """Today's policy (where given) evaluated like ours (the ABC class is set before).
+
+    With price breaks, today's order quantity is held at the price it earns.
+    """
     q_now = df["current_order_qty"].to_numpy(float)
     r_now = df["current_reorder_point"].to_numpy(float)
     results["current_order_qty"] = q_now
@@ -437,10 +444,13 @@ def _abc_and_today(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray,
     def col(key: str) -> np.ndarray:
         return pd.to_numeric(results[key], errors="coerce").to_numpy(float)[k]
 
+    price_now = col("unit_cost")
+    if breaks is not None:
+        price_now = price_at(q_now[k], price_now, breaks.qty[k], breaks.price[k])
     ev = evaluate_policy(q_now[k], r_now[k], col("lead_time_demand_mean"),
                          col("lead_time_demand_sd"), results["model"].to_numpy(object)[k],
                          col("annual_demand"), col("order_cost"),
-                         col("holding_rate") * col("unit_cost"), col("unit_cost"),
+                         col("holding_rate") * price_now, price_now,
                          col("shortage_cost"))
     for key, src in (("current_safety_stock", "safety_stock"),
                      ("current_cycle_service", "cycle_service"),
@@ -469,6 +479,9 @@ def _reorder_list(results: pd.DataFrame, df: pd.DataFrame) -> pd.DataFrame:
     due["on_hand"] = rows["on_hand"].to_numpy(float)
     due["on_order"] = rows["on_order"].to_numpy(float)
     due["backordered"] = rows["backordered"].to_numpy(float)
+    # The purchaser pays the price the order quantity earns (a price break, where one
+    # applies), so the list shows that price as the unit cost of this order.
+    due["unit_cost"] = due["unit_price"].fillna(due["unit_cost"])
     due["order_now_value"] = due["order_now_qty"] * due["unit_cost"]
     due["supplier"] = due["supplier"].fillna("(no supplier given)")
     due = due.sort_values(["supplier", "item"], kind="stable")
@@ -502,6 +515,8 @@ def _totals(results: pd.DataFrame, reorder: pd.DataFrame) -> dict[str, float]:
         "inventory_turns": purchase / avg_value if avg_value > 0 else float("nan"),
         "orders_per_year": s("orders_per_year"),
         "rounding_penalty": s("rounding_penalty"),
+        "discount_saving": s("discount_saving"),
+        "items_with_price_breaks": float(r["discount_saving"].notna().sum()),
         "items_to_reorder": float(len(reorder)),
         "reorder_value": float(np.nansum(reorder["order_now_value"].to_numpy(float))),
         "items_compared": float(compared.sum()),

@@ -13,6 +13,7 @@ from ..progress import Progress, silent
 from .guard import Refused, unreadable_message
 from .history import History, aggregate_daily_to_weeks, read_history
 from .items import ItemTable, read_items
+from .price_breaks import PriceBreaks, read_price_breaks
 from .settings import finish_period, read_settings, resolve_settings
 from .sources import open_source
 from .workbook import WorkbookFile, layout_notes
@@ -27,6 +28,7 @@ class InputData:
     history: History | None
     settings: dict[str, Any]
     sheet_names: list[str]
+    price_breaks: PriceBreaks | None = None
 
 
 def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
@@ -98,7 +100,10 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
                 settings["period"] = history.period
                 settings["sources"]["period"] = f"inferred from {history_name} dates"
                 finish_period(settings)
-        return InputData(Path(path), items, history, settings, list(wb.sheet_names))
+        breaks_name = wb.find_sheet("Price breaks")
+        breaks = (read_price_breaks(read(breaks_name), items, log)
+                  if breaks_name is not None else None)
+        return InputData(Path(path), items, history, settings, list(wb.sheet_names), breaks)
     except _AlreadyReported:
         return None
     except _SheetUnreadable as exc:

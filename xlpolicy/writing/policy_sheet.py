@@ -73,6 +73,11 @@ POLICY_COLUMNS: tuple[Col, ...] = (
     Col("pack_size", "Pack size (units)", "units"),
     Col("minimum_order", "Minimum order (units)", "units"),
     Col("rounding_penalty", "Yearly cost of rounding to packs and minimums", "money"),
+    # all-units price breaks (the Price breaks sheet)
+    Col("unit_price", "Unit price paid (after any price break)", "money"),
+    Col("price_break_qty", "Price break used: from (units)", "units"),
+    Col("plain_eoq_qty", "Plain EOQ at the Unit cost (units)", "units"),
+    Col("discount_saving", "Yearly saving of the price break over the plain EOQ", "money"),
     # where the demand figures come from
     Col("demand_per_period", "Demand per period (units)", "demand"),
     Col("demand_sd_per_period", "Demand sd per period (units)", "demand"),
@@ -110,7 +115,7 @@ POLICY_COLUMNS: tuple[Col, ...] = (
 #: The inputs the formulas name, by symbol.
 SYMBOLS = {
     "Q": "order_qty", "R": "reorder_point", "mu": "lead_time_demand_mean",
-    "D": "annual_demand", "S": "order_cost", "i": "holding_rate", "c": "unit_cost",
+    "D": "annual_demand", "S": "order_cost", "i": "holding_rate", "c": "unit_price",
     "p": "shortage_cost", "n": "expected_units_short_per_cycle",
     "ORD": "annual_ordering_cost", "CYC": "annual_cycle_holding_cost",
     "SAF": "annual_safety_holding_cost", "SHO": "annual_shortage_cost",
@@ -164,7 +169,12 @@ VALUE_NOTES = {
         "A value, not a formula: the EOQ (see 'EOQ before rounding') rounded to a multiple "
         "of the pack size and raised to the minimum order, taking whichever rounding costs "
         "less a year; under the shortage-cost measure, found together with the reorder "
-        "point by the iterative (Q, R) method."),
+        "point by the iterative (Q, R) method. With price breaks: the allowed quantity "
+        "with the lowest ordering + holding + purchase cost a year (all-units discount)."),
+    "discount_saving": (
+        "A value: for an item with price breaks, the yearly ordering + cycle holding + "
+        "purchase cost of the plain EOQ (at the Unit cost, rounded to packs, paying the "
+        "price that quantity earns) minus that of the order quantity chosen."),
     "reorder_point": (
         "A value, not a formula: the smallest whole number of units that meets the service "
         "target under the item's demand model (a quantile of lead-time demand, or the "

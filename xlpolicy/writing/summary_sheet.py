@@ -61,6 +61,8 @@ TOTAL_LABELS: tuple[tuple[str, str, str], ...] = (
     ("inventory_turns", "Inventory turns (per year)", "decimal1"),
     ("orders_per_year", "Orders per year, all items", "decimal1"),
     ("rounding_penalty", "Yearly cost of ordering in whole packs and minimums", "money"),
+    ("items_with_price_breaks", "Items with price breaks", "count"),
+    ("discount_saving", "Yearly saving from price breaks, against the plain EOQ", "money"),
     ("items_to_reorder", "Items to reorder now", "count"),
     ("reorder_value", "Value to reorder now", "money"),
     ("items_compared", "Items compared with today's policy", "count"),
@@ -81,6 +83,7 @@ SUM_TOTALS = {
     "average_inventory_value": "average_inventory_value",
     "orders_per_year": "orders_per_year",
     "rounding_penalty": "rounding_penalty",
+    "discount_saving": "discount_saving",
 }
 
 #: Breakdown table columns: (title, kind, result keys summed).
