@@ -142,6 +142,11 @@ ITEM_COLUMNS: tuple[Column, ...] = (
            "The period (a date or label, as in History) from which this item's history counts. "
            "Blank: its first sale.",
            ("first period", "launch date", "start date", "introduced", "history from")),
+    Column("shelf_life_days", "Shelf life days", NUMBER, "no",
+           "Days a unit stays usable after it arrives, more than 0. The order quantity is "
+           "capped at the demand expected over that time. Blank: it keeps.",
+           ("shelf life", "usable life days", "usable life", "days to expiry", "expiry days",
+            "best before days")),
 )
 
 ITEM_COLUMN_BY_KEY = {c.key: c for c in ITEM_COLUMNS}
@@ -291,7 +296,7 @@ EXTRA_RESULT_KEYS: tuple[str, ...] = (
     "current_annual_safety_holding_cost", "current_annual_shortage_cost",
     "current_annual_total_cost", "annual_saving", "rounding_cost_ratio", "rounding_penalty",
     "service_target_source", "unit_price", "price_break_qty", "plain_eoq_qty",
-    "discount_saving",
+    "discount_saving", "shelf_life_days", "shelf_life_max_qty", "shelf_life_cost",
 )
 
 #: How the template marks its example rows (the description starts with it), so a run can

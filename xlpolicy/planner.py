@@ -51,7 +51,8 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
 
     results = pd.DataFrame(index=range(n), columns=list(ALL_RESULT_KEYS), dtype=object)
     for key in ("item", "description", "category", "supplier", "unit_cost", "order_cost",
-                "holding_rate", "shortage_cost", "pack_size", "minimum_order"):
+                "holding_rate", "shortage_cost", "pack_size", "minimum_order",
+                "shelf_life_days"):
         results[key] = df[key].to_numpy()
     for key in ("demand_source", "history_periods", "model", "model_reason", "demand_class",
                 "rate_method", "adi", "cv2", "history_start"):
@@ -89,6 +90,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
             break_qty=data.price_breaks.qty[idx] if data.price_breaks is not None else None,
             break_price=(data.price_breaks.price[idx] if data.price_breaks is not None
                          else None),
+            shelf_life_days=sub["shelf_life_days"].to_numpy(float),
         )
         pol = compute_policy(inp)
         for key in pol.columns:
@@ -354,6 +356,12 @@ _FLAG_TEXT = {
         "With this shortage cost, holding extra stock costs more than the shortages it avoids, "
         "so no safety stock was planned (reorder point = expected lead-time demand). Check the "
         "shortage cost."),
+    "flag_shelf_life_below_minimum": (
+        "shelf-life-below-minimum",
+        "Less sells within the shelf life than the smallest order the supplier accepts (one "
+        "pack, or the minimum order): the order quantity was set to that smallest order, so "
+        "part of each order will likely expire unsold. Ask for a smaller pack or minimum, or "
+        "check the Shelf life days."),
     "flag_reorder_point_floored": (
         "reorder-point-floored",
         "The service target is met even with a negative reorder point; the reorder point was "
@@ -516,6 +524,8 @@ def _totals(results: pd.DataFrame, reorder: pd.DataFrame) -> dict[str, float]:
         "orders_per_year": s("orders_per_year"),
         "rounding_penalty": s("rounding_penalty"),
         "discount_saving": s("discount_saving"),
+        "shelf_life_cost": s("shelf_life_cost"),
+        "items_capped_by_shelf_life": float((r["shelf_life_cost"] > 0).sum()),
         "items_with_price_breaks": float(r["discount_saving"].notna().sum()),
         "items_to_reorder": float(len(reorder)),
         "reorder_value": float(np.nansum(reorder["order_now_value"].to_numpy(float))),

@@ -54,5 +54,6 @@ TOTAL_KEYS: tuple[str, ...] = (
     "average_inventory_value", "safety_stock_value", "inventory_turns", "orders_per_year",
     "items_to_reorder", "reorder_value", "items_compared", "current_annual_total_cost",
     "compared_recommended_annual_total_cost", "annual_saving", "rounding_penalty",
-    "discount_saving", "items_with_price_breaks",
+    "discount_saving", "items_with_price_breaks", "shelf_life_cost",
+    "items_capped_by_shelf_life",
 )

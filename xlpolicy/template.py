@@ -48,6 +48,7 @@ _ITEM_HEADERS: dict[str, str] = {
     "minimum_order": "Minimum order (units)",
     "annual_demand": "Annual demand (units per year)",
     "demand_sd": "Demand sd (units per period)",
+    "shelf_life_days": "Shelf life (days)",
 }
 
 #: Data validation per Items column: (xlsxwriter options, message shown on a bad entry).
@@ -69,6 +70,7 @@ _ITEM_VALIDATION: dict[str, dict[str, Any]] = {
     "current_reorder_point": {"validate": "decimal", "criteria": ">=", "value": 0},
     "annual_demand": {"validate": "decimal", "criteria": ">=", "value": 0},
     "demand_sd": {"validate": "decimal", "criteria": ">=", "value": 0},
+    "shelf_life_days": {"validate": "decimal", "criteria": ">", "value": 0},
 }
 
 _ITEM_WIDTHS: dict[str, float] = {"item": 12, "description": 40, "category": 16, "supplier": 22}

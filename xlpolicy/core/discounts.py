@@ -123,12 +123,15 @@ class DiscountChoice:
 
 def all_units_order_qty(D: ArrayLike, S: ArrayLike, i: ArrayLike, base_price: ArrayLike,
                         break_qty: ArrayLike, break_price: ArrayLike, pack: ArrayLike,
-                        moq: ArrayLike) -> DiscountChoice:
+                        moq: ArrayLike, max_qty: ArrayLike | None = None) -> DiscountChoice:
     """The allowed order quantity with the lowest D S/Q + i c(Q) Q/2 + D c(Q), per item.
 
     ``break_qty`` and ``break_price`` are (n, k), padded with NaN (or inf quantities) where
-    an item has fewer breaks; the base price applies from 0 units. Ties go to the smaller
-    quantity. Invalid inputs give NaN.
+    an item has fewer breaks; the base price applies from 0 units. ``max_qty`` (an allowed
+    quantity, or inf/NaN for none) caps the order, e.g. at what sells within a shelf life:
+    TC is convex within each price's range, so the best capped quantity is a candidate at or
+    below the cap, or the cap itself. Ties go to the smaller quantity. Invalid inputs give
+    NaN.
     """
     D_a = np.asarray(D, dtype=float).reshape(-1, 1)
     n = D_a.shape[0]
@@ -150,9 +153,14 @@ def all_units_order_qty(D: ArrayLike, S: ArrayLike, i: ArrayLike, base_price: Ar
         x = np.where(np.isfinite(lp), x, np.nan)
         lo, hi = _allowed_around(x, pk, m)
         cand = np.concatenate([lo, hi], axis=1)  # (n, 2L)
+        cap = np.full((n, 1), np.inf)
+        if max_qty is not None:
+            cap = np.asarray(max_qty, dtype=float).reshape(-1, 1) * np.ones((n, 1))
+            cap = np.where(np.isfinite(cap), cap, np.inf)
+            cand = np.concatenate([cand, np.where(np.isfinite(cap), cap, np.nan)], axis=1)
         c_cand = price_at(cand, c0[:, 0], bq, bp)
         tc = total_annual_cost(cand, D_a, S_a, i_a, c_cand)
-        tc = np.where(np.isfinite(tc), tc, np.inf)
+        tc = np.where(np.isfinite(tc) & (cand <= cap * (1 + _WHOLE_TOL)), tc, np.inf)
         # lowest cost; among equal costs (to float noise) the smallest quantity
         best_tc = tc.min(axis=1, keepdims=True)
         tie = tc <= best_tc + 1e-12 * np.maximum(1.0, np.abs(best_tc))
@@ -169,7 +177,7 @@ def all_units_order_qty(D: ArrayLike, S: ArrayLike, i: ArrayLike, base_price: Ar
         h0 = i_a * c0
         cost_lo = D_a * S_a / p_lo + h0 * p_lo / 2.0
         cost_hi = D_a * S_a / p_hi + h0 * p_hi / 2.0
-        plain = np.where(cost_hi < cost_lo, p_hi, p_lo)[:, 0]
+        plain = np.minimum(np.where(cost_hi < cost_lo, p_hi, p_lo), cap)[:, 0]
         plain_cost = total_annual_cost(plain, D_a[:, 0], S_a[:, 0], i_a[:, 0],
                                        price_at(plain, c0[:, 0], bq, bp))
         valid = (np.isfinite(q_best) & np.isfinite(total) & (D_a[:, 0] > 0)

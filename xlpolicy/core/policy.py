@@ -77,6 +77,7 @@ POLICY_COLUMNS: tuple[str, ...] = (
     "rounding_cost_ratio", "rounding_penalty", "flag_no_safety_stock_pays", "flag_normal_doubtful",
     "flag_reorder_point_floored", "flag_shortage_cost_missing",
     "unit_price", "price_break_qty", "discount_saving", "plain_eoq_qty",
+    "shelf_life_days", "shelf_life_max_qty", "shelf_life_cost", "flag_shelf_life_below_minimum",
 )
 
 
@@ -111,6 +112,8 @@ class PolicyInputs:
     #: All-units price breaks, (n, k) each, padded with NaN (core.discounts); None: none.
     break_qty: np.ndarray | None = None
     break_price: np.ndarray | None = None
+    #: Days a unit stays usable (NaN: it keeps); caps Q at the demand over that time.
+    shelf_life_days: np.ndarray | None = None
 
 
 def order_cost_terms(q: ArrayLike, annual_demand: ArrayLike, order_cost: ArrayLike,
@@ -521,7 +524,23 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
         mu_l, sig_l = lead_time_demand(d, sd_d, lt / dpp, slt / dpp)
         # All-units price breaks: Q by the lowest ordering + holding + purchase cost, and
         # every cost after that at the price that Q pays (core.discounts).
+        # Shelf life: Q at most the demand over the usable life, in whole packs; where that
+        # is below the smallest allowed order, the smallest allowed order (flagged).
+        life = _column(inp.shelf_life_days, n) if inp.shelf_life_days is not None else \
+            np.full(n, np.nan)
+        has_life = np.isfinite(life) & (life > 0)
+        life_cont = d * life / dpp  # expected demand over the shelf life, units
+        pk1 = np.where(np.isfinite(pack) & (pack >= 1), np.round(pack), 1.0)
+        floor_q = pk1 * np.maximum(1.0, np.ceil(np.where(np.isfinite(moq), moq, 0.0) / pk1
+                                                - _WHOLE_TOL))
+        cap_packs = np.floor(life_cont / pk1 + _WHOLE_TOL) * pk1
+        life_short = has_life & (cap_packs < floor_q)
+        cap_q = np.where(has_life, np.where(life_short, floor_q, cap_packs), np.inf)
         disc, has_breaks = _discounts(inp, n, D, S, i, c, pack, moq)
+        disc_capped = disc
+        if disc is not None and (has_life & has_breaks).any():
+            disc_capped, _ = _discounts(inp, n, D, S, i, c, pack, moq, cap_q)
+        disc_unc, disc = disc, disc_capped
         c = np.where(has_breaks, disc.unit_price, c) if disc is not None else c
         H = i * c
         eoq_raw = np.sqrt(2.0 * D * S / H)
@@ -610,6 +629,29 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
             r_b, no_b = sc_reorder(Q)
             r_sc = np.where(hb, r_b, r_sc)
             no_ss = np.where(hb, no_b, no_ss)
+        # Shelf life: what the order quantity would be without it, then the cap.
+        q_free = Q.copy()
+        if disc_unc is not None and has_breaks.any():
+            q_free = np.where(has_breaks & ok, disc_unc.order_qty, q_free)
+        capped = ok & has_life & (q_free > cap_q)
+        if capped.any():
+            plain_cap = capped & ~has_breaks  # breaks: the capped choice is already in Q
+            Q = np.where(plain_cap, cap_q, Q)
+            q_cont = np.where(plain_cap, np.minimum(q_cont, np.maximum(life_cont, floor_q)),
+                              q_cont)
+            r_b, no_b = sc_reorder(Q)
+            r_sc = np.where(capped, r_b, r_sc)
+            no_ss = np.where(capped, no_b, no_ss)
+        # What the cap costs a year, on ordering + cycle holding + purchase at the price
+        # each quantity pays (the EOQ cost curve; purchase only differs with price breaks).
+        price_free = c
+        if disc_unc is not None and has_breaks.any():
+            price_free = np.where(has_breaks, disc_unc.unit_price, c)
+        life_cost = np.where(
+            has_life,
+            (Dw * s_eff / Q + i * c * Q / 2.0 + Dw * c)
+            - (Dw * s_eff / q_free + i * price_free * q_free / 2.0 + Dw * price_free),
+            np.nan)
 
         # -- reorder points, each measure on the full arrays, then chosen by mask ------
         r_cs = _smallest_whole(
@@ -685,6 +727,10 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
             "flag_reorder_point_floored": floored,
             "flag_shortage_cost_missing": is_sc & ~p_given,
             "unit_price": out(c),
+            "shelf_life_days": np.where(has_life, life, np.nan),
+            "shelf_life_max_qty": out(np.where(has_life, cap_q, np.nan)),
+            "shelf_life_cost": out(np.maximum(life_cost, 0.0)),
+            "flag_shelf_life_below_minimum": ok & life_short,
             "price_break_qty": out(disc.break_qty) if disc is not None else np.nan,
             "discount_saving": (out(np.where(has_breaks, disc.saving, np.nan))
                                 if disc is not None else np.nan),
@@ -697,7 +743,8 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
 
 
 def _discounts(inp: PolicyInputs, n: int, D: np.ndarray, S: np.ndarray, i: np.ndarray,
-               c: np.ndarray, pack: np.ndarray, moq: np.ndarray
+               c: np.ndarray, pack: np.ndarray, moq: np.ndarray,
+               max_qty: np.ndarray | None = None
                ) -> tuple[DiscountChoice | None, np.ndarray]:
     """The all-units price-break choice for items with breaks (None when no item has any)."""
     none = np.zeros(n, dtype=bool)
@@ -711,6 +758,6 @@ def _discounts(inp: PolicyInputs, n: int, D: np.ndarray, S: np.ndarray, i: np.nd
     with np.errstate(all="ignore"):
         safe_pack = np.where(np.isfinite(pack) & (pack >= 1), np.round(pack), 1.0)
         safe_moq = np.where(np.isfinite(moq) & (moq >= 0), moq, 0.0)
-        choice = all_units_order_qty(D, S, i, c, bq, bp, safe_pack, safe_moq)
+        choice = all_units_order_qty(D, S, i, c, bq, bp, safe_pack, safe_moq, max_qty)
     has &= np.isfinite(choice.order_qty)
     return choice, has

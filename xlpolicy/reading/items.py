@@ -71,6 +71,8 @@ _RULES: dict[str, tuple[Any, str, str]] = {
     "annual_demand": (lambda x: x >= 0, "cannot be negative", "Enter units sold per year"),
     "demand_sd": (lambda x: x >= 0, "cannot be negative",
                   "Enter the standard deviation of demand per period"),
+    "shelf_life_days": (lambda x: x > 0, "must be more than 0 days",
+                        "Enter the days a unit stays usable, e.g. 30, or leave it blank"),
 }
 
 

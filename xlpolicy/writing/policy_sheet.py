@@ -78,6 +78,11 @@ POLICY_COLUMNS: tuple[Col, ...] = (
     Col("price_break_qty", "Price break used: from (units)", "units"),
     Col("plain_eoq_qty", "Plain EOQ at the Unit cost (units)", "units"),
     Col("discount_saving", "Yearly saving of the price break over the plain EOQ", "money"),
+    # shelf life
+    Col("shelf_life_days", "Shelf life (days)", "days"),
+    Col("shelf_life_max_qty", "Most to order: what sells within the shelf life (units)",
+        "units"),
+    Col("shelf_life_cost", "Yearly cost of the shelf-life cap", "money"),
     # where the demand figures come from
     Col("demand_per_period", "Demand per period (units)", "demand"),
     Col("demand_sd_per_period", "Demand sd per period (units)", "demand"),
@@ -175,6 +180,12 @@ VALUE_NOTES = {
         "A value: for an item with price breaks, the yearly ordering + cycle holding + "
         "purchase cost of the plain EOQ (at the Unit cost, rounded to packs, paying the "
         "price that quantity earns) minus that of the order quantity chosen."),
+    "shelf_life_max_qty": (
+        "A value: demand per period x shelf life in periods, rounded down to whole packs "
+        "(or the smallest allowed order, with a warning, where that is more)."),
+    "shelf_life_cost": (
+        "A value: the yearly ordering + cycle holding (+ purchase, with price breaks) cost "
+        "of the capped order quantity minus that of the quantity without the cap."),
     "reorder_point": (
         "A value, not a formula: the smallest whole number of units that meets the service "
         "target under the item's demand model (a quantile of lead-time demand, or the "
