@@ -147,6 +147,12 @@ ITEM_COLUMNS: tuple[Column, ...] = (
            "capped at the demand expected over that time. Blank: it keeps.",
            ("shelf life", "usable life days", "usable life", "days to expiry", "expiry days",
             "best before days")),
+    Column("review_period_days", "Review period days", NUMBER, "no",
+           "Periodic review: look at the item every this many days and order up to a level. "
+           "0: continuous review (order when stock falls to the reorder point). Blank: the "
+           "Settings value, else continuous.",
+           ("review period", "review every days", "review cycle days", "review interval days",
+            "review interval")),
 )
 
 ITEM_COLUMN_BY_KEY = {c.key: c for c in ITEM_COLUMNS}
@@ -255,6 +261,10 @@ SETTINGS: tuple[Setting, ...] = (
     Setting("service_target_c", "Service target C", None,
             "Service target for class C items that leave theirs blank. Blank: Service target.",
             ("class c service target", "service level c", "target c")),
+    Setting("review_period_days", "Review period days", None,
+            "Periodic review for items that leave the column blank: every this many days, "
+            "order up to a level. Blank or 0: continuous review.",
+            ("review period", "review every days", "review interval days")),
 )
 
 #: Settings read as rates (0.95, 95%, "95%").
@@ -297,6 +307,8 @@ EXTRA_RESULT_KEYS: tuple[str, ...] = (
     "current_annual_total_cost", "annual_saving", "rounding_cost_ratio", "rounding_penalty",
     "service_target_source", "unit_price", "price_break_qty", "plain_eoq_qty",
     "discount_saving", "shelf_life_days", "shelf_life_max_qty", "shelf_life_cost",
+    "review", "review_period_days", "order_up_to_level", "protection_demand_mean",
+    "protection_demand_sd",
 )
 
 #: How the template marks its example rows (the description starts with it), so a run can
@@ -307,7 +319,7 @@ EXAMPLE_PREFIX = "EXAMPLE -"
 TEXT_RESULT_KEYS: frozenset[str] = frozenset({
     "item", "status", "model", "service_measure", "description", "category", "supplier",
     "demand_source", "demand_class", "model_reason", "rate_method", "history_start",
-    "abc_class", "service_target_source",
+    "abc_class", "service_target_source", "review",
 })
 
 #: Lead-time demand models (core.models.MODEL_NAMES) and the word for "choose per item".

@@ -26,6 +26,7 @@ from .contract import (
 from .core.classes import DEFAULT_CUTOFFS, abc_classes
 from .core.discounts import price_at
 from .core.history import analyse_history, analysis_from_figures, choose_model
+from .core.periodic import periodic_policy
 from .core.policy import PolicyInputs, compute_policy, evaluate_policy
 from .problems import ProblemLog, Severity
 from .reading import InputData
@@ -97,6 +98,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
             if key in results.columns:
                 results.loc[idx, key] = pol[key].to_numpy()
         _flag_problems(pol, df.iloc[idx], items, log)
+    _periodic(results, df, planned, demand, target, settings, data, log)
     if settings["service_measure"] == SHORTAGE_COST:
         results["service_target"] = np.nan
         results["service_target_source"] = ""
@@ -391,6 +393,55 @@ def _statuses(codes: pd.Series, planned: np.ndarray, log: ProblemLog) -> np.ndar
     return out
 
 
+def _periodic(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray,
+              demand: dict[str, np.ndarray], target: np.ndarray, settings: dict[str, Any],
+              data: InputData, log: ProblemLog) -> None:
+    """Periodic review (T, S) for items with a review period; the others stay continuous.
+
+    The item's Review period days wins, else the setting; 0 or none: continuous review.
+    A periodic item has no reorder point: its order-up-to level S replaces it, and its
+    order quantity is the average order (demand over one review period).
+    """
+    T = df["review_period_days"].to_numpy(float)
+    default = settings.get("review_period_days")
+    T = np.where(np.isnan(T), float(default) if default is not None else 0.0, T)
+    results["review"] = np.where(planned, np.where(T > 0, "periodic", "continuous"), "")
+    per = planned & (T > 0)
+    results["review_period_days"] = np.where(per, T, np.nan)
+    k = np.flatnonzero(per)
+    if not len(k):
+        return
+    sub = df.iloc[k]
+    pol = periodic_policy(
+        T[k], demand["mean"][k], demand["sd"][k], sub["lead_time_days"].to_numpy(float),
+        np.nan_to_num(sub["lead_time_sd_days"].to_numpy(float)),
+        float(settings["days_per_period"]), float(settings["periods_per_year"]),
+        sub["order_cost"].to_numpy(float), sub["holding_rate"].to_numpy(float),
+        sub["unit_cost"].to_numpy(float), settings["service_measure"], target[k],
+        sub["shortage_cost"].to_numpy(float), model=results["model"].to_numpy(object)[k])
+    for key in pol.columns:
+        if key in results.columns:
+            results.loc[k, key] = pol[key].to_numpy()
+    # what belongs to continuous review only
+    results.loc[k, ["reorder_point", "eoq", "rounding_penalty", "rounding_cost_ratio",
+                    "price_break_qty", "plain_eoq_qty", "discount_saving",
+                    "shelf_life_max_qty", "shelf_life_cost"]] = np.nan
+    results.loc[k, "unit_price"] = sub["unit_cost"].to_numpy(float)
+    breaks = data.price_breaks
+    has_breaks = (breaks.count()[k] > 0) if breaks is not None else np.zeros(len(k), bool)
+    has_life = np.isfinite(sub["shelf_life_days"].to_numpy(float))
+    rows = sub["row"].to_numpy(int)
+    for j in np.flatnonzero(has_breaks | has_life):
+        what = " and ".join(w for w, on in (("price breaks", has_breaks[j]),
+                                            ("a shelf life", has_life[j])) if on)
+        log.warning(f"This item is reviewed every {T[k][j]:g} days (periodic review), so its "
+                    f"{what} were not applied: they shape the order quantity of continuous "
+                    "review only. Set Review period days to 0 to use them.",
+                    sheet=data.items.sheet, cell=data.items.cell("review_period_days", rows[j])
+                    or data.items.cell("item", rows[j]), item=sub["item"].iat[j],
+                    code="periodic-ignores-breaks")
+
+
 def _reorder_columns(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray) -> None:
     """Inventory position and the quantity to order now, where stock figures are given."""
     on_hand = df["on_hand"].to_numpy(float)
@@ -401,6 +452,16 @@ def _reorder_columns(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarra
     with np.errstate(invalid="ignore", divide="ignore"):
         k = np.floor((r - position) / q) + 1
         qty = np.where(planned & (position <= r), k * q, 0.0)
+    # Periodic review: at the review, order up to S in whole packs (at least the minimum).
+    s_up = pd.to_numeric(results["order_up_to_level"], errors="coerce").to_numpy(float)
+    per = planned & np.isfinite(s_up)
+    if per.any():
+        pack = np.nan_to_num(df["pack_size"].to_numpy(float), nan=1.0)
+        moq = np.nan_to_num(df["minimum_order"].to_numpy(float))
+        with np.errstate(invalid="ignore", divide="ignore"):
+            need = s_up - position
+            up = np.ceil(need / pack - 1e-9) * pack
+            qty = np.where(per, np.where(need > 0, np.maximum(up, moq), 0.0), qty)
     qty[~planned | np.isnan(position)] = np.nan
     results["inventory_position"] = position
     results["order_now_qty"] = qty

@@ -44,7 +44,7 @@ class Report:
 REORDER_KEYS: tuple[str, ...] = (
     "supplier", "item", "description", "on_hand", "on_order", "backordered",
     "inventory_position", "reorder_point", "order_qty", "order_now_qty", "unit_cost",
-    "order_now_value", "abc_class",
+    "order_now_value", "abc_class", "order_up_to_level",
 )
 
 TOTAL_KEYS: tuple[str, ...] = (

@@ -49,6 +49,7 @@ _ITEM_HEADERS: dict[str, str] = {
     "annual_demand": "Annual demand (units per year)",
     "demand_sd": "Demand sd (units per period)",
     "shelf_life_days": "Shelf life (days)",
+    "review_period_days": "Review period (days)",
 }
 
 #: Data validation per Items column: (xlsxwriter options, message shown on a bad entry).
@@ -71,6 +72,7 @@ _ITEM_VALIDATION: dict[str, dict[str, Any]] = {
     "annual_demand": {"validate": "decimal", "criteria": ">=", "value": 0},
     "demand_sd": {"validate": "decimal", "criteria": ">=", "value": 0},
     "shelf_life_days": {"validate": "decimal", "criteria": ">", "value": 0},
+    "review_period_days": {"validate": "decimal", "criteria": ">=", "value": 0},
 }
 
 _ITEM_WIDTHS: dict[str, float] = {"item": 12, "description": 40, "category": 16, "supplier": 22}
@@ -259,6 +261,7 @@ def _write_settings(wb: Any, fmt: dict[str, Any]) -> None:
         "service_target": _ITEM_VALIDATION["service_target"],
         "holding_rate": _ITEM_VALIDATION["holding_rate"],
         "order_cost": _ITEM_VALIDATION["order_cost"],
+        "review_period_days": _ITEM_VALIDATION["review_period_days"],
         "abc_share_a": _ITEM_VALIDATION["service_target"],
         "abc_share_b": _ITEM_VALIDATION["service_target"],
         **{key: _ITEM_VALIDATION["service_target"]

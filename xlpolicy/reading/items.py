@@ -73,6 +73,9 @@ _RULES: dict[str, tuple[Any, str, str]] = {
                   "Enter the standard deviation of demand per period"),
     "shelf_life_days": (lambda x: x > 0, "must be more than 0 days",
                         "Enter the days a unit stays usable, e.g. 30, or leave it blank"),
+    "review_period_days": (lambda x: x >= 0, "cannot be negative",
+                           "Enter the days between reviews, e.g. 7, or 0 for continuous "
+                           "review"),
 }
 
 

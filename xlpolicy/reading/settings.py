@@ -187,6 +187,9 @@ def resolve_settings(
             if key == "periods_per_year" and x <= 0:
                 bad(key, raw, cell, "periods per year must be more than 0")
                 continue
+            if key == "review_period_days" and x < 0:
+                bad(key, raw, cell, "write the days between reviews, e.g. 7, or 0")
+                continue
             if key == "dormant_after" and (x < 1 or not float(x).is_integer()):
                 bad(key, raw, cell, "write a whole number of periods, 1 or more")
                 continue
@@ -253,4 +256,5 @@ SETTING_DEFAULT_TEXT = {
     "service_target_a": "the Service target",
     "service_target_b": "the Service target",
     "service_target_c": "the Service target",
+    "review_period_days": "continuous review",
 }

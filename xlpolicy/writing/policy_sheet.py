@@ -52,6 +52,12 @@ POLICY_COLUMNS: tuple[Col, ...] = (
     Col("service_target_source", "Service target from", "text"),
     Col("cycle_service", "Cycle service achieved", "percent"),
     Col("fill_rate", "Fill rate achieved", "percent"),
+    # periodic review
+    Col("review", "Review", "text"),
+    Col("review_period_days", "Review period (days)", "days"),
+    Col("order_up_to_level", "Order-up-to level (units)", "units"),
+    Col("protection_demand_mean", "Demand over review + lead time, mean (units)", "demand"),
+    Col("protection_demand_sd", "Demand over review + lead time, sd (units)", "demand"),
     # what it costs
     Col("orders_per_year", "Orders per year", "decimal1"),
     Col("annual_ordering_cost", "Annual ordering cost", "money"),
@@ -180,6 +186,13 @@ VALUE_NOTES = {
         "A value: for an item with price breaks, the yearly ordering + cycle holding + "
         "purchase cost of the plain EOQ (at the Unit cost, rounded to packs, paying the "
         "price that quantity earns) minus that of the order quantity chosen."),
+    "order_up_to_level": (
+        "A value, not a formula: periodic review only. At each review, order enough to raise "
+        "the stock position to this level; the smallest whole number meeting the service "
+        "target for demand over the review period plus the lead time under the item's "
+        "demand model (Silver, Pyke & Peterson 1998, ch. 7). For such items the order "
+        "quantity is the average order (demand over one review period) and the safety "
+        "stock is this level minus the mean demand over review period + lead time."),
     "shelf_life_max_qty": (
         "A value: demand per period x shelf life in periods, rounded down to whole packs "
         "(or the smallest allowed order, with a warning, where that is more)."),

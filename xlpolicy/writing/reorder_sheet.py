@@ -43,6 +43,7 @@ REORDER_COLUMNS: tuple[Col, ...] = (
     Col("unit_cost", "Unit cost", "money"),
     Col("order_now_value", "Order value", "money"),
     Col("abc_class", "ABC class", "text"),
+    Col("order_up_to_level", "Periodic review: order up to (units)", "units"),
 )
 
 HEADER_ROW = 4
