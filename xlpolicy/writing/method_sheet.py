@@ -33,6 +33,10 @@ def write_method(ctx: Context, ws: Worksheet) -> None:
     row = _paragraphs(ctx, ws, row + 1, "How the demand model is chosen", model_rule())
     row = _formulas(ctx, ws, row + 1)
     row = _paragraphs(ctx, ws, row + 1, "ABC classes", abc_sentences(ctx))
+    buyer = buyer_sentences(ctx)
+    if buyer:
+        row = _paragraphs(ctx, ws, row + 1, "Price breaks, shelf life and review periods",
+                          buyer)
     row = _settings(ctx, ws, row + 1)
     row = _paragraphs(ctx, ws, row + 1, "Cautions", cautions(ctx))
     ws.hide_gridlines(2)
@@ -170,6 +174,45 @@ def abc_sentences(ctx: Context) -> list[str]:
         "A items deserve the closest watch: review their policies and stock most often.",
         *_class_target_sentences(ctx),
     ]
+
+
+def buyer_sentences(ctx: Context) -> list[str]:
+    """How price breaks, shelf lives and review periods shaped this run (only those used)."""
+    df = ctx.results
+
+    def count(key: str, test: Any = None) -> int:
+        if key not in df.columns:
+            return 0
+        col = df[key]
+        return int((col.notna() if test is None else test(col)).sum())
+
+    out = []
+    n_breaks = count("discount_saving")
+    if n_breaks:
+        out.append(
+            f"Price breaks ({n_breaks} item(s)): with all-units discounts, the order quantity "
+            "is the allowed one (whole packs, at least the minimum) with the lowest ordering "
+            "+ cycle holding + purchase cost a year: the EOQ at each price, moved up to the "
+            "price's break where it lies below it, each costed at the price it earns "
+            "(Nahmias, Production and Operations Analysis, ch. 4; Chopra & Meindl, Supply "
+            "Chain Management, ch. 11). Holding and purchase costs then use the price paid, "
+            "and the reorder point follows from that quantity. The saving is against the "
+            "plain EOQ at the Unit cost, at the price that quantity earns.")
+    n_life = count("shelf_life_cost")
+    if n_life:
+        out.append(
+            f"Shelf life ({n_life} item(s)): the order quantity is at most the demand "
+            "expected over the shelf life, in whole packs; its yearly cost is the ordering + "
+            "cycle holding (+ purchase) cost of the capped quantity minus that without the "
+            "cap. Safety stock ages too: check items with a tight shelf life by hand.")
+    n_per = count("review", lambda c: c.astype(str) == "periodic")
+    if n_per:
+        out.append(
+            f"Periodic review ({n_per} item(s)): every review period T, order up to the level "
+            "S, set for the demand over T + lead time under the item's demand model (Silver, "
+            "Pyke & Peterson 1998, ch. 7); one order per review, the average order being "
+            "the demand over T.")
+    return out
 
 
 def _class_target_sentences(ctx: Context) -> list[str]:
