@@ -119,3 +119,31 @@ def test_bad_review_setting_is_reported(tmp_path):
                           settings={"Review period days": "weekly"})
     p = [p for p in xlpolicy.check(path) if p.code == "setting-review_period_days"]
     assert len(p) == 1 and p[0].sheet == "Settings"
+
+
+def test_simulated_review_cycles_match_the_service_achieved():
+    # A day-by-day simulation of the (T, S) system with backorders (independent of the
+    # formulas): Poisson demand 6 a day, review every 7 days, lead time 4 days.
+    lam, T, L = 6.0, 7, 4
+    pol = _pp(T, lam, np.sqrt(lam), L, FILL_RATE, 0.97, model="poisson", dpp=1.0,
+              ppy=365.0)
+    S = pol["order_up_to_level"]
+    rng = np.random.default_rng(11)
+    days = 7 * 6000
+    demand = rng.poisson(lam, days)
+    net, pipeline = S, {}
+    short = 0.0
+    ends = []  # net stock just before each order arrives
+    for t in range(days):
+        if t in pipeline:
+            ends.append(net)
+            net += pipeline.pop(t)
+        if t % T == 0:
+            position = net + sum(pipeline.values())
+            pipeline[t + L] = S - position
+        short += max(0.0, demand[t] - max(net, 0.0))
+        net -= demand[t]
+    fill = 1 - short / demand.sum()
+    assert fill == pytest.approx(pol["fill_rate"], abs=0.005)
+    no_stockout = np.mean(np.asarray(ends[10:]) >= 0)
+    assert no_stockout == pytest.approx(pol["cycle_service"], abs=0.01)

@@ -194,8 +194,8 @@ VALUE_NOTES = {
         "quantity is the average order (demand over one review period) and the safety "
         "stock is this level minus the mean demand over review period + lead time."),
     "shelf_life_max_qty": (
-        "A value: demand per period x shelf life in periods, rounded down to whole packs "
-        "(or the smallest allowed order, with a warning, where that is more)."),
+        "A value: demand per period x shelf life in periods, rounded down to whole packs. "
+        "Where the smallest allowed order is more, that order is used, with a warning."),
     "shelf_life_cost": (
         "A value: the yearly ordering + cycle holding (+ purchase, with price breaks) cost "
         "of the capped order quantity minus that of the quantity without the cap."),
