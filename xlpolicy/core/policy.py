@@ -357,6 +357,14 @@ def compute_policy(
     continuous optimum and S' = S (service measures) or S + p n(R*) (shortage cost); it is
     NaN where S' = 0, since the curve's optimum then costs nothing.
 
+    Price breaks (inp.break_qty / break_price, all-units): Q is the allowed quantity with
+    the lowest D S / Q + i c(Q) Q / 2 + D c(Q) (core.discounts); unit_price is the price it
+    pays, used for every holding and purchase cost; R follows from that Q. Shelf life
+    (inp.shelf_life_days): Q is at most the demand over the life in whole packs
+    (shelf_life_max_qty), or the smallest allowed order where that is less
+    (flag_shelf_life_below_minimum); shelf_life_cost is what the cap adds a year on the
+    ordering + cycle holding + purchase curve.
+
     Flags: flag_no_safety_stock_pays (shortage cost with Q H / (p D) >= 1: R = mu_L);
     flag_normal_doubtful (sigma_L / mu_L >= 0.5 or mu_L < 10 units, a common-practice rule
     of thumb for when the normal approximation is weak; set on rows computed under the
@@ -637,7 +645,9 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
         if capped.any():
             plain_cap = capped & ~has_breaks  # breaks: the capped choice is already in Q
             Q = np.where(plain_cap, cap_q, Q)
-            q_cont = np.where(plain_cap, np.minimum(q_cont, np.maximum(life_cont, floor_q)),
+            # rounding is measured from the capped continuous quantity, so the rounding
+            # penalty does not count the cap's cost a second time
+            q_cont = np.where(capped, np.minimum(q_cont, np.maximum(life_cont, floor_q)),
                               q_cont)
             r_b, no_b = sc_reorder(Q)
             r_sc = np.where(capped, r_b, r_sc)
