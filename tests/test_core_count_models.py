@@ -401,8 +401,9 @@ def test_mixed_batch_equals_each_group_alone_in_row_order() -> None:
             np.where(pd.isna(names), "", names).astype(str))) == ("" if key == "normal" else key))
         if key == "normal":
             grp = np.union1d(grp, np.flatnonzero(np.asarray(names == "normal")))
-        sub = PolicyInputs(**{f: (getattr(inp, f)[grp] if f != "days_per_period"
-                                  else inp.days_per_period)
+        sub = PolicyInputs(**{f: (getattr(inp, f)[grp]
+                                  if f != "days_per_period" and getattr(inp, f) is not None
+                                  else getattr(inp, f))
                               for f in PolicyInputs.__dataclass_fields__})
         alone = compute_policy(sub)
         got = mixed.iloc[grp].reset_index(drop=True)

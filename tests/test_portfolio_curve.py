@@ -149,3 +149,24 @@ def test_items_that_cannot_be_planned_are_left_out():
     curve = exchange_curve(inp, 0.95, "cycle service")
     assert (curve["items"] == 3).all()
     assert np.isfinite(curve["safety_stock_investment"]).all()
+
+
+def test_curve_with_price_breaks_passes_through_todays_policy():
+    """Per-item tables (the padded price breaks, items x breaks) are tiled with the items.
+
+    The reference is compute_policy on the same inputs; the curve's point for today's
+    settings must be that policy exactly (found when the price-break and curve work met).
+    """
+    from dataclasses import replace
+
+    inp = inputs(n=12)
+    qty = np.tile(np.array([[0.0, 100.0, 500.0]]), (12, 1))
+    price = np.asarray(inp.unit_cost)[:, None] * np.array([[1.0, 0.97, 0.93]])
+    qty[::3, 2] = np.nan  # some items have only two breaks (NaN pads the table)
+    price[::3, 2] = np.nan
+    inp = replace(inp, break_qty=qty, break_price=price)
+    curve = exchange_curve(inp, 0.95, "cycle service")
+    today = curve[curve["current"]].iloc[0]
+    expect = totals(compute_policy(inp))
+    for key, value in expect.items():
+        assert today[key] == pytest.approx(value, rel=1e-12, abs=1e-12)

@@ -90,4 +90,6 @@ def test_reorder_holds_exactly_the_reorder_list(tmp_path):
     labels = [ws.cell(row=r, column=1).value for r in range(1, ws.max_row + 1)]
     assert "Approved by" in labels and "Order numbers" in labels
     last = max(r for r in range(1, ws.max_row + 1) if ws.cell(row=r, column=1).value)
-    assert ws.print_area.endswith(f"$L${last}")
+    # after the order value (column L): the ABC class and the order-up-to level
+    assert ws.print_area.endswith(f"$N${last}")
+    assert ws.cell(row=5, column=13).value == "ABC class"

@@ -50,7 +50,8 @@ def template(tmp_path_factory: pytest.TempPathFactory) -> Path:
 def test_committed_template_is_up_to_date(template: Path) -> None:
     fresh = sheet_values(template)
     committed = sheet_values(COMMITTED_TEMPLATE)
-    assert list(fresh) == list(committed) == ["Read me", "Items", "History", "Settings"]
+    assert list(fresh) == list(committed) == ["Read me", "Items", "History", "Settings",
+                                                        "Price breaks"]
     for name in fresh:
         assert fresh[name] == committed[name], (
             f"sheet {name!r} differs: run `python -m xlpolicy.template`")
@@ -164,7 +165,9 @@ def demo_dir(tmp_path_factory: pytest.TempPathFactory) -> Path:
 def test_demo_is_reproducible(demo_dir: Path, name: str) -> None:
     fresh = sheet_values(demo_dir / name)
     committed = sheet_values(EXAMPLES / name)
-    assert list(fresh) == list(committed) == ["Items", "History", "Settings"]
+    sheets = ["Items", "History", "Settings"] + (["Price breaks"] if name == "demo-shop.xlsx"
+                                                   else [])
+    assert list(fresh) == list(committed) == sheets
     for sheet in fresh:
         assert fresh[sheet] == committed[sheet], (
             f"{name}: sheet {sheet!r} differs: run `python examples/make_demo.py`")

@@ -17,13 +17,13 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from .contract import SERVICE_MEASURES
+from .contract import SERVICE_MEASURES, SETTINGS
 from .planner import build_report
 from .problems import Problem, ProblemLog, Severity, UnusableWorkbook
 from .progress import Progress, silent
 from .reading import guard, read_input
 from .reading.cells import parse_number
-from .reading.settings import parse_measure
+from .reading.settings import parse_measure, resolve_settings, setting_key
 from .reading.sources import KIND_NAMES, source_kind
 from .report import Report
 from .writing.atomic import atomic_output
@@ -121,6 +121,27 @@ def _cap_overrides(stock_budget: float | str | None = None,
     return out
 
 
+def _named_settings(values: dict[str, Any] | None) -> dict[str, Any]:
+    """Settings given by name ({"Service target A": "99%"}), checked like the Settings sheet.
+
+    Names match loosely, as on the sheet; an unknown name or a bad value is a UsageError.
+    """
+    if not values:
+        return {}
+    found: dict[str, tuple[Any, str]] = {}
+    for name, raw in values.items():
+        key = setting_key(name)
+        if key is None:
+            raise UsageError(f"unknown setting {name!r}; known settings: "
+                             + ", ".join(s.title for s in SETTINGS))
+        found[key] = (raw, "")
+    log = ProblemLog()
+    resolved = resolve_settings(found, {}, log)
+    if log.problems:
+        raise UsageError(log.problems[0].message.split(" The default")[0])
+    return {key: resolved[key] for key in found}
+
+
 def _number(value: float | str, what: str, rate: bool = False) -> float:
     """A number given on the command line or to the API, as 0.95 or "95%"."""
     x, why = parse_number(value, rate=rate)
@@ -136,7 +157,8 @@ def analyse(path: str | Path, *, service_measure: str | None = None,
             allow_large: bool = False, stock_budget: float | str | None = None,
             orders_cap: float | str | None = None,
             exchange_curve: bool | None = None,
-            history: str | Path | None = None) -> Report:
+            history: str | Path | None = None,
+            settings: dict[str, Any] | None = None) -> Report:
     """Read, check and plan a workbook without writing anything.
 
     Raises UnusableWorkbook when the workbook cannot be used at all. ``progress`` is called
@@ -146,12 +168,15 @@ def analyse(path: str | Path, *, service_measure: str | None = None,
     across all items, ``exchange_curve`` turns the curve on or off (all three override
     Settings); the results are in ``report.portfolio``. ``history``: a CSV or Parquet
     file of sales history (Item, Period, Quantity) read instead of the History sheet, as
-    the Settings row "History file" does.
+    the Settings row "History file" does. ``settings`` gives any Settings-sheet row by name
+    (e.g. {"Service target A": "99%"}); it overrides the sheet, and the named options above
+    override it.
     """
     log = ProblemLog()
-    overrides = _overrides(service_measure, service_target, holding_rate, order_cost,
-                           stock_budget=stock_budget, orders_cap=orders_cap,
-                           exchange_curve=exchange_curve, history=history)
+    overrides = {**_named_settings(settings),
+                 **_overrides(service_measure, service_target, holding_rate, order_cost,
+                              stock_budget=stock_budget, orders_cap=orders_cap,
+                              exchange_curve=exchange_curve, history=history)}
     with guard.allow_large(allow_large):
         data = read_input(Path(path), overrides, log, progress)
     if data is None:
@@ -187,7 +212,8 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
          allow_large: bool = False, stock_budget: float | str | None = None,
          orders_cap: float | str | None = None,
          exchange_curve: bool | None = None,
-         history: str | Path | None = None) -> PlanResult:
+         history: str | Path | None = None,
+         settings: dict[str, Any] | None = None) -> PlanResult:
     """Plan every item in the workbook at ``path`` and write the results.
 
     The input file is never changed. By default the output is ``<name>-policy.xlsx`` beside
@@ -201,7 +227,7 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
                      holding_rate=holding_rate, order_cost=order_cost, run_date=run_date,
                      progress=progress, allow_large=allow_large, stock_budget=stock_budget,
                      orders_cap=orders_cap, exchange_curve=exchange_curve,
-                     history=history)
+                     history=history, settings=settings)
     result = PlanResult(report)
     if write_workbook:
         progress(f"Writing {out.name}", 0, None)

@@ -101,6 +101,25 @@ def _caps(stock_budget: str | None, orders_cap: str | None, no_curve: bool) -> d
             "exchange_curve": False if no_curve else None}
 
 
+def _set_option(f: Any) -> Any:
+    """--set NAME=VALUE: any Settings row from the command line (repeatable)."""
+    return click.option("--set", "named", multiple=True, metavar="NAME=VALUE",
+                        help="Any setting of the Settings sheet, by name, e.g. "
+                             "--set 'Service target A=99%'. Repeatable; overrides the sheet.")(f)
+
+
+def _named(pairs: tuple[str, ...]) -> dict[str, str]:
+    """NAME=VALUE pairs as a dict; a pair without '=' is a usage error."""
+    out: dict[str, str] = {}
+    for pair in pairs:
+        name, eq, value = pair.partition("=")
+        if not eq or not name.strip():
+            raise click.UsageError(f"--set {pair!r}: write NAME=VALUE, e.g. "
+                                   "'Service target A=99%'")
+        out[name.strip()] = value.strip()
+    return out
+
+
 def _allow_large_option(f: Any) -> Any:
     """--allow-large: raise the limits that keep zip bombs out (for a trusted, huge file)."""
     return click.option("--allow-large", is_flag=True,
@@ -130,22 +149,25 @@ def main() -> None:
               help="Also write the per-item table, problems and totals as JSON.")
 @_override_options
 @_portfolio_options
+@_set_option
 @_allow_large_option
 @click.option("-q", "--quiet", is_flag=True, help="Print only the path written and errors.")
 def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: Path | None,
          service_measure: str | None, service_target: str | None, holding_rate: str | None,
          order_cost: str | None, history: Path | None, stock_budget: str | None,
-         orders_cap: str | None, no_curve: bool, allow_large: bool, quiet: bool) -> None:
+         orders_cap: str | None, no_curve: bool, named: tuple[str, ...], allow_large: bool,
+         quiet: bool) -> None:
     """Compute the policy for every item and write the policy workbook.
 
     Your WORKBOOK is never changed. The output holds your own sheets plus Policy, Summary,
     Reorder now and Warnings.
     """
     bar = _Bar(quiet)
+    given = _named(named)
     result = _run(lambda: api.plan(
         workbook, output, csv=csv_path, json=json_path, service_measure=service_measure,
         service_target=service_target, holding_rate=holding_rate, order_cost=order_cost,
-        progress=bar, allow_large=allow_large, history=history,
+        progress=bar, allow_large=allow_large, history=history, settings=given,
         **_caps(stock_budget, orders_cap, no_curve)), bar)
     _print_run(result, quiet)
 
@@ -184,20 +206,23 @@ def _print_run(result: api.PlanResult, quiet: bool) -> None:
 @click.argument("workbook", type=click.Path(path_type=Path))
 @_override_options
 @_portfolio_options
+@_set_option
 @_allow_large_option
 def check(workbook: Path, service_measure: str | None, service_target: str | None,
           holding_rate: str | None, order_cost: str | None, history: Path | None,
           stock_budget: str | None, orders_cap: str | None, no_curve: bool,
+          named: tuple[str, ...],
           allow_large: bool) -> None:
     """Report every problem in WORKBOOK without writing anything.
 
     Exit status 0 if it can be planned (possibly with warnings), 1 if it cannot.
     """
     bar = _Bar()
+    given = _named(named)
     report = _run(lambda: api.analyse(
         workbook, service_measure=service_measure, service_target=service_target,
         holding_rate=holding_rate, order_cost=order_cost, progress=bar,
-        allow_large=allow_large, history=history,
+        allow_large=allow_large, history=history, settings=given,
         **_caps(stock_budget, orders_cap, no_curve)), bar)
     _print_read(report)
     _print_problems(report.problems, limit=None)

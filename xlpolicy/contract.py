@@ -142,6 +142,17 @@ ITEM_COLUMNS: tuple[Column, ...] = (
            "The period (a date or label, as in History) from which this item's history counts. "
            "Blank: its first sale.",
            ("first period", "launch date", "start date", "introduced", "history from")),
+    Column("shelf_life_days", "Shelf life days", NUMBER, "no",
+           "Days a unit stays usable after it arrives, more than 0. The order quantity is "
+           "capped at the demand expected over that time. Blank: it keeps.",
+           ("shelf life", "usable life days", "usable life", "days to expiry", "expiry days",
+            "best before days")),
+    Column("review_period_days", "Review period days", NUMBER, "no",
+           "Periodic review: look at the item every this many days and order up to a level. "
+           "0: continuous review (order when stock falls to the reorder point). Blank: the "
+           "Settings value, else continuous.",
+           ("review period", "review every days", "review cycle days", "review interval days",
+            "review interval")),
 )
 
 ITEM_COLUMN_BY_KEY = {c.key: c for c in ITEM_COLUMNS}
@@ -155,6 +166,19 @@ HISTORY_LONG_COLUMNS: tuple[Column, ...] = (
            ("qty", "units", "demand", "sales", "units sold", "quantity sold", "sold")),
 )
 
+#: The optional "Price breaks" sheet (all-units quantity discounts), one row per break.
+PRICE_BREAK_COLUMNS: tuple[Column, ...] = (
+    Column("item", "Item", TEXT, "yes", "The item's code, as in Items.", ITEM_COLUMNS[0].aliases),
+    Column("min_qty", "Minimum quantity", NUMBER, "yes",
+           "Order size from which this price applies, more than 0: an order of at least this "
+           "many units pays the price on every unit (all-units discount).",
+           ("from quantity", "break quantity", "quantity from", "min qty", "break qty",
+            "order from", "from qty")),
+    Column("unit_price", "Unit price", NUMBER, "yes",
+           "What each unit costs in such an order, more than 0. Below the smallest break the "
+           "item's Unit cost applies.",
+           ("price", "discounted price", "price per unit", "break price", "discount price")),
+)
 
 # ---------------------------------------------------------------------------
 # Settings
@@ -237,7 +261,39 @@ SETTINGS: tuple[Setting, ...] = (
             "yes: the Summary shows what other service targets (or shortage costs) would cost "
             "in safety stock and give in shortages; no: leave it out (a faster run).",
             ("tradeoff curve", "service curve")),
+    # ABC classes by annual spend, and a service target per class (issue 4, part 4)
+    Setting("abc_share_a", "ABC share A", 0.80,
+            "Class A: the largest items by annual spend (annual demand x unit cost) that make "
+            "up this share of the total (common practice: 80%).",
+            ("class a share", "a class share", "abc cutoff a")),
+    Setting("abc_share_b", "ABC share B", 0.15,
+            "Class B: the next items, making up this share of the total (common practice: "
+            "15%); class C is the rest (5%).",
+            ("class b share", "b class share", "abc cutoff b")),
+    Setting("service_target_a", "Service target A", None,
+            "Service target for class A items that leave theirs blank. Blank: Service target.",
+            ("class a service target", "service level a", "target a")),
+    Setting("service_target_b", "Service target B", None,
+            "Service target for class B items that leave theirs blank. Blank: Service target.",
+            ("class b service target", "service level b", "target b")),
+    Setting("service_target_c", "Service target C", None,
+            "Service target for class C items that leave theirs blank. Blank: Service target.",
+            ("class c service target", "service level c", "target c")),
+    Setting("review_period_days", "Review period days", None,
+            "Periodic review for items that leave the column blank: every this many days, "
+            "order up to a level. Blank or 0: continuous review.",
+            ("review period", "review every days", "review interval days")),
 )
+
+#: Settings read as rates (0.95, 95%, "95%").
+RATE_SETTINGS: frozenset[str] = frozenset({
+    "service_target", "holding_rate", "abc_share_a", "abc_share_b", "service_target_a",
+    "service_target_b", "service_target_c",
+})
+#: The per-class service target settings, by class.
+CLASS_TARGET_SETTINGS: dict[str, str] = {
+    "A": "service_target_a", "B": "service_target_b", "C": "service_target_c",
+}
 
 SETTING_BY_KEY = {s.key: s for s in SETTINGS}
 
@@ -268,6 +324,10 @@ EXTRA_RESULT_KEYS: tuple[str, ...] = (
     "current_annual_safety_holding_cost", "current_annual_shortage_cost",
     "current_annual_total_cost", "annual_saving", "rounding_cost_ratio", "rounding_penalty",
     "uncapped_order_qty", "uncapped_reorder_point", "uncapped_annual_total_cost",
+    "service_target_source", "unit_price", "price_break_qty", "plain_eoq_qty",
+    "discount_saving", "shelf_life_days", "shelf_life_max_qty", "shelf_life_cost",
+    "review", "review_period_days", "order_up_to_level", "protection_demand_mean",
+    "protection_demand_sd",
 )
 
 #: How the template marks its example rows (the description starts with it), so a run can
@@ -278,7 +338,7 @@ EXAMPLE_PREFIX = "EXAMPLE -"
 TEXT_RESULT_KEYS: frozenset[str] = frozenset({
     "item", "status", "model", "service_measure", "description", "category", "supplier",
     "demand_source", "demand_class", "model_reason", "rate_method", "history_start",
-    "abc_class",
+    "abc_class", "service_target_source", "review",
 })
 
 #: Lead-time demand models (core.models.MODEL_NAMES) and the word for "choose per item".

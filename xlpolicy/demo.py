@@ -328,7 +328,18 @@ ITEM_HEADERS = [
     "Holding rate (%)", "Lead time (days)", "Lead time SD (days)", "Service target",
     "Shortage cost ($/unit)", "Pack size", "Min order", "On hand", "On order",
     "Current order qty", "Current reorder point", "Annual demand", "Demand SD (per week)",
+    "Shelf life (days)", "Review every (days)",
 ]
+
+#: Invented buyer's details: a shelf life, periodic review for one supplier's workshop
+#: consumables, and a few all-units price breaks (item, from units, unit price).
+SHELF_LIFE = {"000429": 60}
+REVIEW_DAYS = {"000502": 14, "000503": 14, "000505": 14}
+PRICE_BREAKS = (
+    ("000411", 500, 3.95), ("000411", 1000, 3.80),
+    ("000501", 288, 3.60),
+    ("DT-220", 1000, 0.85),
+)
 
 # The wide demo spells its headers with everyday aliases, to show that they are recognised.
 WIDE_ITEM_HEADERS = [
@@ -349,7 +360,8 @@ def _item_row(spec: Spec, rng: np.random.Generator, stock: dict) -> list:
         SHORTAGE.get(spec.code), spec.pack, sup.minimum_order,
         stock.get("on_hand"), stock.get("on_order"),
         stock.get("current_order_qty"), stock.get("current_reorder_point"),
-        annual, ANNUAL_SD.get(spec.code),
+        annual, ANNUAL_SD.get(spec.code), SHELF_LIFE.get(spec.code),
+        REVIEW_DAYS.get(spec.code),
     ]
 
 
@@ -373,7 +385,7 @@ def _settings(wb: Workbook, rows: list[tuple[str, object]]) -> None:
     for r, (name, value) in enumerate(rows, start=2):
         ws.cell(row=r, column=1, value=name)
         cell = ws.cell(row=r, column=2, value=value)
-        if name in ("Service target", "Holding rate"):
+        if name in ("Service target", "Holding rate", "Service target A"):
             cell.number_format = "0%"
 
 
@@ -427,7 +439,14 @@ def build_shop(path: Path) -> None:
             r += 1
 
     _settings(wb, [("Period", "week"), ("Service measure", "cycle service"),
-                   ("Service target", 0.95), ("Holding rate", 0.25), ("Currency", "$")])
+                   ("Service target", 0.95), ("Holding rate", 0.25), ("Currency", "$"),
+                   ("Service target A", 0.97)])
+    breaks = wb.create_sheet("Price breaks")
+    _header(breaks, 1, ["Item code", "From quantity", "Unit price ($)"], {1: 11, 2: 14, 3: 14})
+    for r, (code, qty, price) in enumerate(PRICE_BREAKS, start=2):
+        breaks.cell(row=r, column=1, value=code).number_format = "@"
+        breaks.cell(row=r, column=2, value=qty)
+        breaks.cell(row=r, column=3, value=price).number_format = "#,##0.00"
     path.parent.mkdir(parents=True, exist_ok=True)
     wb.save(path)
 

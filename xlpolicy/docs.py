@@ -12,7 +12,7 @@ import re
 import sys
 from pathlib import Path
 
-from .contract import ITEM_COLUMNS, PERIODS_PER_YEAR, SETTINGS, Column
+from .contract import ITEM_COLUMNS, PERIODS_PER_YEAR, PRICE_BREAK_COLUMNS, SETTINGS, Column
 
 
 def _cell(text: str) -> str:
@@ -45,7 +45,16 @@ def settings_table() -> str:
     return "\n".join(rows)
 
 
-BLOCKS = {"items-columns": items_table, "settings": settings_table}
+def price_breaks_table() -> str:
+    """Markdown table of the optional Price breaks sheet's columns."""
+    rows = ["| column | what goes in it | also recognised as |", "| --- | --- | --- |"]
+    for col in PRICE_BREAK_COLUMNS:
+        rows.append(f"| {col.title} | {_cell(col.meaning)} | {_cell(_aliases(col))} |")
+    return "\n".join(rows)
+
+
+BLOCKS = {"items-columns": items_table, "settings": settings_table,
+          "price-break-columns": price_breaks_table}
 
 
 def render(text: str) -> str:

@@ -16,6 +16,7 @@ import pandas as pd
 from .contract import (
     ALL_RESULT_KEYS,
     AUTO_MODEL,
+    CLASS_TARGET_SETTINGS,
     SHORTAGE_COST,
     STATUS_OK,
     STATUS_SKIPPED,
@@ -23,7 +24,9 @@ from .contract import (
     TEXT_RESULT_KEYS,
 )
 from .core.classes import DEFAULT_CUTOFFS, abc_classes
+from .core.discounts import price_at
 from .core.history import analyse_history, analysis_from_figures, choose_model
+from .core.periodic import periodic_policy
 from .core.policy import PolicyInputs, compute_policy, evaluate_policy
 from .core.portfolio import BUDGET, ORDERS, apply_cap, exchange_curve
 from .problems import ProblemLog, Severity
@@ -50,13 +53,21 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
 
     results = pd.DataFrame(index=range(n), columns=list(ALL_RESULT_KEYS), dtype=object)
     for key in ("item", "description", "category", "supplier", "unit_cost", "order_cost",
-                "holding_rate", "shortage_cost", "pack_size", "minimum_order"):
+                "holding_rate", "shortage_cost", "pack_size", "minimum_order",
+                "shelf_life_days"):
         results[key] = df[key].to_numpy()
     for key in ("demand_source", "history_periods", "model", "model_reason", "demand_class",
                 "rate_method", "adi", "cv2", "history_start"):
         results[key] = demand["source" if key == "demand_source" else
                               "periods" if key == "history_periods" else key]
     results["service_measure"] = settings["service_measure"]
+
+    # Classes first, from annual demand x unit cost (neither depends on the service target),
+    # then each item's target: its own, else its class's, else the Settings default.
+    abc = _abc(df, demand["annual"], planned, settings)
+    target, target_source = _class_targets(df, items.own_target, abc, settings)
+    results["abc_class"] = abc
+    results["service_target_source"] = target_source
 
     idx = np.flatnonzero(planned)
     portfolio: dict[str, Any] = {}
@@ -73,12 +84,16 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
             order_cost=sub["order_cost"].to_numpy(float),
             holding_rate=sub["holding_rate"].to_numpy(float),
             measure=measure,
-            service_target=sub["service_target"].to_numpy(float),
+            service_target=target[idx],
             shortage_cost=sub["shortage_cost"].to_numpy(float),
             pack_size=np.nan_to_num(sub["pack_size"].to_numpy(float), nan=1.0),
             minimum_order=np.nan_to_num(sub["minimum_order"].to_numpy(float)),
             days_per_period=float(settings["days_per_period"]),
             model=demand["model"][idx],
+            break_qty=data.price_breaks.qty[idx] if data.price_breaks is not None else None,
+            break_price=(data.price_breaks.price[idx] if data.price_breaks is not None
+                         else None),
+            shelf_life_days=sub["shelf_life_days"].to_numpy(float),
         )
         pol = compute_policy(inp)
         pol, portfolio = _portfolio(inp, pol, settings, log)
@@ -86,12 +101,14 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
             if key in results.columns:
                 results.loc[idx, key] = pol[key].to_numpy()
         _flag_problems(pol, df.iloc[idx], items, log)
+    _periodic(results, df, planned, demand, target, settings, data, log)
     if settings["service_measure"] == SHORTAGE_COST:
         results["service_target"] = np.nan
-    results.loc[~planned, ["model", "model_reason"]] = ""
+        results["service_target_source"] = ""
+    results.loc[~planned, ["model", "model_reason", "service_target_source"]] = ""
 
     _reorder_columns(results, df, planned)
-    _abc_and_today(results, df, planned, settings)
+    _abc_and_today(results, df, planned, settings, data.price_breaks)
     results["status"] = _statuses(results["item"], planned, log)
     results = _typed(results)
     reorder = _reorder_list(results, df)
@@ -344,6 +361,12 @@ _FLAG_TEXT = {
         "With this shortage cost, holding extra stock costs more than the shortages it avoids, "
         "so no safety stock was planned (reorder point = expected lead-time demand). Check the "
         "shortage cost."),
+    "flag_shelf_life_below_minimum": (
+        "shelf-life-below-minimum",
+        "Less sells within the shelf life than the smallest order the supplier accepts (one "
+        "pack, or the minimum order): the order quantity was set to that smallest order, so "
+        "part of each order will likely expire unsold. Ask for a smaller pack or minimum, or "
+        "check the Shelf life days."),
     "flag_reorder_point_floored": (
         "reorder-point-floored",
         "The service target is met even with a negative reorder point; the reorder point was "
@@ -373,6 +396,55 @@ def _statuses(codes: pd.Series, planned: np.ndarray, log: ProblemLog) -> np.ndar
     return out
 
 
+def _periodic(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray,
+              demand: dict[str, np.ndarray], target: np.ndarray, settings: dict[str, Any],
+              data: InputData, log: ProblemLog) -> None:
+    """Periodic review (T, S) for items with a review period; the others stay continuous.
+
+    The item's Review period days wins, else the setting; 0 or none: continuous review.
+    A periodic item has no reorder point: its order-up-to level S replaces it, and its
+    order quantity is the average order (demand over one review period).
+    """
+    T = df["review_period_days"].to_numpy(float)
+    default = settings.get("review_period_days")
+    T = np.where(np.isnan(T), float(default) if default is not None else 0.0, T)
+    results["review"] = np.where(planned, np.where(T > 0, "periodic", "continuous"), "")
+    per = planned & (T > 0)
+    results["review_period_days"] = np.where(per, T, np.nan)
+    k = np.flatnonzero(per)
+    if not len(k):
+        return
+    sub = df.iloc[k]
+    pol = periodic_policy(
+        T[k], demand["mean"][k], demand["sd"][k], sub["lead_time_days"].to_numpy(float),
+        np.nan_to_num(sub["lead_time_sd_days"].to_numpy(float)),
+        float(settings["days_per_period"]), float(settings["periods_per_year"]),
+        sub["order_cost"].to_numpy(float), sub["holding_rate"].to_numpy(float),
+        sub["unit_cost"].to_numpy(float), settings["service_measure"], target[k],
+        sub["shortage_cost"].to_numpy(float), model=results["model"].to_numpy(object)[k])
+    for key in pol.columns:
+        if key in results.columns:
+            results.loc[k, key] = pol[key].to_numpy()
+    # what belongs to continuous review only
+    results.loc[k, ["reorder_point", "eoq", "rounding_penalty", "rounding_cost_ratio",
+                    "price_break_qty", "plain_eoq_qty", "discount_saving",
+                    "shelf_life_max_qty", "shelf_life_cost"]] = np.nan
+    results.loc[k, "unit_price"] = sub["unit_cost"].to_numpy(float)
+    breaks = data.price_breaks
+    has_breaks = (breaks.count()[k] > 0) if breaks is not None else np.zeros(len(k), bool)
+    has_life = np.isfinite(sub["shelf_life_days"].to_numpy(float))
+    rows = sub["row"].to_numpy(int)
+    for j in np.flatnonzero(has_breaks | has_life):
+        what = " and ".join(w for w, on in (("price breaks", has_breaks[j]),
+                                            ("a shelf life", has_life[j])) if on)
+        log.warning(f"This item is reviewed every {T[k][j]:g} days (periodic review), so its "
+                    f"{what} were not applied: they shape the order quantity of continuous "
+                    "review only. Set Review period days to 0 to use them.",
+                    sheet=data.items.sheet, cell=data.items.cell("review_period_days", rows[j])
+                    or data.items.cell("item", rows[j]), item=sub["item"].iat[j],
+                    code="periodic-ignores-breaks")
+
+
 def _reorder_columns(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray) -> None:
     """Inventory position and the quantity to order now, where stock figures are given."""
     on_hand = df["on_hand"].to_numpy(float)
@@ -383,17 +455,55 @@ def _reorder_columns(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarra
     with np.errstate(invalid="ignore", divide="ignore"):
         k = np.floor((r - position) / q) + 1
         qty = np.where(planned & (position <= r), k * q, 0.0)
+    # Periodic review: at the review, order up to S in whole packs (at least the minimum).
+    s_up = pd.to_numeric(results["order_up_to_level"], errors="coerce").to_numpy(float)
+    per = planned & np.isfinite(s_up)
+    if per.any():
+        pack = np.nan_to_num(df["pack_size"].to_numpy(float), nan=1.0)
+        moq = np.nan_to_num(df["minimum_order"].to_numpy(float))
+        with np.errstate(invalid="ignore", divide="ignore"):
+            need = s_up - position
+            up = np.ceil(need / pack - 1e-9) * pack
+            qty = np.where(per, np.where(need > 0, np.maximum(up, moq), 0.0), qty)
     qty[~planned | np.isnan(position)] = np.nan
     results["inventory_position"] = position
     results["order_now_qty"] = qty
 
 
-def _abc_and_today(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray,
-                   settings: dict[str, Any]) -> None:
-    """ABC class by annual spend, and today's policy (where given) evaluated like ours."""
-    spend = pd.to_numeric(results["annual_purchase_cost"], errors="coerce").to_numpy(float)
+def _abc(df: pd.DataFrame, annual_demand: np.ndarray, planned: np.ndarray,
+         settings: dict[str, Any]) -> np.ndarray:
+    """ABC class per item by annual spend D x unit cost ("" for items not planned)."""
+    spend = annual_demand * df["unit_cost"].to_numpy(float)
     cutoffs = settings.setdefault("abc_cutoffs", DEFAULT_CUTOFFS)
-    results["abc_class"] = abc_classes(np.where(planned, spend, np.nan), cutoffs)
+    return abc_classes(np.where(planned, spend, np.nan), cutoffs)
+
+
+def _class_targets(df: pd.DataFrame, own: np.ndarray | None, abc: np.ndarray,
+                   settings: dict[str, Any]) -> tuple[np.ndarray, np.ndarray]:
+    """Each item's service target and where it came from.
+
+    The item's own Service target wins; else its class's target (Service target A, B or C)
+    where that setting is given; else the Service target setting (already in the column).
+    """
+    target = df["service_target"].to_numpy(float).copy()
+    own_mask = np.ones(len(df), dtype=bool) if own is None else np.asarray(own, dtype=bool)
+    source = np.where(own_mask, "item", "Settings: Service target").astype(object)
+    for cls, key in CLASS_TARGET_SETTINGS.items():
+        value = settings.get(key)
+        if value is None:
+            continue
+        sel = ~own_mask & (abc == cls)
+        target[sel] = float(value)
+        source[sel] = f"Settings: Service target {cls}"
+    return target, source
+
+
+def _abc_and_today(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray,
+                   settings: dict[str, Any], breaks: Any = None) -> None:
+    """Today's policy (where given) evaluated like ours (the ABC class is set before).
+
+    With price breaks, today's order quantity is held at the price it earns.
+    """
     q_now = df["current_order_qty"].to_numpy(float)
     r_now = df["current_reorder_point"].to_numpy(float)
     results["current_order_qty"] = q_now
@@ -406,10 +516,13 @@ def _abc_and_today(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray,
     def col(key: str) -> np.ndarray:
         return pd.to_numeric(results[key], errors="coerce").to_numpy(float)[k]
 
+    price_now = col("unit_cost")
+    if breaks is not None:
+        price_now = price_at(q_now[k], price_now, breaks.qty[k], breaks.price[k])
     ev = evaluate_policy(q_now[k], r_now[k], col("lead_time_demand_mean"),
                          col("lead_time_demand_sd"), results["model"].to_numpy(object)[k],
                          col("annual_demand"), col("order_cost"),
-                         col("holding_rate") * col("unit_cost"), col("unit_cost"),
+                         col("holding_rate") * price_now, price_now,
                          col("shortage_cost"))
     for key, src in (("current_safety_stock", "safety_stock"),
                      ("current_cycle_service", "cycle_service"),
@@ -438,6 +551,9 @@ def _reorder_list(results: pd.DataFrame, df: pd.DataFrame) -> pd.DataFrame:
     due["on_hand"] = rows["on_hand"].to_numpy(float)
     due["on_order"] = rows["on_order"].to_numpy(float)
     due["backordered"] = rows["backordered"].to_numpy(float)
+    # The purchaser pays the price the order quantity earns (a price break, where one
+    # applies), so the list shows that price as the unit cost of this order.
+    due["unit_cost"] = due["unit_price"].fillna(due["unit_cost"])
     due["order_now_value"] = due["order_now_qty"] * due["unit_cost"]
     due["supplier"] = due["supplier"].fillna("(no supplier given)")
     due = due.sort_values(["supplier", "item"], kind="stable")
@@ -471,6 +587,10 @@ def _totals(results: pd.DataFrame, reorder: pd.DataFrame) -> dict[str, float]:
         "inventory_turns": purchase / avg_value if avg_value > 0 else float("nan"),
         "orders_per_year": s("orders_per_year"),
         "rounding_penalty": s("rounding_penalty"),
+        "discount_saving": s("discount_saving"),
+        "shelf_life_cost": s("shelf_life_cost"),
+        "items_capped_by_shelf_life": float((r["shelf_life_cost"] > 0).sum()),
+        "items_with_price_breaks": float(r["discount_saving"].notna().sum()),
         "items_to_reorder": float(len(reorder)),
         "reorder_value": float(np.nansum(reorder["order_now_value"].to_numpy(float))),
         "items_compared": float(compared.sum()),

@@ -47,7 +47,7 @@ class Report:
 REORDER_KEYS: tuple[str, ...] = (
     "supplier", "item", "description", "on_hand", "on_order", "backordered",
     "inventory_position", "reorder_point", "order_qty", "order_now_qty", "unit_cost",
-    "order_now_value",
+    "order_now_value", "abc_class", "order_up_to_level",
 )
 
 TOTAL_KEYS: tuple[str, ...] = (
@@ -57,4 +57,6 @@ TOTAL_KEYS: tuple[str, ...] = (
     "average_inventory_value", "safety_stock_value", "inventory_turns", "orders_per_year",
     "items_to_reorder", "reorder_value", "items_compared", "current_annual_total_cost",
     "compared_recommended_annual_total_cost", "annual_saving", "rounding_penalty",
+    "discount_saving", "items_with_price_breaks", "shelf_life_cost",
+    "items_capped_by_shelf_life",
 )

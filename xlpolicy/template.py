@@ -48,6 +48,8 @@ _ITEM_HEADERS: dict[str, str] = {
     "minimum_order": "Minimum order (units)",
     "annual_demand": "Annual demand (units per year)",
     "demand_sd": "Demand sd (units per period)",
+    "shelf_life_days": "Shelf life (days)",
+    "review_period_days": "Review period (days)",
 }
 
 #: Data validation per Items column: (xlsxwriter options, message shown on a bad entry).
@@ -69,6 +71,8 @@ _ITEM_VALIDATION: dict[str, dict[str, Any]] = {
     "current_reorder_point": {"validate": "decimal", "criteria": ">=", "value": 0},
     "annual_demand": {"validate": "decimal", "criteria": ">=", "value": 0},
     "demand_sd": {"validate": "decimal", "criteria": ">=", "value": 0},
+    "shelf_life_days": {"validate": "decimal", "criteria": ">", "value": 0},
+    "review_period_days": {"validate": "decimal", "criteria": ">=", "value": 0},
 }
 
 _ITEM_WIDTHS: dict[str, float] = {"item": 12, "description": 40, "category": 16, "supplier": 22}
@@ -110,6 +114,9 @@ _READ_ME: tuple[str, ...] = (
     "An item without history can give Annual demand and Demand sd on Items instead.",
     "Settings: the period length, the service measure and defaults for items that leave a "
     "cell blank.",
+    "Price breaks (optional): one row per break (Item, Minimum quantity, Unit price); an "
+    "order of at least that many units pays that price on every unit. Delete the example "
+    "row with its item.",
     f"The grey italic rows (codes EX001 to EX003, descriptions starting '{EXAMPLE_PREFIX}') "
     "are examples: delete them or type your own items over them.",
     "Percentages may be typed as 0.25 or 25%. Item codes are kept as text: 000123 stays 000123.",
@@ -212,6 +219,34 @@ def _write_history(wb: Any, fmt: dict[str, Any]) -> None:
             row += 1
 
 
+#: Example price breaks (all-units): (item, minimum quantity, unit price).
+EXAMPLE_PRICE_BREAKS: tuple[tuple[str, float, float], ...] = (
+    ("EX002", 48, 4.5),
+    ("EX002", 120, 4.3),
+)
+
+
+def _write_price_breaks(wb: Any, fmt: dict[str, Any]) -> None:
+    ws = wb.add_worksheet("Price breaks")
+    ws.set_comments_author("xlpolicy")
+    ws.freeze_panes(1, 0)
+    for col, column in enumerate(contract.PRICE_BREAK_COLUMNS):
+        ws.write_string(0, col, column.title, fmt["req"])
+        ws.write_comment(0, col, f"{column.meaning}\nRequired.", {"x_scale": 1.6})
+    ws.set_column(0, 0, 12, fmt["text"])
+    ws.set_column(1, 2, 18)
+    for col in (1, 2):
+        ws.data_validation(1, col, _VALIDATED_ROWS, col, {
+            "validate": "decimal", "criteria": ">", "value": 0, "ignore_blank": True,
+            "error_type": "stop", "error_title": "Check this number",
+            "error_message": contract.PRICE_BREAK_COLUMNS[col].meaning[:255],
+        })
+    for row, (code, qty, price) in enumerate(EXAMPLE_PRICE_BREAKS, start=1):
+        ws.write_string(row, 0, code, fmt["ex_text"])
+        ws.write_number(row, 1, qty, fmt["ex_num"])
+        ws.write_number(row, 2, price, fmt["ex_num"])
+
+
 def _write_settings(wb: Any, fmt: dict[str, Any]) -> None:
     ws = wb.add_worksheet("Settings")
     ws.freeze_panes(1, 0)
@@ -226,11 +261,16 @@ def _write_settings(wb: Any, fmt: dict[str, Any]) -> None:
         "service_target": _ITEM_VALIDATION["service_target"],
         "holding_rate": _ITEM_VALIDATION["holding_rate"],
         "order_cost": _ITEM_VALIDATION["order_cost"],
+        "review_period_days": _ITEM_VALIDATION["review_period_days"],
+        "abc_share_a": _ITEM_VALIDATION["service_target"],
+        "abc_share_b": _ITEM_VALIDATION["service_target"],
+        **{key: _ITEM_VALIDATION["service_target"]
+           for key in contract.CLASS_TARGET_SETTINGS.values()},
     }
     for row, setting in enumerate(SETTINGS, start=1):
         ws.write_string(row, 0, setting.title)
         value = setting.default
-        is_rate = setting.key in ("service_target", "holding_rate")
+        is_rate = setting.key in contract.RATE_SETTINGS
         if value is None:
             ws.write_blank(row, 1, None, fmt["pct"] if is_rate else None)
         elif isinstance(value, (int, float)):
@@ -290,6 +330,7 @@ def write_template(path: Path) -> None:
     _write_items(wb, fmt)
     _write_history(wb, fmt)
     _write_settings(wb, fmt)
+    _write_price_breaks(wb, fmt)
     wb.close()
 
 

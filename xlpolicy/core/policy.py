@@ -21,6 +21,7 @@ from numpy.typing import ArrayLike
 
 from xlpolicy.contract import CYCLE_SERVICE, FILL_RATE, SHORTAGE_COST
 from xlpolicy.core.demand import lead_time_demand
+from xlpolicy.core.discounts import DiscountChoice, all_units_order_qty
 from xlpolicy.core.models import (
     MODEL_NAMES,
     Z_LIMIT,
@@ -75,6 +76,8 @@ POLICY_COLUMNS: tuple[str, ...] = (
     "annual_total_cost", "annual_purchase_cost", "average_inventory_value",
     "rounding_cost_ratio", "rounding_penalty", "flag_no_safety_stock_pays", "flag_normal_doubtful",
     "flag_reorder_point_floored", "flag_shortage_cost_missing",
+    "unit_price", "price_break_qty", "discount_saving", "plain_eoq_qty",
+    "shelf_life_days", "shelf_life_max_qty", "shelf_life_cost", "flag_shelf_life_below_minimum",
 )
 
 
@@ -106,6 +109,11 @@ class PolicyInputs:
     minimum_order: np.ndarray
     days_per_period: float
     model: np.ndarray | None = None
+    #: All-units price breaks, (n, k) each, padded with NaN (core.discounts); None: none.
+    break_qty: np.ndarray | None = None
+    break_price: np.ndarray | None = None
+    #: Days a unit stays usable (NaN: it keeps); caps Q at the demand over that time.
+    shelf_life_days: np.ndarray | None = None
 
 
 def order_cost_terms(q: ArrayLike, annual_demand: ArrayLike, order_cost: ArrayLike,
@@ -349,6 +357,14 @@ def compute_policy(
     continuous optimum and S' = S (service measures) or S + p n(R*) (shortage cost); it is
     NaN where S' = 0, since the curve's optimum then costs nothing.
 
+    Price breaks (inp.break_qty / break_price, all-units): Q is the allowed quantity with
+    the lowest D S / Q + i c(Q) Q / 2 + D c(Q) (core.discounts); unit_price is the price it
+    pays, used for every holding and purchase cost; R follows from that Q. Shelf life
+    (inp.shelf_life_days): Q is at most the demand over the life in whole packs
+    (shelf_life_max_qty), or the smallest allowed order where that is less
+    (flag_shelf_life_below_minimum); shelf_life_cost is what the cap adds a year on the
+    ordering + cycle holding + purchase curve.
+
     Flags: flag_no_safety_stock_pays (shortage cost with Q H / (p D) >= 1: R = mu_L);
     flag_normal_doubtful (sigma_L / mu_L >= 0.5 or mu_L < 10 units, a common-practice rule
     of thumb for when the normal approximation is weak; set on rows computed under the
@@ -374,7 +390,8 @@ def compute_policy(
     parts = []
     for idx, fac in groups:
         sub = replace(full, **{f.name: getattr(full, f.name)[idx] for f in fields(full)
-                               if f.name != "days_per_period"})
+                               if f.name != "days_per_period"
+                               and getattr(full, f.name) is not None})
         frame = _policy_group(sub, fac, usable=known[idx])
         frame.index = idx
         parts.append(frame)
@@ -475,8 +492,12 @@ def _broadcast_inputs(inp: PolicyInputs, n: int) -> PolicyInputs:
     cols: dict[str, object] = {}
     for f in fields(inp):
         val = getattr(inp, f.name)
-        if f.name == "days_per_period":
+        if f.name == "days_per_period" or val is None:
             cols[f.name] = val
+        elif f.name in ("break_qty", "break_price"):
+            arr = np.asarray(val, dtype=float)
+            cols[f.name] = np.broadcast_to(arr.reshape(arr.shape[0] if arr.ndim else 1, -1),
+                                           (n, arr.shape[-1] if arr.ndim else 1)).copy()
         elif f.name in ("measure", "model"):
             cols[f.name] = np.broadcast_to(np.asarray(val, dtype=object), (n,)).copy()
         else:
@@ -509,6 +530,26 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
 
     with np.errstate(all="ignore"):
         mu_l, sig_l = lead_time_demand(d, sd_d, lt / dpp, slt / dpp)
+        # All-units price breaks: Q by the lowest ordering + holding + purchase cost, and
+        # every cost after that at the price that Q pays (core.discounts).
+        # Shelf life: Q at most the demand over the usable life, in whole packs; where that
+        # is below the smallest allowed order, the smallest allowed order (flagged).
+        life = _column(inp.shelf_life_days, n) if inp.shelf_life_days is not None else \
+            np.full(n, np.nan)
+        has_life = np.isfinite(life) & (life > 0)
+        life_cont = d * life / dpp  # expected demand over the shelf life, units
+        pk1 = np.where(np.isfinite(pack) & (pack >= 1), np.round(pack), 1.0)
+        floor_q = pk1 * np.maximum(1.0, np.ceil(np.where(np.isfinite(moq), moq, 0.0) / pk1
+                                                - _WHOLE_TOL))
+        cap_packs = np.floor(life_cont / pk1 + _WHOLE_TOL) * pk1
+        life_short = has_life & (cap_packs < floor_q)
+        cap_q = np.where(has_life, np.where(life_short, floor_q, cap_packs), np.inf)
+        disc, has_breaks = _discounts(inp, n, D, S, i, c, pack, moq)
+        disc_capped = disc
+        if disc is not None and (has_life & has_breaks).any():
+            disc_capped, _ = _discounts(inp, n, D, S, i, c, pack, moq, cap_q)
+        disc_unc, disc = disc, disc_capped
+        c = np.where(has_breaks, disc.unit_price, c) if disc is not None else c
         H = i * c
         eoq_raw = np.sqrt(2.0 * D * S / H)
 
@@ -587,6 +628,40 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
         Q = np.where(sc, np.where(take_hi, q_hi, q_lo), q_std)
         r_sc = np.where(take_hi, r_sc_hi, r_sc_lo)
         no_ss = np.where(take_hi, no_ss_hi, no_ss_lo)
+        if disc is not None and has_breaks.any():
+            # The price-break quantity; the reorder point follows from it as usual. Under
+            # the shortage-cost measure R is the cost-optimal one for that Q.
+            hb = has_breaks & ok
+            Q = np.where(hb, disc.order_qty, Q)
+            q_cont = np.where(hb, disc.q_continuous, q_cont)
+            r_b, no_b = sc_reorder(Q)
+            r_sc = np.where(hb, r_b, r_sc)
+            no_ss = np.where(hb, no_b, no_ss)
+        # Shelf life: what the order quantity would be without it, then the cap.
+        q_free = Q.copy()
+        if disc_unc is not None and has_breaks.any():
+            q_free = np.where(has_breaks & ok, disc_unc.order_qty, q_free)
+        capped = ok & has_life & (q_free > cap_q)
+        if capped.any():
+            plain_cap = capped & ~has_breaks  # breaks: the capped choice is already in Q
+            Q = np.where(plain_cap, cap_q, Q)
+            # rounding is measured from the capped continuous quantity, so the rounding
+            # penalty does not count the cap's cost a second time
+            q_cont = np.where(capped, np.minimum(q_cont, np.maximum(life_cont, floor_q)),
+                              q_cont)
+            r_b, no_b = sc_reorder(Q)
+            r_sc = np.where(capped, r_b, r_sc)
+            no_ss = np.where(capped, no_b, no_ss)
+        # What the cap costs a year, on ordering + cycle holding + purchase at the price
+        # each quantity pays (the EOQ cost curve; purchase only differs with price breaks).
+        price_free = c
+        if disc_unc is not None and has_breaks.any():
+            price_free = np.where(has_breaks, disc_unc.unit_price, c)
+        life_cost = np.where(
+            has_life,
+            (Dw * s_eff / Q + i * c * Q / 2.0 + Dw * c)
+            - (Dw * s_eff / q_free + i * price_free * q_free / 2.0 + Dw * price_free),
+            np.nan)
 
         # -- reorder points, each measure on the full arrays, then chosen by mask ------
         r_cs = _smallest_whole(
@@ -661,7 +736,38 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
             "flag_normal_doubtful": doubtful,
             "flag_reorder_point_floored": floored,
             "flag_shortage_cost_missing": is_sc & ~p_given,
+            "unit_price": out(c),
+            "shelf_life_days": np.where(has_life, life, np.nan),
+            "shelf_life_max_qty": out(np.where(has_life, cap_packs, np.nan)),
+            "shelf_life_cost": out(np.maximum(life_cost, 0.0)),
+            "flag_shelf_life_below_minimum": ok & life_short,
+            "price_break_qty": out(disc.break_qty) if disc is not None else np.nan,
+            "discount_saving": (out(np.where(has_breaks, disc.saving, np.nan))
+                                if disc is not None else np.nan),
+            "plain_eoq_qty": (out(np.where(has_breaks, disc.plain_qty, np.nan))
+                              if disc is not None else np.nan),
         },
         columns=list(POLICY_COLUMNS),
     )
     return frame
+
+
+def _discounts(inp: PolicyInputs, n: int, D: np.ndarray, S: np.ndarray, i: np.ndarray,
+               c: np.ndarray, pack: np.ndarray, moq: np.ndarray,
+               max_qty: np.ndarray | None = None
+               ) -> tuple[DiscountChoice | None, np.ndarray]:
+    """The all-units price-break choice for items with breaks (None when no item has any)."""
+    none = np.zeros(n, dtype=bool)
+    if inp.break_qty is None or inp.break_price is None:
+        return None, none
+    bq = np.asarray(inp.break_qty, dtype=float).reshape(n, -1)
+    bp = np.asarray(inp.break_price, dtype=float).reshape(n, -1)
+    has = (np.isfinite(bq) & np.isfinite(bp)).any(axis=1)
+    if not has.any():
+        return None, none
+    with np.errstate(all="ignore"):
+        safe_pack = np.where(np.isfinite(pack) & (pack >= 1), np.round(pack), 1.0)
+        safe_moq = np.where(np.isfinite(moq) & (moq >= 0), moq, 0.0)
+        choice = all_units_order_qty(D, S, i, c, bq, bp, safe_pack, safe_moq, max_qty)
+    has &= np.isfinite(choice.order_qty)
+    return choice, has

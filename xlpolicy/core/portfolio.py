@@ -92,7 +92,8 @@ _POLISH_ROUNDS = 10_000
 def tile_inputs(inp: PolicyInputs, k: int) -> PolicyInputs:
     """The inputs repeated k times, point-major (row p * n + i is item i at point p).
 
-    Every per-item field (a 1-D array of the items' length) is tiled; scalars and the
+    Every per-item field (an array whose first axis is the items: a column, or a table
+    per item such as the padded price breaks) is tiled along that axis; scalars and the
     scalar days_per_period are left as they are, so fields added to PolicyInputs later are
     carried along.
     """
@@ -100,8 +101,9 @@ def tile_inputs(inp: PolicyInputs, k: int) -> PolicyInputs:
     out = {}
     for f in fields(inp):
         val = getattr(inp, f.name)
-        if val is not None and np.ndim(val) == 1 and len(val) == n:
-            out[f.name] = np.tile(np.asarray(val), k)
+        if val is not None and np.ndim(val) >= 1 and len(val) == n:
+            arr = np.asarray(val)
+            out[f.name] = np.tile(arr, (k,) + (1,) * (arr.ndim - 1))
     return replace(inp, **out)
 
 
@@ -172,7 +174,9 @@ def exchange_curve(inp: PolicyInputs, default_target: float, measure: str,
     def per_point(x: pd.Series | np.ndarray) -> np.ndarray:
         return np.asarray(x, dtype=float).reshape(k, n)
 
-    c = np.tile(_item_column(inp, "unit_cost", n), k).reshape(k, n)
+    # Stock is valued at the price paid (the price break's, where the item has breaks).
+    c = (per_point(pol["unit_price"]) if "unit_price" in pol.columns
+         else np.tile(_item_column(inp, "unit_cost", n), k).reshape(k, n))
     q = per_point(pol["order_qty"])
     orders = per_point(pol["orders_per_year"])
     ss = per_point(pol["safety_stock"])

@@ -14,6 +14,7 @@ from .guard import Refused, unreadable_message
 from .history import History, aggregate_daily_to_weeks, read_history
 from .history_file import read_history_file
 from .items import ItemTable, read_items
+from .price_breaks import PriceBreaks, read_price_breaks
 from .settings import finish_period, read_settings, resolve_settings
 from .sources import open_source
 from .workbook import WorkbookFile, layout_notes
@@ -28,6 +29,7 @@ class InputData:
     history: History | None
     settings: dict[str, Any]
     sheet_names: list[str]
+    price_breaks: PriceBreaks | None = None
 
 
 def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
@@ -75,9 +77,12 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
         settings_sheet = read(settings_name) if settings_name else None
         settings = resolve_settings(read_settings(settings_sheet, log), overrides, log,
                                     settings_name or "Settings")
-        items = read_items(read(items_name), settings, log)
+        # Blank targets stay NaN while reading, so an item's own target can be told from a
+        # default: a class target (Service target A/B/C) may apply to it instead.
+        items = read_items(read(items_name), {**settings, "service_target": float("nan")}, log)
         if items is None:
             return None
+        _default_targets(items, settings)
         history_name = wb.find_sheet("History")
         history = None
         history_file = _history_file(Path(path), settings)
@@ -110,7 +115,10 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
                 settings["period"] = history.period
                 settings["sources"]["period"] = f"inferred from {history_name} dates"
                 finish_period(settings)
-        return InputData(Path(path), items, history, settings, list(wb.sheet_names))
+        breaks_name = wb.find_sheet("Price breaks")
+        breaks = (read_price_breaks(read(breaks_name), items, log)
+                  if breaks_name is not None else None)
+        return InputData(Path(path), items, history, settings, list(wb.sheet_names), breaks)
     except _AlreadyReported:
         return None
     except _SheetUnreadable as exc:
@@ -134,6 +142,14 @@ def _history_file(workbook: Path, settings: dict[str, Any]) -> Path | None:
         base = workbook if workbook.is_dir() else workbook.parent
         p = base / p
     return p
+
+
+def _default_targets(items: ItemTable, settings: dict[str, Any]) -> None:
+    """Mark which items gave their own service target, and fill the others' from Settings."""
+    target = items.df["service_target"].to_numpy(float)
+    items.own_target = np.isfinite(target)
+    items.df["service_target"] = np.where(items.own_target, target,
+                                          float(settings["service_target"]))
 
 
 class _AlreadyReported(Exception):

@@ -71,6 +71,11 @@ _RULES: dict[str, tuple[Any, str, str]] = {
     "annual_demand": (lambda x: x >= 0, "cannot be negative", "Enter units sold per year"),
     "demand_sd": (lambda x: x >= 0, "cannot be negative",
                   "Enter the standard deviation of demand per period"),
+    "shelf_life_days": (lambda x: x > 0, "must be more than 0 days",
+                        "Enter the days a unit stays usable, e.g. 30, or leave it blank"),
+    "review_period_days": (lambda x: x >= 0, "cannot be negative",
+                           "Enter the days between reviews, e.g. 7, or 0 for continuous "
+                           "review"),
 }
 
 
@@ -88,6 +93,8 @@ class ItemTable:
     header_row: int
     usable: np.ndarray
     units: dict[str, str] = field(default_factory=dict)
+    #: True where the item's own Service target cell gave the target (not a default).
+    own_target: np.ndarray | None = None
 
     def cell(self, key: str, row: int) -> str:
         """A1 reference of ``key``'s cell in sheet row ``row`` ("" if the column is absent)."""

@@ -10,8 +10,10 @@ from __future__ import annotations
 from typing import Any
 
 from ..contract import (
+    CLASS_TARGET_SETTINGS,
     PERIODS,
     PERIODS_PER_YEAR,
+    RATE_SETTINGS,
     SERVICE_MEASURES,
     SETTINGS,
     normalise,
@@ -46,6 +48,11 @@ _MODEL_LOOKUP = _words({
 })
 _YES = {"yes", "y", "true", "1", "on"}
 _NO = {"no", "n", "false", "0", "off"}
+
+
+def setting_key(name: Any) -> str | None:
+    """The contract key of a setting named loosely ("service target a"), or None."""
+    return _SETTING_LOOKUP.get(normalise(name))
 
 
 def parse_model(value: Any) -> str | None:
@@ -157,14 +164,18 @@ def resolve_settings(
                 continue
             out[key] = "yes" if yes else "no"
         else:
-            x, why = parse_number(raw, rate=key in ("service_target", "holding_rate"))
+            x, why = parse_number(raw, rate=key in RATE_SETTINGS)
             if why:
                 bad(key, raw, cell, why)
                 continue
             assert x is not None
-            if key == "service_target" and not 0 < x < 1:
+            if key in ("service_target", *CLASS_TARGET_SETTINGS.values()) and not 0 < x < 1:
                 bad(key, raw, cell, "a service target must lie strictly between 0 and 1 "
                     "(write 0.95 or 95%)")
+                continue
+            if key in ("abc_share_a", "abc_share_b") and not 0 < x < 1:
+                bad(key, raw, cell, "a share of spend must lie strictly between 0 and 1 "
+                    "(write 0.8 or 80%)")
                 continue
             if key == "holding_rate" and not 0 < x <= 1:
                 bad(key, raw, cell, "a yearly holding rate must be more than 0 and at most 1 "
@@ -175,6 +186,9 @@ def resolve_settings(
                 continue
             if key == "periods_per_year" and x <= 0:
                 bad(key, raw, cell, "periods per year must be more than 0")
+                continue
+            if key == "review_period_days" and x < 0:
+                bad(key, raw, cell, "write the days between reviews, e.g. 7, or 0")
                 continue
             if key == "dormant_after" and (x < 1 or not float(x).is_integer()):
                 bad(key, raw, cell, "write a whole number of periods, 1 or more")
@@ -192,8 +206,32 @@ def resolve_settings(
         sources[key] = "command line"
 
     out["sources"] = sources
+    _abc_cutoffs(out, sheet_values, log, sheet_name)
     finish_period(out)
     return out
+
+
+def _abc_cutoffs(out: dict[str, Any], sheet_values: dict[str, tuple[Any, str]],
+                 log: ProblemLog, sheet_name: str) -> None:
+    """The cumulative ABC cut-offs (A share, A + B share) from the two share settings.
+
+    Shares that add up to more than 100 % leave no room for class C: reported, and the
+    common-practice defaults (80 % and 15 %) used for both.
+    """
+    a, b = float(out["abc_share_a"]), float(out["abc_share_b"])
+    sources = out["sources"]
+    if a + b > 1.0 + 1e-12:
+        cell = sheet_values.get("abc_share_b", sheet_values.get("abc_share_a", (None, "")))[1]
+        log.warning(f"ABC share A ({a:.0%}) and ABC share B ({b:.0%}) add up to more than "
+                    "100%. Write shares that leave the rest to class C, e.g. 80% and 15%. "
+                    "The defaults (80% and 15%) were used.", sheet=sheet_name, cell=cell,
+                    value=b, code="setting-abc_shares")
+        a, b = 0.80, 0.15
+        out["abc_share_a"], out["abc_share_b"] = a, b
+        sources["abc_share_a"] = sources["abc_share_b"] = "default (shares over 100%)"
+    out["abc_cutoffs"] = (a, min(a + b, 1.0))
+    given = [sources[k] for k in ("abc_share_a", "abc_share_b") if sources[k] != "default"]
+    sources["abc_cutoffs"] = ", ".join(dict.fromkeys(given)) or "default"
 
 
 def finish_period(settings: dict[str, Any]) -> None:
@@ -219,4 +257,10 @@ SETTING_DEFAULT_TEXT = {
     "periods_per_year": "365, 52 or 12 by period",
     "service_measure": "cycle service",
     "service_target": "0.95",
+    "abc_share_a": "80%",
+    "abc_share_b": "15%",
+    "service_target_a": "the Service target",
+    "service_target_b": "the Service target",
+    "service_target_c": "the Service target",
+    "review_period_days": "continuous review",
 }

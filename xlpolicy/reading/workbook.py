@@ -44,6 +44,8 @@ SHEET_ALIASES: dict[str, tuple[str, ...]] = {
     "History": ("history", "sales history", "demand history", "sales", "demand", "usage",
                 "usage history"),
     "Settings": ("settings", "parameters", "options", "configuration", "config"),
+    "Price breaks": ("price breaks", "quantity discounts", "discounts", "price list",
+                     "volume prices", "price tiers"),
 }
 
 _NS_MAIN = "http://schemas.openxmlformats.org/spreadsheetml/2006/main"

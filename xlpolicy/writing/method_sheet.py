@@ -35,6 +35,10 @@ def write_method(ctx: Context, ws: Worksheet) -> None:
     row = _formulas(ctx, ws, row + 1)
     row = _paragraphs(ctx, ws, row + 1, "ABC classes", abc_sentences(ctx))
     row = _paragraphs(ctx, ws, row + 1, "Across all items", portfolio_sentences(ctx))
+    buyer = buyer_sentences(ctx)
+    if buyer:
+        row = _paragraphs(ctx, ws, row + 1, "Price breaks, shelf life and review periods",
+                          buyer)
     row = _settings(ctx, ws, row + 1)
     row = _paragraphs(ctx, ws, row + 1, "Cautions", cautions(ctx))
     ws.hide_gridlines(2)
@@ -170,7 +174,62 @@ def abc_sentences(ctx: Context) -> list[str]:
         f"the next {b - a:.0%}; class C: the last {1 - b:.0%}. Skipped items have no class "
         "(common practice; Silver, Pyke & Peterson 1998, ch. 3).",
         "A items deserve the closest watch: review their policies and stock most often.",
+        *_class_target_sentences(ctx),
     ]
+
+
+def buyer_sentences(ctx: Context) -> list[str]:
+    """How price breaks, shelf lives and review periods shaped this run (only those used)."""
+    df = ctx.results
+
+    def count(key: str, test: Any = None) -> int:
+        if key not in df.columns:
+            return 0
+        col = df[key]
+        return int((col.notna() if test is None else test(col)).sum())
+
+    out = []
+    n_breaks = count("discount_saving")
+    if n_breaks:
+        out.append(
+            f"Price breaks ({n_breaks} item(s)): with all-units discounts, the order quantity "
+            "is the allowed one (whole packs, at least the minimum) with the lowest ordering "
+            "+ cycle holding + purchase cost a year: the EOQ at each price, moved up to the "
+            "price's break where it lies below it, each costed at the price it earns "
+            "(Nahmias, Production and Operations Analysis, ch. 4; Chopra & Meindl, Supply "
+            "Chain Management, ch. 11). Holding and purchase costs then use the price paid, "
+            "and the reorder point follows from that quantity. The saving is against the "
+            "plain EOQ at the Unit cost, at the price that quantity earns.")
+    n_life = count("shelf_life_cost")
+    if n_life:
+        out.append(
+            f"Shelf life ({n_life} item(s)): the order quantity is at most the demand "
+            "expected over the shelf life, in whole packs; its yearly cost is the ordering + "
+            "cycle holding (+ purchase) cost of the capped quantity minus that without the "
+            "cap. Safety stock ages too: check items with a tight shelf life by hand.")
+    n_per = count("review", lambda c: c.astype(str) == "periodic")
+    if n_per:
+        out.append(
+            f"Periodic review ({n_per} item(s)): every review period T, order up to the level "
+            "S, set for the demand over T + lead time under the item's demand model (Silver, "
+            "Pyke & Peterson 1998, ch. 7); one order per review, the average order being "
+            "the demand over T.")
+    return out
+
+
+def _class_target_sentences(ctx: Context) -> list[str]:
+    """Which service target each class gets (Settings: Service target A, B, C)."""
+    settings = ctx.report.settings or {}
+    given = {cls: settings.get(key) for cls, key in contract.CLASS_TARGET_SETTINGS.items()
+             if finite(settings.get(key)) is not None}
+    if not given:
+        return []
+    parts = ", ".join(f"class {cls} {float(v):.1%}" for cls, v in given.items())
+    return [
+        f"Service targets by class: {parts}. The classes are set first, from annual demand "
+        "x unit cost, which does not depend on the target; an item's own Service target "
+        "still wins, and the column 'Service target from' on the Policy sheet says which "
+        "applied."]
 
 
 def _settings(ctx: Context, ws: Worksheet, row: int) -> int:
@@ -204,7 +263,7 @@ def _setting_value(ctx: Context, ws: Worksheet, row: int, key: str, value: Any) 
         ctx.w.text(ws, row, 1, " / ".join(parts), align="left")
     elif finite(value) is None and not isinstance(value, str) and clean_text(value) is None:
         ctx.w.text(ws, row, 1, "not set", font_color=MUTED, align="left")
-    elif key in ("service_target", "holding_rate") and finite(value) is not None:
+    elif key in contract.RATE_SETTINGS and finite(value) is not None:
         ctx.w.number(ws, row, 1, value, num_format=PERCENT, align="left")
     elif key == "order_cost" and finite(value) is not None:
         ctx.w.number(ws, row, 1, value, num_format=ctx.money, align="left")

@@ -50,8 +50,15 @@ POLICY_COLUMNS: tuple[Col, ...] = (
     Col("safety_stock", "Safety stock (units)", "units1"),
     Col("service_measure", "Service measure", "text"),
     Col("service_target", "Service target", "percent"),
+    Col("service_target_source", "Service target from", "text"),
     Col("cycle_service", "Cycle service achieved", "percent"),
     Col("fill_rate", "Fill rate achieved", "percent"),
+    # periodic review
+    Col("review", "Review", "text"),
+    Col("review_period_days", "Review period (days)", "days"),
+    Col("order_up_to_level", "Order-up-to level (units)", "units"),
+    Col("protection_demand_mean", "Demand over review + lead time, mean (units)", "demand"),
+    Col("protection_demand_sd", "Demand over review + lead time, sd (units)", "demand"),
     # what it costs
     Col("orders_per_year", "Orders per year", "decimal1"),
     Col("annual_ordering_cost", "Annual ordering cost", "money"),
@@ -73,6 +80,16 @@ POLICY_COLUMNS: tuple[Col, ...] = (
     Col("pack_size", "Pack size (units)", "units"),
     Col("minimum_order", "Minimum order (units)", "units"),
     Col("rounding_penalty", "Yearly cost of rounding to packs and minimums", "money"),
+    # all-units price breaks (the Price breaks sheet)
+    Col("unit_price", "Unit price paid (after any price break)", "money"),
+    Col("price_break_qty", "Price break used: from (units)", "units"),
+    Col("plain_eoq_qty", "Plain EOQ at the Unit cost (units)", "units"),
+    Col("discount_saving", "Yearly saving of the price break over the plain EOQ", "money"),
+    # shelf life
+    Col("shelf_life_days", "Shelf life (days)", "days"),
+    Col("shelf_life_max_qty", "Most to order: what sells within the shelf life (units)",
+        "units"),
+    Col("shelf_life_cost", "Yearly cost of the shelf-life cap", "money"),
     # where the demand figures come from
     Col("demand_per_period", "Demand per period (units)", "demand"),
     Col("demand_sd_per_period", "Demand sd per period (units)", "demand"),
@@ -114,7 +131,7 @@ POLICY_COLUMNS: tuple[Col, ...] = (
 #: The inputs the formulas name, by symbol.
 SYMBOLS = {
     "Q": "order_qty", "R": "reorder_point", "mu": "lead_time_demand_mean",
-    "D": "annual_demand", "S": "order_cost", "i": "holding_rate", "c": "unit_cost",
+    "D": "annual_demand", "S": "order_cost", "i": "holding_rate", "c": "unit_price",
     "p": "shortage_cost", "n": "expected_units_short_per_cycle",
     "ORD": "annual_ordering_cost", "CYC": "annual_cycle_holding_cost",
     "SAF": "annual_safety_holding_cost", "SHO": "annual_shortage_cost",
@@ -168,7 +185,25 @@ VALUE_NOTES = {
         "A value, not a formula: the EOQ (see 'EOQ before rounding') rounded to a multiple "
         "of the pack size and raised to the minimum order, taking whichever rounding costs "
         "less a year; under the shortage-cost measure, found together with the reorder "
-        "point by the iterative (Q, R) method."),
+        "point by the iterative (Q, R) method. With price breaks: the allowed quantity "
+        "with the lowest ordering + holding + purchase cost a year (all-units discount)."),
+    "discount_saving": (
+        "A value: for an item with price breaks, the yearly ordering + cycle holding + "
+        "purchase cost of the plain EOQ (at the Unit cost, rounded to packs, paying the "
+        "price that quantity earns) minus that of the order quantity chosen."),
+    "order_up_to_level": (
+        "A value, not a formula: periodic review only. At each review, order enough to raise "
+        "the stock position to this level; the smallest whole number meeting the service "
+        "target for demand over the review period plus the lead time under the item's "
+        "demand model (Silver, Pyke & Peterson 1998, ch. 7). For such items the order "
+        "quantity is the average order (demand over one review period) and the safety "
+        "stock is this level minus the mean demand over review period + lead time."),
+    "shelf_life_max_qty": (
+        "A value: demand per period x shelf life in periods, rounded down to whole packs. "
+        "Where the smallest allowed order is more, that order is used, with a warning."),
+    "shelf_life_cost": (
+        "A value: the yearly ordering + cycle holding (+ purchase, with price breaks) cost "
+        "of the capped order quantity minus that of the quantity without the cap."),
     "reorder_point": (
         "A value, not a formula: the smallest whole number of units that meets the service "
         "target under the item's demand model (a quantile of lead-time demand, or the "

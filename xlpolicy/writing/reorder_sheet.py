@@ -42,6 +42,8 @@ REORDER_COLUMNS: tuple[Col, ...] = (
     Col("order_now_qty", "Quantity to order now (units)", "units"),
     Col("unit_cost", "Unit cost", "money"),
     Col("order_now_value", "Order value", "money"),
+    Col("abc_class", "ABC class", "text"),
+    Col("order_up_to_level", "Periodic review: order up to (units)", "units"),
 )
 
 HEADER_ROW = 4
@@ -104,7 +106,7 @@ def _groups(ctx: Context, ws: Worksheet, df: pd.DataFrame, cols: Sequence[Col], 
             widths: list[int]) -> int:
     """Supplier band, its items, its subtotal; then a grand total. Returns the last row."""
     keys = [c.key for c in cols]
-    value_col = len(cols) - 1
+    value_col = keys.index("order_now_value")
     qty_col, cost_col, item_col = (keys.index(k) for k in ("order_now_qty", "unit_cost", "item"))
     if "supplier" in df.columns:
         suppliers = df["supplier"].map(clean_text)

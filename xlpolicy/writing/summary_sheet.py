@@ -62,6 +62,10 @@ TOTAL_LABELS: tuple[tuple[str, str, str], ...] = (
     ("inventory_turns", "Inventory turns (per year)", "decimal1"),
     ("orders_per_year", "Orders per year, all items", "decimal1"),
     ("rounding_penalty", "Yearly cost of ordering in whole packs and minimums", "money"),
+    ("items_with_price_breaks", "Items with price breaks", "count"),
+    ("discount_saving", "Yearly saving from price breaks, against the plain EOQ", "money"),
+    ("items_capped_by_shelf_life", "Items whose order is capped by shelf life", "count"),
+    ("shelf_life_cost", "Yearly cost of the shelf-life caps", "money"),
     ("items_to_reorder", "Items to reorder now", "count"),
     ("reorder_value", "Value to reorder now", "money"),
     ("items_compared", "Items compared with today's policy", "count"),
@@ -82,6 +86,8 @@ SUM_TOTALS = {
     "average_inventory_value": "average_inventory_value",
     "orders_per_year": "orders_per_year",
     "rounding_penalty": "rounding_penalty",
+    "discount_saving": "discount_saving",
+    "shelf_life_cost": "shelf_life_cost",
 }
 
 #: Breakdown table columns: (title, kind, result keys summed).
