@@ -65,6 +65,7 @@ __all__ = [
     "SimulationResult",
     "simulate_policy",
     "block_length",
+    "service_check",
     "SIMULATION_COLUMNS",
     "Z_BAND",
 ]
@@ -87,6 +88,20 @@ SIMULATION_COLUMNS: tuple[str, ...] = (
 # A demand sampler gives, for period t, the two parts (before / after the arrival point)
 # of every (item, replication) demand; shaped (items, replications).
 _Sampler = Callable[[int], tuple[np.ndarray, np.ndarray]]
+
+
+def service_check(promised: ArrayLike, low: ArrayLike, high: ArrayLike,
+                  margin: float = 0.0) -> np.ndarray:
+    """-1 where the simulated band lies below the promise, +1 above it, 0 where it holds it.
+
+    The promise must fall outside the band by more than ``margin`` as well (a floor on
+    what is worth a warning). NaN anywhere gives 0: nothing to say.
+    """
+    pr, lo, hi = (np.asarray(x, dtype=float) for x in (promised, low, high))
+    with np.errstate(invalid="ignore"):
+        below = (hi < pr) & (pr - hi > margin)
+        above = (lo > pr) & (lo - pr > margin)
+    return np.where(below, -1, np.where(above, 1, 0)).astype(np.int64)
 
 
 def block_length(lead_time_periods: ArrayLike, span: ArrayLike) -> np.ndarray:
@@ -412,10 +427,7 @@ def _run(Q: np.ndarray, R: np.ndarray, L: np.ndarray, Lsd: np.ndarray, src: Dema
     gk, gs = cells(g_shape), cells(g_scale)
     begin_c = cells(begin)
 
-    if src.replay:
-        stock = Rc + Qc
-    else:
-        stock = Rc + rng.random(C) * Qc
+    stock = Rc + Qc if src.replay else Rc + rng.random(C) * Qc
     start_stock = stock.copy()  # net stock (backorders) or on hand (lost sales)
     pipe = np.zeros(C)
     pq = np.zeros((W, C))  # quantity due, by arrival slot
