@@ -96,6 +96,20 @@ def _overrides(service_measure: str | None, service_target: float | str | None,
     return out
 
 
+def _simulation_overrides(simulate: bool | None, replications: int | str | None,
+                          lost_sales: bool) -> dict[str, Any]:
+    """The back-test settings given on the command line or to the API, checked."""
+    from .backtest import MAX_RUNS
+
+    out: dict[str, Any] = {"simulate": simulate, "lost_sales": bool(lost_sales) or None}
+    if replications is not None:
+        x = _number(replications, "replications")
+        if not (x == int(x) and 1 <= x <= MAX_RUNS):
+            raise UsageError(f"replications must be a whole number from 1 to {MAX_RUNS}")
+        out["simulation_runs"] = int(x)
+    return out
+
+
 def _number(value: float | str, what: str, rate: bool = False) -> float:
     """A number given on the command line or to the API, as 0.95 or "95%"."""
     x, why = parse_number(value, rate=rate)
@@ -108,15 +122,20 @@ def analyse(path: str | Path, *, service_measure: str | None = None,
             service_target: float | str | None = None,
             holding_rate: float | str | None = None, order_cost: float | str | None = None,
             run_date: _dt.date | None = None, progress: Progress = silent,
-            allow_large: bool = False) -> Report:
+            allow_large: bool = False, simulate: bool | None = None,
+            replications: int | None = None, lost_sales: bool = False) -> Report:
     """Read, check and plan a workbook without writing anything.
 
     Raises UnusableWorkbook when the workbook cannot be used at all. ``progress`` is called
     as the run goes (stage, done, total), for a progress bar. ``allow_large`` raises the
     size limits that protect against zip bombs tenfold (see xlpolicy.reading.guard).
+    ``simulate`` (True/False; None: as the Settings sheet says) back-tests each policy with
+    ``replications`` runs (default: the Settings value, else 100); ``lost_sales`` simulates
+    unmet demand as lost rather than backordered (see xlpolicy.backtest).
     """
     log = ProblemLog()
     overrides = _overrides(service_measure, service_target, holding_rate, order_cost)
+    overrides.update(_simulation_overrides(simulate, replications, lost_sales))
     with guard.allow_large(allow_large):
         data = read_input(Path(path), overrides, log, progress)
     if data is None:
@@ -149,11 +168,13 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
          service_target: float | str | None = None, holding_rate: float | str | None = None,
          order_cost: float | str | None = None, write_workbook: bool = True,
          run_date: _dt.date | None = None, progress: Progress = silent,
-         allow_large: bool = False) -> PlanResult:
+         allow_large: bool = False, simulate: bool | None = None,
+         replications: int | None = None, lost_sales: bool = False) -> PlanResult:
     """Plan every item in the workbook at ``path`` and write the results.
 
     The input file is never changed. By default the output is ``<name>-policy.xlsx`` beside
     it: the user's sheets plus the generated ones. Raises UnusableWorkbook or UsageError.
+    ``simulate``, ``replications``, ``lost_sales``: the back-test, as for :func:`analyse`.
     """
     src = Path(path)
     out = Path(output) if output is not None else default_output_path(src)
@@ -161,7 +182,8 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
         _check_output_path(src, out)
     report = analyse(src, service_measure=service_measure, service_target=service_target,
                      holding_rate=holding_rate, order_cost=order_cost, run_date=run_date,
-                     progress=progress, allow_large=allow_large)
+                     progress=progress, allow_large=allow_large, simulate=simulate,
+                     replications=replications, lost_sales=lost_sales)
     result = PlanResult(report)
     if write_workbook:
         progress(f"Writing {out.name}", 0, None)

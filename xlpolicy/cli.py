@@ -106,10 +106,21 @@ def main() -> None:
               help="Also write the per-item table, problems and totals as JSON.")
 @_override_options
 @_allow_large_option
+@click.option("--simulate/--no-simulate", "simulate", default=None,
+              help="Back-test each policy by simulating it on resamples of the item's own "
+                   "demand, and warn where it falls short of what it promises. Default: as "
+                   "the Settings sheet's 'Simulation runs' says (off when blank).")
+@click.option("--replications", type=str, default=None, metavar="N",
+              help="Simulation runs per item for --simulate (default: the Settings value, "
+                   "else 100); giving it turns the back-test on.")
+@click.option("--lost-sales", is_flag=True,
+              help="In the back-test, demand that finds no stock is lost rather than "
+                   "backordered.")
 @click.option("-q", "--quiet", is_flag=True, help="Print only the path written and errors.")
 def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: Path | None,
          service_measure: str | None, service_target: str | None, holding_rate: str | None,
-         order_cost: str | None, allow_large: bool, quiet: bool) -> None:
+         order_cost: str | None, allow_large: bool, simulate: bool | None,
+         replications: str | None, lost_sales: bool, quiet: bool) -> None:
     """Compute the policy for every item and write the policy workbook.
 
     Your WORKBOOK is never changed. The output holds your own sheets plus Policy, Summary,
@@ -119,7 +130,8 @@ def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: 
     result = _run(lambda: api.plan(
         workbook, output, csv=csv_path, json=json_path, service_measure=service_measure,
         service_target=service_target, holding_rate=holding_rate, order_cost=order_cost,
-        progress=bar, allow_large=allow_large), bar)
+        progress=bar, allow_large=allow_large, simulate=simulate, replications=replications,
+        lost_sales=lost_sales), bar)
     _print_run(result, quiet)
 
 
@@ -296,6 +308,10 @@ def _print_totals(report: Report) -> None:
         ("Items to reorder now", f"{int(t['items_to_reorder'])} "
                                  f"({money(t['reorder_value'])})"),
     ]
+    if t.get("items_simulated"):
+        rows.append(("Meet their target in simulation",
+                     f"{int(t['items_meeting_target_in_simulation'])} of "
+                     f"{int(t['items_with_target_simulated'])}"))
     width = max(len(k) for k, _ in rows)
     for k, v in rows:
         click.echo(f"  {k:<{width}}  {v:>16}")

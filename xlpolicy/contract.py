@@ -219,6 +219,10 @@ SETTINGS: tuple[Setting, ...] = (
     Setting("currency", "Currency", None,
             "Symbol or code shown in money formats, e.g. $, EUR, £.",
             ("currency symbol", "money")),
+    Setting("simulation_runs", "Simulation runs", None,
+            "Back-test each policy by simulating it this many times on resamples of the "
+            "item's own demand (100 is a good start). Blank or 0: no back-test.",
+            ("simulate", "simulation", "back test runs", "simulation replications")),
 )
 
 SETTING_BY_KEY = {s.key: s for s in SETTINGS}
@@ -249,7 +253,16 @@ EXTRA_RESULT_KEYS: tuple[str, ...] = (
     "current_annual_ordering_cost", "current_annual_cycle_holding_cost",
     "current_annual_safety_holding_cost", "current_annual_shortage_cost",
     "current_annual_total_cost", "annual_saving", "rounding_cost_ratio", "rounding_penalty",
+    # the back-test (only with a simulation; see xlpolicy.backtest)
+    "simulation_source", "simulated_cycle_service", "simulated_cycle_service_low",
+    "simulated_cycle_service_high", "simulated_fill_rate", "simulated_fill_rate_low",
+    "simulated_fill_rate_high", "replayed_cycle_service", "simulated_average_on_hand",
+    "simulated_orders_per_year", "simulated_annual_total_cost", "simulation_check",
 )
+
+#: The back-test's result keys (a run without simulation leaves them out of the sheets).
+SIMULATION_RESULT_KEYS: tuple[str, ...] = EXTRA_RESULT_KEYS[EXTRA_RESULT_KEYS.index(
+    "simulation_source"):]
 
 #: How the template marks its example rows (the description starts with it), so a run can
 #: say when they were left in.
@@ -259,7 +272,7 @@ EXAMPLE_PREFIX = "EXAMPLE -"
 TEXT_RESULT_KEYS: frozenset[str] = frozenset({
     "item", "status", "model", "service_measure", "description", "category", "supplier",
     "demand_source", "demand_class", "model_reason", "rate_method", "history_start",
-    "abc_class",
+    "abc_class", "simulation_source", "simulation_check",
 })
 
 #: Lead-time demand models (core.models.MODEL_NAMES) and the word for "choose per item".

@@ -13,6 +13,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from .backtest import backtest_totals, run_backtest
 from .contract import (
     ALL_RESULT_KEYS,
     AUTO_MODEL,
@@ -83,6 +84,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
             if key in results.columns:
                 results.loc[idx, key] = pol[key].to_numpy()
         _flag_problems(pol, df.iloc[idx], items, log)
+        run_backtest(results, data, idx, demand, log)
     if settings["service_measure"] == SHORTAGE_COST:
         results["service_target"] = np.nan
     results.loc[~planned, ["model", "model_reason"]] = ""
@@ -93,6 +95,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
     results = _typed(results)
     reorder = _reorder_list(results, df)
     totals = _totals(results, reorder)
+    results = backtest_totals(results, totals)
     history = data.history
     summary: dict[str, Any] = {
         "file": source_name,
@@ -133,6 +136,8 @@ def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
     cv2 = np.full(n, np.nan)
     hist = data.history
     has_hist = np.zeros(n, dtype=bool)
+    hist_row = np.full(n, -1, dtype=np.int64)  # for the back-test: History row, span start
+    span_start = np.zeros(n, dtype=np.int64)
     codes = df["item"].to_numpy(object)
     rows = df["row"].to_numpy(int)
     sheet = data.items.sheet
@@ -166,6 +171,8 @@ def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
         labels = np.array([_label(x) for x in hist.labels] + [""], dtype=object)
         out_text["history_start"][has_hist] = labels[np.minimum(an.start[w], len(labels) - 1)]
         source[has_hist] = "history"
+        hist_row[has_hist] = w
+        span_start[has_hist] = an.start[w]
 
     annual_fig = df["annual_demand"].to_numpy(float)
     fig = ~has_hist & ~np.isnan(annual_fig)
@@ -237,7 +244,8 @@ def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
     if an is not None:
         _pattern_notes(an, hist, where, usable & ok & has_hist, codes, period, settings, log)
     return {"mean": mean, "sd": sd, "annual": mean * ppy, "periods": periods, "ok": ok,
-            "source": source, "adi": adi, "cv2": cv2, **out_text}
+            "source": source, "adi": adi, "cv2": cv2, "hist_row": hist_row,
+            "span_start": span_start, **out_text}
 
 
 def _label(x: Any) -> str:
