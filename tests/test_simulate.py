@@ -27,6 +27,7 @@ from xlpolicy.core.simulate import (
     HistoryReplay,
     ModelDraws,
     block_length,
+    history_band,
     service_check,
     simulate_policy,
 )
@@ -211,7 +212,8 @@ def test_vectorised_simulator_agrees_with_a_simpy_model(case):
 # A lumpy item breaks the normal assumption and is flagged
 # ---------------------------------------------------------------------------------------
 
-def _normal_policy(hist: np.ndarray, lead_days: float) -> tuple[np.ndarray, np.ndarray, float]:
+def _normal_policy(hist: np.ndarray, lead_days: float, target: float = 0.95
+                   ) -> tuple[np.ndarray, np.ndarray, float]:
     st_ = history_statistics(hist)
     n = hist.shape[0]
     inp = PolicyInputs(
@@ -219,27 +221,53 @@ def _normal_policy(hist: np.ndarray, lead_days: float) -> tuple[np.ndarray, np.n
         lead_time_days=np.full(n, lead_days), lead_time_sd_days=np.zeros(n),
         unit_cost=np.full(n, 10.0), order_cost=np.full(n, 20.0),
         holding_rate=np.full(n, 0.25), measure=np.full(n, "cycle service", dtype=object),
-        service_target=np.full(n, 0.95), shortage_cost=np.full(n, np.nan),
+        service_target=np.full(n, target), shortage_cost=np.full(n, np.nan),
         pack_size=np.ones(n), minimum_order=np.zeros(n), days_per_period=7.0,
         model=np.full(n, "normal", dtype=object))
     pol = compute_policy(inp)
     return pol, st_, lead_days / 7.0
 
 
+def lumpy_history(weeks: int, seed: int = 0) -> np.ndarray:
+    """A constructed lumpy item: a case of 50 in about one week in 15, else 2 units in one
+    week in five (SBC class lumpy: rare sales of very uneven size). Over a two-week lead
+    time a normal model spreads the rare case over a wide bell and sets a 98 % reorder
+    point below 50, so about one lead time in eight (1 - (14/15)^2) runs short."""
+    rng = np.random.default_rng(seed)
+    u, v = rng.random(weeks), rng.random(weeks)
+    out = np.where(u < 1 / 15, 50.0, np.where(v < 0.2, 2.0, 0.0))
+    out[0] = 2.0
+    return out
+
+
 def test_lumpy_item_under_a_normal_model_is_flagged_and_a_smooth_one_is_not():
-    rng = np.random.default_rng(5)
-    T = 104
-    # lumpy: a sale in about one week in five, sizes very uneven (gamma, cv 1.5)
-    lumpy = np.where(rng.random(T) < 0.2, np.round(rng.gamma(0.45, 20 / 0.45, T)), 0.0)
-    smooth = np.round(rng.normal(20, 4, T))
-    hist = np.vstack([lumpy, smooth])
-    pol, _, L = _normal_policy(hist, 21.0)
+    T = 416  # eight years: enough separate lead times for the band to be decisive
+    smooth = np.random.default_rng(5).poisson(20, T).astype(float)  # invented test data
+    hist = np.vstack([lumpy_history(T), smooth])
+    pol, _, L = _normal_policy(hist, 14.0, 0.98)
+    assert pol.reorder_point[0] < 50
     src = BlockBootstrap(hist, np.zeros(2, int), block_length([L, L], [T, T]), T)
     res = simulate_policy(pol.order_qty, pol.reorder_point, [L, L], [0, 0], src,
                           replications=200, seed=0)
-    flag = service_check(pol.cycle_service, res.cycle_service_low, res.cycle_service_high)
-    assert flag[0] == -1  # promised about 95 %, delivers clearly less
+    band = history_band(res.columns, [T, T], [L, L])
+    flag = service_check(pol.cycle_service, band["cycle_service_low"],
+                         band["cycle_service_high"], margin=0.01)
+    assert flag[0] == -1  # promised about 98 %, delivers clearly less
     assert flag[1] == 0
+    # the widened band still holds the simulation's own band
+    assert (band["cycle_service_low"] <= res.cycle_service_low + 1e-12).all()
+    assert (band["cycle_service_high"] >= res.cycle_service_high - 1e-12).all()
+
+
+def test_history_band_rule_of_three_when_nothing_ran_short():
+    cols = {"cycle_service": np.array([1.0]), "cycle_service_low": np.array([1.0]),
+            "cycle_service_high": np.array([1.0]), "fill_rate": np.array([1.0]),
+            "fill_rate_low": np.array([1.0]), "fill_rate_high": np.array([1.0])}
+    band = history_band(cols, [100.0], [2.0])
+    # 50 separate lead times without a shortage: the exact binomial 95 % bound on the
+    # share short is 1 - 0.05^(1/50) = 0.058; the rule of three gives 3/50 = 0.06
+    assert band["cycle_service_low"][0] == pytest.approx(1 - 3 / 50)
+    assert pytest.approx(3 / 50, rel=0.05) == 1 - 0.05 ** (1 / 50)
 
 
 def test_service_check_directions_and_margin():

@@ -22,6 +22,7 @@ from .core.simulate import (
     HistoryReplay,
     ModelDraws,
     block_length,
+    history_band,
     service_check,
     simulate_policy,
 )
@@ -117,6 +118,7 @@ def run_backtest(results: pd.DataFrame, data: Any, idx: np.ndarray,
     common = dict(replications=runs, lost_sales=lost, periods_per_year=ppy)
 
     groups = []
+    span = np.zeros(0)
     h = np.flatnonzero(from_hist)
     if h.size:
         start = demand["span_start"][idx][h]
@@ -133,7 +135,9 @@ def run_backtest(results: pd.DataFrame, data: Any, idx: np.ndarray,
     for k, src, label in groups:
         res = simulate_policy(q[k], r[k], lt[k], lsd[k], src, seed=rng, order_cost=S[k],
                               holding_cost=H[k], shortage_cost=p[k], **common)
-        c = res.columns
+        c = dict(res.columns)
+        if label == SOURCE_BOOTSTRAP:  # allow for the history's own length (see core)
+            c.update(history_band(c, span, lt[k]))
         for key in ("cycle_service", "cycle_service_low", "cycle_service_high", "fill_rate",
                     "fill_rate_low", "fill_rate_high"):
             out[f"simulated_{key}"][k] = c[key]
