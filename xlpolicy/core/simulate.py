@@ -215,21 +215,27 @@ class BlockBootstrap:
     def sampler(self, reps: int, frac: np.ndarray, rng: np.random.Generator) -> _Sampler:
         m = np.nan_to_num(np.asarray(self.matrix, dtype=float))
         n_items, n_cols = m.shape
-        st = np.asarray(self.start, np.int64)[:, None]
+        flat = m.ravel()
+        st = np.asarray(self.start, np.int64)
         span = np.maximum(n_cols - st, 1)
-        ell = np.maximum(np.asarray(self.block, np.int64), 1)[:, None]
-        rows = np.arange(n_items)[:, None]
+        base = (np.arange(n_items, dtype=np.int64) * n_cols + np.minimum(st, n_cols - 1)
+                )[:, None]
+        ell = np.maximum(np.asarray(self.block, np.int64), 1)
         fr = frac[:, None]
-        cur = np.zeros((n_items, reps), dtype=np.int64)
+        pos = np.zeros((n_items, reps), dtype=np.int64)  # place in the span, per cell
+        span_c = span[:, None]
 
         def draw(t: int) -> tuple[np.ndarray, np.ndarray]:
-            nonlocal cur
-            new = (t % ell) == 0
-            fresh = (rng.random((n_items, reps)) * span).astype(np.int64)
-            cur = np.where(new, fresh, cur)
-            col = st + (cur + t % ell) % span
-            d = m[rows, np.minimum(col, n_cols - 1)]
-            return fr * d, (1.0 - fr) * d
+            # the next period of the current block, wrapping round the span's end ...
+            pos[...] += 1
+            pos[...] -= np.where(pos >= span_c, span_c, 0)
+            # ... or, where a block ends, the first period of a new one, at random
+            new = np.flatnonzero(t % ell == 0)
+            if new.size:
+                pos[new] = (rng.random((new.size, reps)) * span_c[new]).astype(np.int64)
+            d = flat[base + pos]
+            a = fr * d
+            return a, d - a
 
         return draw
 
@@ -459,7 +465,10 @@ def _run(Q: np.ndarray, R: np.ndarray, L: np.ndarray, Lsd: np.ndarray, src: Dema
         return np.repeat(np.asarray(x, dtype=float), reps)
 
     Qc, Rc, fc, wc, kc = cells(Q), cells(R), cells(frac), cells(whole), cells(k_cap)
+    any_frac = bool((frac > 0).any())
+    half_f, half_g = 0.5 * fc, 0.5 * (1.0 - fc)
     count_from = cells(begin + warm)
+    count_all = float(count_from.max()) if C else 0.0
     rand_c = np.repeat(random_lt, reps)
     gk, gs = cells(g_shape), cells(g_scale)
     begin_c = cells(begin)
@@ -497,7 +506,7 @@ def _run(Q: np.ndarray, R: np.ndarray, L: np.ndarray, Lsd: np.ndarray, src: Dema
             cum += lost_a
         else:
             lost_a = 0.0
-            stock = stock - a
+            np.subtract(stock, a, out=stock)
             cum += a
         before = np.maximum(stock, 0.0)
         # -- arrival ---------------------------------------------------------------------
@@ -522,7 +531,9 @@ def _run(Q: np.ndarray, R: np.ndarray, L: np.ndarray, Lsd: np.ndarray, src: Dema
             pq[slot, due] = 0.0
             pc[slot, due] = False
             pflag[slot, due] = False
-        after = np.maximum(stock, 0.0)
+            after = np.maximum(stock, 0.0)
+        else:
+            after = before
         # -- rest of the period -----------------------------------------------------------
         if lost:
             need = np.maximum(b, 0.0)
@@ -531,16 +542,25 @@ def _run(Q: np.ndarray, R: np.ndarray, L: np.ndarray, Lsd: np.ndarray, src: Dema
             stock = stock - served - np.minimum(b, 0.0)
             cum += need - served
         else:
-            stock = stock - b
+            np.subtract(stock, b, out=stock)
             cum += b
             lost_t = 0.0
         oh1 = np.maximum(stock, 0.0)
-        acc["demand"] += a + b
-        acc["lost_all"] += lost_t
+        if lost:  # with backorders, cum is the demand so far
+            acc["demand"] += a
+            acc["demand"] += b
+            acc["lost_all"] += lost_t
         # on hand averaged over the period: trapezoids before and after the arrival point
-        avg_oh = fc * 0.5 * (oh0 + before) + (1.0 - fc) * 0.5 * (after + oh1)
-        acc["on_hand"] += np.where(counting, avg_oh, 0.0)
-        acc["lost"] += np.where(counting, lost_t, 0.0)
+        if any_frac:
+            avg_oh = half_f * (oh0 + before) + half_g * (after + oh1)
+        else:
+            avg_oh = 0.5 * (after + oh1)
+        if t >= count_all:
+            acc["on_hand"] += avg_oh
+            acc["lost"] += lost_t
+        else:
+            acc["on_hand"] += np.where(counting, avg_oh, 0.0)
+            acc["lost"] += np.where(counting, lost_t, 0.0)
         periods_counted += (t >= begin + warm)
         # -- review at the end of the period ----------------------------------------------
         ip = stock + pipe
@@ -581,6 +601,8 @@ def _run(Q: np.ndarray, R: np.ndarray, L: np.ndarray, Lsd: np.ndarray, src: Dema
             tr["ordered"][:, t] = qty_full[trace_cells]
             tr["demand"][:, t] = (a + b)[trace_cells]
 
+    if not lost:
+        acc["demand"] = cum
     g = {k: v.reshape(n, reps) for k, v in acc.items()}
     cs, cs_lo, cs_hi = _ratio_band(g["cycles"] - g["stockouts"], g["cycles"])
     sh, sh_lo, sh_hi = _ratio_band(g["short"], g["qty_in"])
