@@ -137,3 +137,50 @@ def test_replications_must_be_a_whole_number(tmp_path):
     res = CliRunner().invoke(main, ["plan", str(src), "--replications", "abc"])
     assert res.exit_code == 2
     assert "replications" in res.output
+
+
+def _replay_by_hand(demand: list[float], q: float, r: float, lead: int) -> list[float]:
+    """Brute force, from the rules in words: start with R + Q on hand and nothing on order;
+    each period, take in what is due, sell (backordering what is short), and at the end,
+    if the position is at or below R, order enough Qs to lift it above R, due `lead`
+    periods later (after `lead` periods of demand). Returns the net stock per period."""
+    net, due, out = r + q, {}, []
+    for t, d in enumerate(demand):
+        net += due.pop(t, 0.0)
+        net -= d
+        position = net + sum(due.values())
+        if position <= r:
+            k = math.floor((r - position) / q) + 1
+            due[t + 1 + lead] = due.get(t + 1 + lead, 0.0) + k * q
+        out.append(net)
+    return out
+
+
+def test_stock_trace_sheet_replays_the_history_as_by_hand(tmp_path):
+    src = _shop(tmp_path)
+    res = run("plan", src, "--simulate", "--replications", 30)
+    assert res.exit_code == 0, res.output
+    wb = load_workbook(tmp_path / "shop-policy.xlsx")
+    assert wb.sheetnames[-1] == "Stock trace"
+    ws = wb["Stock trace"]
+    assert len(ws._charts) == 2  # one chart per item (two items here)
+    rows = [[c.value for c in row] for row in ws.iter_rows()]
+    heads = [k for k, row in enumerate(rows) if row[0] == "Period"]
+    assert len(heads) == 2
+    report = xlpolicy.analyse(src, simulate=True, replications=30)
+    res_items = report.results.set_index("item")
+    hist = {"000777": None, "LMP-1": None}
+    for k in heads:
+        code = rows[k - 2][0]
+        assert code in hist
+        table = []
+        for row in rows[k + 1:]:
+            if row[0] is None:
+                break
+            table.append(row)
+        demand = [float(r[1]) for r in table]
+        net = [float(r[2]) for r in table]
+        q = float(res_items.at[code, "order_qty"])
+        r = float(res_items.at[code, "reorder_point"])
+        assert net == pytest.approx(_replay_by_hand(demand, q, r, 2))
+        assert all(float(x[4]) % q == 0 for x in table)  # orders in whole order quantities

@@ -41,6 +41,9 @@ MARGIN = 0.01
 #: many years.
 MIN_YEARS = 2.0
 
+#: Items whose simulated stock is drawn on the trace sheet.
+TRACE_ITEMS = 3
+
 SOURCE_BOOTSTRAP = "history, block bootstrap"
 SOURCE_MODEL = "demand model draws"
 CHECK_TEXT = {-1: "short of promise", 0: "as promised", 1: "above promise"}
@@ -83,18 +86,19 @@ def simulation_runs(settings: dict[str, Any], log: ProblemLog) -> int:
 
 def run_backtest(results: pd.DataFrame, data: Any, idx: np.ndarray,
                  demand: dict[str, np.ndarray], log: ProblemLog,
-                 seed: int = SEED) -> None:
+                 seed: int = SEED) -> dict[str, Any] | None:
     """Simulate the planned items (rows idx of results) if the settings ask for it.
 
     Fills the SIMULATION_RESULT_KEYS columns of those rows and logs a warning for each item
     whose simulated service falls short of its promise by more than the band (an info
-    note where it is clearly above).
+    note where it is clearly above). Returns the stock trace of a few items for the
+    trace sheet (see :func:`_trace`), or None without a back-test.
     """
     settings = data.settings
     lost = bool(settings.pop("lost_sales", None))
     runs = simulation_runs(settings, log)
     if not runs or not len(idx):
-        return
+        return None
     settings["simulation_unmet_demand"] = "lost" if lost else "backordered"
     ppy = float(settings["periods_per_year"])
     dpp = float(settings["days_per_period"])
@@ -162,6 +166,51 @@ def run_backtest(results: pd.DataFrame, data: Any, idx: np.ndarray,
     for key, val in out.items():
         results.loc[idx, key] = val
     _warn(results, data, idx, check, promised, fill, runs, log)
+
+    # the stock trace: the items whose simulated service falls furthest below the promise
+    gap = np.where(done, np.nan_to_num(promised - out["simulated_cycle_service" if not fill
+                                                    else "simulated_fill_rate"]), -np.inf)
+    cost = np.where(done, np.nan_to_num(num("annual_total_cost")), -np.inf)
+    order = np.lexsort((-cost, -gap))
+    pick = [int(j) for j in order if done[j]][:TRACE_ITEMS]
+    if not pick:
+        return None
+    pick_a = np.asarray(pick)
+    hist_pick = pick_a[from_hist[pick_a]]
+    model_pick = pick_a[~from_hist[pick_a]]
+    rows_out: list[dict[str, Any]] = []
+    labels = [str(x.isoformat() if hasattr(x, "isoformat") else x) for x in
+              (hist.labels if hist is not None else [])]
+    for sel, is_hist in ((hist_pick, True), (model_pick, False)):
+        if not sel.size:
+            continue
+        if is_hist:
+            src: Any = HistoryReplay(hist.matrix[rows[sel]], demand["span_start"][idx][sel])
+            first = demand["span_start"][idx][sel]
+            what = "its own history, as it was"
+        else:
+            src = ModelDraws(results.loc[idx, "model"].to_numpy(object)[sel],
+                             num("demand_per_period")[sel], num("demand_sd_per_period")[sel],
+                             horizon)
+            first = np.zeros(sel.size, dtype=np.int64)
+            what = "draws from its demand model (the first run)"
+        tr = simulate_policy(q[sel], r[sel], lt[sel], lsd[sel], src, replications=1,
+                             seed=np.random.default_rng(seed + 1), lost_sales=lost,
+                             periods_per_year=ppy, trace_items=np.arange(sel.size)).trace
+        for j, loc in enumerate(sel):
+            i = idx[loc]
+            t0 = int(first[j])
+            n_t = tr["net_stock"].shape[1]
+            lab = labels[t0:n_t] if is_hist and len(labels) >= n_t else [
+                str(k + 1) for k in range(t0, n_t)]
+            rows_out.append({
+                "row": int(i), "item": results.at[i, "item"],
+                "description": results.at[i, "description"], "order_qty": float(q[loc]),
+                "reorder_point": float(r[loc]), "source": what, "labels": lab,
+                **{k: tr[k][j, t0:] for k in ("demand", "net_stock", "position", "ordered")},
+            })
+    rows_out.sort(key=lambda d: pick.index(int(np.flatnonzero(idx == d["row"])[0])))
+    return {"items": rows_out, "unmet": "lost" if lost else "backordered"}
 
 
 def _warn(results: pd.DataFrame, data: Any, idx: np.ndarray, check: np.ndarray,

@@ -59,6 +59,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
     results["service_measure"] = settings["service_measure"]
 
     idx = np.flatnonzero(planned)
+    trace = None
     if len(idx):
         sub = df.iloc[idx]
         measure = np.full(len(idx), settings["service_measure"], dtype=object)
@@ -84,7 +85,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
             if key in results.columns:
                 results.loc[idx, key] = pol[key].to_numpy()
         _flag_problems(pol, df.iloc[idx], items, log)
-        run_backtest(results, data, idx, demand, log)
+        trace = run_backtest(results, data, idx, demand, log)
     if settings["service_measure"] == SHORTAGE_COST:
         results["service_target"] = np.nan
     results.loc[~planned, ["model", "model_reason"]] = ""
@@ -111,7 +112,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
     }
     return Report(results=results, reorder=reorder, problems=log.sorted(), settings=settings,
                   totals=totals, input_summary=summary, source_name=source_name,
-                  run_date=run_date or _dt.date.today())
+                  run_date=run_date or _dt.date.today(), trace=trace)
 
 
 def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,

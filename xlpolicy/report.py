@@ -39,6 +39,8 @@ class Report:
     input_summary: dict[str, Any]
     source_name: str
     run_date: _dt.date = field(default_factory=_dt.date.today)
+    #: the back-test's stock trace of a few items (xlpolicy.backtest), or None
+    trace: dict[str, Any] | None = None
 
 
 REORDER_KEYS: tuple[str, ...] = (

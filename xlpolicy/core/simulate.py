@@ -380,8 +380,9 @@ def simulate_policy(
 
     Items with a missing or non-positive Q, a missing R or lead time get NaN. A replay runs
     once per item whatever ``replications`` says. ``trace_items``: indices of items whose
-    first replication's stock path is returned in ``trace`` (on hand, position, orders per
-    period), for a chart. See the module docstring for the method.
+    first replication's stock path is returned in ``trace`` (net stock, position, orders per
+    period: net stock is on hand minus backordered), for a chart. See the module docstring
+    for the method.
     """
     q = np.asarray(order_qty, dtype=float).reshape(-1)
     n = q.shape[0]
@@ -404,7 +405,7 @@ def simulate_policy(
     T = demand.periods()
     if trace_idx.size:
         trace = {"item": trace_idx, **{k: np.full((trace_idx.size, T), np.nan)
-                                       for k in ("on_hand", "position", "ordered", "demand")}}
+                                       for k in ("net_stock", "position", "ordered", "demand")}}
     good = np.flatnonzero(ok)
     chunk = max(1, _CHUNK_CELLS // reps)
     for c0 in range(0, good.size, chunk):
@@ -418,7 +419,7 @@ def simulate_policy(
             totals[k][idx] = v
         for j, loc in enumerate(tr_local):
             row = int(np.flatnonzero(trace_idx == idx[loc])[0])
-            for k in ("on_hand", "position", "ordered", "demand"):
+            for k in ("net_stock", "position", "ordered", "demand"):
                 trace[k][row] = tr[k][j]
     with np.errstate(all="ignore"):
         out["annual_ordering_cost"] = out["orders_per_year"] * S
@@ -489,7 +490,7 @@ def _run(Q: np.ndarray, R: np.ndarray, L: np.ndarray, Lsd: np.ndarray, src: Dema
     sample = src.sampler(reps, frac, rng)
     trace_cells = trace_rows * reps
     tr = {k: np.full((trace_rows.size, T), np.nan) for k in
-          ("on_hand", "position", "ordered", "demand")}
+          ("net_stock", "position", "ordered", "demand")}
 
     for t in range(T):
         a2, b2 = sample(t)
@@ -596,7 +597,7 @@ def _run(Q: np.ndarray, R: np.ndarray, L: np.ndarray, Lsd: np.ndarray, src: Dema
         if trace_cells.size:
             qty_full = np.zeros(C)
             qty_full[o] = qty_o
-            tr["on_hand"][:, t] = oh1[trace_cells]
+            tr["net_stock"][:, t] = stock[trace_cells]
             tr["position"][:, t] = (stock + pipe)[trace_cells]
             tr["ordered"][:, t] = qty_full[trace_cells]
             tr["demand"][:, t] = (a + b)[trace_cells]
