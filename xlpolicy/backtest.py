@@ -91,8 +91,9 @@ def run_backtest(results: pd.DataFrame, data: Any, idx: np.ndarray,
 
     Fills the SIMULATION_RESULT_KEYS columns of those rows and logs a warning for each item
     whose simulated service falls short of its promise by more than the band (an info
-    note where it is clearly above). Returns the stock trace of a few items for the
-    trace sheet (see :func:`_trace`), or None without a back-test.
+    note where it is clearly above). Returns the stock trace of up to TRACE_ITEMS items
+    (the history replayed, or the first run of model draws) for the Stock trace sheet, or
+    None without a back-test.
     """
     settings = data.settings
     lost = bool(settings.pop("lost_sales", None))
