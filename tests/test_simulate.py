@@ -26,6 +26,7 @@ from xlpolicy.core.simulate import (
     BlockBootstrap,
     HistoryReplay,
     ModelDraws,
+    _rounding_variance,
     block_length,
     history_band,
     service_check,
@@ -112,6 +113,37 @@ def test_constant_demand_brute_force():
         assert res.cycle_service[0] == want_cs
         assert res.fill_rate[0] == pytest.approx(1.0 - want_short / 35.0)
         assert res.orders_per_year[0] == pytest.approx(52 * 10 / 35, rel=0.02)
+
+
+@pytest.mark.parametrize("L, sd", [(3.0, 1.2), (4.0, 0.4), (2.5, 0.8), (1.43, 0.3)])
+def test_random_lead_times_keep_the_items_mean_and_sd(L, sd):
+    # Brute force: with exactly 1 unit of demand a period, the demand over a lead time is
+    # the lead time itself, so the simulated cycle service at R = 0, 1, 2, ... traces the
+    # distribution of the simulated lead time. Its mean and sd must be the item's (the
+    # whole-period rounding is compensated, see lead_draw_variance). Q = 30 keeps one order
+    # outstanding at a time.
+    R = np.arange(16.0)
+    src = ModelDraws(np.array(["normal"] * 16), np.ones(16), np.zeros(16), 4000)
+    res = simulate_policy(np.full(16, 30.0), R, np.full(16, L), np.full(16, sd), src,
+                          replications=20, seed=3)
+    f = L - math.floor(L)
+    lead = R - 1 + f if f > 0 else R  # lead-time demand K + f <= R means K <= R - 1 if f > 0
+    p = np.diff(np.r_[0.0, res.cycle_service])
+    mean = float((p * lead).sum())
+    sd_sim = math.sqrt(float((p * lead * lead).sum()) - mean * mean)
+    assert mean == pytest.approx(L, abs=0.04)
+    assert sd_sim == pytest.approx(sd, rel=0.06)
+
+
+def test_rounding_variance_limits():
+    # Fractional part of a normal: no spread gives no rounding variance; a wide spread
+    # makes it uniform on [0, 1), whose phi (1 - phi) averages 1/6 (brute force below).
+    assert _rounding_variance(np.array([0.0]))[0] == pytest.approx(0.0, abs=1e-3)
+    assert _rounding_variance(np.array([4.0]))[0] == pytest.approx(1 / 6, abs=1e-9)
+    e = np.random.default_rng(1).normal(0.0, 0.3, 200_000)
+    phi = e - np.floor(e)
+    assert _rounding_variance(np.array([0.09]))[0] == pytest.approx(
+        float(np.mean(phi * (1 - phi))), abs=2e-3)
 
 
 # ---------------------------------------------------------------------------------------

@@ -16,9 +16,9 @@ How a period is simulated (the discretisation, stated so the figures can be judg
   demand arrives at once. When the lead time varies (sd > 0), each order draws a lead time
   X from a gamma distribution with mean L, and the whole part floor(L) is replaced by
   X - f rounded at random to a neighbouring whole number (keeping the mean). The rounding
-  adds about 1/6 period^2 of variance once the lead time is spread over a period or more,
-  so the gamma is given the item's variance less 1/6 there (and half of it for a lead time
-  that varies less); the lead-time variance is then close to, not exactly, the item's.
+  adds variance (up to 1/6 period^2 once the lead time is spread over a period or more),
+  so the gamma is drawn with the variance that, with the rounding's added, gives the
+  item's (:func:`lead_draw_variance`; exact for a normal spread, close for the gamma's).
   Two orders due in the same period arrive together and count as one cycle.
 * Demand per part: a history period's demand is split f : (1 - f) (spread evenly within
   the period). Draws from a model are split exactly: normal, Poisson, negative binomial
@@ -139,6 +139,35 @@ def history_band(columns: dict[str, np.ndarray], span: ArrayLike,
             out[f"{key}_low"] = np.clip(low, 0.0, 1.0)
             out[f"{key}_high"] = np.clip(est + half, 0.0, 1.0)
     return out
+
+
+def _rounding_variance(v: np.ndarray) -> np.ndarray:
+    """E[phi (1 - phi)], phi the fractional part of e ~ N(0, v): the variance that random
+    rounding of floor(L) + e to a whole number adds.
+
+    From the Fourier series phi (1 - phi) = 1/6 - sum_k cos(2 pi k phi) / (pi k)^2 and
+    E[cos(2 pi k e)] = exp(-2 pi^2 k^2 v) (the normal characteristic function): 1/6 -
+    sum_k exp(-2 pi^2 k^2 v) / (pi k)^2, 0 at v = 0, rising to 1/6 (uniform phi).
+    """
+    k = np.arange(1, 201, dtype=float)
+    v = np.asarray(v, dtype=float)[..., None]
+    terms = np.exp(-2.0 * np.pi ** 2 * k * k * v) / (np.pi * k) ** 2
+    return np.clip(1.0 / 6.0 - terms.sum(axis=-1), 0.0, 1.0 / 6.0)
+
+
+def lead_draw_variance(target: ArrayLike) -> np.ndarray:
+    """The variance v to draw lead times with, so that after random rounding to whole
+    periods their variance is ``target``: the root of v + E[phi (1 - phi)](v) = target
+    (bisection; the left side rises from 0), with the rounding variance of a normal
+    spread (:func:`_rounding_variance`) standing in for the gamma's."""
+    t = np.maximum(np.asarray(target, dtype=float), 0.0)
+    lo, hi = np.zeros_like(t), t.copy()
+    for _ in range(40):
+        mid = 0.5 * (lo + hi)
+        above = mid + _rounding_variance(mid) > t
+        hi = np.where(above, mid, hi)
+        lo = np.where(above, lo, mid)
+    return 0.5 * (lo + hi)
 
 
 def block_length(lead_time_periods: ArrayLike, span: ArrayLike) -> np.ndarray:
@@ -454,10 +483,7 @@ def _run(Q: np.ndarray, R: np.ndarray, L: np.ndarray, Lsd: np.ndarray, src: Dema
     warm = np.ceil(L + 2.0 * Lsd) + 1.0
     begin = np.asarray(src.start, dtype=float) if src.replay else np.zeros(n)
     random_lt = (Lsd > 0) & (L > 0)
-    # Random rounding to whole periods adds about 1/6 period^2 of variance once the lead
-    # time is spread over a period or more (its fractional part is then near uniform); the
-    # gamma's variance is lowered by that much, and halved below that spread.
-    v_draw = np.where(Lsd * Lsd > 1.0 / 3.0, Lsd * Lsd - 1.0 / 6.0, 0.5 * Lsd * Lsd)
+    v_draw = lead_draw_variance(Lsd * Lsd)
     with np.errstate(all="ignore"):
         g_shape = np.where(random_lt, L * L / np.where(random_lt, v_draw, 1.0), 1.0)
         g_scale = np.where(random_lt, v_draw / np.where(L > 0, L, 1.0), 1.0)
