@@ -184,3 +184,14 @@ def test_stock_trace_sheet_replays_the_history_as_by_hand(tmp_path):
         r = float(res_items.at[code, "reorder_point"])
         assert net == pytest.approx(_replay_by_hand(demand, q, r, 2))
         assert all(float(x[4]) % q == 0 for x in table)  # orders in whole order quantities
+
+
+def test_lost_sales_option_reaches_the_simulation(tmp_path):
+    src = _shop(tmp_path)
+    back = xlpolicy.analyse(src, simulate=True, replications=30)
+    lost = xlpolicy.analyse(src, simulate=True, replications=30, lost_sales=True)
+    assert back.settings["simulation_unmet_demand"] == "backordered"
+    assert lost.settings["simulation_unmet_demand"] == "lost"
+    # lost sales never leave customers waiting, so the traced net stock stays at 0 or above
+    assert all((it["net_stock"] >= 0).all() for it in lost.trace["items"])
+    assert any((it["net_stock"] < 0).any() for it in back.trace["items"])

@@ -7,6 +7,8 @@ simulated service disagree, and the totals for the summary.
 Items planned from History are simulated on block-bootstrap resamples of their own history
 span (and the history is also replayed once as it happened); items planned from annual
 figures have no history to resample and are simulated on draws from their demand model.
+The history is used as read: a period capped by 'Cap outliers' is resampled uncapped, and
+an unreadable cell counts as no demand.
 """
 
 from __future__ import annotations
