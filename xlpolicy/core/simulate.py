@@ -34,11 +34,12 @@ How a period is simulated (the discretisation, stated so the figures can be judg
   order's lead time exceeds R. Units short in a cycle: that shortfall (at most the
   lead-time demand); fill rate = 1 - units short / units ordered, over the cycles, which
   is the analytic 1 - n(R) / Q. On-hand stock, orders and costs come from the simulated
-  path as it is.
+  path as it is, so the average on hand runs below the analytic Q/2 + safety stock by
+  about the average undershoot (the end-of-period review orders that much late).
 * Lost sales (a setting): demand finding no stock is lost instead of backordered; a
   cycle is stocked out when more than the undershoot was lost during its lead time.
 * Start and warm-up. Each replication starts with nothing on order and a position drawn
-  evenly between R and R + Q (its long-run spread under the policy; a replay starts at
+  evenly between R and R + Q (close to its long-run spread; a replay starts at
   R + Q, just after a delivery). Orders placed and periods before the warm-up of
   ceil(L + 2 sd) + 1 periods are left out of every figure.
 
@@ -46,7 +47,9 @@ Confidence band: replications are independent, so the 95 % band of a ratio (cycl
 out / cycles, units short / units ordered) is the ratio estimate +- 1.96 standard errors by
 the delta method over replications (common practice in simulation output analysis). A
 single replay has a Wilson score interval over its cycles instead (Wilson 1927), which
-treats its cycles as independent.
+treats its cycles as independent. The band says how well the simulation pins down the
+service on the given demand; for resamples of one history, :func:`history_band` widens it
+for what the history itself cannot tell.
 """
 
 from __future__ import annotations
