@@ -526,7 +526,7 @@ def _run(Q: np.ndarray, R: np.ndarray, L: np.ndarray, Lsd: np.ndarray, src: Dema
         a, b = a2.reshape(-1), b2.reshape(-1)
         counting = t >= count_from
         slot = t % W
-        oh0 = np.maximum(stock, 0.0)
+        oh0 = np.maximum(stock, 0.0) if any_frac else None
         # -- first part of the period's demand ------------------------------------------
         if lost:
             need = np.maximum(a, 0.0)
@@ -587,10 +587,12 @@ def _run(Q: np.ndarray, R: np.ndarray, L: np.ndarray, Lsd: np.ndarray, src: Dema
             avg_oh = 0.5 * (after + oh1)
         if t >= count_all:
             acc["on_hand"] += avg_oh
-            acc["lost"] += lost_t
+            if lost:
+                acc["lost"] += lost_t
         else:
             acc["on_hand"] += np.where(counting, avg_oh, 0.0)
-            acc["lost"] += np.where(counting, lost_t, 0.0)
+            if lost:
+                acc["lost"] += np.where(counting, lost_t, 0.0)
         periods_counted += (t >= begin + warm)
         # -- review at the end of the period ----------------------------------------------
         ip = stock + pipe
