@@ -142,6 +142,20 @@ def _named_settings(values: dict[str, Any] | None) -> dict[str, Any]:
     return {key: resolved[key] for key in found}
 
 
+def _simulation_overrides(simulate: bool | None, replications: int | str | None,
+                          lost_sales: bool) -> dict[str, Any]:
+    """The back-test settings given on the command line or to the API, checked."""
+    from .backtest import MAX_RUNS
+
+    out: dict[str, Any] = {"simulate": simulate, "lost_sales": bool(lost_sales) or None}
+    if replications is not None:
+        x = _number(replications, "replications")
+        if not (x == int(x) and 1 <= x <= MAX_RUNS):
+            raise UsageError(f"replications must be a whole number from 1 to {MAX_RUNS}")
+        out["simulation_runs"] = int(x)
+    return out
+
+
 def _number(value: float | str, what: str, rate: bool = False) -> float:
     """A number given on the command line or to the API, as 0.95 or "95%"."""
     x, why = parse_number(value, rate=rate)
@@ -158,7 +172,8 @@ def analyse(path: str | Path, *, service_measure: str | None = None,
             orders_cap: float | str | None = None,
             exchange_curve: bool | None = None,
             history: str | Path | None = None,
-            settings: dict[str, Any] | None = None) -> Report:
+            settings: dict[str, Any] | None = None, simulate: bool | None = None,
+            replications: int | None = None, lost_sales: bool = False) -> Report:
     """Read, check and plan a workbook without writing anything.
 
     Raises UnusableWorkbook when the workbook cannot be used at all. ``progress`` is called
@@ -170,13 +185,17 @@ def analyse(path: str | Path, *, service_measure: str | None = None,
     file of sales history (Item, Period, Quantity) read instead of the History sheet, as
     the Settings row "History file" does. ``settings`` gives any Settings-sheet row by name
     (e.g. {"Service target A": "99%"}); it overrides the sheet, and the named options above
-    override it.
+    override it. ``simulate`` (True/False; None: as the Settings sheet says) back-tests
+    each policy with ``replications`` runs (default: the Settings value, else 100);
+    ``lost_sales`` simulates unmet demand as lost rather than backordered (see
+    xlpolicy.backtest).
     """
     log = ProblemLog()
     overrides = {**_named_settings(settings),
                  **_overrides(service_measure, service_target, holding_rate, order_cost,
                               stock_budget=stock_budget, orders_cap=orders_cap,
                               exchange_curve=exchange_curve, history=history)}
+    overrides.update(_simulation_overrides(simulate, replications, lost_sales))
     with guard.allow_large(allow_large):
         data = read_input(Path(path), overrides, log, progress)
     if data is None:
@@ -213,11 +232,13 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
          orders_cap: float | str | None = None,
          exchange_curve: bool | None = None,
          history: str | Path | None = None,
-         settings: dict[str, Any] | None = None) -> PlanResult:
+         settings: dict[str, Any] | None = None, simulate: bool | None = None,
+         replications: int | None = None, lost_sales: bool = False) -> PlanResult:
     """Plan every item in the workbook at ``path`` and write the results.
 
     The input file is never changed. By default the output is ``<name>-policy.xlsx`` beside
     it: the user's sheets plus the generated ones. Raises UnusableWorkbook or UsageError.
+    ``simulate``, ``replications``, ``lost_sales``: the back-test, as for :func:`analyse`.
     """
     src = Path(path)
     out = Path(output) if output is not None else default_output_path(src)
@@ -227,7 +248,8 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
                      holding_rate=holding_rate, order_cost=order_cost, run_date=run_date,
                      progress=progress, allow_large=allow_large, stock_budget=stock_budget,
                      orders_cap=orders_cap, exchange_curve=exchange_curve,
-                     history=history, settings=settings)
+                     history=history, settings=settings, simulate=simulate,
+                     replications=replications, lost_sales=lost_sales)
     result = PlanResult(report)
     if write_workbook:
         progress(f"Writing {out.name}", 0, None)

@@ -151,11 +151,22 @@ def main() -> None:
 @_portfolio_options
 @_set_option
 @_allow_large_option
+@click.option("--simulate/--no-simulate", "simulate", default=None,
+              help="Back-test each policy by simulating it on resamples of the item's own "
+                   "demand, and warn where it falls short of what it promises. Default: as "
+                   "the Settings sheet's 'Simulation runs' says (off when blank).")
+@click.option("--replications", type=str, default=None, metavar="N",
+              help="Simulation runs per item for --simulate (default: the Settings value, "
+                   "else 100); giving it turns the back-test on.")
+@click.option("--lost-sales", is_flag=True,
+              help="In the back-test, demand that finds no stock is lost rather than "
+                   "backordered.")
 @click.option("-q", "--quiet", is_flag=True, help="Print only the path written and errors.")
 def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: Path | None,
          service_measure: str | None, service_target: str | None, holding_rate: str | None,
          order_cost: str | None, history: Path | None, stock_budget: str | None,
          orders_cap: str | None, no_curve: bool, named: tuple[str, ...], allow_large: bool,
+         simulate: bool | None, replications: str | None, lost_sales: bool,
          quiet: bool) -> None:
     """Compute the policy for every item and write the policy workbook.
 
@@ -168,6 +179,7 @@ def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: 
         workbook, output, csv=csv_path, json=json_path, service_measure=service_measure,
         service_target=service_target, holding_rate=holding_rate, order_cost=order_cost,
         progress=bar, allow_large=allow_large, history=history, settings=given,
+        simulate=simulate, replications=replications, lost_sales=lost_sales,
         **_caps(stock_budget, orders_cap, no_curve)), bar)
     _print_run(result, quiet)
 
@@ -355,6 +367,10 @@ def _print_totals(report: Report) -> None:
     cap = (report.portfolio or {}).get("cap")
     if cap is not None and cap.binding:
         rows.append(("Yearly cost of keeping to the cap", money(cap.cost_of_cap)))
+    if t.get("items_simulated"):
+        rows.append(("Meet their target in simulation",
+                     f"{int(t['items_meeting_target_in_simulation'])} of "
+                     f"{int(t['items_with_target_simulated'])}"))
     width = max(len(k) for k, _ in rows)
     for k, v in rows:
         click.echo(f"  {k:<{width}}  {v:>16}")

@@ -283,6 +283,10 @@ SETTINGS: tuple[Setting, ...] = (
             "Periodic review for items that leave the column blank: every this many days, "
             "order up to a level. Blank or 0: continuous review.",
             ("review period", "review every days", "review interval days")),
+    Setting("simulation_runs", "Simulation runs", None,
+            "Back-test each policy by simulating it this many times on resamples of the "
+            "item's own demand (100 is a good start). Blank or 0: no back-test.",
+            ("simulate", "simulation", "back test runs", "simulation replications")),
 )
 
 #: Settings read as rates (0.95, 95%, "95%").
@@ -328,7 +332,16 @@ EXTRA_RESULT_KEYS: tuple[str, ...] = (
     "discount_saving", "shelf_life_days", "shelf_life_max_qty", "shelf_life_cost",
     "review", "review_period_days", "order_up_to_level", "protection_demand_mean",
     "protection_demand_sd",
+    # the back-test (only with a simulation; see xlpolicy.backtest)
+    "simulation_source", "simulated_cycle_service", "simulated_cycle_service_low",
+    "simulated_cycle_service_high", "simulated_fill_rate", "simulated_fill_rate_low",
+    "simulated_fill_rate_high", "replayed_cycle_service", "simulated_average_on_hand",
+    "simulated_orders_per_year", "simulated_annual_total_cost", "simulation_check",
 )
+
+#: The back-test's result keys (a run without simulation leaves them out of the sheets).
+SIMULATION_RESULT_KEYS: tuple[str, ...] = EXTRA_RESULT_KEYS[EXTRA_RESULT_KEYS.index(
+    "simulation_source"):]
 
 #: How the template marks its example rows (the description starts with it), so a run can
 #: say when they were left in.
@@ -339,6 +352,7 @@ TEXT_RESULT_KEYS: frozenset[str] = frozenset({
     "item", "status", "model", "service_measure", "description", "category", "supplier",
     "demand_source", "demand_class", "model_reason", "rate_method", "history_start",
     "abc_class", "service_target_source", "review",
+    "simulation_source", "simulation_check",
 })
 
 #: Lead-time demand models (core.models.MODEL_NAMES) and the word for "choose per item".

@@ -13,6 +13,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from .backtest import backtest_totals, run_backtest
 from .contract import (
     ALL_RESULT_KEYS,
     AUTO_MODEL,
@@ -71,6 +72,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
 
     idx = np.flatnonzero(planned)
     portfolio: dict[str, Any] = {}
+    trace = None
     if len(idx):
         sub = df.iloc[idx]
         measure = np.full(len(idx), settings["service_measure"], dtype=object)
@@ -102,6 +104,10 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
                 results.loc[idx, key] = pol[key].to_numpy()
         _flag_problems(pol, df.iloc[idx], items, log)
     _periodic(results, df, planned, demand, target, settings, data, log)
+    # The back-test simulates continuous review; items on periodic review are left out
+    # (their order-up-to policy has no reorder point to replay).
+    continuous = idx[results["review"].to_numpy(object)[idx] != "periodic"]
+    trace = run_backtest(results, data, continuous, demand, log) if len(idx) else None
     if settings["service_measure"] == SHORTAGE_COST:
         results["service_target"] = np.nan
         results["service_target_source"] = ""
@@ -113,6 +119,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
     results = _typed(results)
     reorder = _reorder_list(results, df)
     totals = _totals(results, reorder)
+    results = backtest_totals(results, totals)
     history = data.history
     summary: dict[str, Any] = {
         "file": source_name,
@@ -128,7 +135,8 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
     }
     return Report(results=results, reorder=reorder, problems=log.sorted(), settings=settings,
                   totals=totals, input_summary=summary, source_name=source_name,
-                  run_date=run_date or _dt.date.today(), portfolio=portfolio)
+                  run_date=run_date or _dt.date.today(), portfolio=portfolio,
+                  trace=trace)
 
 
 def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
@@ -153,6 +161,8 @@ def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
     cv2 = np.full(n, np.nan)
     hist = data.history
     has_hist = np.zeros(n, dtype=bool)
+    hist_row = np.full(n, -1, dtype=np.int64)  # for the back-test: History row, span start
+    span_start = np.zeros(n, dtype=np.int64)
     codes = df["item"].to_numpy(object)
     rows = df["row"].to_numpy(int)
     sheet = data.items.sheet
@@ -186,6 +196,8 @@ def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
         labels = np.array([_label(x) for x in hist.labels] + [""], dtype=object)
         out_text["history_start"][has_hist] = labels[np.minimum(an.start[w], len(labels) - 1)]
         source[has_hist] = "history"
+        hist_row[has_hist] = w
+        span_start[has_hist] = an.start[w]
 
     annual_fig = df["annual_demand"].to_numpy(float)
     fig = ~has_hist & ~np.isnan(annual_fig)
@@ -257,7 +269,8 @@ def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
     if an is not None:
         _pattern_notes(an, hist, where, usable & ok & has_hist, codes, period, settings, log)
     return {"mean": mean, "sd": sd, "annual": mean * ppy, "periods": periods, "ok": ok,
-            "source": source, "adi": adi, "cv2": cv2, **out_text}
+            "source": source, "adi": adi, "cv2": cv2, "hist_row": hist_row,
+            "span_start": span_start, **out_text}
 
 
 def _label(x: Any) -> str:

@@ -42,6 +42,8 @@ class Report:
     #: Decisions across all items (core.portfolio): "exchange_curve" (a DataFrame of
     #: EXCHANGE_COLUMNS) and "cap" (a CapResult), each present when computed.
     portfolio: dict[str, Any] = field(default_factory=dict)
+    #: the back-test's stock trace of a few items (xlpolicy.backtest), or None
+    trace: dict[str, Any] | None = None
 
 
 REORDER_KEYS: tuple[str, ...] = (

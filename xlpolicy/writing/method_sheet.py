@@ -39,6 +39,8 @@ def write_method(ctx: Context, ws: Worksheet) -> None:
     if buyer:
         row = _paragraphs(ctx, ws, row + 1, "Price breaks, shelf life and review periods",
                           buyer)
+    if (ctx.report.totals or {}).get("items_simulated"):
+        row = _paragraphs(ctx, ws, row + 1, "The back-test", backtest_sentences(ctx))
     row = _settings(ctx, ws, row + 1)
     row = _paragraphs(ctx, ws, row + 1, "Cautions", cautions(ctx))
     ws.hide_gridlines(2)
@@ -273,6 +275,29 @@ def _setting_value(ctx: Context, ws: Worksheet, row: int, key: str, value: Any) 
         ctx.w.number(ws, row, 1, value, num_format=fmt, align="left")
     else:
         ctx.w.any(ws, row, 1, value, align="left")
+
+
+def backtest_sentences(ctx: Context) -> list[str]:
+    """What the back-test did, in plain words (xlpolicy.core.simulate has the detail)."""
+    settings = ctx.report.settings or {}
+    runs = settings.get("simulation_runs")
+    unmet = settings.get("simulation_unmet_demand") or "backordered"
+    return [
+        f"Each policy was simulated {runs} times on the item's own demand: an item with "
+        "History on resampled copies of it (blocks of consecutive periods, drawn at random, "
+        "so runs of busy and quiet periods stay together), an item with annual figures on "
+        "draws from its demand model. Each run covers the history's length, at least two "
+        f"years; demand that finds no stock is {unmet}.",
+        "The stock is checked at the end of every period and the order quantity ordered "
+        "(several times over if need be) when the position is at or below the reorder "
+        "point; orders arrive after the lead time. Service is counted the way the promise "
+        "is made: each order as placed when the position reached the reorder point.",
+        "The band is where the simulated service lies with 95 % confidence, from the spread "
+        "across runs. Where the promised service lies below the band by more than a point, "
+        "the item is warned about: its demand does not behave as its model assumes, and "
+        "the reorder point should be raised. The 'history as it was' column replays the "
+        "actual history once; with few orders in it, it is a rough check only.",
+    ]
 
 
 def cautions(ctx: Context) -> list[str]:

@@ -126,6 +126,20 @@ POLICY_COLUMNS: tuple[Col, ...] = (
     Col("uncapped_order_qty", "Without the cap: order quantity (units)", "units"),
     Col("uncapped_reorder_point", "Without the cap: reorder point (units)", "units"),
     Col("uncapped_annual_total_cost", "Without the cap: annual total cost", "money"),
+    # the back-test, when one was run (xlpolicy.backtest)
+    Col("simulation_check", "Back-test: service against the promise", "text"),
+    Col("simulated_cycle_service", "Back-test: cycle service", "percent"),
+    Col("simulated_cycle_service_low", "Back-test: cycle service, band low", "percent"),
+    Col("simulated_cycle_service_high", "Back-test: cycle service, band high", "percent"),
+    Col("simulated_fill_rate", "Back-test: fill rate", "percent"),
+    Col("simulated_fill_rate_low", "Back-test: fill rate, band low", "percent"),
+    Col("simulated_fill_rate_high", "Back-test: fill rate, band high", "percent"),
+    Col("replayed_cycle_service", "Back-test: cycle service on the history as it was",
+        "percent"),
+    Col("simulated_average_on_hand", "Back-test: average on hand (units)", "demand"),
+    Col("simulated_orders_per_year", "Back-test: orders per year", "decimal1"),
+    Col("simulated_annual_total_cost", "Back-test: annual total cost", "money"),
+    Col("simulation_source", "Back-test: demand simulated from", "text"),
 )
 
 #: The inputs the formulas name, by symbol.
@@ -217,6 +231,14 @@ VALUE_NOTES = {
         "demand - reorder point)+], from the item's demand model (the loss function)."),
     "lead_time_demand_mean": (
         "A value: demand per period x lead time in periods (days / days per period)."),
+    "simulated_cycle_service": (
+        "A value from the back-test: the share of simulated order cycles without a "
+        "stock-out, each order counted as placed when the stock position reached the "
+        "reorder point (as the cycle service column assumes). The band low and high "
+        "columns give its 95 % confidence band from the simulation runs."),
+    "simulated_fill_rate": (
+        "A value from the back-test: 1 - simulated units short per order cycle / units "
+        "ordered, as the fill rate column defines it, with its 95 % band beside it."),
     "lead_time_demand_sd": (
         "A value: square root of (lead time x demand sd squared + demand rate squared x "
         "lead-time sd squared), lead time in periods (Silver, Pyke & Peterson 1998)."),

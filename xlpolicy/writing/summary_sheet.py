@@ -179,6 +179,14 @@ def headlines(ctx: Context) -> list[tuple[str, str]]:
     cap = cap_headline(ctx)
     if cap:
         out.append((cap, INK))
+    simulated = finite(t.get("items_with_target_simulated"))
+    if simulated:
+        meets = int(finite(t.get("items_meeting_target_in_simulation")) or 0)
+        short = int(finite(t.get("items_short_in_simulation")) or 0)
+        out.append((f"Back-test: in simulation on their own demand, {meets} of "
+                    f"{int(simulated)} item{'s' if simulated != 1 else ''} meet their service "
+                    f"target; {short} fall short of what their model promises (see "
+                    f"'{ctx.names['warnings']}').", INK if short else GOOD))
     avg = finite(t.get("average_inventory_value"))
     turns = finite(t.get("inventory_turns"))
     if avg is not None and turns is not None:
