@@ -3,6 +3,7 @@
     python benchmarks/run.py                 # 1k, 10k and 100k items, wide History
     python benchmarks/run.py --quick         # 1k only: a smoke check (CI), no timing claims
     python benchmarks/run.py --sizes 1000 10000 --layout both
+    python benchmarks/run.py --layout all --features   # the README's tables
 
 For each size, every measurement runs in a fresh Python process, one after another:
 
@@ -40,16 +41,22 @@ RESULT_COLUMNS = 21
 def _child_read(reader: str, path: str) -> dict:
     t0 = time.perf_counter()
     cells = 0
+    history_file = Path(path).with_name(Path(path).stem + "-history.parquet")
+    sheets = ("Items",) if history_file.exists() else ("Items", "History")
+    if history_file.exists():  # layout "file": the history is read by Arrow, the floor's best
+        import pyarrow.parquet as pq
+        table = pq.read_table(history_file)
+        cells += table.num_rows * table.num_columns
     if reader == "calamine":
         from python_calamine import CalamineWorkbook
         wb = CalamineWorkbook.from_path(path)
-        for name in ("Items", "History"):
+        for name in sheets:
             rows = wb.get_sheet_by_name(name).to_python()
             cells += sum(len(r) for r in rows)
     elif reader == "fastexcel":
         import fastexcel
         reader_ = fastexcel.read_excel(path)
-        for name in ("Items", "History"):
+        for name in sheets:
             sheet = reader_.load_sheet(name)
             cells += sheet.height * sheet.width
     else:
@@ -164,7 +171,7 @@ def _child_json(name: str, *args: str) -> dict:
 
 def _workbook(folder: Path, n: int, layout: str) -> Path:
     path = folder / f"bench-{n}-{layout}.xlsx"
-    if not path.exists():
+    if not path.exists():  # ("file" also writes bench-<n>-file-history.parquet beside it)
         subprocess.run([sys.executable, str(HERE / "make_workbook.py"), str(n), "-o", str(path),
                         "--layout", layout], check=True, stdout=subprocess.DEVNULL, cwd=ROOT)
     return path
@@ -194,7 +201,9 @@ def measure(folder: Path, n: int, layout: str, naive_max: int,
     plan = _run_measured(["-m", "xlpolicy", "plan", str(path), "-q", "-o",
                           str(folder / f"plan-{n}-{layout}.xlsx")])
     row["plan"], row["rss_mb"] = plan["seconds"], plan["rss_mb"]
-    if n <= naive_max:
+    if layout != "wide":  # the naive path reads the wide History only (and no Parquet)
+        row["naive"], row["naive_est"] = float("nan"), False
+    elif n <= naive_max:
         naive = _child_json("naive", str(path), str(folder / "naive-out.xlsx"))
         row["naive"], row["naive_est"] = naive["seconds"], False
         naive_cache[layout] = (n, naive["seconds"])
@@ -209,16 +218,63 @@ def measure(folder: Path, n: int, layout: str, naive_max: int,
     return row
 
 
+def _budget(n: int) -> float:
+    """A stock budget that binds: 70 % of the items' EOQ cycle stock value (same seed data)."""
+    sys.path.insert(0, str(HERE))
+    from make_workbook import make_data
+
+    d = make_data(n)
+    demand = d["demand"].mean(axis=1) * 52
+    q = (2 * demand * d["order_cost"] / (d["holding"] * d["cost"])) ** 0.5
+    return float(0.7 * (d["cost"] * q / 2).sum())
+
+
+#: What the optional features cost: each is a plan run with these options, timed against
+#: the same run without the exchange curve (the cheapest full plan).
+FEATURES = {
+    "plan, no exchange curve": ["--no-curve"],
+    "plan (default: with the exchange curve)": [],
+    "plan --simulate (100 runs), no curve": ["--no-curve", "--simulate"],
+    "plan with a binding --budget, no curve": ["--no-curve", "--budget", "{budget}"],
+}
+
+
+def features(folder: Path, n: int, layout: str) -> list[dict]:
+    """The cost of each optional feature at n items (see FEATURES)."""
+    path = _workbook(folder, n, layout)
+    budget = f"{_budget(n):.0f}"
+    out = []
+    for name, opts in FEATURES.items():
+        args = [o.replace("{budget}", budget) for o in opts]
+        got = _run_measured(["-m", "xlpolicy", "plan", str(path), "-q", "-o",
+                             str(folder / f"feature-{n}.xlsx"), *args])
+        out.append({"items": n, "feature": name, **got})
+    return out
+
+
+def feature_table(rows: list[dict]) -> str:
+    lines = ["| items | run | time | extra over 'no exchange curve' | peak RSS MB |",
+             "|" + " --- |" * 5]
+    base = {r["items"]: r["seconds"] for r in rows if r["feature"] == next(iter(FEATURES))}
+    for r in rows:
+        extra = r["seconds"] - base[r["items"]]
+        lines.append(f"| {r['items']:,} | {r['feature']} | {r['seconds']:.2f} s | "
+                     f"{extra:+.2f} s | {r['rss_mb']:.0f} |")
+    return "\n".join(lines)
+
+
 def table(rows: list[dict]) -> str:
     head = ("| items | layout | file MB | read (fastest) | write | floor | plan | plan / floor "
             "| naive | naive / plan | plan peak RSS MB |")
     lines = [head, "|" + " --- |" * 11]
     for r in rows:
-        naive = f"{'~' if r['naive_est'] else ''}{r['naive']:.1f} s"
+        naive = (f"{'~' if r['naive_est'] else ''}{r['naive']:.1f} s"
+                 if r["naive"] == r["naive"] else "n/a")
         lines.append(
             f"| {r['items']:,} | {r['layout']} | {r['mb']:.1f} | {r['read']:.2f} s "
             f"({r['reader']}) | {r['write']:.2f} s | {r['floor']:.2f} s | {r['plan']:.2f} s | "
-            f"{r['plan'] / r['floor']:.2f} | {naive} | {r['naive'] / r['plan']:.1f} | "
+            f"{r['plan'] / r['floor']:.2f} | {naive} | "
+            f"{r['naive'] / r['plan'] if r['naive'] == r['naive'] else 'n/a':.4} | "
             f"{r['rss_mb']:.0f} |")
     return "\n".join(lines)
 
@@ -231,14 +287,20 @@ def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="1,000 items only (a smoke check)")
     ap.add_argument("--sizes", type=int, nargs="+", default=[1000, 10000, 100000])
-    ap.add_argument("--layout", choices=("wide", "long", "both"), default="wide")
+    ap.add_argument("--layout", choices=("wide", "long", "file", "both", "all"),
+                    default="wide", help="both: wide and long; all: wide, long and file "
+                    "(the history in a Parquet file beside the workbook)")
+    ap.add_argument("--features", action="store_true",
+                    help="also time the optional features (exchange curve, back-test, a "
+                         "binding budget) at each size, wide layout")
     ap.add_argument("--naive-max", type=int, default=10000,
                     help="largest size at which the naive path is run; larger ones are scaled")
     ap.add_argument("--dir", type=Path, default=None,
                     help="where to keep the generated workbooks (default: a temporary folder)")
     a = ap.parse_args(argv)
     sizes = [1000] if a.quick else sorted(a.sizes)
-    layouts = ("wide", "long") if a.layout == "both" else (a.layout,)
+    layouts = {"both": ("wide", "long"), "all": ("wide", "long", "file")}.get(
+        a.layout, (a.layout,))
     tmp = None
     if a.dir is None:
         tmp = tempfile.TemporaryDirectory(prefix="xlpolicy-bench-")
@@ -251,8 +313,15 @@ def main(argv: list[str] | None = None) -> int:
     try:
         for layout in layouts:
             for n in sizes:
+                if layout == "long" and n > 10_000:  # past a sheet's rows: see "file"
+                    continue
                 rows.append(measure(folder, n, layout, a.naive_max, cache))
                 print(f"measured {n:,} items ({layout})", file=sys.stderr, flush=True)
+        feats = []
+        if a.features:
+            for n in sizes:
+                feats += features(folder, n, "wide")
+                print(f"measured the features at {n:,} items", file=sys.stderr, flush=True)
     finally:
         if tmp is not None:
             tmp.cleanup()
@@ -260,6 +329,9 @@ def main(argv: list[str] | None = None) -> int:
           "Items + History + xlsxwriter write of an items x 21 table; ~ = naive path scaled "
           f"linearly from {a.naive_max:,} items")
     print(table(rows))
+    if feats:
+        print()
+        print(feature_table(feats))
     return 0
 
 

@@ -13,9 +13,10 @@ ROOT = Path(__file__).resolve().parent.parent
 
 def test_quick_benchmark_completes_and_prints_its_table(tmp_path: Path) -> None:
     pytest.importorskip("python_calamine")
+    pytest.importorskip("pyarrow")
     proc = subprocess.run([sys.executable, str(ROOT / "benchmarks" / "run.py"), "--quick",
-                           "--dir", str(tmp_path)], capture_output=True, text=True,
-                          cwd=ROOT, timeout=600)
+                           "--layout", "all", "--features", "--dir", str(tmp_path)],
+                          capture_output=True, text=True, cwd=ROOT, timeout=600)
     assert proc.returncode == 0, proc.stderr
     lines = proc.stdout.splitlines()
     header = next(ln for ln in lines if ln.startswith("| items"))
@@ -30,6 +31,16 @@ def test_quick_benchmark_completes_and_prints_its_table(tmp_path: Path) -> None:
     assert float(cells[10]) > 0  # peak RSS
     # The generated workbook was planned: the output exists beside the inputs.
     assert (tmp_path / "plan-1000-wide.xlsx").stat().st_size > 0
+    # The other layouts, the history file among them, were planned too.
+    for layout in ("long", "file"):
+        assert [ln for ln in lines if ln.startswith(f"| 1,000 | {layout}")]
+        assert (tmp_path / f"plan-1000-{layout}.xlsx").stat().st_size > 0
+    assert (tmp_path / "bench-1000-file-history.parquet").exists()
+    # ...and each optional feature has its own timed row.
+    feature_rows = [ln for ln in lines if ln.startswith("| 1,000 | plan")]
+    assert len(feature_rows) == 4
+    for ln in feature_rows:
+        assert float(ln.split("|")[3].strip().removesuffix(" s")) > 0
 
 
 def test_generated_codes_stay_text(tmp_path: Path) -> None:
