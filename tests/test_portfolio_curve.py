@@ -170,3 +170,40 @@ def test_curve_with_price_breaks_passes_through_todays_policy():
     expect = totals(compute_policy(inp))
     for key, value in expect.items():
         assert today[key] == pytest.approx(value, rel=1e-12, abs=1e-12)
+
+
+def test_curve_in_groups_of_points_is_the_same(monkeypatch):
+    """Points are computed a group at a time (bounded memory); the curve must not change.
+
+    The reference is the same curve computed in one call over all points.
+    """
+    import xlpolicy.core.portfolio as portfolio
+
+    inp = inputs(n=24, measure="fill rate")
+    whole = exchange_curve(inp, 0.95, "fill rate")
+    monkeypatch.setattr(portfolio, "CURVE_ROWS", 30)  # one point (24 rows) per call
+    grouped = portfolio.exchange_curve(inp, 0.95, "fill rate")
+    assert grouped.equals(whole)
+
+
+def test_auto_curve_is_left_out_for_a_big_catalogue_with_a_note(tmp_path, monkeypatch):
+    """Setting 'auto' (the default) skips the curve past CURVE_AUTO_MAX items and says so;
+    'yes' (or --curve) traces it anyway."""
+    import sys
+    from pathlib import Path
+
+    import xlpolicy
+    import xlpolicy.planner as planner
+
+    sys.path.insert(0, str(Path(__file__).parent))
+    from builders import simple_workbook
+
+    src = simple_workbook(tmp_path / "w.xlsx")
+    monkeypatch.setattr(planner, "CURVE_AUTO_MAX", 2)  # three items: past the limit
+    report = xlpolicy.analyse(src)
+    assert "exchange_curve" not in report.portfolio
+    assert any(p.code == "exchange-curve-skipped" for p in report.problems)
+    forced = xlpolicy.analyse(src, exchange_curve=True)
+    assert "exchange_curve" in forced.portfolio
+    monkeypatch.setattr(planner, "CURVE_AUTO_MAX", 20_000)
+    assert "exchange_curve" in xlpolicy.analyse(src).portfolio

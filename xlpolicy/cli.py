@@ -84,9 +84,10 @@ def _override_options(f: Any) -> Any:
 
 
 def _portfolio_options(f: Any) -> Any:
-    """--budget, --orders-cap, --no-curve: decisions across all items (override Settings)."""
-    f = click.option("--no-curve", "no_curve", is_flag=True,
-                     help="Leave the exchange curve out of the Summary (a faster run).")(f)
+    """--budget, --orders-cap, --curve/--no-curve: decisions across all items (over Settings)."""
+    f = click.option("--curve/--no-curve", "curve", default=None,
+                     help="Trace the exchange curve on the Summary, or leave it out (a faster "
+                          "run). Default: the Settings row, else only up to 20,000 items.")(f)
     f = click.option("--orders-cap", type=str, default=None, metavar="N",
                      help="Cap on the orders a year, all items together; order quantities "
                           "are raised at least cost to meet it.")(f)
@@ -96,9 +97,9 @@ def _portfolio_options(f: Any) -> Any:
     return f
 
 
-def _caps(stock_budget: str | None, orders_cap: str | None, no_curve: bool) -> dict[str, Any]:
-    return {"stock_budget": stock_budget, "orders_cap": orders_cap,
-            "exchange_curve": False if no_curve else None}
+def _caps(stock_budget: str | None, orders_cap: str | None,
+          curve: bool | None) -> dict[str, Any]:
+    return {"stock_budget": stock_budget, "orders_cap": orders_cap, "exchange_curve": curve}
 
 
 def _set_option(f: Any) -> Any:
@@ -165,7 +166,7 @@ def main() -> None:
 def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: Path | None,
          service_measure: str | None, service_target: str | None, holding_rate: str | None,
          order_cost: str | None, history: Path | None, stock_budget: str | None,
-         orders_cap: str | None, no_curve: bool, named: tuple[str, ...], allow_large: bool,
+         orders_cap: str | None, curve: bool | None, named: tuple[str, ...], allow_large: bool,
          simulate: bool | None, replications: str | None, lost_sales: bool,
          quiet: bool) -> None:
     """Compute the policy for every item and write the policy workbook.
@@ -180,7 +181,7 @@ def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: 
         service_target=service_target, holding_rate=holding_rate, order_cost=order_cost,
         progress=bar, allow_large=allow_large, history=history, settings=given,
         simulate=simulate, replications=replications, lost_sales=lost_sales,
-        **_caps(stock_budget, orders_cap, no_curve)), bar)
+        **_caps(stock_budget, orders_cap, curve)), bar)
     _print_run(result, quiet)
 
 
@@ -222,7 +223,7 @@ def _print_run(result: api.PlanResult, quiet: bool) -> None:
 @_allow_large_option
 def check(workbook: Path, service_measure: str | None, service_target: str | None,
           holding_rate: str | None, order_cost: str | None, history: Path | None,
-          stock_budget: str | None, orders_cap: str | None, no_curve: bool,
+          stock_budget: str | None, orders_cap: str | None, curve: bool | None,
           named: tuple[str, ...],
           allow_large: bool) -> None:
     """Report every problem in WORKBOOK without writing anything.
@@ -235,7 +236,7 @@ def check(workbook: Path, service_measure: str | None, service_target: str | Non
         workbook, service_measure=service_measure, service_target=service_target,
         holding_rate=holding_rate, order_cost=order_cost, progress=bar,
         allow_large=allow_large, history=history, settings=given,
-        **_caps(stock_budget, orders_cap, no_curve)), bar)
+        **_caps(stock_budget, orders_cap, curve)), bar)
     _print_read(report)
     _print_problems(report.problems, limit=None)
     if not report.problems:

@@ -257,9 +257,10 @@ SETTINGS: tuple[Setting, ...] = (
             "A cap on the orders placed a year, all items together. Where the policy would "
             "place more, order quantities are raised at least cost to meet it. Blank: no cap.",
             ("orders per year cap", "order limit", "max orders per year")),
-    Setting("exchange_curve", "Exchange curve", "yes",
+    Setting("exchange_curve", "Exchange curve", "auto",
             "yes: the Summary shows what other service targets (or shortage costs) would cost "
-            "in safety stock and give in shortages; no: leave it out (a faster run).",
+            "in safety stock and give in shortages; no: leave it out (a faster run); auto: "
+            "yes for up to 20,000 items (each point is a whole policy calculation).",
             ("tradeoff curve", "service curve")),
     # ABC classes by annual spend, and a service target per class (issue 4, part 4)
     Setting("abc_share_a", "ABC share A", 0.80,

@@ -29,7 +29,7 @@ from .core.discounts import price_at
 from .core.history import analyse_history, analysis_from_figures, choose_model
 from .core.periodic import periodic_policy
 from .core.policy import PolicyInputs, compute_policy, evaluate_policy
-from .core.portfolio import BUDGET, ORDERS, apply_cap, exchange_curve
+from .core.portfolio import BUDGET, CURVE_AUTO_MAX, ORDERS, apply_cap, exchange_curve
 from .problems import ProblemLog, Severity
 from .reading import InputData
 from .report import REORDER_KEYS, Report
@@ -641,9 +641,16 @@ def _portfolio(inp: PolicyInputs, pol: pd.DataFrame, settings: dict[str, Any],
         orders = None
     cap = (BUDGET, float(budget)) if budget is not None else (
         (ORDERS, float(orders)) if orders is not None else None)
-    if settings.get("exchange_curve", "yes") != "no":
+    curve = settings.get("exchange_curve", "auto")
+    n_items = len(np.asarray(inp.annual_demand).reshape(-1))
+    if curve == "yes" or (curve == "auto" and n_items <= CURVE_AUTO_MAX):
         out["exchange_curve"] = exchange_curve(inp, float(settings["service_target"]),
                                                str(settings["service_measure"]))
+    elif curve == "auto":
+        log.info(f"The exchange curve was left out of the Summary: for {n_items:,} items each "
+                 "of its points is a whole policy calculation, which would about double the "
+                 "run. Set 'Exchange curve' to yes in Settings (or use --curve) to have it.",
+                 sheet="Settings", code="exchange-curve-skipped")
     if cap is None:
         return pol, out
     res = apply_cap(inp, pol, *cap)

@@ -157,10 +157,13 @@ def resolve_settings(
                 bad(key, raw, cell, "write auto, normal, poisson, negative binomial or gamma")
                 continue
             out[key] = m
+        elif key == "exchange_curve" and str(raw).strip().lower() == "auto":
+            out[key] = "auto"
         elif key in ("cap_outliers", "exchange_curve"):
             yes = parse_yes_no(raw)
             if yes is None:
-                bad(key, raw, cell, "write yes or no")
+                bad(key, raw, cell, "write yes, no or auto" if key == "exchange_curve"
+                    else "write yes or no")
                 continue
             out[key] = "yes" if yes else "no"
         else:
@@ -249,7 +252,7 @@ def finish_period(settings: dict[str, Any]) -> None:
 SETTING_DEFAULT_TEXT = {
     "demand_model": "auto",
     "cap_outliers": "no",
-    "exchange_curve": "yes",
+    "exchange_curve": "auto",
     "stock_budget": "no cap",
     "orders_cap": "no cap",
     "dormant_after": "about a quarter of a year",

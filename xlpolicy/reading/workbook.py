@@ -20,6 +20,7 @@ import posixpath
 import re
 import zipfile
 import zlib
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -149,6 +150,9 @@ class WorkbookFile:
         self._styles: dict[int, str] | None = None  # style index -> format, checks need
         self.sheet_names: list[str] = []
         self._sheet_parts: dict[str, str] = {}
+        #: Sheets whose XML the fast path scanned and found without the words "hidden" and
+        #: "mergeCell": layout_notes has nothing to find there and skips its own pass.
+        self.plain_layout: set[str] = set()
 
     def open(self) -> bool:
         """Open the file; on failure record a fatal problem and return False."""
@@ -230,12 +234,16 @@ class WorkbookFile:
         """The sheet via python-calamine plus an XML scan; None where it cannot be exact."""
         stage = f"Reading {name}"
         progress(stage, 0, None)
-        scan = self._scan(name)
-        if scan is None:
-            return None
-        try:
-            raw = self._fast.get_sheet_by_name(name).to_python(skip_empty_area=False)
-        except Exception:  # a sheet calamine cannot read goes the openpyxl way
+        # The XML scan runs beside calamine's parse: both spend their time outside the
+        # interpreter lock (zlib, Rust), so on two cores the scan costs next to nothing.
+        with ThreadPoolExecutor(max_workers=1, thread_name_prefix="xlpolicy-scan") as pool:
+            scanning = pool.submit(self._scan, name)
+            try:
+                raw = self._fast.get_sheet_by_name(name).to_python(skip_empty_area=False)
+            except Exception:  # a sheet calamine cannot read goes the openpyxl way
+                raw = None
+            scan = scanning.result()
+        if scan is None or raw is None:
             return None
         width = max((len(r) for r in raw), default=0)
         if not raw or width == 0:
@@ -319,6 +327,7 @@ class WorkbookFile:
         scan = _Scan()
         cells = refs = 0
         first = True
+        layout_words = False
         try:
             with zipfile.ZipFile(self.path) as zf, zf.open(part) as fh:
                 carry = b""
@@ -340,6 +349,7 @@ class WorkbookFile:
                     cells += piece.count(b"<c ") + piece.count(b"<c>")
                     refs += piece.count(b' r="') - piece.count(b"<row ")
                     scan.formulas = scan.formulas or b"<f" in piece or b":f" in piece
+                    layout_words = layout_words or b"hidden" in piece or b"mergeCell" in piece
                     if b't="e"' in piece:
                         scan.errors.update(_error_cells(piece))
                     if styled is not None:
@@ -353,7 +363,11 @@ class WorkbookFile:
                         break
         except (KeyError, zipfile.BadZipFile, OSError, zlib.error, EOFError):
             return None
-        return scan if refs >= cells else None
+        if refs < cells:
+            return None
+        if not layout_words:
+            self.plain_layout.add(name)
+        return scan
 
     def _read_openpyxl(self, name: str, progress: Progress = silent) -> RawSheet:
         """All rows of a sheet via openpyxl, values and number formats, empty rows dropped."""
@@ -582,7 +596,7 @@ def layout_notes(wb: WorkbookFile, name: str, sheet: RawSheet, log: ProblemLog) 
                  "Unhide it (right-click a sheet tab > Unhide) to see what was read.",
                  sheet=name, code="sheet-hidden")
     part = wb._sheet_parts.get(name)
-    if not part or not sheet.row_numbers:
+    if not part or not sheet.row_numbers or name in wb.plain_layout:
         return
     data_rows = set(sheet.row_numbers)
     hidden: list[int] = []

@@ -18,9 +18,11 @@ from __future__ import annotations
 
 import copy
 import posixpath
+import queue
 import re
 import shutil
 import struct
+import threading
 import zipfile
 import zlib
 from collections.abc import Callable, Iterable, Mapping
@@ -644,12 +646,56 @@ def _rows_writer(edit: _SheetEdit, dst: IO[bytes],
             block = blocks.get(int(m.group(1)))
             if block is None:
                 raise _Unexpected("a generated sheet refers to cells that were not given")
-            for text in block.rows_xml(xf_of):
-                dst.write(text.encode("utf-8"))
+            with _Pipe(dst) as out:
+                for text in block.rows_xml(xf_of):
+                    out.write(text.encode("utf-8"))
             pos = m.end()
         dst.write(rewrite(piece[pos:]))
 
     return emit
+
+
+class _Pipe:
+    """Writes to ``dst`` from a second thread, so deflating overlaps rendering.
+
+    Rendering rows is Python work that holds the interpreter lock; zlib's deflate and CRC
+    release it, so on two cores the big sheet's compression runs beside the rendering of
+    its next rows instead of after it. Order is kept (one queue, one writer); an error in
+    the writer (a full disk) is raised in the caller at the next write or at the end.
+    """
+
+    def __init__(self, dst: IO[bytes], depth: int = 4) -> None:
+        self._dst = dst
+        self._queue: queue.Queue[bytes | None] = queue.Queue(maxsize=depth)
+        self._error: BaseException | None = None
+        self._thread = threading.Thread(target=self._run, name="xlpolicy-deflate",
+                                        daemon=True)
+
+    def _run(self) -> None:
+        while True:
+            data = self._queue.get()
+            if data is None:
+                return
+            if self._error is None:
+                try:
+                    self._dst.write(data)
+                except BaseException as exc:  # handed to the caller, not lost in the thread
+                    self._error = exc
+
+    def write(self, data: bytes) -> None:
+        if self._error is not None:
+            raise self._error
+        self._queue.put(data)
+
+    def __enter__(self) -> _Pipe:
+        self._thread.start()
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self._queue.put(None)
+        self._thread.join()
+        if self._error is not None and exc[0] is None:
+            raise self._error
 
 
 def _rows_rewriter(edit: _SheetEdit) -> Callable[[bytes], bytes]:
