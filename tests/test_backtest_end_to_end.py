@@ -103,13 +103,30 @@ def test_plan_with_simulate_flags_the_lumpy_item_and_writes_the_columns(tmp_path
 
 def test_without_simulate_the_back_test_columns_stay_out(tmp_path):
     src = _shop(tmp_path)
-    res = run("plan", src, "--csv", tmp_path / "p.csv")
+    res = run("plan", src, "--no-simulate", "--csv", tmp_path / "p.csv")
     assert res.exit_code == 0, res.output
     header = [c.value for c in load_workbook(tmp_path / "shop-policy.xlsx")["Policy"][1]]
     assert not any(str(h).startswith("Back-test") for h in header)
     with open(tmp_path / "p.csv", newline="") as f:
         row = next(csv.DictReader(f))
     assert all(row[k] == "" for k in SIMULATION_RESULT_KEYS)  # the CSV keeps its columns
+
+
+def test_by_default_small_catalogues_are_back_tested_and_big_ones_told(tmp_path,
+                                                                     monkeypatch):
+    """Blank 'Simulation runs': 100 runs up to AUTO_MAX_ITEMS items, a note above it."""
+    import xlpolicy.backtest as backtest
+
+    src = _shop(tmp_path)
+    report = xlpolicy.analyse(src)
+    assert report.settings["simulation_runs"] == backtest.DEFAULT_RUNS
+    assert report.results["simulated_cycle_service"].notna().any()
+    monkeypatch.setattr(backtest, "AUTO_MAX_ITEMS", 1)
+    big = xlpolicy.analyse(src)
+    assert "simulated_cycle_service" not in big.results.columns
+    assert any(p.code == "backtest-skipped" for p in big.problems)
+    forced = xlpolicy.analyse(src, simulate=True)
+    assert forced.results["simulated_cycle_service"].notna().any()
 
 
 def test_simulation_runs_setting_turns_it_on_and_no_simulate_off(tmp_path):
@@ -129,7 +146,12 @@ def test_a_bad_simulation_runs_value_is_reported_at_its_cell(tmp_path, value):
     assert len(bad) == 1
     assert (bad[0].sheet, bad[0].cell) == ("Settings", "B2")
     assert "number" in bad[0].message  # text is reported by the reader, the rest here
-    assert "simulated_cycle_service" not in report.results.columns
+    # Text is the reader's case: its default (blank: the back-test on for a small shop) is
+    # used; a number out of range is the back-test's own, which then leaves it out.
+    if isinstance(value, str):
+        assert report.results["simulated_cycle_service"].notna().any()
+    else:
+        assert "simulated_cycle_service" not in report.results.columns
 
 
 def test_replications_must_be_a_whole_number(tmp_path):

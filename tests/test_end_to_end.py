@@ -27,7 +27,8 @@ from xlpolicy.cli import main
 from xlpolicy.contract import RESULT_KEYS, TEXT_RESULT_KEYS
 
 REPO = Path(__file__).resolve().parent.parent
-GENERATED = ["Summary", "Reorder now", "Policy", "Today vs plan", "Warnings", "How it works"]
+GENERATED = ["Summary", "Reorder now", "Policy", "Today vs plan", "Warnings", "How it works",
+             "Stock trace"]  # the last: the back-test's, on by default for small catalogues
 
 
 def run(*args: str):
@@ -227,7 +228,7 @@ def test_python_module_entry_point_runs_the_demo(tmp_path):
     out = tmp_path / "demo-policy.xlsx"
     assert proc.stdout.strip() == str(out)
     wb = load_workbook(out, read_only=True)
-    assert wb.sheetnames[-6:] == GENERATED
+    assert wb.sheetnames[-7:] == GENERATED
 
 
 def test_macro_workbook_keeps_its_macros(tmp_path):

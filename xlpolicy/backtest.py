@@ -32,6 +32,9 @@ from .problems import ProblemLog
 
 #: Runs per item when simulation is asked for without a number.
 DEFAULT_RUNS = 100
+#: Up to this many items the back-test runs unless switched off: it then adds at most a
+#: few seconds (measured: 0.5 s at 1,000 items, 4.8 s at 10,000, 100 runs of 104 weeks).
+AUTO_MAX_ITEMS = 5000
 #: More runs than this are refused as a likely typing slip (and a very long wait).
 MAX_RUNS = 5000
 #: The random seed of every back-test, so a run can be repeated exactly.
@@ -51,15 +54,27 @@ SOURCE_MODEL = "demand model draws"
 CHECK_TEXT = {-1: "short of promise", 0: "as promised", 1: "above promise"}
 
 
-def simulation_runs(settings: dict[str, Any], log: ProblemLog) -> int:
+def simulation_runs(settings: dict[str, Any], log: ProblemLog, n_items: int = 0) -> int:
     """The number of runs asked for (0: no back-test), the Settings value checked here.
 
     ``simulate`` (from the command line or API) True turns the back-test on (with the
     Settings number of runs, else DEFAULT_RUNS), False off. A Settings value that is not a
     whole number from 0 to MAX_RUNS is reported at its cell and the back-test left out.
+    Neither given: the back-test runs (DEFAULT_RUNS) for up to AUTO_MAX_ITEMS items, where
+    it costs a few seconds at most, and is left out with a note above that.
     """
     simulate = settings.pop("simulate", None)
     raw = settings.get("simulation_runs")
+    if simulate is None and raw is None:
+        if n_items <= AUTO_MAX_ITEMS:
+            settings["simulation_runs"] = DEFAULT_RUNS
+            settings.setdefault("sources", {})["simulation_runs"] = (
+                f"default (up to {AUTO_MAX_ITEMS:,} items)")
+            return DEFAULT_RUNS
+        log.info(f"The back-test was left out: for {n_items:,} items it would add about "
+                 f"{n_items * 5 / 10_000:.0f} s. Use --simulate, or set 'Simulation runs' in "
+                 "Settings (100 is a good start), to have it.", code="backtest-skipped")
+        return 0
     runs = 0
     if raw is not None:
         try:
@@ -99,7 +114,7 @@ def run_backtest(results: pd.DataFrame, data: Any, idx: np.ndarray,
     """
     settings = data.settings
     lost = bool(settings.pop("lost_sales", None))
-    runs = simulation_runs(settings, log)
+    runs = simulation_runs(settings, log, len(idx))
     if not runs or not len(idx):
         return None
     settings["simulation_unmet_demand"] = "lost" if lost else "backordered"

@@ -286,7 +286,8 @@ SETTINGS: tuple[Setting, ...] = (
             ("review period", "review every days", "review interval days")),
     Setting("simulation_runs", "Simulation runs", None,
             "Back-test each policy by simulating it this many times on resamples of the "
-            "item's own demand (100 is a good start). Blank or 0: no back-test.",
+            "item's own demand. 0: no back-test. Blank: 100 runs for up to 5,000 items, "
+            "none above (it would cost more than a few seconds).",
             ("simulate", "simulation", "back test runs", "simulation replications")),
 )
 
