@@ -173,3 +173,40 @@ def test_parquet_numeric_item_codes_read_as_a_cell_would(tmp_path: Path) -> None
     write_workbook(tmp_path / "s.xlsx", [item_row(123), item_row(124)], history=hist)
     a, b = _plan(tmp_path, "s.xlsx"), _plan(tmp_path, "w.xlsx")
     pd.testing.assert_frame_equal(a[KEYS], b[KEYS])
+
+
+def test_without_pyarrow_csv_goes_through_pandas_and_parquet_says_what_to_install(
+        tmp_path: Path) -> None:
+    """pyarrow is optional (the 'large' extra): hide it from a fresh interpreter and check.
+
+    CSV: pandas' own parser gives the same policies as the History sheet; Parquet: a fatal
+    problem naming the package to install, no traceback. (In a fresh process, since pandas
+    itself picks its string storage by whether pyarrow can be imported.)
+    """
+    hist = weekly_history(CODES, weeks=60, mean=12.0)
+    items = [item_row(c) for c in CODES]
+    write_workbook(tmp_path / "sheet.xlsx", items, history=hist)
+    _csv(tmp_path / "sales.csv", _rows(hist))
+    _frame(_rows(hist)).to_parquet(tmp_path / "sales.parquet", index=False)
+    write_workbook(tmp_path / "csv.xlsx", items, settings={"History file": "sales.csv"})
+    write_workbook(tmp_path / "pq.xlsx", items, settings={"History file": "sales.parquet"})
+    expect = _plan(tmp_path, "sheet.xlsx")
+    script = (
+        "import sys\n"
+        "for name in ('pyarrow', 'pyarrow.csv', 'pyarrow.parquet'):\n"
+        "    sys.modules[name] = None\n"
+        "import json, xlpolicy\n"
+        f"r = xlpolicy.plan({str(tmp_path / 'csv.xlsx')!r}, write_workbook=False)\n"
+        f"r.report.results.to_json({str(tmp_path / 'csv.json')!r}, orient='records')\n"
+        f"p = xlpolicy.check({str(tmp_path / 'pq.xlsx')!r})\n"
+        "print(json.dumps([[x.severity.value, x.code, x.message] for x in p]))\n")
+    run = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True)
+    assert run.returncode == 0, run.stderr
+    got = pd.read_json(tmp_path / "csv.json", orient="records", dtype={"item": str})
+    got = got.set_index("item")
+    pd.testing.assert_frame_equal(expect[KEYS], got[KEYS], check_dtype=False,
+                                  check_index_type=False)
+    import json
+    fatal = [p for p in json.loads(run.stdout.strip().splitlines()[-1]) if p[0] == "fatal"]
+    assert fatal and fatal[0][1] == "history-file-pyarrow"
+    assert "xlpolicy[large]" in fatal[0][2]

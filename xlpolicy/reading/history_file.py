@@ -180,14 +180,13 @@ def _history(cols: dict[str, _Column], letters: dict[str, str], name: str, known
     # Item codes: each distinct value cleaned once, then known or not.
     item_col = cols["item"]
     code_values, item_codes = _item_codes(item_col)
-    blank_u = np.array([c == "" for c in code_values] + [True], dtype=bool)
-    known_u = np.array([c in known for c in code_values] + [False], dtype=bool)
+    blank_u = np.array([c == "" for c in code_values], dtype=bool)
+    known_u = np.array([c in known for c in code_values], dtype=bool)
     blank = blank_u[item_codes]
     unknown = ~blank & ~known_u[item_codes]
 
     def code_of(k: int) -> str:
-        c = int(item_codes[k])
-        return code_values[c] if c < len(code_values) else ""
+        return code_values[int(item_codes[k])]
 
     _report(log, blank, "A History row has no item code; it was ignored. Fill in the item code "
             "or delete the row.", name, lambda k: cell("item", k), lambda k: "",
@@ -237,7 +236,7 @@ def _history(cols: dict[str, _Column], letters: dict[str, str], name: str, known
     # Items in the order of their first row, as the History sheet's reader gives them.
     rank = np.argsort(first_at, kind="stable")
     items_u = order_items[rank]
-    pos = np.empty(len(code_values) + 1, dtype=np.int64)
+    pos = np.empty(len(code_values), dtype=np.int64)
     pos[items_u] = np.arange(len(items_u))
     n_periods = len(labels)
     matrix = np.zeros((len(items_u), n_periods), dtype=float)
@@ -258,7 +257,7 @@ def _history(cols: dict[str, _Column], letters: dict[str, str], name: str, known
 
 
 def _item_codes(col: _Column) -> tuple[list[str], np.ndarray]:
-    """(distinct cleaned codes, each row's index into them; len(codes) for a blank row)."""
+    """(distinct cleaned codes, "" among them for blanks; each row's index into them)."""
     if col.numbers is not None:  # a column of numbers: 123.0 and 123 are the code "123"
         x = col.numbers
         missing = np.isnan(x)
@@ -274,7 +273,6 @@ def _item_codes(col: _Column) -> tuple[list[str], np.ndarray]:
     names = [str(m) for m in merged]
     blank_slot = remap[-1]
     out = np.where(missing, blank_slot, remap[np.where(missing, 0, codes)])
-    # Put the blank code last so that "index == len(names)" never hides a real code.
     return names, out.astype(np.int64)
 
 
