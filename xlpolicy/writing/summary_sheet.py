@@ -73,6 +73,10 @@ TOTAL_LABELS: tuple[tuple[str, str, str], ...] = (
     ("compared_recommended_annual_total_cost", "Recommended policy: annual cost of those items",
      "money"),
     ("annual_saving", "Annual saving from the change", "money"),
+    ("items_simulated", "Items back-tested in simulation", "count"),
+    ("items_with_target_simulated", "Of those, with a service target", "count"),
+    ("items_meeting_target_in_simulation", "Meeting their target in simulation", "count"),
+    ("items_short_in_simulation", "Short of their model's promise in simulation", "count"),
 )
 
 SUM_TOTALS = {
