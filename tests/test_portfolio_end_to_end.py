@@ -186,3 +186,32 @@ def test_budget_the_targets_cannot_meet_is_reported(tmp_path):
     assert len(found) == 1 and found[0].cell == "B2"
     assert "cannot be met" in found[0].message
     assert not report.portfolio["cap"].feasible
+
+
+def test_periodic_review_items_stay_outside_the_cap_and_the_curve(tmp_path):
+    """A budget and the curve are worked out for continuous-review items only.
+
+    References: the periodic item's policy must be what it is without any cap (its
+    order-up-to level is set by its own rule, Silver, Pyke & Peterson 1998 ch. 7), and the
+    budget must be met by the continuous items' own average stock (the cap's definition).
+    """
+    headers = BASE_HEADERS + ["Review period days"]
+    rows = [item_row(c, cost=3.0 + 7 * k, order=25 + 5 * k, rate=0.25, lead=7 + 3 * k)
+            + [14 if k == 0 else None] for k, c in enumerate(CODES)]
+    hist = weekly_history(CODES, weeks=70, mean=18, seed=21)
+    src = write_workbook(tmp_path / "p.xlsx", rows, headers=headers, history=hist)
+    free = xlpolicy.analyse(src).results.set_index("item")
+    cont = free["review"] == "continuous"
+    budget = 0.7 * float(free.loc[cont, "average_inventory_value"].sum())
+    capped = xlpolicy.analyse(src, stock_budget=budget)
+    res = capped.results.set_index("item")
+    periodic = CODES[0]
+    assert res.loc[periodic, "review"] == "periodic"
+    for key in ("order_qty", "order_up_to_level", "average_inventory_value"):
+        assert res.loc[periodic, key] == pytest.approx(free.loc[periodic, key])
+    used = float(res.loc[cont, "average_inventory_value"].sum())
+    # Met, and spent on the continuous items (not squeezed by the periodic item's stock).
+    assert 0.97 * budget <= used <= budget * (1 + 1e-9)
+    curve = capped.portfolio["exchange_curve"]
+    assert int(curve["items"].max()) == int(cont.sum())
+    assert any(p.code == "portfolio-periodic-left-out" for p in capped.problems)

@@ -29,7 +29,14 @@ from .core.discounts import price_at
 from .core.history import analyse_history, analysis_from_figures, choose_model
 from .core.periodic import periodic_policy
 from .core.policy import PolicyInputs, compute_policy, evaluate_policy
-from .core.portfolio import BUDGET, CURVE_AUTO_MAX, ORDERS, apply_cap, exchange_curve
+from .core.portfolio import (
+    BUDGET,
+    CURVE_AUTO_MAX,
+    ORDERS,
+    apply_cap,
+    exchange_curve,
+    take_inputs,
+)
 from .problems import ProblemLog, Severity
 from .reading import InputData
 from .report import REORDER_KEYS, Report
@@ -98,7 +105,24 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
             shelf_life_days=sub["shelf_life_days"].to_numpy(float),
         )
         pol = compute_policy(inp)
-        pol, portfolio = _portfolio(inp, pol, settings, log)
+        # Caps and the exchange curve are about continuous review: items on periodic review
+        # get their order-up-to policy below, so they are left out of both (and told).
+        cont = np.flatnonzero(_review_days(sub, settings) <= 0)
+        if len(cont) == len(idx):
+            pol, portfolio = _portfolio(inp, pol, settings, log)
+        elif len(cont):
+            part, portfolio = _portfolio(take_inputs(inp, cont),
+                                         pol.iloc[cont].reset_index(drop=True), settings, log)
+            pol = pol.copy()
+            for key in part.columns:
+                if key not in pol.columns:
+                    pol[key] = np.nan
+                pol.loc[cont, key] = part[key].to_numpy()
+            if portfolio or settings.get("stock_budget") or settings.get("orders_cap"):
+                log.info(f"The {len(idx) - len(cont):,} item(s) on periodic review are outside "
+                         "the stock budget, the orders cap and the exchange curve, which are "
+                         "worked out for the items on continuous review.",
+                         code="portfolio-periodic-left-out")
         for key in pol.columns:
             if key in results.columns:
                 results.loc[idx, key] = pol[key].to_numpy()
@@ -409,6 +433,13 @@ def _statuses(codes: pd.Series, planned: np.ndarray, log: ProblemLog) -> np.ndar
     return out
 
 
+def _review_days(df: pd.DataFrame, settings: dict[str, Any]) -> np.ndarray:
+    """Each item's review period in days: its own, else the setting; 0 = continuous review."""
+    T = df["review_period_days"].to_numpy(float)
+    default = settings.get("review_period_days")
+    return np.where(np.isnan(T), float(default) if default is not None else 0.0, T)
+
+
 def _periodic(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray,
               demand: dict[str, np.ndarray], target: np.ndarray, settings: dict[str, Any],
               data: InputData, log: ProblemLog) -> None:
@@ -418,9 +449,7 @@ def _periodic(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray,
     A periodic item has no reorder point: its order-up-to level S replaces it, and its
     order quantity is the average order (demand over one review period).
     """
-    T = df["review_period_days"].to_numpy(float)
-    default = settings.get("review_period_days")
-    T = np.where(np.isnan(T), float(default) if default is not None else 0.0, T)
+    T = _review_days(df, settings)
     results["review"] = np.where(planned, np.where(T > 0, "periodic", "continuous"), "")
     per = planned & (T > 0)
     results["review_period_days"] = np.where(per, T, np.nan)

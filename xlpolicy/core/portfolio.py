@@ -107,6 +107,21 @@ def tile_inputs(inp: PolicyInputs, k: int) -> PolicyInputs:
     return replace(inp, **out)
 
 
+def take_inputs(inp: PolicyInputs, rows: np.ndarray) -> PolicyInputs:
+    """The inputs of some items only (``rows``: their positions), every per-item field cut.
+
+    Per-item fields are found as in :func:`tile_inputs` (first axis = the items), so
+    fields added to PolicyInputs later are cut along with the others.
+    """
+    n = np.asarray(inp.annual_demand).reshape(-1).shape[0]
+    out = {}
+    for f in fields(inp):
+        val = getattr(inp, f.name)
+        if val is not None and np.ndim(val) >= 1 and len(val) == n:
+            out[f.name] = np.asarray(val)[rows]
+    return replace(inp, **out)
+
+
 def _item_column(inp: PolicyInputs, name: str, n: int, dtype: type = float) -> np.ndarray:
     return np.broadcast_to(np.asarray(getattr(inp, name), dtype=dtype), (n,)).copy()
 
