@@ -32,7 +32,7 @@ from xlsxwriter.format import Format
 from xlsxwriter.utility import xl_col_to_name
 from xlsxwriter.worksheet import Worksheet
 
-from .sheetkit import clean_text
+from .sheetkit import clean_text, finite
 
 __all__ = ["ROW", "BlockSheet", "CellBlock", "block_marker", "BLOCK_MARKER"]
 
@@ -120,7 +120,7 @@ class CellBlock:
         try:
             arr = np.asarray(values, dtype=float)
         except (TypeError, ValueError):
-            mixed = [clean_text(v) if isinstance(v, str) else finite_or_none(v) for v in values]
+            mixed = [clean_text(v) if isinstance(v, str) else finite(v) for v in values]
             self._add(_Column(col, "mixed", fmt, mixed), len(mixed))
             return
         arr = np.where(np.isfinite(arr), arr, np.nan)
@@ -230,15 +230,6 @@ def _text_cell(start: str, plain: str, quoted: str, v: str) -> str:
     style = quoted if v.startswith(_FORMULA_LEAD) else plain
     space = ' xml:space="preserve"' if v[0].isspace() or v[-1].isspace() else ""
     return f'{start}{style} t="inlineStr"><is><t{space}>{_xml_text(v)}</t></is></c>'
-
-
-def finite_or_none(value: Any) -> float | None:
-    """A finite float, or None (blank) for anything else that is not text."""
-    try:
-        f = float(value)
-    except (TypeError, ValueError):
-        return None
-    return f if np.isfinite(f) else None
 
 
 class BlockSheet(Worksheet):

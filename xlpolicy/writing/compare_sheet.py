@@ -142,8 +142,7 @@ def write_compare(ctx: Context, ws: Worksheet) -> None:
     for c, col in enumerate(cols):
         if col.kind in ("text", "code"):
             props = {"num_format": "@", **line}
-            every = texts(df, col.key)
-            data = [every[i] for i in rows]
+            data = texts(df.iloc[rows], col.key)  # cleaned for the compared rows only
             block.texts(c, data, ctx.styles.get(**props),
                         ctx.styles.get(**props, quote_prefix=True))
             widths[c] = max(widths[c], min(longest_line(data), 40) + 2)
