@@ -10,14 +10,15 @@ import numpy as np
 
 from ..problems import ProblemLog
 from ..progress import Progress, silent
+from . import typed
 from .guard import Refused, unreadable_message
-from .history import History, aggregate_daily_to_weeks, read_history
+from .history import History, aggregate_daily_to_weeks, read_history, read_wide_typed, wide_header
 from .history_file import read_history_file
 from .items import ItemTable, read_items
 from .price_breaks import PriceBreaks, read_price_breaks
 from .settings import finish_period, read_settings, resolve_settings
 from .sources import open_source
-from .workbook import WorkbookFile, layout_notes
+from .workbook import RawSheet, WorkbookFile, layout_notes
 
 
 @dataclass
@@ -98,7 +99,12 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
             history_name = history_file.name
             history_sheet = None
         else:
-            history_sheet = read(history_name) if history_name is not None else None
+            history_sheet = None
+            if history_name is not None:
+                history = _typed_history(wb, history_name, set(items.df["item"]), settings,
+                                         log, progress)
+                if history is None:
+                    history_sheet = read(history_name)
         if history_sheet is not None and not history_sheet.rows:
             log.info(f"The sheet '{history_name}' is empty; demand comes from the Items sheet's "
                      "annual figures.", sheet=history_name, code="history-empty")
@@ -130,6 +136,51 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
         return None
     finally:
         wb.close()
+
+
+#: Whether a wide History may be read as typed columns (xlpolicy.reading.typed) where
+#: fastexcel is installed; the general path gives the same result (tests compare them).
+TYPED_HISTORY = True
+
+
+def _typed_history(wb: Any, name: str, known: set[str], settings: dict[str, Any],
+                   log: ProblemLog, progress: Progress) -> History | None:
+    """A wide History read the typed way, or None to read it the general way."""
+    if not (TYPED_HISTORY and isinstance(wb, WorkbookFile) and wb._fast is not None
+            and typed.available()):
+        return None
+    progress(f"Reading {name}", 0, None)
+    found = typed_cells(wb, name)
+    if found is None:
+        return None
+    head, hidx, cells = found
+    # Into a log of its own first: the typed reader may still step aside (NotTyped), and
+    # the general path then reports everything itself.
+    own = ProblemLog()
+    layout_notes(wb, name, RawSheet(name, row_numbers=[*head.row_numbers[:hidx + 1],
+                                                       *cells.row_numbers.tolist()]), own)
+    try:
+        history = read_wide_typed(head, cells, known, settings, own)
+    except typed.NotTyped:
+        return None
+    log.extend(own)
+    progress(f"Reading {name}", len(cells.row_numbers), len(cells.row_numbers))
+    return history
+
+
+def typed_cells(wb: WorkbookFile, name: str) -> tuple[RawSheet, int, typed.WideCells] | None:
+    """(the top rows, the header's index among them, the cells below) of a wide History
+    sheet read as typed columns; None where that cannot be exact. Nothing is logged."""
+    try:
+        head = wb.peek(name)
+        where = wide_header(head) if head is not None else None
+        if head is None or where is None:
+            return None
+        texts = sum(isinstance(v, str) for row in head.rows[:where[0] + 1] for v in row)
+        cells = typed.read_wide_cells(wb, name, head.row_numbers[where[0]], where[1], texts)
+    except Exception:  # never worse than the general path, which reports a damaged sheet
+        return None
+    return None if cells is None else (head, where[0], cells)
 
 
 def _history_file(workbook: Path, settings: dict[str, Any]) -> Path | None:

@@ -192,7 +192,8 @@ def describe(value: Any) -> str:
     """The raw value as a user would recognise it in a message."""
     if isinstance(value, str):
         return repr(value)
-    if isinstance(value, float) and value == int(value) and abs(value) < 1e15:
+    if isinstance(value, float) and math.isfinite(value) and value == int(value) \
+            and abs(value) < 1e15:
         return str(int(value))
     return str(value)
 

@@ -21,6 +21,7 @@ import numpy as np
 from ..contract import HISTORY_LONG_COLUMNS, ITEM_COLUMNS, PERIODS, normalise
 from ..problems import ProblemLog
 from .cells import describe, is_blank, item_code, parse_number, typed_periods
+from .typed import NUMBER_TEXT, NotTyped, WideCells
 from .workbook import RawSheet, cell_ref, find_header
 
 _ISO_DATE = re.compile(r"^\d{4}-\d{2}-\d{2}([ T].*)?$")
@@ -251,7 +252,7 @@ def _read_long(sheet: RawSheet, cols: dict[str, int], hidx: int, known: set[str]
             first_cell[code] = cell_ref(ji, rownum)
         if slow_list[pos] or sheet.uncalculated:
             ref = cell_ref(jq, rownum)
-            x = _quantity(raw_qty[pos], ref, sheet, code, log,
+            x = _quantity(raw_qty[pos], ref, sheet.name, code, log,
                           uncalculated=ref in sheet.uncalculated)
         else:
             x = qv_list[pos]
@@ -281,82 +282,173 @@ def _read_long(sheet: RawSheet, cols: dict[str, int], hidx: int, known: set[str]
 def _read_wide(sheet: RawSheet, hidx: int, ji: int, pcols: list[int], known: set[str],
                settings: dict[str, Any], log: ProblemLog) -> History:
     header = sheet.rows[hidx]
-    raw_periods = [header[j] for j in pcols]
-    pidx, labels, period, bad = _period_axis(raw_periods, settings, sheet.name, log)
-    hrow = sheet.row_numbers[hidx]
-    for pos in bad:
-        log.warning(f"Column header {describe(raw_periods[pos])} is not a date like the others; "
-                    "the column was ignored.", sheet=sheet.name,
-                    cell=cell_ref(pcols[pos], hrow), value=raw_periods[pos],
-                    code="history-period-bad")
-    # Row by row: which rows are items (codes are few, one per row); each row's problems are
-    # kept with its place so that all problems come out in sheet order, as they are found.
-    items: list[str] = []
-    first_cell: dict[str, str] = {}
-    data_rows: list[int] = []
-    row_problems: list[tuple[int, dict[str, Any]]] = []
-    for k in range(hidx + 1, len(sheet.rows)):
-        values, fmts, rownum = sheet.rows[k], sheet.formats[k], sheet.row_numbers[k]
-        code = item_code(values[ji] if ji < len(values) else None,
-                         fmts[ji] if ji < len(fmts) else "")
-        ref = cell_ref(ji, rownum)
-        if code is None:
-            if not all(is_blank(v) for v in values):
-                row_problems.append((k, dict(
-                    message="A History row has no item code; it was ignored.",
-                    sheet=sheet.name, cell=ref, code="history-item-missing")))
-            continue
-        if code not in known:
-            row_problems.append((k, dict(
-                message=f"History has item {code!r}, which is not in the Items sheet; its row "
-                "was ignored. Add the item to Items or correct the code.",
-                sheet=sheet.name, cell=ref, item=code, value=values[ji],
-                code="history-unknown-item")))
-            continue
-        if code in first_cell:
-            row_problems.append((k, dict(
-                message=f"Item {code!r} has a second History row (first at {first_cell[code]}); "
-                "the second was ignored. Keep one row per item.", sheet=sheet.name,
-                cell=ref, item=code, value=values[ji], code="history-duplicate-item")))
-            continue
-        first_cell[code] = ref
-        items.append(code)
-        data_rows.append(k)
-
+    pidx, labels, period, used = _wide_axis([header[j] for j in pcols], pcols,
+                                            sheet.row_numbers[hidx], sheet.name, settings, log)
+    below = range(hidx + 1, len(sheet.rows))
+    codes = [sheet.rows[k][ji] if ji < len(sheet.rows[k]) else None for k in below]
+    formats = [sheet.formats[k][ji] if ji < len(sheet.formats[k]) else "" for k in below]
+    rownums = sheet.row_numbers[hidx + 1:]
+    items, first_cell, picked, row_problems = _wide_items(
+        sheet.name, ji, codes, formats, rownums,
+        lambda pos: all(is_blank(v) for v in sheet.rows[hidx + 1 + pos]), known)
     # The quantities as one block: plain numbers are taken as they are, all at once; only
     # the cells that are not (text, dates, negatives, formulas without a result) go one by
     # one through the same check as always, which reports each by its cell.
-    used = np.flatnonzero(pidx >= 0)
     cols = [pcols[p] for p in used]
-    blk, kinds = sheet.block(data_rows, cols)
+    blk, kinds = sheet.block([hidx + 1 + pos for pos in picked], cols)
     num = np.equal(kinds, int) | np.equal(kinds, float)
     vals = np.zeros(blk.shape, dtype=float)
     if num.any():
         vals[num] = blk[num].astype(float)
     slow = ~num & np.not_equal(kinds, type(None))
     slow |= num & ~(np.isfinite(vals) & (vals >= 0))
-    if sheet.uncalculated:
-        at_row = {sheet.row_numbers[k]: i for i, k in enumerate(data_rows)}
+    picked_rows = [rownums[pos] for pos in picked]
+    return _wide_finish(sheet.name, items, first_cell, picked, picked_rows, row_problems,
+                        cols, vals, slow, lambda i, q: blk[i, q], sheet.uncalculated,
+                        pidx, used, labels, period, log)
+
+
+def read_wide_typed(head: RawSheet, cells: WideCells, known: set[str],
+                    settings: dict[str, Any], log: ProblemLog) -> History:
+    """A wide History read as typed columns (see xlpolicy.reading.typed): the same History
+    and the same problems as the general path, from arrays instead of a cell grid."""
+    hidx, ji, pcols = _find_wide_header(head)  # type: ignore[misc]
+    rownums = cells.row_numbers.tolist()
+    formats = [cells.code_formats.get(pos, "") for pos in range(len(rownums))]
+    holds: set[int] = {pos for (pos, _c), v in cells.cells.items() if not is_blank(v)}
+
+    def blank(pos: int) -> bool:
+        return pos not in holds and not any(
+            cells.present[k, pos] for k in range(cells.present.shape[0]))
+
+    items, first_cell, picked, row_problems = _wide_items(
+        head.name, ji, cells.codes, formats, rownums, blank, known)
+    if not cells.codes_exact and any(
+            isinstance(kw.get("value"), str) and NUMBER_TEXT.match(kw["value"])
+            for _pos, kw in row_problems):
+        raise NotTyped  # the problem would quote a number as text: the general path can tell
+    header = head.rows[hidx]
+    pidx, labels, period, used = _wide_axis([header[j] for j in pcols], pcols,
+                                            head.row_numbers[hidx], head.name, settings, log)
+    cols = [pcols[p] for p in used]
+    at = np.asarray(picked, dtype=np.int64)
+    vals = np.zeros((len(picked), len(cols)), dtype=float)
+    num = np.zeros(vals.shape, dtype=bool)
+    for q, c in enumerate(cols):
+        k = cells.col_of.get(c)
+        if k is not None:
+            vals[:, q] = cells.numbers[k, at]
+            num[:, q] = cells.present[k, at]
+    vals[~num] = 0.0
+    other = np.zeros(vals.shape, dtype=bool)
+    if cells.cells:
+        row_at = {int(p): i for i, p in enumerate(picked)}
+        col_at = {c: q for q, c in enumerate(cols)}
+        for (pos, c) in cells.cells:
+            if pos in row_at and c in col_at:
+                other[row_at[pos], col_at[c]] = True
+    num &= ~other
+    slow = other | (num & ~(np.isfinite(vals) & (vals >= 0)))
+
+    def value_at(i: int, q: int) -> Any:
+        key = (int(picked[i]), cols[q])
+        if key in cells.cells:
+            return cells.cells[key]
+        x = float(vals[i, q])
+        return int(x) if np.isfinite(x) and x.is_integer() and abs(x) < 1e15 else x
+
+    picked_rows = [rownums[pos] for pos in picked]
+    return _wide_finish(head.name, items, first_cell, picked, picked_rows, row_problems, cols,
+                        vals, slow, value_at, cells.uncalculated, pidx, used, labels, period,
+                        log)
+
+
+def _wide_axis(raw_periods: list[Any], pcols: list[int], hrow: int, sheet: str,
+               settings: dict[str, Any], log: ProblemLog
+               ) -> tuple[np.ndarray, list[Any], str | None, np.ndarray]:
+    """The period axis of a wide header: (index per column, labels, period, usable ones)."""
+    pidx, labels, period, bad = _period_axis(raw_periods, settings, sheet, log)
+    for pos in bad:
+        log.warning(f"Column header {describe(raw_periods[pos])} is not a date like the others; "
+                    "the column was ignored.", sheet=sheet,
+                    cell=cell_ref(pcols[pos], hrow), value=raw_periods[pos],
+                    code="history-period-bad")
+    return pidx, labels, period, np.flatnonzero(pidx >= 0)
+
+
+def _wide_items(sheet: str, ji: int, codes: list[Any], formats: list[str], rownums: list[int],
+                blank_row: Any, known: set[str]
+                ) -> tuple[list[str], dict[str, str], list[int], list[tuple[int, dict]]]:
+    """Which rows below a wide header are items: (items, first cell of each, their
+    positions, the other rows' problems with their positions), in sheet order."""
+    items: list[str] = []
+    first_cell: dict[str, str] = {}
+    picked: list[int] = []
+    row_problems: list[tuple[int, dict[str, Any]]] = []
+    for pos, (v, fmt, rownum) in enumerate(zip(codes, formats, rownums, strict=True)):
+        code = item_code(v, fmt)
+        ref = cell_ref(ji, rownum)
+        if code is None:
+            if not blank_row(pos):
+                row_problems.append((pos, dict(
+                    message="A History row has no item code; it was ignored.",
+                    sheet=sheet, cell=ref, code="history-item-missing")))
+            continue
+        if code not in known:
+            row_problems.append((pos, dict(
+                message=f"History has item {code!r}, which is not in the Items sheet; its row "
+                "was ignored. Add the item to Items or correct the code.",
+                sheet=sheet, cell=ref, item=code, value=v, code="history-unknown-item")))
+            continue
+        if code in first_cell:
+            row_problems.append((pos, dict(
+                message=f"Item {code!r} has a second History row (first at {first_cell[code]}); "
+                "the second was ignored. Keep one row per item.", sheet=sheet,
+                cell=ref, item=code, value=v, code="history-duplicate-item")))
+            continue
+        first_cell[code] = ref
+        items.append(code)
+        picked.append(pos)
+    return items, first_cell, picked, row_problems
+
+
+def _wide_finish(sheet: str, items: list[str], first_cell: dict[str, str], picked: list[int],
+                 picked_rows: list[int], row_problems: list[tuple[int, dict]], cols: list[int],
+                 vals: np.ndarray, slow: np.ndarray, value_at: Any, uncalculated: set[str],
+                 pidx: np.ndarray, used: np.ndarray, labels: list[Any], period: str | None,
+                 log: ProblemLog) -> History:
+    """Check the cells marked ``slow`` one by one, log every problem in sheet order, and
+    add the columns up into the History's matrix."""
+    if uncalculated:
+        at_row = {r: i for i, r in enumerate(picked_rows)}
         at_col = {j: q for q, j in enumerate(cols)}
-        for ref in sheet.uncalculated:
+        for ref in uncalculated:
             r, c = _split_ref(ref)
             if r in at_row and c in at_col:
                 slow[at_row[r], at_col[c]] = True
     cell_problems = np.nonzero(slow)  # row-major: sheet order
-    events = sorted([(k, -1, i) for i, (k, _) in enumerate(row_problems)]
-                    + [(data_rows[i], q, i) for i, q in zip(*cell_problems, strict=True)])
-    for k, q, i in events:
+    events = sorted([(pos, -1, i) for i, (pos, _) in enumerate(row_problems)]
+                    + [(picked[i], q, i) for i, q in zip(*cell_problems, strict=True)])
+    for _pos, q, i in events:
         if q < 0:
             kw = row_problems[i][1]
             log.warning(kw.pop("message"), **kw)
             continue
-        rownum, ref = sheet.row_numbers[k], cell_ref(cols[q], sheet.row_numbers[k])
-        vals[i, q] = _quantity(blk[i, q], ref, sheet, items[i], log,
-                               uncalculated=ref in sheet.uncalculated)
+        ref = cell_ref(cols[q], picked_rows[i])
+        vals[i, q] = _quantity(value_at(i, q), ref, sheet, items[i], log,
+                               uncalculated=ref in uncalculated)
     matrix = np.zeros((len(items), len(labels)), dtype=float)
     for q, p in enumerate(used):
         matrix[:, pidx[p]] += vals[:, q]
-    return History(sheet.name, "wide", items, matrix, labels, period, first_cell)
+    return History(sheet, "wide", items, matrix, labels, period, first_cell)
+
+
+def wide_header(sheet: RawSheet) -> tuple[int, int, list[int]] | None:
+    """(row index, item column, period columns) when ``sheet`` opens with a wide-layout
+    History header (and not a long one), else None."""
+    if find_header(sheet, HISTORY_LONG_COLUMNS, min_matches=3) is not None:
+        return None
+    return _find_wide_header(sheet)
 
 
 _REF_PARTS = re.compile(r"^\$?([A-Za-z]{1,3})\$?(\d+)$")
@@ -373,19 +465,19 @@ def _split_ref(ref: str) -> tuple[int, int]:
     return int(m.group(2)), col - 1
 
 
-def _quantity(value: Any, ref: str, sheet: RawSheet, code: str, log: ProblemLog,
+def _quantity(value: Any, ref: str, sheet: str, code: str, log: ProblemLog,
               uncalculated: bool = False) -> float:
     """One demand cell: a number >= 0, 0 for blank, NaN (reported) if unreadable."""
     if uncalculated:
         log.warning("This quantity is a formula with no saved result; the period was left out "
                     "of the item's statistics. Open the workbook, let it calculate, save it.",
-                    sheet=sheet.name, cell=ref, item=code, code="cell-uncalculated")
+                    sheet=sheet, cell=ref, item=code, code="cell-uncalculated")
         return float("nan")
     x, why = parse_number(value)
     if why:
         log.warning(f"Quantity {describe(value)} is {why}; this period was left out of the "
                     "item's statistics. Enter the units sold as a number (0 if none).",
-                    sheet=sheet.name, cell=ref, item=code, value=value,
+                    sheet=sheet, cell=ref, item=code, value=value,
                     code="history-quantity-not-number")
         return float("nan")
     if x is None:
@@ -393,7 +485,7 @@ def _quantity(value: Any, ref: str, sheet: RawSheet, code: str, log: ProblemLog,
     if x < 0:
         log.warning(f"Quantity {describe(value)} is negative (a return?); it was counted as 0. "
                     "Record returns elsewhere so they don't lower the demand estimate.",
-                    sheet=sheet.name, cell=ref, item=code, value=value,
+                    sheet=sheet, cell=ref, item=code, value=value,
                     code="history-quantity-negative")
         return 0.0
     return x

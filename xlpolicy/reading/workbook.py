@@ -352,6 +352,12 @@ class WorkbookFile:
                     layout_words = layout_words or b"hidden" in piece or b"mergeCell" in piece
                     if b't="e"' in piece:
                         scan.errors.update(_error_cells(piece))
+                    if b't="b"' in piece:
+                        scan.bools = True
+                    scan.text_cells += (piece.count(b' t="s"') + piece.count(b' t="str"')
+                                        + piece.count(b' t="inlineStr"'))
+                    if b" t='" in piece or b" t =" in piece:
+                        scan.text_cells = -(1 << 40)  # types written another way: unknown
                     if styled is not None:
                         for m in styled.finditer(piece):
                             ref = _REF.search(m.group(0))
@@ -359,6 +365,8 @@ class WorkbookFile:
                                 at = (int(ref.group(2)) - 1,
                                       column_index_from_string(ref.group(1).decode()) - 1)
                                 scan.formats[at] = self._styles[int(m.group(1))]
+                                if _TEXT_TYPE.search(m.group(0)):
+                                    scan.styled_text.add(at)
                     if not chunk:
                         break
         except (KeyError, zipfile.BadZipFile, OSError, zlib.error, EOFError):
@@ -369,6 +377,25 @@ class WorkbookFile:
             self.plain_layout.add(name)
         return scan
 
+    def peek(self, name: str, rows: int = 30) -> RawSheet | None:
+        """The first ``rows`` rows of a sheet that hold anything, via openpyxl.
+
+        openpyxl streams a sheet, so this reads only the top of it: enough to find a
+        header before the sheet is read the fast way. None if the file will not open.
+        """
+        if self._wb is None:
+            try:
+                self._wb = load_workbook(self.path, read_only=True, data_only=True,
+                                         keep_links=False)
+            except Exception:  # the general path reports what is wrong with the file
+                return None
+            _ignore_recorded_size(self._wb)
+        ws = self._wb[name]
+        cap = 1000 if ws.max_row != 1000 else 1001  # (the recorded size means "to the end")
+        sheet = RawSheet(name)
+        self._fill_openpyxl(sheet, ws.iter_rows(max_row=cap), silent, None, stop=rows)
+        return sheet
+
     def _read_openpyxl(self, name: str, progress: Progress = silent) -> RawSheet:
         """All rows of a sheet via openpyxl, values and number formats, empty rows dropped."""
         ws = self._wb[name]
@@ -376,7 +403,19 @@ class WorkbookFile:
         expected = ws.max_row if isinstance(ws.max_row, int) and ws.max_row > 0 else None
         stage = f"Reading {name}"
         progress(stage, 0, expected)
-        for k, row in enumerate(ws.iter_rows(), start=1):
+        self._fill_openpyxl(sheet, ws.iter_rows(), progress, expected)
+        sheet.uncalculated = self._uncalculated_cells(name)
+        progress(stage, expected or len(sheet.rows), expected)
+        return sheet
+
+    @staticmethod
+    def _fill_openpyxl(sheet: RawSheet, rows: Any, progress: Progress, expected: int | None,
+                       stop: int | None = None) -> None:
+        """Append the rows openpyxl gives that hold anything, up to ``stop`` of them."""
+        stage = f"Reading {sheet.name}"
+        for k, row in enumerate(rows, start=1):
+            if stop is not None and len(sheet.rows) >= stop:
+                return
             if k % 5000 == 0:
                 progress(stage, k, expected)
             values = []
@@ -397,9 +436,6 @@ class WorkbookFile:
             sheet.rows.append(values)
             sheet.formats.append(formats)
             sheet.row_numbers.append(rownum if rownum is not None else len(sheet.rows))
-        sheet.uncalculated = self._uncalculated_cells(name)
-        progress(stage, expected or len(sheet.rows), expected)
-        return sheet
 
     def _uncalculated_cells(self, name: str) -> set[str]:
         """A1 references of formula cells that carry no saved result."""
@@ -457,6 +493,7 @@ def _formulas_without_result(src: Any) -> set[str]:
 
 
 _REF = re.compile(rb'\sr="\$?([A-Z]{1,3})\$?(\d+)"')
+_TEXT_TYPE = re.compile(rb'\st="(?:s|str|inlineStr)"')
 _ERROR_CELL = re.compile(rb'<c\b([^>]*\st="e"[^>]*)>(.*?)</c>', re.S)
 _VALUE = re.compile(rb"<v>([^<]*)</v>")
 _ZERO_PAD_FORMAT = re.compile(r"^0+$")
@@ -470,6 +507,12 @@ class _Scan:
     formulas: bool = False
     errors: dict[tuple[int, int], str] = field(default_factory=dict)
     formats: dict[tuple[int, int], str] = field(default_factory=dict)
+    #: Of the cells in ``formats``, those that hold text (a text cell ignores its format).
+    styled_text: set[tuple[int, int]] = field(default_factory=set)
+    #: Whether the sheet holds any TRUE/FALSE cell (the typed reader would see 1 and 0).
+    bools: bool = False
+    #: How many cells hold text (shared, inline or a formula's text); negative: unknown.
+    text_cells: int = 0
 
 
 def _open_calamine(path: Path) -> Any:
