@@ -41,33 +41,34 @@ OTHER_KEYS = ("demand_model", "history_start")
 #: value there is reported and blanked, but the item is still planned.
 SIDE_KEYS = ("on_hand", "on_order", "backordered", "current_order_qty", "current_reorder_point")
 
-# (test, what is wrong, how to fix) per numeric column; the test gets a float.
+# (test, what is wrong, how to fix) per numeric column; the test gets a float or a whole
+# column of them (numpy), so it is written with & rather than "and" or chained comparisons.
 _RULES: dict[str, tuple[Any, str, str]] = {
     "unit_cost": (lambda x: x > 0, "must be more than 0",
                   "Enter what one unit costs to buy, e.g. 4.75"),
     "order_cost": (lambda x: x >= 0, "cannot be negative",
                    "Enter the cost of placing one order, 0 or more"),
-    "holding_rate": (lambda x: 0 < x <= 1, "must be more than 0 and at most 1 (100% a year)",
+    "holding_rate": (lambda x: (0 < x) & (x <= 1), "must be more than 0 and at most 1 (100% a year)",
                      "Write the yearly holding cost as a fraction or percent, e.g. 0.25 or 25%"),
     "lead_time_days": (lambda x: x > 0, "must be more than 0 days",
                        "Enter the days from ordering to having the goods, e.g. 10"),
     "lead_time_sd_days": (lambda x: x >= 0, "cannot be negative",
                           "Enter the lead time's standard deviation in days, or leave it blank"),
-    "service_target": (lambda x: 0 < x < 1, "must lie strictly between 0 and 1",
+    "service_target": (lambda x: (0 < x) & (x < 1), "must lie strictly between 0 and 1",
                        "Write e.g. 0.95 or 95%, or leave it blank for the Settings default"),
     "shortage_cost": (lambda x: x > 0, "must be more than 0",
                       "Enter the cost of each unit short, or leave it blank"),
-    "pack_size": (lambda x: x > 0 and float(x).is_integer(),
+    "pack_size": (lambda x: (x > 0) & (np.floor(x) == x),
                   "must be a whole number of units, 1 or more",
                   "Enter how many units come in one pack, e.g. 12, or leave it blank"),
     "minimum_order": (lambda x: x >= 0, "cannot be negative",
                       "Enter the smallest quantity the supplier accepts, or leave it blank"),
-    "on_hand": (lambda x: True, "", ""),
+    "on_hand": (lambda x: x == x, "", ""),  # (any number: NaN is not one)
     "on_order": (lambda x: x >= 0, "cannot be negative", "Enter units on order, 0 or more"),
     "backordered": (lambda x: x >= 0, "cannot be negative",
                     "Enter units owed to customers, 0 or more"),
     "current_order_qty": (lambda x: x > 0, "must be more than 0", "Enter today's order quantity"),
-    "current_reorder_point": (lambda x: True, "", ""),
+    "current_reorder_point": (lambda x: x == x, "", ""),
     "annual_demand": (lambda x: x >= 0, "cannot be negative", "Enter units sold per year"),
     "demand_sd": (lambda x: x >= 0, "cannot be negative",
                   "Enter the standard deviation of demand per period"),
@@ -264,10 +265,8 @@ def _clean_rows(sheet: RawSheet, header: Header, settings: dict[str, Any],
             scale = good & ~shown_pct & (x > 1)
             x[scale] /= 100.0
         test = _RULES[key][0]
-        if good.any():
-            passed = np.fromiter((bool(test(v)) for v in x[good].tolist()), dtype=bool,
-                                 count=int(good.sum()))
-            good[good] = passed
+        if good.any():  # (each rule works on a whole column as on one number)
+            good[good] = np.asarray(test(x[good]), dtype=bool)
         x[~good] = np.nan
         ok &= good | blank
         for i in uncalculated.get(cols[key], ()):
