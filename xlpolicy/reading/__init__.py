@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -65,6 +66,10 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
             raise _AlreadyReported
         return sheet
 
+    # A wide History is read as typed columns in a second thread while Items is read and
+    # checked: fastexcel parses outside the interpreter lock, so on two cores the History
+    # costs little more than the Items sheet's checks (see xlpolicy.reading.typed).
+    ahead = ThreadPoolExecutor(max_workers=1, thread_name_prefix="xlpolicy-history")
     try:
         items_name = wb.find_sheet("Items")
         if items_name is None:
@@ -78,15 +83,18 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
         settings_sheet = read(settings_name) if settings_name else None
         settings = resolve_settings(read_settings(settings_sheet, log), overrides, log,
                                     settings_name or "Settings")
+        history_name = wb.find_sheet("History")
+        history = None
+        history_file = _history_file(Path(path), settings)
+        early = (ahead.submit(typed_cells, wb, history_name)
+                 if history_file is None and history_name is not None and _typed_possible(wb)
+                 else None)
         # Blank targets stay NaN while reading, so an item's own target can be told from a
         # default: a class target (Service target A/B/C) may apply to it instead.
         items = read_items(read(items_name), {**settings, "service_target": float("nan")}, log)
         if items is None:
             return None
         _default_targets(items, settings)
-        history_name = wb.find_sheet("History")
-        history = None
-        history_file = _history_file(Path(path), settings)
         if history_file is not None:
             if history_name is not None:
                 log.info(f"The history was read from {history_file.name}, as the 'History file' "
@@ -102,7 +110,7 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
             history_sheet = None
             if history_name is not None:
                 history = _typed_history(wb, history_name, set(items.df["item"]), settings,
-                                         log, progress)
+                                         log, progress, early)
                 if history is None:
                     history_sheet = read(history_name)
         if history_sheet is not None and not history_sheet.rows:
@@ -135,6 +143,7 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
         log.fatal(message, sheet=exc.sheet, value=str(path), code=code)
         return None
     finally:
+        ahead.shutdown(wait=True)
         wb.close()
 
 
@@ -143,14 +152,21 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
 TYPED_HISTORY = True
 
 
+def _typed_possible(wb: Any) -> bool:
+    return (TYPED_HISTORY and isinstance(wb, WorkbookFile) and wb._fast is not None
+            and typed.available())
+
+
 def _typed_history(wb: Any, name: str, known: set[str], settings: dict[str, Any],
-                   log: ProblemLog, progress: Progress) -> History | None:
-    """A wide History read the typed way, or None to read it the general way."""
-    if not (TYPED_HISTORY and isinstance(wb, WorkbookFile) and wb._fast is not None
-            and typed.available()):
+                   log: ProblemLog, progress: Progress, early: Any = None) -> History | None:
+    """A wide History read the typed way, or None to read it the general way.
+
+    ``early``: the future of :func:`typed_cells` started while Items was read, if any.
+    """
+    if early is None and not _typed_possible(wb):
         return None
     progress(f"Reading {name}", 0, None)
-    found = typed_cells(wb, name)
+    found = early.result() if early is not None else typed_cells(wb, name)
     if found is None:
         return None
     head, hidx, cells = found

@@ -383,17 +383,18 @@ class WorkbookFile:
         openpyxl streams a sheet, so this reads only the top of it: enough to find a
         header before the sheet is read the fast way. None if the file will not open.
         """
-        if self._wb is None:
-            try:
-                self._wb = load_workbook(self.path, read_only=True, data_only=True,
-                                         keep_links=False)
-            except Exception:  # the general path reports what is wrong with the file
-                return None
-            _ignore_recorded_size(self._wb)
-        ws = self._wb[name]
-        cap = 1000 if ws.max_row != 1000 else 1001  # (the recorded size means "to the end")
-        sheet = RawSheet(name)
-        self._fill_openpyxl(sheet, ws.iter_rows(max_row=cap), silent, None, stop=rows)
+        try:  # a workbook object of its own: this may run beside another sheet's read
+            wb = load_workbook(self.path, read_only=True, data_only=True, keep_links=False)
+        except Exception:  # the general path reports what is wrong with the file
+            return None
+        try:
+            _ignore_recorded_size(wb)
+            ws = wb[name]
+            cap = 1000 if ws.max_row != 1000 else 1001  # (recorded size: "to the end")
+            sheet = RawSheet(name)
+            self._fill_openpyxl(sheet, ws.iter_rows(max_row=cap), silent, None, stop=rows)
+        finally:
+            wb.close()
         return sheet
 
     def _read_openpyxl(self, name: str, progress: Progress = silent) -> RawSheet:
