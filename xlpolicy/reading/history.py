@@ -20,7 +20,7 @@ import numpy as np
 
 from ..contract import HISTORY_LONG_COLUMNS, ITEM_COLUMNS, PERIODS, normalise
 from ..problems import ProblemLog
-from .cells import describe, is_blank, item_code, parse_number, typed_periods
+from .cells import describe, is_blank, item_code, item_codes, parse_number, typed_periods
 from .typed import NUMBER_TEXT, NotTyped, WideCells
 from .workbook import RawSheet, cell_ref, find_header
 
@@ -385,9 +385,10 @@ def _wide_items(sheet: str, ji: int, codes: list[Any], formats: list[str], rownu
     first_cell: dict[str, str] = {}
     picked: list[int] = []
     row_problems: list[tuple[int, dict[str, Any]]] = []
-    for pos, (v, fmt, rownum) in enumerate(zip(codes, formats, rownums, strict=True)):
-        code = item_code(v, fmt)
-        ref = cell_ref(ji, rownum)
+    letter = cell_ref(ji, 1)[:-1]
+    for pos, (v, code, rownum) in enumerate(zip(codes, item_codes(codes, formats), rownums,
+                                                strict=True)):
+        ref = f"{letter}{rownum}"
         if code is None:
             if not blank_row(pos):
                 row_problems.append((pos, dict(

@@ -26,7 +26,7 @@ from ..contract import (
     TEXT,
 )
 from ..problems import ProblemLog, Severity
-from .cells import describe, is_blank, item_code, parse_number, text
+from .cells import describe, is_blank, item_code, item_codes, parse_number, text, texts
 from .settings import parse_model
 from .workbook import Header, RawSheet, cell_ref, find_header
 
@@ -227,25 +227,25 @@ def _clean_rows(sheet: RawSheet, header: Header, settings: dict[str, Any],
             return [""] * n
         return [f[j] if j < len(f) else "" for f in sheet.formats[first:]]
 
-    codes = [item_code(v, f) for v, f in zip(raw("item").tolist(), formats("item"),
-                                              strict=True)]
+    codes = item_codes(raw("item").tolist(), formats("item"))
     ok &= np.fromiter((c is not None for c in codes), dtype=bool, count=n)
     columns["item"] = np.asarray(codes, dtype=object)
     columns["row"] = np.asarray(sheet.row_numbers[first:], dtype=np.int64)
     for key in TEXT_KEYS:
-        columns[key] = np.asarray([text(v) for v in raw(key).tolist()], dtype=object)
+        columns[key] = np.asarray(texts(raw(key).tolist()), dtype=object)
     ok &= np.fromiter((not (d or "").startswith(EXAMPLE_PREFIX) for d in columns["description"]),
                       dtype=bool, count=n)
     columns["history_start"] = np.asarray(
-        [None if is_blank(v) else v for v in raw("history_start").tolist()], dtype=object)
+        [None if v is None or is_blank(v) else v for v in raw("history_start").tolist()],
+        dtype=object)
     models: dict[Any, Any] = {}
     model_raw = raw("demand_model").tolist()
     for v in model_raw:
         if v not in models:
             models[v] = parse_model(v)
     columns["demand_model"] = np.asarray([models[v] for v in model_raw], dtype=object)
-    ok &= np.fromiter((models[v] is not None or is_blank(v) for v in model_raw), dtype=bool,
-                      count=n)
+    fine = {v: models[v] is not None or is_blank(v) for v in models}
+    ok &= np.fromiter((fine[v] for v in model_raw), dtype=bool, count=n)
 
     uncalculated = _cells_by_column(sheet, cols) if sheet.uncalculated else {}
     for key in NUMERIC_KEYS:
