@@ -286,3 +286,30 @@ def test_shared_strings_as_a_spreadsheet_program_writes_them(tmp_path: Path) -> 
     assert _typed_ran(path)
     problems = _same_both_ways(path)
     assert [p[2] for p in problems] == ["F1081", "G1091"]
+
+
+def test_cells_written_without_their_reference_read_the_same(tmp_path: Path) -> None:
+    """ECMA-376 lets a writer leave out a cell's r="B7" (its place follows from order).
+    The scan cannot place such an error cell, so neither fast reader may guess: the
+    result must equal openpyxl's, which counts cells in order."""
+    import re
+    import zipfile
+    codes = _codes(1050)
+    hist = _history(codes)
+    hist[codes[1020]][2] = "#N/A"
+    hist[codes[1030]][4] = "n/a"
+    src = write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist,
+                         layout="wide")
+    path = tmp_path / "no-refs.xlsx"
+    with zipfile.ZipFile(src) as zin, zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as zout:
+        for info in zin.infolist():
+            data = zin.read(info)
+            if info.filename == "xl/worksheets/sheet2.xml":
+                data = re.sub(rb'<c r="[A-Z]+\d+"', b"<c", data)
+            zout.writestr(info, data)
+    problems = _same_both_ways(path)
+    from openpyxl import load_workbook
+    wb = load_workbook(path, read_only=True)
+    assert wb["History"]["D1022"].value == "#N/A"  # (openpyxl places them by order)
+    wb.close()
+    assert [(p[2], p[4]) for p in problems] == [("D1022", "#N/A"), ("F1032", "n/a")]
