@@ -18,7 +18,6 @@ from pathlib import Path
 from typing import Any
 
 from .contract import SERVICE_MEASURES, SETTINGS
-from .planner import build_report
 from .problems import Problem, ProblemLog, Severity, UnusableWorkbook
 from .progress import Progress, silent
 from .reading import guard, read_input
@@ -29,8 +28,17 @@ from .report import Report
 from .writing.atomic import atomic_output
 from .writing.bulk import CellBlock
 from .writing.package import CannotMerge, merge_generated_sheets, user_sheet_names
-from .writing.sheets import DEFAULT_SHEET_NAMES, OutputTooLarge, write_generated_workbook
 from .writing.tables import write_csv, write_json
+
+# The planner and the sheet writers bring scipy and the whole computation core (half a
+# second of imports): they are imported while the History is still being parsed in its
+# thread (see _warm_up), or when first needed.
+
+
+def _warm_up() -> None:
+    """Import the planner and the sheet writers (called while reading waits)."""
+    from . import planner  # noqa: F401
+    from .writing import sheets  # noqa: F401
 
 
 class UsageError(ValueError):
@@ -197,10 +205,11 @@ def analyse(path: str | Path, *, service_measure: str | None = None,
                               exchange_curve=exchange_curve, history=history)}
     overrides.update(_simulation_overrides(simulate, replications, lost_sales))
     with guard.allow_large(allow_large):
-        data = read_input(Path(path), overrides, log, progress)
+        data = read_input(Path(path), overrides, log, progress, while_waiting=_warm_up)
     if data is None:
         raise UnusableWorkbook([p for p in log.problems if p.severity is Severity.FATAL])
     progress("Planning", 0, None)
+    from .planner import build_report
     report = build_report(data, log, Path(path).name, run_date)
     if report.input_summary["items_planned"] == 0:
         reasons = [p for p in log.sorted() if p.severity in (Severity.ERROR, Severity.WARNING)]
@@ -256,7 +265,7 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
         try:
             result.output, result.standalone, result.sheets = write_policy_workbook(
                 src, out, report)
-        except OutputTooLarge as exc:
+        except _output_too_large() as exc:
             raise UnusableWorkbook([Problem(Severity.FATAL, "", "", "", None, str(exc),
                                             "output-too-large")]) from None
     if csv is not None:
@@ -289,8 +298,14 @@ def _check_output_path(src: Path, out: Path) -> None:
         raise UsageError(f"the folder {out.parent} does not exist")
 
 
+def _output_too_large() -> type[Exception]:
+    from .writing.sheets import OutputTooLarge
+    return OutputTooLarge
+
+
 def _sheet_names(taken: list[str]) -> dict[str, str]:
     """Generated sheet names that do not clash with the user's own sheets."""
+    from .writing.sheets import DEFAULT_SHEET_NAMES
     lower = {t.lower() for t in taken}
     names = {}
     for role, name in DEFAULT_SHEET_NAMES.items():
@@ -308,6 +323,7 @@ def write_policy_workbook(src: Path, out: Path, report: Report) -> tuple[Path, b
 
     Returns (path written, whether standalone, generated sheet names).
     """
+    from .writing.sheets import DEFAULT_SHEET_NAMES, write_generated_workbook
     standalone_reason = None
     kind = source_kind(src)
     taken: list[str] = []

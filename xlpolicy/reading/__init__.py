@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
@@ -35,10 +36,13 @@ class InputData:
 
 
 def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
-               progress: Progress = silent) -> InputData | None:
+               progress: Progress = silent,
+               while_waiting: Callable[[], None] | None = None) -> InputData | None:
     """Read Settings, Items and History; None when the workbook cannot be used (fatal logged).
 
     ``path`` may be an .xlsx/.xlsm, .ods or .xls workbook or a folder of CSV files.
+    ``while_waiting`` is called once if the History, read in a thread, is not ready when
+    Items is done: work for the idle main thread (the API imports the planner there).
     """
     wb = open_source(Path(path), log)
     progress("Opening the workbook", 0, None)
@@ -109,6 +113,8 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
         else:
             history_sheet = None
             if history_name is not None:
+                if early is not None and not early.done() and while_waiting is not None:
+                    while_waiting()
                 history = _typed_history(wb, history_name, set(items.df["item"]), settings,
                                          log, progress, early)
                 if history is None:

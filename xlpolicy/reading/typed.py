@@ -19,12 +19,14 @@ the sheet is read the general way, with the same result.
 
 from __future__ import annotations
 
+import datetime as _dt
 import re
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
+from openpyxl.utils.datetime import CALENDAR_MAC_1904, CALENDAR_WINDOWS_1900, from_excel
 
 from .workbook import WorkbookFile
 
@@ -220,10 +222,8 @@ def _decoded(detail: str, scan: Any, at: tuple[int, int]) -> Any:
         return scan.errors[at]
     d = _DATETIME.match(inner)
     if d is not None:
-        from openpyxl.utils.datetime import CALENDAR_MAC_1904, CALENDAR_WINDOWS_1900, from_excel
         value = float(d.group(1))
         if d.group(2) == "TimeDelta":
-            import datetime as _dt
             return _dt.timedelta(days=value)
         epoch = CALENDAR_MAC_1904 if d.group(3) == "true" else CALENDAR_WINDOWS_1900
         return from_excel(value, epoch)
