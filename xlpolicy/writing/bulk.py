@@ -22,9 +22,12 @@ writing, compressing, reading and re-numbering the biggest part twice.
 
 from __future__ import annotations
 
+import operator
 import re
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass
+from itertools import repeat
+from operator import mod
 from typing import Any
 
 import numpy as np
@@ -175,17 +178,49 @@ class CellBlock:
         """The block's ``<row>`` elements, ``chunk_rows`` rows per string.
 
         ``xf_of`` gives a format's style number in the package being written.
+
+        Millions of cells make any per-cell Python expression the writer's main cost, so a
+        row is built by two calls in C: the row number joined into the row's template
+        (every cell reference and formula names its row), then one ``%`` formatting with
+        the row's values. Each column gives a few cell templates (a value, a blank, a
+        formula...) and its values for the chunk; rows whose cells take the same templates
+        share one row template (usually all rows of a chunk do).
         """
-        cols = [self._cols[c] for c in self.columns]
-        letters = [xl_col_to_name(c.col) for c in cols]
-        styles = [(_style(xf_of, c.fmt), _style(xf_of, c.quoted)) for c in cols]
+        slots = [_slot(self._cols[c], xf_of) for c in self.columns]
+        templates: dict[bytes, list[str]] = {}
         for a in range(0, self.n_rows, chunk_rows):
             b = min(a + chunk_rows, self.n_rows)
             rows = [str(r) for r in range(self.first_row + a + 1, self.first_row + b + 1)]
-            cells = [_render(c, letter, xf, a, b, rows)
-                     for c, letter, xf in zip(cols, letters, styles, strict=True)]
-            yield "".join([f'<row r="{r}">' + "".join(parts) + "</row>"
-                           for r, *parts in zip(rows, *cells, strict=True)])
+            args: list[Sequence[Any]] = []
+            states = np.empty((len(slots), b - a), dtype=np.uint8)
+            for j, slot in enumerate(slots):
+                states[j] = slot.chunk(a, b, args)
+            states = np.ascontiguousarray(states.T)
+            if (states == states[0]).all():
+                skeletons: Iterable[list[str]] = repeat(
+                    _row_template(slots, states[0], templates))
+            else:
+                kinds, which = np.unique(states, axis=0, return_inverse=True)
+                each = [_row_template(slots, k, templates) for k in kinds]
+                skeletons = map(each.__getitem__, which.ravel().tolist())
+            yield "".join(map(mod, map(str.join, rows, skeletons), zip(*args, strict=True)))
+
+
+#: Stands for the row number in a cell template (never in XML: a control character).
+_R = "\x01"
+
+
+def _row_template(slots: list[_Slot], state: np.ndarray,
+                  cache: dict[bytes, list[str]]) -> list[str]:
+    """A row's %-template cut where its row number goes; column j takes ``state[j]``."""
+    key = state.tobytes()
+    found = cache.get(key)
+    if found is None:
+        found = cache[key] = (f'<row r="{_R}">'
+                              + "".join([s.cells[k] for s, k in zip(slots, state.tolist(),
+                                                                      strict=True)])
+                              + "</row>").split(_R)
+    return found
 
 
 def _style(xf_of: XfOf, fmt: Format | None) -> str:
@@ -193,36 +228,97 @@ def _style(xf_of: XfOf, fmt: Format | None) -> str:
     return '"' if fmt is None else f'" s="{xf_of(fmt)}"'
 
 
-def _render(c: _Column, letter: str, xf: tuple[str, str], a: int, b: int,
-            rows: list[str]) -> list[str]:
-    """One column's cells for rows a..b-1 of the block (``rows``: their numbers)."""
-    plain, quoted = xf
-    open_ = f'<c r="{letter}'
-    if c.kind == "text" and c.plain:
-        return [f'{open_}{r}{plain} t="inlineStr"><is><t>{v}</t></is></c>' if v
-                else f"{open_}{r}{plain}/>" for r, v in zip(rows, c.values[a:b], strict=True)]
-    if c.kind == "text":
-        return [_text_cell(f"{open_}{r}", plain, quoted, v) if v else f"{open_}{r}{plain}/>"
-                for r, v in zip(rows, c.values[a:b], strict=True)]
-    if c.kind == "mixed":
-        return [f"{open_}{r}{plain}><v>{v!r}</v></c>" if isinstance(v, float)
-                else _text_cell(f"{open_}{r}", plain, plain, v) if v
-                else f"{open_}{r}{plain}/>" for r, v in zip(rows, c.values[a:b], strict=True)]
-    values = c.values[a:b].tolist()
+def _pct(text: str) -> str:
+    return text.replace("%", "%%")
+
+
+@dataclass
+class _Slot:
+    """How one column renders: its cell templates (each takes the same arguments)."""
+
+    cells: tuple[str, ...]  # %-templates (_R for the row number), indexed by a cell's state
+    chunk: Callable[[int, int, list[Sequence[Any]]], Any]
+    # chunk(a, b, args): appends the column's argument lists for rows a..b-1 of the block
+    # to args and returns each row's state
+
+
+_VALUE, _BLANK, _OWN = 0, 1, 2
+
+
+def _slot(c: _Column, xf_of: XfOf) -> _Slot:
+    """The cell templates of column ``c`` and how to get its arguments chunk by chunk."""
+    plain, quoted = _style(xf_of, c.fmt), _style(xf_of, c.quoted)
+    open_ = _pct(f'<c r="{xl_col_to_name(c.col)}{_R}')
+    blank = open_ + _pct(f"{plain}/>")
+    if c.kind in ("text", "mixed"):
+        if c.kind == "text" and c.plain:
+            values = c.values
+            states = np.fromiter(map(operator.not_, values), dtype=np.uint8,
+                                 count=len(values))
+        else:
+            values, states = _own_cells(c, plain, quoted)
+        # a value, a blank, or a cell's own rendering after its reference (rare cells)
+        cells = (open_ + _pct(f'{plain} t="inlineStr"><is><t>') + "%s</t></is></c>",
+                 blank + "%.0s", open_ + "%s")
+
+        def text_chunk(a: int, b: int, args: list[Sequence[Any]]) -> Any:
+            args.append(values[a:b])
+            return states[a:b]
+
+        return _Slot(cells, text_chunk)
+    value = open_ + _pct(f"{plain}><v>") + "%r</v></c>"
     if c.kind == "number":
-        return [f"{open_}{r}{plain}><v>{v!r}</v></c>" if v == v else f"{open_}{r}{plain}/>"
-                for r, v in zip(rows, values, strict=True)]
-    live = c.live[a:b].tolist()
-    if c.each is not None:
-        return [(f"{open_}{r}{plain}><f>{f}</f><v>{v!r}</v></c>" if on
-                 else f"{open_}{r}{plain}><v>{v!r}</v></c>" if v == v
-                 else f"{open_}{r}{plain}/>")
-                for r, v, on, f in zip(rows, values, live, c.each[a:b], strict=True)]
-    pieces = c.pieces
-    return [(f"{open_}{r}{plain}><f>{r.join(pieces)}</f><v>{v!r}</v></c>" if on
-             else f"{open_}{r}{plain}><v>{v!r}</v></c>" if v == v
-             else f"{open_}{r}{plain}/>")
-            for r, v, on in zip(rows, values, live, strict=True)]
+        def number_chunk(a: int, b: int, args: list[Sequence[Any]]) -> Any:
+            v = c.values[a:b]
+            args.append(v.tolist())
+            return np.isnan(v)
+
+        return _Slot((value, blank + "%.0s"), number_chunk)
+    if c.each is not None:  # each row's own formula: an argument of its own
+        cells = (open_ + _pct(f"{plain}><f>") + "%s</f><v>%r</v></c>",
+                 open_ + _pct(plain + ">") + "%.0s<v>%r</v></c>", blank + "%.0s%.0s")
+    else:
+        cells = (open_ + _pct(f"{plain}><f>" + _R.join(c.pieces)) + "</f><v>%r</v></c>",
+                 value, blank + "%.0s")
+
+    def formula_chunk(a: int, b: int, args: list[Sequence[Any]]) -> Any:
+        v = c.values[a:b]
+        if c.each is not None:
+            args.append(c.each[a:b])
+        args.append(v.tolist())
+        return np.where(c.live[a:b], _VALUE, np.where(np.isnan(v), 2, 1))
+
+    return _Slot(cells, formula_chunk)
+
+
+def _own_cells(c: _Column, plain: str, quoted: str) -> tuple[list[str | None], np.ndarray]:
+    """A text or mixed column's cells rendered one by one (after their references).
+
+    For the columns that need escaping, a quote prefix or kept spaces somewhere; a cell
+    that needs none of it still takes the plain template.
+    """
+    out: list[str | None] = []
+    states = np.empty(len(c.values), dtype=np.uint8)
+    for k, v in enumerate(c.values):
+        if c.kind == "mixed" and isinstance(v, float):
+            out.append(f"{plain}><v>{v!r}</v></c>")
+            states[k] = _OWN
+        elif not v:
+            out.append(None)
+            states[k] = _BLANK
+        elif c.kind == "text" and _simple(v):
+            out.append(v)
+            states[k] = _VALUE
+        else:
+            out.append(_text_cell("", plain, quoted if c.kind == "text" else plain, v))
+            states[k] = _OWN
+    return out, states
+
+
+def _simple(v: str) -> bool:
+    """Whether text ``v`` (not empty) goes into a cell as it is."""
+    return not (v[0] in _PLAIN_BREAKERS or v[0].isspace() or v[-1].isspace()
+                or _NEEDS_ESCAPE.search(v))
 
 
 def _text_cell(start: str, plain: str, quoted: str, v: str) -> str:
