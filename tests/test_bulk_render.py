@@ -167,3 +167,21 @@ def test_large_random_block_equals_per_cell_renderer(formats):
     got = list(block.rows_xml(xf_of, 512))
     assert got == _reference_rows(block, xf_of, 512)
     assert len(re.findall(r"<row ", "".join(got))) == n
+
+
+def _old_plain(values: list) -> bool:
+    """The per-value check the column-wide search replaced (the oracle)."""
+    plain = not any(v and (v[0] in "=+-@" or v[-1].isspace() or v[0].isspace())
+                    for v in values)
+    return plain and not re.search(r"[&<>]|_x[0-9A-Fa-f]{4}_",
+                                   "\n".join(v or "" for v in values))
+
+
+@pytest.mark.parametrize("extra", [*TEXTS, "ends=", "ends-", "mid = dle", "x_x12", "_x12G_",
+                                   "\u2003em space", "em space\u2003", "a\nb ", "\tx", "x_"])
+def test_plain_column_check_equals_per_value_check(formats, extra):
+    fmts, _ = formats
+    for values in ([extra], ["ok", extra, "fine"], ["ok", None, extra], [extra, ""]):
+        block = CellBlock(0, len(values))
+        block.texts(0, values, fmts[2], fmts[3])
+        assert block._cols[0].plain == _old_plain(values), values

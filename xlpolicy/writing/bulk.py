@@ -54,6 +54,11 @@ _X_ESCAPE = re.compile(r"_(x[0-9A-Fa-f]{4}_)")
 _FORMULA_LEAD = ("=", "+", "-", "@")
 _PLAIN_BREAKERS = frozenset(_FORMULA_LEAD)
 _NEEDS_ESCAPE = re.compile(r"[&<>]|_x[0-9A-Fa-f]{4}_")
+# In a column joined at NULs: a value that starts with a formula sign or a space, and (in
+# the reversed text) one that ends with a space. re's \s is str.isspace; the literal NUL
+# first lets re scan fast.
+_LEADING = re.compile(r"\x00[=+\-@\s]")
+_TRAILING = re.compile(r"\x00\s")
 
 XfOf = Callable[[Format], int]
 
@@ -138,10 +143,16 @@ class CellBlock:
         """
         values = list(values)
         # Most columns need no escaping, no quote prefix and no kept spaces: one check of
-        # the whole column lets each cell be a single format string.
-        plain = not any(v and (v[0] in _PLAIN_BREAKERS or v[-1].isspace() or v[0].isspace())
-                        for v in values)
-        plain = plain and not _NEEDS_ESCAPE.search("\n".join(v or "" for v in values))
+        # the whole column lets each cell be a single format string. The check is one
+        # search of the column joined at NULs (which cleaned text never holds, so a value's
+        # start and end are where the NULs are).
+        try:
+            joined = "\x00" + "\x00".join(values) + "\x00"
+        except TypeError:  # None among them
+            joined = "\x00" + "\x00".join([v or "" for v in values]) + "\x00"
+        plain = not (_LEADING.search(joined) or _TRAILING.search(joined[::-1])
+                     or "&" in joined or "<" in joined or ">" in joined
+                     or ("_x" in joined and _NEEDS_ESCAPE.search(joined)))
         self._add(_Column(col, "text", fmt, values, quoted=quoted, plain=plain), len(values))
 
     def formulas(self, col: int, pattern: str | Sequence[str], live: np.ndarray, cached: Any,
