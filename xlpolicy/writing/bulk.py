@@ -205,7 +205,12 @@ class CellBlock:
             args: list[Sequence[Any]] = []
             states = np.empty((len(slots), b - a), dtype=np.uint8)
             for j, slot in enumerate(slots):
-                states[j] = slot.chunk(a, b, args)
+                state, more = slot.chunk(a, b)
+                if (state == _BLANK).all():  # a blank column takes no arguments at all
+                    states[j] = _EMPTY
+                else:
+                    states[j] = state
+                    args.extend(more())
             states = np.ascontiguousarray(states.T)
             if (states == states[0]).all():
                 skeletons: Iterable[list[str]] = repeat(
@@ -245,15 +250,21 @@ def _pct(text: str) -> str:
 
 @dataclass
 class _Slot:
-    """How one column renders: its cell templates (each takes the same arguments)."""
+    """How one column renders: its cell templates, indexed by a cell's state.
 
-    cells: tuple[str, ...]  # %-templates (_R for the row number), indexed by a cell's state
-    chunk: Callable[[int, int, list[Sequence[Any]]], Any]
-    # chunk(a, b, args): appends the column's argument lists for rows a..b-1 of the block
-    # to args and returns each row's state
+    ``cells[_EMPTY]`` is the blank without arguments, for a column blank over a whole chunk;
+    every other template takes the same arguments. ``chunk(a, b)`` gives the states of rows
+    a..b-1 of the block and a function for the column's argument lists for those rows.
+    """
+
+    cells: tuple[str, ...]  # %-templates with _R for the row number
+    chunk: Callable[[int, int], tuple[np.ndarray, Callable[[], list[Sequence[Any]]]]]
 
 
-_VALUE, _BLANK, _OWN = 0, 1, 2
+# A cell's state: its column's first template (a value, a formula), a blank, the other one
+# (a cell rendered on its own, a cached value without its formula), a blank of a column
+# that is blank over the whole chunk.
+_VALUE, _BLANK, _OTHER, _EMPTY = 0, 1, 2, 3
 
 
 def _slot(c: _Column, xf_of: XfOf) -> _Slot:
@@ -268,36 +279,36 @@ def _slot(c: _Column, xf_of: XfOf) -> _Slot:
                                  count=len(values))
         else:
             values, states = _own_cells(c, plain, quoted)
-        # a value, a blank, or a cell's own rendering after its reference (rare cells)
+        # a value, a blank, a cell's own rendering after its reference (rare cells)
         cells = (open_ + _pct(f'{plain} t="inlineStr"><is><t>') + "%s</t></is></c>",
-                 blank + "%.0s", open_ + "%s")
+                 blank + "%.0s", open_ + "%s", blank)
 
-        def text_chunk(a: int, b: int, args: list[Sequence[Any]]) -> Any:
-            args.append(values[a:b])
-            return states[a:b]
+        def text_chunk(a: int, b: int) -> tuple[np.ndarray, Callable[[], list[Any]]]:
+            return states[a:b], lambda: [values[a:b]]
 
         return _Slot(cells, text_chunk)
     value = open_ + _pct(f"{plain}><v>") + "%r</v></c>"
     if c.kind == "number":
-        def number_chunk(a: int, b: int, args: list[Sequence[Any]]) -> Any:
+        def number_chunk(a: int, b: int) -> tuple[np.ndarray, Callable[[], list[Any]]]:
             v = c.values[a:b]
-            args.append(v.tolist())
-            return np.isnan(v)
+            return np.isnan(v).view(np.uint8), lambda: [v.tolist()]
 
-        return _Slot((value, blank + "%.0s"), number_chunk)
+        return _Slot((value, blank + "%.0s", "", blank), number_chunk)
     if c.each is not None:  # each row's own formula: an argument of its own
-        cells = (open_ + _pct(f"{plain}><f>") + "%s</f><v>%r</v></c>",
-                 open_ + _pct(plain + ">") + "%.0s<v>%r</v></c>", blank + "%.0s%.0s")
+        cells = (open_ + _pct(f"{plain}><f>") + "%s</f><v>%r</v></c>", blank + "%.0s%.0s",
+                 open_ + _pct(plain + ">") + "%.0s<v>%r</v></c>", blank)
     else:
         cells = (open_ + _pct(f"{plain}><f>" + _R.join(c.pieces)) + "</f><v>%r</v></c>",
-                 value, blank + "%.0s")
+                 blank + "%.0s", value, blank)
 
-    def formula_chunk(a: int, b: int, args: list[Sequence[Any]]) -> Any:
+    def formula_chunk(a: int, b: int) -> tuple[np.ndarray, Callable[[], list[Any]]]:
         v = c.values[a:b]
-        if c.each is not None:
-            args.append(c.each[a:b])
-        args.append(v.tolist())
-        return np.where(c.live[a:b], _VALUE, np.where(np.isnan(v), 2, 1))
+        states = np.where(c.live[a:b], _VALUE, np.where(np.isnan(v), _BLANK, _OTHER))
+
+        def more() -> list[Any]:
+            return [c.each[a:b], v.tolist()] if c.each is not None else [v.tolist()]
+
+        return states, more
 
     return _Slot(cells, formula_chunk)
 
@@ -313,7 +324,7 @@ def _own_cells(c: _Column, plain: str, quoted: str) -> tuple[list[str | None], n
     for k, v in enumerate(c.values):
         if c.kind == "mixed" and isinstance(v, float):
             out.append(f"{plain}><v>{v!r}</v></c>")
-            states[k] = _OWN
+            states[k] = _OTHER
         elif not v:
             out.append(None)
             states[k] = _BLANK
@@ -322,7 +333,7 @@ def _own_cells(c: _Column, plain: str, quoted: str) -> tuple[list[str | None], n
             states[k] = _VALUE
         else:
             out.append(_text_cell("", plain, quoted if c.kind == "text" else plain, v))
-            states[k] = _OWN
+            states[k] = _OTHER
     return out, states
 
 
