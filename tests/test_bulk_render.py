@@ -185,3 +185,16 @@ def test_plain_column_check_equals_per_value_check(formats, extra):
         block = CellBlock(0, len(values))
         block.texts(0, values, fmts[2], fmts[3])
         assert block._cols[0].plain == _old_plain(values), values
+
+
+@pytest.mark.parametrize("formula", ["='Policy'!$Y${k}", "=A{k}&\"<b>\"", "=\"_x0041_\"&A{k}",
+                                     "B{k}*2"])
+def test_each_row_formulas_equal_per_cell_renderer(formats, formula):
+    """Formulas given row by row: escaped only when one of them needs it, as before."""
+    fmts, xf_of = formats
+    n = 9
+    live = np.arange(n) % 4 != 1
+    block = CellBlock(2, n)
+    block.formulas(0, [formula.format(k=k + 3) for k in range(n)], live,
+                   np.arange(n) * 1.5, fmts[0], otherwise=np.where(np.arange(n) % 3, 7.0, np.nan))
+    assert list(block.rows_xml(xf_of, 4)) == _reference_rows(block, xf_of, 4)

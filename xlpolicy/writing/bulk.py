@@ -178,7 +178,10 @@ class CellBlock:
             return
         if len(pattern) != len(live):
             raise ValueError(f"column {col} has {len(pattern)} formulas for {len(live)} rows")
-        each = [_xml_text(f[1:] if f.startswith("=") else f) for f in pattern]
+        each = [f[1:] if f.startswith("=") else f for f in pattern]
+        joined = "\x00".join(each)
+        if "&" in joined or "<" in joined or ">" in joined or "_x" in joined:
+            each = [_xml_text(f) for f in each]  # else none needs escaping: kept as they are
         self._add(_Column(col, "formula", fmt, values, each=each, live=live), len(live))
 
     def formats(self) -> list[Format]:
