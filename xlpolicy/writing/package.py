@@ -16,8 +16,11 @@ block; only their short head (views, columns) and tail (filters, formats, links)
 
 from __future__ import annotations
 
+import collections
+import concurrent.futures
 import contextlib
 import copy
+import os
 import posixpath
 import queue
 import re
@@ -1140,6 +1143,73 @@ class _Plan:
 _GENERATED_LEVEL = 1
 
 
+#: Deflate threads for the big generated sheets (zlib releases the interpreter lock).
+_DEFLATE_THREADS = max(1, min(4, os.cpu_count() or 1))
+#: Input per deflate job, and how many jobs may wait for their turn to be written.
+_DEFLATE_PIECE = 1 << 22
+_DEFLATE_AHEAD = 8
+_WINDOW = 1 << 15  # deflate's window: the dictionary a piece is primed with (< a piece)
+
+
+class _ParallelDeflate:
+    """Stands in for the zlib compressor of a zip entry being written; deflates in threads.
+
+    One deflate thread could not keep up with the rendering of a 100,000-item Policy sheet
+    (some 500 MB of XML at level 1), so the main thread waited for it. Here the input is
+    cut into pieces deflated side by side, each primed with the 32 KB before it (so back
+    references still reach across) and ended by a sync flush (so it ends on a byte);
+    concatenated, they are one ordinary deflate stream, closed by an empty final block.
+    This is how parallel gzip tools do it. ``compress`` hands back what is done, in order.
+    """
+
+    def __init__(self, pool: concurrent.futures.Executor, level: int) -> None:
+        self._pool = pool
+        self._level = level
+        self._pending: collections.deque[concurrent.futures.Future[bytes]] = (
+            collections.deque())
+        self._window = b""
+
+    def _deflate(self, data: memoryview | bytes, primer: bytes) -> bytes:
+        if primer:
+            c = zlib.compressobj(self._level, zlib.DEFLATED, -15, zdict=primer)
+        else:
+            c = zlib.compressobj(self._level, zlib.DEFLATED, -15)
+        return c.compress(data) + c.flush(zlib.Z_SYNC_FLUSH)
+
+    def compress(self, data: bytes | memoryview) -> bytes:
+        view = memoryview(data).cast("B")
+        for start in range(0, len(view), _DEFLATE_PIECE):
+            # the 32 KB of input before the piece (a piece is longer than that)
+            primer = (bytes(view[start - _WINDOW:start]) if start else self._window)
+            self._pending.append(self._pool.submit(
+                self._deflate, view[start:start + _DEFLATE_PIECE], primer))
+        self._window = (bytes(view[-_WINDOW:]) if len(view) >= _WINDOW
+                        else (self._window + bytes(view))[-_WINDOW:])
+        done = []
+        while self._pending and (len(self._pending) > _DEFLATE_AHEAD
+                                 or self._pending[0].done()):
+            done.append(self._pending.popleft().result())
+        return b"".join(done)
+
+    def flush(self) -> bytes:
+        done = [f.result() for f in self._pending]
+        self._pending.clear()
+        return b"".join(done) + zlib.compressobj(self._level, zlib.DEFLATED, -15).flush()
+
+
+def _deflate_in_threads(dst: IO[bytes], pool: concurrent.futures.Executor | None) -> None:
+    """Give zip entry ``dst`` (being written, nothing yet) a :class:`_ParallelDeflate`.
+
+    Python's zipfile has no public hook for it: its writer calls ``compress`` and
+    ``flush`` of its ``_compressor``; when that is not as expected, nothing changes.
+    """
+    if pool is None or getattr(dst, "_file_size", None) != 0:
+        return
+    current = getattr(dst, "_compressor", None)
+    if current is not None and type(current).__name__ == "Compress":
+        dst._compressor = _ParallelDeflate(pool, _GENERATED_LEVEL)
+
+
 def _zip_info(name: str, like: zipfile.ZipInfo | None) -> zipfile.ZipInfo:
     if like is None:
         info = zipfile.ZipInfo(name, date_time=(1980, 1, 1, 0, 0, 0))
@@ -1334,7 +1404,8 @@ def _write(out: Path, user: _Package, gen: _Package, plan: _Plan,
     kept = 0
     path = getattr(user.zf, "filename", None)
     with (zipfile.ZipFile(out, "w", allowZip64=True) as zout,
-          _Checker(path) if path else contextlib.nullcontext() as checker):
+          _Checker(path) if path else contextlib.nullcontext() as checker,
+          concurrent.futures.ThreadPoolExecutor(_DEFLATE_THREADS, "xlpolicy-deflate") as pool):
         for info in user.infos:
             if info.filename in drop:
                 continue
@@ -1357,6 +1428,7 @@ def _write(out: Path, user: _Package, gen: _Package, plan: _Plan,
             big = source.file_size * 3 > zipfile.ZIP64_LIMIT
             with gen.zf.open(source) as src, zout.open(target, "w", force_zip64=big) as dst:
                 if part.kind == "sheet" and part.edit is not None:
+                    _deflate_in_threads(dst, pool)
                     _copy_sheet(src, dst, part.edit, blocks)
                 else:
                     shutil.copyfileobj(src, dst, _CHUNK)
