@@ -198,3 +198,41 @@ def test_each_row_formulas_equal_per_cell_renderer(formats, formula):
     block.formulas(0, [formula.format(k=k + 3) for k in range(n)], live,
                    np.arange(n) * 1.5, fmts[0], otherwise=np.where(np.arange(n) % 3, 7.0, np.nan))
     assert list(block.rows_xml(xf_of, 4)) == _reference_rows(block, xf_of, 4)
+
+
+def test_arrow_shortest_texts_equal_repr():
+    """Arrow's shortest formatting, where used, gives repr's text to the byte.
+
+    Both are shortest round-trip formatters (David Gay's dtoa in CPython, double-conversion
+    in Arrow); values over the whole range of magnitudes, short decimals, whole numbers,
+    signed zeros, subnormals and NaN, compared with repr itself.
+    """
+    pytest.importorskip("pyarrow")
+    from xlpolicy.writing import bulk
+
+    assert bulk._check_shortest_texts()
+    rng = np.random.default_rng(17)
+    n = 200_000
+    values = np.concatenate([
+        10.0 ** rng.uniform(-8, 20, n) * rng.choice([-1.0, 1.0], n),
+        np.round(rng.uniform(-1e7, 1e7, n), 3), rng.integers(-10**13, 10**13, n) / 1000.0,
+        rng.integers(1, 10**6, n) / rng.integers(1, 1000, n), np.array(NUMBERS[:-1])])
+    assert bulk._shortest_texts(values) == list(map(repr, values.tolist()))
+
+
+@pytest.mark.parametrize("arrow", [True, False])
+def test_renderer_with_and_without_arrow_equals_per_cell_renderer(formats, monkeypatch,
+                                                                   arrow):
+    from xlpolicy.writing import bulk
+
+    if arrow:
+        pytest.importorskip("pyarrow")
+    monkeypatch.setattr(bulk, "_SHORTEST_MIN_ROWS", 0)
+    monkeypatch.setattr(bulk, "_shortest_ok", None if arrow else False)
+    fmts, xf_of = formats
+    block = _awkward_block(fmts, 3)
+    rng = np.random.default_rng(2)
+    block.numbers(10, 10.0 ** rng.uniform(-6, 18, block.n_rows), fmts[0])
+    slots = [bulk._slot(block._cols[c], xf_of) for c in block.columns]
+    assert any("%r" not in "".join(s.cells) for s in slots if s.cells[0].count("<v>")) == arrow
+    assert list(block.rows_xml(xf_of, 5)) == _reference_rows(block, xf_of, 5)

@@ -290,30 +290,98 @@ def _slot(c: _Column, xf_of: XfOf) -> _Slot:
             return states[a:b], lambda: [values[a:b]]
 
         return _Slot(cells, text_chunk)
-    value = open_ + _pct(f"{plain}><v>") + "%r</v></c>"
+    # A number's text: Python's repr (%r), the shortest text that reads back as the same
+    # float; or that same text made for the whole chunk at once (%s, see _shortest_texts).
+    texts = _shortest_texts if _use_shortest_texts(c.values) else None
+    num = "%r" if texts is None else "%s"
+
+    def numbers(v: np.ndarray) -> list[Any]:
+        return v.tolist() if texts is None else texts(v)
+
+    value = open_ + _pct(f"{plain}><v>") + num + "</v></c>"
     if c.kind == "number":
         def number_chunk(a: int, b: int) -> tuple[np.ndarray, Callable[[], list[Any]]]:
             v = c.values[a:b]
-            return np.isnan(v).view(np.uint8), lambda: [v.tolist()]
+            return np.isnan(v).view(np.uint8), lambda: [numbers(v)]
 
         return _Slot((value, blank + "%.0s", "", blank), number_chunk)
     if c.each is not None:  # each row's own formula: an argument of its own
-        cells = (open_ + _pct(f"{plain}><f>") + "%s</f><v>%r</v></c>", blank + "%.0s%.0s",
-                 open_ + _pct(plain + ">") + "%.0s<v>%r</v></c>", blank)
+        cells = (open_ + _pct(f"{plain}><f>") + "%s</f><v>" + num + "</v></c>",
+                 blank + "%.0s%.0s", open_ + _pct(plain + ">") + "%.0s<v>" + num + "</v></c>",
+                 blank)
     else:
-        cells = (open_ + _pct(f"{plain}><f>" + _R.join(c.pieces)) + "</f><v>%r</v></c>",
-                 blank + "%.0s", value, blank)
+        cells = (open_ + _pct(f"{plain}><f>" + _R.join(c.pieces)) + "</f><v>" + num
+                 + "</v></c>", blank + "%.0s", value, blank)
 
     def formula_chunk(a: int, b: int) -> tuple[np.ndarray, Callable[[], list[Any]]]:
         v = c.values[a:b]
         states = np.where(c.live[a:b], _VALUE, np.where(np.isnan(v), _BLANK, _OTHER))
 
         def more() -> list[Any]:
-            return [c.each[a:b], v.tolist()] if c.each is not None else [v.tolist()]
+            return [c.each[a:b], numbers(v)] if c.each is not None else [numbers(v)]
 
         return states, more
 
     return _Slot(cells, formula_chunk)
+
+
+#: Columns with fewer rows than this, or with mostly whole numbers (whose repr is quick),
+#: are rendered with repr cell by cell.
+_SHORTEST_MIN_ROWS = 2048
+_shortest_ok: bool | None = None  # whether Arrow's formatting passed its check (None: not yet)
+
+
+def _use_shortest_texts(values: np.ndarray) -> bool:
+    """Whether column ``values`` is worth :func:`_shortest_texts` (and it is available)."""
+    global _shortest_ok
+    if len(values) < _SHORTEST_MIN_ROWS:
+        return False
+    with np.errstate(invalid="ignore"):
+        if np.count_nonzero(values % 1 > 0) * 4 < len(values):
+            return False
+    if _shortest_ok is None:
+        _shortest_ok = _check_shortest_texts()
+    return _shortest_ok
+
+
+def _shortest_texts(v: np.ndarray) -> list[str]:
+    """``repr`` of each value of ``v``, the costly ones made by Apache Arrow in one call.
+
+    Python's repr is the shortest text that reads back as the same float (David Gay's
+    algorithm, one call a value: most of the rendering's time). Arrow's cast to text
+    gives the same shortest digits (double-conversion's ToShortest) for a whole array in
+    C++; it writes them in the same positional form for |x| >= 1e-4 except for whole
+    numbers and where it chooses an exponent, so those values (and NaN) take repr itself.
+    Arrow is optional (xlpolicy[large]); the result is checked against repr once
+    (_check_shortest_texts) before it is used.
+    """
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    cast = pc.cast(pa.array(v), pa.string())
+    out = cast.to_numpy(zero_copy_only=False)
+    with np.errstate(invalid="ignore"):
+        own = ~(np.abs(v) >= 1e-4) | (v % 1 == 0)
+    own |= pc.match_substring(cast, "e").to_numpy(zero_copy_only=False)
+    where = np.flatnonzero(own)
+    if where.size:
+        out[where] = list(map(repr, v[where].tolist()))
+    return out.tolist()
+
+
+def _check_shortest_texts() -> bool:
+    """Whether :func:`_shortest_texts` works here and equals repr on awkward values."""
+    rng = np.random.default_rng(20240531)
+    values = np.concatenate([
+        [0.1, 0.2 + 0.1, 1 / 3, 2 / 3, 4.35, 0.0001, 0.00012345, 9.999e-5, 1e-4 - 1e-20,
+         99999.99999, 1e14 + 0.5, 1e15 - 0.5, 1e15 + 0.5, 9999999999999998.0, 1e16, -0.0,
+         0.0, -1.5, 123456789.125, 5e-324, 1.7976931348623157e308, np.nan, 377.0],
+        10.0 ** rng.uniform(-5, 17, 4000) * rng.choice([-1.0, 1.0], 4000),
+        np.round(rng.uniform(-1e6, 1e6, 2000), 2), rng.integers(1, 10**6, 2000) / 7.0])
+    try:
+        return _shortest_texts(values) == list(map(repr, values.tolist()))
+    except Exception:  # no pyarrow, or one that cannot do this: repr cell by cell
+        return False
 
 
 def _own_cells(c: _Column, plain: str, quoted: str) -> tuple[list[str | None], np.ndarray]:
