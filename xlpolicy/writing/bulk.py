@@ -18,6 +18,12 @@ Deferred blocks: when the sheets are spliced into a copy of the user's workbook,
 not rendered into the intermediate workbook at all; a marker stands in its place and the
 splice renders the block with the final style numbers (:func:`block_marker`), which saves
 writing, compressing, reading and re-numbering the biggest part twice.
+
+Rendering (:meth:`CellBlock.rows_xml`) does no Python work per cell: each row is its row
+template (cached per combination of cell kinds) with the row number joined in and the
+row's values put in by one ``%`` formatting. Numbers are Python's repr, the shortest text
+that reads back as the same float; for big columns that text is made a chunk at a time by
+Apache Arrow when it is installed and agrees with repr (:func:`_shortest_texts`).
 """
 
 from __future__ import annotations
