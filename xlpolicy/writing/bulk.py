@@ -18,13 +18,22 @@ Deferred blocks: when the sheets are spliced into a copy of the user's workbook,
 not rendered into the intermediate workbook at all; a marker stands in its place and the
 splice renders the block with the final style numbers (:func:`block_marker`), which saves
 writing, compressing, reading and re-numbering the biggest part twice.
+
+Rendering (:meth:`CellBlock.rows_xml`) does no Python work per cell: each row is its row
+template (cached per combination of cell kinds) with the row number joined in and the
+row's values put in by one ``%`` formatting. Numbers are Python's repr, the shortest text
+that reads back as the same float; for big columns that text is made a chunk at a time by
+Apache Arrow when it is installed and agrees with repr (:func:`_shortest_texts`).
 """
 
 from __future__ import annotations
 
+import operator
 import re
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from dataclasses import dataclass
+from itertools import repeat
+from operator import mod
 from typing import Any
 
 import numpy as np
@@ -51,6 +60,11 @@ _X_ESCAPE = re.compile(r"_(x[0-9A-Fa-f]{4}_)")
 _FORMULA_LEAD = ("=", "+", "-", "@")
 _PLAIN_BREAKERS = frozenset(_FORMULA_LEAD)
 _NEEDS_ESCAPE = re.compile(r"[&<>]|_x[0-9A-Fa-f]{4}_")
+# In a column joined at NULs: a value that starts with a formula sign or a space, and (in
+# the reversed text) one that ends with a space. re's \s is str.isspace; the literal NUL
+# first lets re scan fast.
+_LEADING = re.compile(r"\x00[=+\-@\s]")
+_TRAILING = re.compile(r"\x00\s")
 
 XfOf = Callable[[Format], int]
 
@@ -135,10 +149,16 @@ class CellBlock:
         """
         values = list(values)
         # Most columns need no escaping, no quote prefix and no kept spaces: one check of
-        # the whole column lets each cell be a single format string.
-        plain = not any(v and (v[0] in _PLAIN_BREAKERS or v[-1].isspace() or v[0].isspace())
-                        for v in values)
-        plain = plain and not _NEEDS_ESCAPE.search("\n".join(v or "" for v in values))
+        # the whole column lets each cell be a single format string. The check is one
+        # search of the column joined at NULs (which cleaned text never holds, so a value's
+        # start and end are where the NULs are).
+        try:
+            joined = "\x00" + "\x00".join(values) + "\x00"
+        except TypeError:  # None among them
+            joined = "\x00" + "\x00".join([v or "" for v in values]) + "\x00"
+        plain = not (_LEADING.search(joined) or _TRAILING.search(joined[::-1])
+                     or "&" in joined or "<" in joined or ">" in joined
+                     or ("_x" in joined and _NEEDS_ESCAPE.search(joined)))
         self._add(_Column(col, "text", fmt, values, quoted=quoted, plain=plain), len(values))
 
     def formulas(self, col: int, pattern: str | Sequence[str], live: np.ndarray, cached: Any,
@@ -164,7 +184,10 @@ class CellBlock:
             return
         if len(pattern) != len(live):
             raise ValueError(f"column {col} has {len(pattern)} formulas for {len(live)} rows")
-        each = [_xml_text(f[1:] if f.startswith("=") else f) for f in pattern]
+        each = [f[1:] if f.startswith("=") else f for f in pattern]
+        joined = "\x00".join(each)
+        if "&" in joined or "<" in joined or ">" in joined or "_x" in joined:
+            each = [_xml_text(f) for f in each]  # else none needs escaping: kept as they are
         self._add(_Column(col, "formula", fmt, values, each=each, live=live), len(live))
 
     def formats(self) -> list[Format]:
@@ -175,17 +198,54 @@ class CellBlock:
         """The block's ``<row>`` elements, ``chunk_rows`` rows per string.
 
         ``xf_of`` gives a format's style number in the package being written.
+
+        Millions of cells make any per-cell Python expression the writer's main cost, so a
+        row is built by two calls in C: the row number joined into the row's template
+        (every cell reference and formula names its row), then one ``%`` formatting with
+        the row's values. Each column gives a few cell templates (a value, a blank, a
+        formula...) and its values for the chunk; rows whose cells take the same templates
+        share one row template (usually all rows of a chunk do).
         """
-        cols = [self._cols[c] for c in self.columns]
-        letters = [xl_col_to_name(c.col) for c in cols]
-        styles = [(_style(xf_of, c.fmt), _style(xf_of, c.quoted)) for c in cols]
+        slots = [_slot(self._cols[c], xf_of) for c in self.columns]
+        templates: dict[bytes, list[str]] = {}
         for a in range(0, self.n_rows, chunk_rows):
             b = min(a + chunk_rows, self.n_rows)
             rows = [str(r) for r in range(self.first_row + a + 1, self.first_row + b + 1)]
-            cells = [_render(c, letter, xf, a, b, rows)
-                     for c, letter, xf in zip(cols, letters, styles, strict=True)]
-            yield "".join([f'<row r="{r}">' + "".join(parts) + "</row>"
-                           for r, *parts in zip(rows, *cells, strict=True)])
+            args: list[Sequence[Any]] = []
+            states = np.empty((len(slots), b - a), dtype=np.uint8)
+            for j, slot in enumerate(slots):
+                state, more = slot.chunk(a, b)
+                if (state == _BLANK).all():  # a blank column takes no arguments at all
+                    states[j] = _EMPTY
+                else:
+                    states[j] = state
+                    args.extend(more())
+            states = np.ascontiguousarray(states.T)
+            if (states == states[0]).all():
+                skeletons: Iterable[list[str]] = repeat(
+                    _row_template(slots, states[0], templates))
+            else:
+                kinds, which = np.unique(states, axis=0, return_inverse=True)
+                each = [_row_template(slots, k, templates) for k in kinds]
+                skeletons = map(each.__getitem__, which.ravel().tolist())
+            yield "".join(map(mod, map(str.join, rows, skeletons), zip(*args, strict=True)))
+
+
+#: Stands for the row number in a cell template (never in XML: a control character).
+_R = "\x01"
+
+
+def _row_template(slots: list[_Slot], state: np.ndarray,
+                  cache: dict[bytes, list[str]]) -> list[str]:
+    """A row's %-template cut where its row number goes; column j takes ``state[j]``."""
+    key = state.tobytes()
+    found = cache.get(key)
+    if found is None:
+        found = cache[key] = (f'<row r="{_R}">'
+                              + "".join([s.cells[k] for s, k in zip(slots, state.tolist(),
+                                                                      strict=True)])
+                              + "</row>").split(_R)
+    return found
 
 
 def _style(xf_of: XfOf, fmt: Format | None) -> str:
@@ -193,36 +253,171 @@ def _style(xf_of: XfOf, fmt: Format | None) -> str:
     return '"' if fmt is None else f'" s="{xf_of(fmt)}"'
 
 
-def _render(c: _Column, letter: str, xf: tuple[str, str], a: int, b: int,
-            rows: list[str]) -> list[str]:
-    """One column's cells for rows a..b-1 of the block (``rows``: their numbers)."""
-    plain, quoted = xf
-    open_ = f'<c r="{letter}'
-    if c.kind == "text" and c.plain:
-        return [f'{open_}{r}{plain} t="inlineStr"><is><t>{v}</t></is></c>' if v
-                else f"{open_}{r}{plain}/>" for r, v in zip(rows, c.values[a:b], strict=True)]
-    if c.kind == "text":
-        return [_text_cell(f"{open_}{r}", plain, quoted, v) if v else f"{open_}{r}{plain}/>"
-                for r, v in zip(rows, c.values[a:b], strict=True)]
-    if c.kind == "mixed":
-        return [f"{open_}{r}{plain}><v>{v!r}</v></c>" if isinstance(v, float)
-                else _text_cell(f"{open_}{r}", plain, plain, v) if v
-                else f"{open_}{r}{plain}/>" for r, v in zip(rows, c.values[a:b], strict=True)]
-    values = c.values[a:b].tolist()
+def _pct(text: str) -> str:
+    return text.replace("%", "%%")
+
+
+@dataclass
+class _Slot:
+    """How one column renders: its cell templates, indexed by a cell's state.
+
+    ``cells[_EMPTY]`` is the blank without arguments, for a column blank over a whole chunk;
+    every other template takes the same arguments. ``chunk(a, b)`` gives the states of rows
+    a..b-1 of the block and a function for the column's argument lists for those rows.
+    """
+
+    cells: tuple[str, ...]  # %-templates with _R for the row number
+    chunk: Callable[[int, int], tuple[np.ndarray, Callable[[], list[Sequence[Any]]]]]
+
+
+# A cell's state: its column's first template (a value, a formula), a blank, the other one
+# (a cell rendered on its own, a cached value without its formula), a blank of a column
+# that is blank over the whole chunk.
+_VALUE, _BLANK, _OTHER, _EMPTY = 0, 1, 2, 3
+
+
+def _slot(c: _Column, xf_of: XfOf) -> _Slot:
+    """The cell templates of column ``c`` and how to get its arguments chunk by chunk."""
+    plain, quoted = _style(xf_of, c.fmt), _style(xf_of, c.quoted)
+    open_ = _pct(f'<c r="{xl_col_to_name(c.col)}{_R}')
+    blank = open_ + _pct(f"{plain}/>")
+    if c.kind in ("text", "mixed"):
+        if c.kind == "text" and c.plain:
+            values = c.values
+            states = np.fromiter(map(operator.not_, values), dtype=np.uint8,
+                                 count=len(values))
+        else:
+            values, states = _own_cells(c, plain, quoted)
+        # a value, a blank, a cell's own rendering after its reference (rare cells)
+        cells = (open_ + _pct(f'{plain} t="inlineStr"><is><t>') + "%s</t></is></c>",
+                 blank + "%.0s", open_ + "%s", blank)
+
+        def text_chunk(a: int, b: int) -> tuple[np.ndarray, Callable[[], list[Any]]]:
+            return states[a:b], lambda: [values[a:b]]
+
+        return _Slot(cells, text_chunk)
+    # A number's text: Python's repr (%r), the shortest text that reads back as the same
+    # float; or that same text made for the whole chunk at once (%s, see _shortest_texts).
+    texts = _shortest_texts if _use_shortest_texts(c.values) else None
+    num = "%r" if texts is None else "%s"
+
+    def numbers(v: np.ndarray) -> list[Any]:
+        return v.tolist() if texts is None else texts(v)
+
+    value = open_ + _pct(f"{plain}><v>") + num + "</v></c>"
     if c.kind == "number":
-        return [f"{open_}{r}{plain}><v>{v!r}</v></c>" if v == v else f"{open_}{r}{plain}/>"
-                for r, v in zip(rows, values, strict=True)]
-    live = c.live[a:b].tolist()
-    if c.each is not None:
-        return [(f"{open_}{r}{plain}><f>{f}</f><v>{v!r}</v></c>" if on
-                 else f"{open_}{r}{plain}><v>{v!r}</v></c>" if v == v
-                 else f"{open_}{r}{plain}/>")
-                for r, v, on, f in zip(rows, values, live, c.each[a:b], strict=True)]
-    pieces = c.pieces
-    return [(f"{open_}{r}{plain}><f>{r.join(pieces)}</f><v>{v!r}</v></c>" if on
-             else f"{open_}{r}{plain}><v>{v!r}</v></c>" if v == v
-             else f"{open_}{r}{plain}/>")
-            for r, v, on in zip(rows, values, live, strict=True)]
+        def number_chunk(a: int, b: int) -> tuple[np.ndarray, Callable[[], list[Any]]]:
+            v = c.values[a:b]
+            return np.isnan(v).view(np.uint8), lambda: [numbers(v)]
+
+        return _Slot((value, blank + "%.0s", "", blank), number_chunk)
+    if c.each is not None:  # each row's own formula: an argument of its own
+        cells = (open_ + _pct(f"{plain}><f>") + "%s</f><v>" + num + "</v></c>",
+                 blank + "%.0s%.0s", open_ + _pct(plain + ">") + "%.0s<v>" + num + "</v></c>",
+                 blank)
+    else:
+        cells = (open_ + _pct(f"{plain}><f>" + _R.join(c.pieces)) + "</f><v>" + num
+                 + "</v></c>", blank + "%.0s", value, blank)
+
+    def formula_chunk(a: int, b: int) -> tuple[np.ndarray, Callable[[], list[Any]]]:
+        v = c.values[a:b]
+        states = np.where(c.live[a:b], _VALUE, np.where(np.isnan(v), _BLANK, _OTHER))
+
+        def more() -> list[Any]:
+            return [c.each[a:b], numbers(v)] if c.each is not None else [numbers(v)]
+
+        return states, more
+
+    return _Slot(cells, formula_chunk)
+
+
+#: Columns with fewer rows than this, or with mostly whole numbers (whose repr is quick),
+#: are rendered with repr cell by cell.
+_SHORTEST_MIN_ROWS = 2048
+_shortest_ok: bool | None = None  # whether Arrow's formatting passed its check (None: not yet)
+
+
+def _use_shortest_texts(values: np.ndarray) -> bool:
+    """Whether column ``values`` is worth :func:`_shortest_texts` (and it is available)."""
+    global _shortest_ok
+    if len(values) < _SHORTEST_MIN_ROWS:
+        return False
+    with np.errstate(invalid="ignore"):
+        if np.count_nonzero(values % 1 > 0) * 4 < len(values):
+            return False
+    if _shortest_ok is None:
+        _shortest_ok = _check_shortest_texts()
+    return _shortest_ok
+
+
+def _shortest_texts(v: np.ndarray) -> list[str]:
+    """``repr`` of each value of ``v``, the costly ones made by Apache Arrow in one call.
+
+    Python's repr is the shortest text that reads back as the same float (David Gay's
+    algorithm, one call a value: most of the rendering's time). Arrow's cast to text
+    gives the same shortest digits (double-conversion's ToShortest) for a whole array in
+    C++; it writes them in the same positional form for |x| >= 1e-4 except for whole
+    numbers and where it chooses an exponent, so those values (and NaN) take repr itself.
+    Arrow is optional (xlpolicy[large]); the result is checked against repr once
+    (_check_shortest_texts) before it is used.
+    """
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    cast = pc.cast(pa.array(v), pa.string())
+    out = cast.to_numpy(zero_copy_only=False)
+    with np.errstate(invalid="ignore"):
+        own = ~(np.abs(v) >= 1e-4) | (v % 1 == 0)
+    own |= pc.match_substring(cast, "e").to_numpy(zero_copy_only=False)
+    where = np.flatnonzero(own)
+    if where.size:
+        out[where] = list(map(repr, v[where].tolist()))
+    return out.tolist()
+
+
+def _check_shortest_texts() -> bool:
+    """Whether :func:`_shortest_texts` works here and equals repr on awkward values."""
+    rng = np.random.default_rng(20240531)
+    values = np.concatenate([
+        [0.1, 0.2 + 0.1, 1 / 3, 2 / 3, 4.35, 0.0001, 0.00012345, 9.999e-5, 1e-4 - 1e-20,
+         99999.99999, 1e14 + 0.5, 1e15 - 0.5, 1e15 + 0.5, 9999999999999998.0, 1e16, -0.0,
+         0.0, -1.5, 123456789.125, 5e-324, 1.7976931348623157e308, np.nan, 377.0],
+        10.0 ** rng.uniform(-5, 17, 4000) * rng.choice([-1.0, 1.0], 4000),
+        np.round(rng.uniform(-1e6, 1e6, 2000), 2), rng.integers(1, 10**6, 2000) / 7.0])
+    try:
+        return _shortest_texts(values) == list(map(repr, values.tolist()))
+    except Exception:  # no pyarrow, or one that cannot do this: repr cell by cell
+        return False
+
+
+def _own_cells(c: _Column, plain: str, quoted: str) -> tuple[list[str | None], np.ndarray]:
+    """A text or mixed column's cells rendered one by one (after their references).
+
+    For the columns that need escaping, a quote prefix or kept spaces somewhere; a cell
+    that needs none of it still takes the plain template.
+    """
+    out: list[str | None] = []
+    states = np.empty(len(c.values), dtype=np.uint8)
+    for k, v in enumerate(c.values):
+        if c.kind == "mixed" and isinstance(v, float):
+            out.append(f"{plain}><v>{v!r}</v></c>")
+            states[k] = _OTHER
+        elif not v:
+            out.append(None)
+            states[k] = _BLANK
+        elif c.kind == "text" and _simple(v):
+            out.append(v)
+            states[k] = _VALUE
+        else:
+            out.append(_text_cell("", plain, quoted if c.kind == "text" else plain, v))
+            states[k] = _OTHER
+    return out, states
+
+
+def _simple(v: str) -> bool:
+    """Whether text ``v`` (not empty) goes into a cell as it is."""
+    return not (v[0] in _PLAIN_BREAKERS or v[0].isspace() or v[-1].isspace()
+                or _NEEDS_ESCAPE.search(v))
 
 
 def _text_cell(start: str, plain: str, quoted: str, v: str) -> str:

@@ -142,7 +142,9 @@ def write_compare(ctx: Context, ws: Worksheet) -> None:
     for c, col in enumerate(cols):
         if col.kind in ("text", "code"):
             props = {"num_format": "@", **line}
-            data = texts(df.iloc[rows], col.key)  # cleaned for the compared rows only
+            # cleaned for the compared rows only (taken from the one column, not the table)
+            data = texts(df[[col.key]].iloc[rows] if col.key in df.columns
+                         else df.iloc[rows, :0], col.key)
             block.texts(c, data, ctx.styles.get(**props),
                         ctx.styles.get(**props, quote_prefix=True))
             widths[c] = max(widths[c], min(longest_line(data), 40) + 2)

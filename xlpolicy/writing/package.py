@@ -16,7 +16,11 @@ block; only their short head (views, columns) and tail (filters, formats, links)
 
 from __future__ import annotations
 
+import collections
+import concurrent.futures
+import contextlib
 import copy
+import os
 import posixpath
 import queue
 import re
@@ -1139,6 +1143,73 @@ class _Plan:
 _GENERATED_LEVEL = 1
 
 
+#: Deflate threads for the big generated sheets (zlib releases the interpreter lock).
+_DEFLATE_THREADS = max(1, min(4, os.cpu_count() or 1))
+#: Input per deflate job, and how many jobs may wait for their turn to be written.
+_DEFLATE_PIECE = 1 << 22
+_DEFLATE_AHEAD = 8
+_WINDOW = 1 << 15  # deflate's window: the dictionary a piece is primed with (< a piece)
+
+
+class _ParallelDeflate:
+    """Stands in for the zlib compressor of a zip entry being written; deflates in threads.
+
+    One deflate thread could not keep up with the rendering of a 100,000-item Policy sheet
+    (some 500 MB of XML at level 1), so the main thread waited for it. Here the input is
+    cut into pieces deflated side by side, each primed with the 32 KB before it (so back
+    references still reach across) and ended by a sync flush (so it ends on a byte);
+    concatenated, they are one ordinary deflate stream, closed by an empty final block.
+    This is how parallel gzip tools do it. ``compress`` hands back what is done, in order.
+    """
+
+    def __init__(self, pool: concurrent.futures.Executor, level: int) -> None:
+        self._pool = pool
+        self._level = level
+        self._pending: collections.deque[concurrent.futures.Future[bytes]] = (
+            collections.deque())
+        self._window = b""
+
+    def _deflate(self, data: memoryview | bytes, primer: bytes) -> bytes:
+        if primer:
+            c = zlib.compressobj(self._level, zlib.DEFLATED, -15, zdict=primer)
+        else:
+            c = zlib.compressobj(self._level, zlib.DEFLATED, -15)
+        return c.compress(data) + c.flush(zlib.Z_SYNC_FLUSH)
+
+    def compress(self, data: bytes | memoryview) -> bytes:
+        view = memoryview(data).cast("B")
+        for start in range(0, len(view), _DEFLATE_PIECE):
+            # the 32 KB of input before the piece (a piece is longer than that)
+            primer = (bytes(view[start - _WINDOW:start]) if start else self._window)
+            self._pending.append(self._pool.submit(
+                self._deflate, view[start:start + _DEFLATE_PIECE], primer))
+        self._window = (bytes(view[-_WINDOW:]) if len(view) >= _WINDOW
+                        else (self._window + bytes(view))[-_WINDOW:])
+        done = []
+        while self._pending and (len(self._pending) > _DEFLATE_AHEAD
+                                 or self._pending[0].done()):
+            done.append(self._pending.popleft().result())
+        return b"".join(done)
+
+    def flush(self) -> bytes:
+        done = [f.result() for f in self._pending]
+        self._pending.clear()
+        return b"".join(done) + zlib.compressobj(self._level, zlib.DEFLATED, -15).flush()
+
+
+def _deflate_in_threads(dst: IO[bytes], pool: concurrent.futures.Executor | None) -> None:
+    """Give zip entry ``dst`` (being written, nothing yet) a :class:`_ParallelDeflate`.
+
+    Python's zipfile has no public hook for it: its writer calls ``compress`` and
+    ``flush`` of its ``_compressor``; when that is not as expected, nothing changes.
+    """
+    if pool is None or getattr(dst, "_file_size", None) != 0:
+        return
+    current = getattr(dst, "_compressor", None)
+    if current is not None and type(current).__name__ == "Compress":
+        dst._compressor = _ParallelDeflate(pool, _GENERATED_LEVEL)
+
+
 def _zip_info(name: str, like: zipfile.ZipInfo | None) -> zipfile.ZipInfo:
     if like is None:
         info = zipfile.ZipInfo(name, date_time=(1980, 1, 1, 0, 0, 0))
@@ -1157,14 +1228,19 @@ _LOCAL_HEADER = struct.Struct("<4s22xHH")  # signature, ..., name length, extra 
 
 
 def _copy_user_part(user: _Package, info: zipfile.ZipInfo, zout: zipfile.ZipFile,
-                    target: zipfile.ZipInfo) -> None:
+                    target: zipfile.ZipInfo, checker: _Checker | None = None) -> None:
     """Copy one of the user's parts unchanged; a part that cannot be read is _Unexpected.
 
     Reading errors (a damaged entry: bad offsets, CRC, deflate data) are told apart from
-    writing errors, which stay OSError (a full disk, a locked output).
+    writing errors, which stay OSError (a full disk, a locked output). With ``checker``,
+    a part copied as raw bytes is checked there (see _Checker), else here.
     """
     if _can_copy_raw(user.zf, info, zout):
-        _copy_raw(user.zf, info, zout, target)
+        start = _copy_raw(user.zf, info, zout, target)
+        if checker is not None:
+            checker.check(info, start)
+        else:
+            _check_raw(user.zf.fp, info, start)
         return
     damaged = _DAMAGED
     try:
@@ -1193,14 +1269,15 @@ def _can_copy_raw(zin: zipfile.ZipFile, info: zipfile.ZipInfo, zout: zipfile.Zip
 
 
 def _copy_raw(zin: zipfile.ZipFile, info: zipfile.ZipInfo, zout: zipfile.ZipFile,
-              target: zipfile.ZipInfo) -> None:
+              target: zipfile.ZipInfo) -> int:
     """Copy a part's compressed bytes into ``zout`` without inflating and deflating them.
 
     Re-compressing the user's parts was most of the time the splice took on a big workbook
-    (the History sheet of 100,000 items is some 200 MB of XML). The bytes are still
-    inflated on the way, only to check them against the part's CRC and size, so a damaged
-    part is found as before (it raises _Unexpected); Python's zipfile has no public call
-    for this, so its writer's bookkeeping is done here as its own ``write`` does it.
+    (the History sheet of 100,000 items is some 200 MB of XML). The bytes must still be
+    inflated, only to check them against the part's CRC and size, so that a damaged part
+    is found as before (_check_raw); this returns where the part's data starts in the
+    user's file, for that check. Python's zipfile has no public call for this, so its
+    writer's bookkeeping is done here as its own ``write`` does it.
     """
     fp = zin.fp
     try:
@@ -1208,7 +1285,8 @@ def _copy_raw(zin: zipfile.ZipFile, info: zipfile.ZipInfo, zout: zipfile.ZipFile
         sig, n_name, n_extra = _LOCAL_HEADER.unpack(fp.read(_LOCAL_HEADER.size))
         if sig != b"PK\x03\x04":
             raise zipfile.BadZipFile("bad local file header")
-        fp.seek(info.header_offset + _LOCAL_HEADER.size + n_name + n_extra)
+        start = info.header_offset + _LOCAL_HEADER.size + n_name + n_extra
+        fp.seek(start)
     except (*_DAMAGED, struct.error) as exc:
         raise _Unexpected(f"its part {info.filename} cannot be read ({exc})") from exc
     out = zipfile.ZipInfo(target.filename, date_time=target.date_time)
@@ -1221,31 +1299,102 @@ def _copy_raw(zin: zipfile.ZipFile, info: zipfile.ZipInfo, zout: zipfile.ZipFile
     out.header_offset = zout.fp.tell()
     zout._didModify = True
     zout.fp.write(out.FileHeader(zip64))
-    inflate = zlib.decompressobj(-15) if info.compress_type == zipfile.ZIP_DEFLATED else None
-    crc, size, left = 0, 0, info.compress_size
+    left = info.compress_size
     while left > 0:
         try:
             chunk = fp.read(min(_CHUNK, left))
             if not chunk:
                 raise EOFError("the part ends early")
-            plain = inflate.decompress(chunk) if inflate is not None else chunk
         except _DAMAGED as exc:
             raise _Unexpected(f"its part {info.filename} cannot be read ({exc})") from exc
-        crc, size, left = zlib.crc32(plain, crc), size + len(plain), left - len(chunk)
+        left -= len(chunk)
         zout.fp.write(chunk)
-    if inflate is not None:
-        try:
-            rest = inflate.flush()
-        except zlib.error as exc:
-            raise _Unexpected(f"its part {info.filename} cannot be read ({exc})") from exc
-        crc, size = zlib.crc32(rest, crc), size + len(rest)
-        if not inflate.eof:
-            raise _Unexpected(f"its part {info.filename} cannot be read (truncated data)")
-    if crc != info.CRC or size != info.file_size:
-        raise _Unexpected(f"its part {info.filename} cannot be read (bad CRC or size)")
     zout.start_dir = zout.fp.tell()
     zout.filelist.append(out)
     zout.NameToInfo[out.filename] = out
+    return start
+
+
+def _check_raw(fp: IO[bytes], info: zipfile.ZipInfo, start: int) -> None:
+    """Inflate a part's data at ``start`` of ``fp``; _Unexpected unless its CRC and size hold."""
+    inflate = zlib.decompressobj(-15) if info.compress_type == zipfile.ZIP_DEFLATED else None
+    crc, size, left = 0, 0, info.compress_size
+    try:
+        fp.seek(start)
+        while left > 0:
+            chunk = fp.read(min(_CHUNK, left))
+            if not chunk:
+                raise EOFError("the part ends early")
+            plain = inflate.decompress(chunk) if inflate is not None else chunk
+            crc, size, left = zlib.crc32(plain, crc), size + len(plain), left - len(chunk)
+        if inflate is not None:
+            rest = inflate.flush()
+            crc, size = zlib.crc32(rest, crc), size + len(rest)
+    except _DAMAGED as exc:
+        raise _Unexpected(f"its part {info.filename} cannot be read ({exc})") from exc
+    if inflate is not None and not inflate.eof:
+        raise _Unexpected(f"its part {info.filename} cannot be read (truncated data)")
+    if crc != info.CRC or size != info.file_size:
+        raise _Unexpected(f"its part {info.filename} cannot be read (bad CRC or size)")
+
+
+class _Checker:
+    """Checks the user's raw-copied parts (_check_raw) in a thread of its own.
+
+    Inflating the user's big sheets only to check their CRCs took half a second of the
+    splice on a 100,000-item workbook; zlib releases the interpreter lock, so on two cores
+    the check runs beside the rendering of the generated sheets. It reads the user's file
+    through a handle of its own. :meth:`finish` waits for it and raises the first damaged
+    part's _Unexpected, before the output is complete (atomic_output then drops it).
+    """
+
+    def __init__(self, path: str | Path) -> None:
+        self._path = path
+        self._queue: queue.Queue[tuple[zipfile.ZipInfo, int] | None] = queue.Queue()
+        self._error: BaseException | None = None
+        self._cancelled = False
+        self._thread = threading.Thread(target=self._run, name="xlpolicy-check",
+                                        daemon=True)
+
+    def _run(self) -> None:
+        try:
+            with open(self._path, "rb") as fh:
+                while True:
+                    task = self._queue.get()
+                    if task is None:
+                        return
+                    if not self._cancelled:
+                        _check_raw(fh, *task)
+        except BaseException as exc:  # handed to the caller, not lost in the thread
+            self._error = exc
+            while self._queue.get() is not None:  # let the caller's puts and stop go on
+                pass
+
+    def check(self, info: zipfile.ZipInfo, start: int) -> None:
+        """Queue the check of a part whose data starts at ``start``."""
+        if self._error is not None:
+            raise self._error
+        self._queue.put((info, start))
+
+    def finish(self) -> None:
+        """Wait for every queued check; raise the first failure."""
+        self._stop()
+        if self._error is not None:
+            raise self._error
+
+    def _stop(self) -> None:
+        if self._thread.is_alive():
+            self._queue.put(None)
+            self._thread.join()
+
+    def __enter__(self) -> _Checker:
+        self._thread.start()
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        if exc[0] is not None:  # the caller failed: skip what is queued
+            self._cancelled = True
+        self._stop()
 
 
 def _write(out: Path, user: _Package, gen: _Package, plan: _Plan,
@@ -1253,7 +1402,10 @@ def _write(out: Path, user: _Package, gen: _Package, plan: _Plan,
     """Write the output package; return how many user parts were copied unchanged."""
     drop, replaced_parts, new_parts = plan.drop, plan.replaced_parts, plan.new_parts
     kept = 0
-    with zipfile.ZipFile(out, "w", allowZip64=True) as zout:
+    path = getattr(user.zf, "filename", None)
+    with (zipfile.ZipFile(out, "w", allowZip64=True) as zout,
+          _Checker(path) if path else contextlib.nullcontext() as checker,
+          concurrent.futures.ThreadPoolExecutor(_DEFLATE_THREADS, "xlpolicy-deflate") as pool):
         for info in user.infos:
             if info.filename in drop:
                 continue
@@ -1265,7 +1417,7 @@ def _write(out: Path, user: _Package, gen: _Package, plan: _Plan,
                 zout.writestr(target, b"")
                 continue
             target.file_size = info.file_size
-            _copy_user_part(user, info, zout, target)
+            _copy_user_part(user, info, zout, target, checker)
             kept += 1
         for part in new_parts:
             target = _zip_info(part.name, None)
@@ -1276,9 +1428,12 @@ def _write(out: Path, user: _Package, gen: _Package, plan: _Plan,
             big = source.file_size * 3 > zipfile.ZIP64_LIMIT
             with gen.zf.open(source) as src, zout.open(target, "w", force_zip64=big) as dst:
                 if part.kind == "sheet" and part.edit is not None:
+                    _deflate_in_threads(dst, pool)
                     _copy_sheet(src, dst, part.edit, blocks)
                 else:
                     shutil.copyfileobj(src, dst, _CHUNK)
+        if checker is not None:
+            checker.finish()
     return kept
 
 

@@ -150,7 +150,7 @@ def texts(df: pd.DataFrame, key: str) -> list[str]:
     if key not in df.columns:
         return [""] * len(df)
     values = df[key].tolist()
-    if (all(type(v) is str for v in values) and not _UNCLEAN.search("\n".join(values))
+    if (set(map(type, values)) <= {str} and not _UNCLEAN.search("\n".join(values))
             and max(map(len, values), default=0) <= MAX_CELL_TEXT):
         return values
     return [(clean_text(v) or "") for v in values]
@@ -158,6 +158,8 @@ def texts(df: pd.DataFrame, key: str) -> list[str]:
 
 def longest_line(values: list[str]) -> int:
     """The length of the longest line among cleaned texts, for a column's width."""
+    if set(map(type, values)) <= {str} and "\n" not in "".join(values):
+        return max(map(len, values), default=0)  # one line each: no split needed
     return max((max(map(len, t.split("\n"))) if "\n" in t else len(t) for t in values if t),
                default=0)
 
@@ -344,6 +346,8 @@ class Writer:
         if text.startswith(_FORMULA_LEAD):
             props = {**props, "quote_prefix": True}
         ws.write_string(row, col, text, self.styles.get(**props))
+        if "\n" not in text:
+            return len(text)
         return max(len(line) for line in text.split("\n"))
 
     def number(self, ws: Worksheet, row: int, col: int, value: Any, **props: Any) -> None:
