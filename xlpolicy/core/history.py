@@ -135,12 +135,27 @@ def _last_true(mask: np.ndarray) -> np.ndarray:
 
 
 def _row_median(x: np.ndarray, mask: np.ndarray) -> np.ndarray:
-    """Median of x over mask per row; NaN for empty rows, without an all-NaN warning."""
-    vals = np.where(mask, x, np.nan)
-    empty = ~mask.any(axis=1)
-    vals[empty] = 0.0
-    med = np.nanmedian(vals, axis=1) if vals.shape[1] else np.zeros(vals.shape[0])
-    return np.where(empty, np.nan, med)
+    """Median of x over mask per row; NaN for empty rows (and NaN cells left out).
+
+    Sort + take, as numpy's nanmedian does for short rows (its masked-array median): the
+    cells outside the mask sort last as +inf, and the median is (low + high) / 2 of the
+    middle pair (the middle cell twice for an odd count), so the numbers are the same as
+    np.nanmedian's to the bit, without its masked-array overhead.
+    """
+    n_rows, n_cols = x.shape
+    if n_cols == 0:
+        return np.full(n_rows, np.nan)
+    take = mask & ~np.isnan(x)
+    vals = np.where(take, x, np.inf)
+    vals.sort(axis=1)
+    cnt = take.sum(axis=1)
+    high = cnt // 2
+    low = np.where(cnt % 2 == 1, high, high - 1)
+    rows = np.arange(n_rows)
+    hi_idx = np.minimum(high, n_cols - 1)
+    lo_idx = np.maximum(low, 0)
+    med = (vals[rows, lo_idx] + vals[rows, hi_idx]) / 2.0
+    return np.where(cnt > 0, med, np.nan)
 
 
 def _seasons(n_cols: int, periods_per_year: float) -> tuple[np.ndarray, int] | None:
@@ -226,9 +241,10 @@ def _analyse_block(m: np.ndarray, periods_per_year: float, start: ArrayLike | No
     cols = np.arange(n_cols)
     rows = np.arange(n_items)
     readable = ~np.isnan(m)
+    positive = m > 0  # False for NaN: a sale is a readable cell above 0
 
     # --- span: explicit start, else first sale, else column 0 -------------------------
-    first_sale = _first_true(readable & (m > 0))
+    first_sale = _first_true(positive)
     if start is None:
         explicit = np.zeros(n_items, dtype=bool)
         s_in = np.full(n_items, -1, dtype=np.int64)
@@ -238,7 +254,7 @@ def _analyse_block(m: np.ndarray, periods_per_year: float, start: ArrayLike | No
         explicit = s_in >= 0
     begin = np.where(explicit, s_in, np.maximum(first_sale, 0)).astype(np.int64)
     span = readable & (cols[None, :] >= begin[:, None])
-    raw_sale = span & (m > 0)
+    raw_sale = span & positive
 
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
         # --- whole numbers (count data), on the raw values ------------------------------
@@ -253,7 +269,7 @@ def _analyse_block(m: np.ndarray, periods_per_year: float, start: ArrayLike | No
         # 0. The robust scale is floored at 10 % of the median, and at 1 unit for
         # whole-number items, so that near-constant series (MAD = 0) do not flag a 1-unit
         # step. ADI does not change under capping, so the choice is stable.
-        n_raw, _, sd_raw = _row_stats(m, span)
+        n_raw, mean_raw, sd_raw = _row_stats(m, span)
         nz_raw = raw_sale.sum(axis=1)
         adi_raw = np.where(nz_raw > 0, n_raw / np.maximum(nz_raw, 1), np.nan)
         basis = np.where((adi_raw > ADI_CUTOFF)[:, None], raw_sale, span)
@@ -279,14 +295,15 @@ def _analyse_block(m: np.ndarray, periods_per_year: float, start: ArrayLike | No
         sd_without_outlier = np.where(outlier, sd_wo, np.nan)
 
         work = m
+        n, mean, sd, sale = n_raw, mean_raw, sd_raw, raw_sale  # unchanged unless capped
         if cap_outliers and outlier.any():
             work = m.copy()
             cap = np.where(whole, np.floor(threshold), threshold)
             work[rows[outlier], cand[outlier]] = cap[outlier]
+            sale = span & (work > 0)
+            n, mean, sd = _row_stats(work, span)
 
         # --- level, spread, SBC class --------------------------------------------------
-        sale = span & (work > 0)
-        n, mean, sd = _row_stats(work, span)
         nz = sale.sum(axis=1)
         adi = np.where(nz > 0, n / np.maximum(nz, 1), np.nan)
         _, size_mean, size_sd = _row_stats(work, sale)
@@ -519,7 +536,13 @@ def _seasonality(
 def _num(x: np.ndarray) -> np.ndarray:
     """Short number text: whole units from 10 up, two significant digits below."""
     x = np.where(np.isfinite(x), x, 0.0)
-    return np.where(np.abs(x) >= 10, np.char.mod("%.0f", x), np.char.mod("%.2g", x))
+    big = np.abs(x) >= 10
+    out = np.empty(x.shape, dtype=object)
+    if big.any():
+        out[big] = np.char.mod("%.0f", x[big])
+    if (~big).any():
+        out[~big] = np.char.mod("%.2g", x[~big])
+    return out.astype(str)
 
 
 def choose_model(
@@ -564,54 +587,48 @@ def choose_model(
     negbin = counts & ~poisson
     gamma = valid & ~normal & ~a.whole_numbers
 
-    mu_s = _num(mu)
-    count_head = np.char.add(np.char.add("count-like demand, ", mu_s), " units over the lead time")
+    # The reasons are text per item: each is formatted only for the items it describes.
     reason = np.full(k, "", dtype=object)
     model = np.full(k, "", dtype=object)
+    cv_text = np.where(np.isfinite(cv), cv, 0.0)
 
-    r_normal = np.char.add(
-        np.char.add(np.char.add("steady demand: ", mu_s), " units over the lead time, sd/mean "),
-        np.char.mod("%.2f", np.where(np.isfinite(cv), cv, 0.0)),
-    )
-    r_pois = np.char.add(
-        np.char.add(count_head, ": variance close to the mean (ratio "),
-        np.char.add(_num(a.vmr), ")"),
-    )
-    r_under = np.char.add(
-        np.char.add(count_head, ": variance over the lead time not above the mean (ratio "),
-        np.char.add(_num(lt_ratio), ")"),
-    )
-    r_nb_disp = np.char.add(
-        np.char.add(count_head, ": variance clearly above the mean (ratio "),
-        np.char.add(_num(a.vmr), ")"),
-    )
-    r_nb_lt = np.char.add(
-        np.char.add(count_head, ": the lead time varies, which widens demand over it "
-                                "(variance/mean "),
-        np.char.add(_num(lt_ratio), ")"),
-    )
-    r_gamma = np.char.add(
-        np.char.add(
-            np.char.add("skewed or small demand in fractional quantities: ", mu_s),
-            " units over the lead time, sd/mean ",
-        ),
-        np.char.mod("%.2f", np.where(np.isfinite(cv), cv, 0.0)),
-    )
+    def head(sel: np.ndarray, text: str, tail: str) -> np.ndarray:
+        return np.char.add(np.char.add(text, _num(mu[sel])), tail)
 
-    model[normal] = "normal"
-    reason[normal] = r_normal[normal]
+    def count_reason(sel: np.ndarray, why: str, value: np.ndarray) -> np.ndarray:
+        return np.char.add(
+            np.char.add(head(sel, "count-like demand, ", " units over the lead time"), why),
+            np.char.add(_num(value[sel]), ")"))
+
+    if normal.any():
+        reason[normal] = np.char.add(
+            head(normal, "steady demand: ", " units over the lead time, sd/mean "),
+            np.char.mod("%.2f", cv_text[normal]))
     pois_test = poisson & poisson_like
     pois_under = poisson & ~poisson_like
     model[poisson] = "poisson"
-    reason[pois_test] = r_pois[pois_test]
-    reason[pois_under] = r_under[pois_under]
+    if pois_test.any():
+        reason[pois_test] = count_reason(pois_test, ": variance close to the mean (ratio ", a.vmr)
+    if pois_under.any():
+        reason[pois_under] = count_reason(
+            pois_under, ": variance over the lead time not above the mean (ratio ", lt_ratio)
     nb_disp = negbin & (a.dispersion_p < DISPERSION_ALPHA)
     nb_lt = negbin & ~nb_disp
     model[negbin] = "negative binomial"
-    reason[nb_disp] = r_nb_disp[nb_disp]
-    reason[nb_lt] = r_nb_lt[nb_lt]
+    if nb_disp.any():
+        reason[nb_disp] = count_reason(
+            nb_disp, ": variance clearly above the mean (ratio ", a.vmr)
+    if nb_lt.any():
+        reason[nb_lt] = count_reason(
+            nb_lt, ": the lead time varies, which widens demand over it (variance/mean ",
+            lt_ratio)
+    model[normal] = "normal"
     model[gamma] = "gamma"
-    reason[gamma] = r_gamma[gamma]
+    if gamma.any():
+        reason[gamma] = np.char.add(
+            head(gamma, "skewed or small demand in fractional quantities: ",
+                 " units over the lead time, sd/mean "),
+            np.char.mod("%.2f", cv_text[gamma]))
     reason[no_sales] = "no sales in the history"
 
     if forced is not None:
