@@ -109,12 +109,16 @@ class HistoryAnalysis:
 
 def _row_stats(x: np.ndarray, mask: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Count, mean and sample sd (ddof=1) of x over mask, per row; NaN where undefined."""
-    n = mask.sum(axis=1)
-    filled = np.where(mask, x, 0.0)
+    n = np.count_nonzero(mask, axis=1)
+    outside = ~mask
+    buf = x.copy()
+    np.copyto(buf, 0.0, where=outside)  # = np.where(mask, x, 0.0), in one buffer
     with np.errstate(invalid="ignore", divide="ignore"):
-        mean = np.where(n > 0, filled.sum(axis=1) / np.maximum(n, 1), np.nan)
-        dev = np.where(mask, x - mean[:, None], 0.0)  # two-pass: accurate for large means
-        ss = (dev * dev).sum(axis=1)
+        mean = np.where(n > 0, buf.sum(axis=1) / np.maximum(n, 1), np.nan)
+        np.subtract(x, mean[:, None], out=buf)  # two-pass: accurate for large means
+        np.copyto(buf, 0.0, where=outside)
+        np.multiply(buf, buf, out=buf)
+        ss = buf.sum(axis=1)
         sd = np.where(n >= 2, np.sqrt(ss / np.maximum(n - 1, 1)), np.nan)
     return n, mean, sd
 
@@ -228,9 +232,10 @@ def analyse_history(
                               for f in fields(HistoryAnalysis)})
 
 
-#: Items analysed at a time (see analyse_history): 16,384 x 104 weekly periods is 13 MB a
-#: temporary array, against 83 MB for 100,000 items at once.
-ANALYSIS_BLOCK = 16_384
+#: Items analysed at a time (see analyse_history): 8,192 x 104 weekly periods is 7 MB a
+#: temporary array (35 MB for the seasonality's five stacked sums), against 83 MB for
+#: 100,000 items at once.
+ANALYSIS_BLOCK = 8_192
 
 
 def _analyse_block(m: np.ndarray, periods_per_year: float, start: ArrayLike | None,
@@ -258,7 +263,15 @@ def _analyse_block(m: np.ndarray, periods_per_year: float, start: ArrayLike | No
 
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
         # --- whole numbers (count data), on the raw values ------------------------------
-        frac = np.abs(m - np.round(m)) > 1e-9 * np.maximum(1.0, np.abs(m))
+        # |m - round(m)| > 1e-9 max(1, |m|), in two buffers
+        off = np.round(m)
+        np.subtract(m, off, out=off)
+        np.abs(off, out=off)
+        tol = np.abs(m)
+        np.maximum(tol, 1.0, out=tol)
+        np.multiply(tol, 1e-9, out=tol)
+        frac = off > tol
+        del off, tol
         whole = span.any(axis=1) & ~(span & frac).any(axis=1)
 
         # --- outliers, on the raw values -----------------------------------------------
@@ -400,16 +413,17 @@ def _croston(
     p = np.full(n_items, np.nan)
     last = np.where(explicit, begin - 1, -1).astype(np.int64)
     known = explicit.copy()
-    for t in range(n_cols):
-        hit = sale[:, t]
-        if not hit.any():
-            continue
-        d = x[:, t]
+    # periods as rows: each step reads one contiguous row instead of a strided column
+    x_t = np.ascontiguousarray(x.T)
+    sale_t = np.ascontiguousarray(sale.T)
+    for t in np.flatnonzero(sale_t.any(axis=1)):
+        hit = sale_t[t]
+        d = x_t[t]
         z = np.where(hit, np.where(np.isnan(z), d, z + alpha * (d - z)), z)
-        q = t - last
+        q = int(t) - last
         ok = hit & known
         p = np.where(ok, np.where(np.isnan(p), q, p + alpha * (q - p)), p)
-        last = np.where(hit, t, last)
+        last = np.where(hit, int(t), last)
         known = known | hit
     croston = z / p
     return croston, (1.0 - alpha / 2.0) * croston
@@ -473,24 +487,47 @@ def _seasonality(
     season, ppy = found
     g = int(season.max()) + 1
     onehot = (season[:, None] == np.arange(g)[None, :]).astype(float)
-    maskf = span.astype(float)
     cols = np.arange(n_cols, dtype=float)
+    outside = ~span
 
-    # straight-line detrend per item
+    # straight-line detrend per item (each array is 0 outside the span, as np.where gives)
     nn = np.maximum(n, 1)
-    tbar = (maskf * cols).sum(axis=1) / nn
-    tc = np.where(span, cols[None, :] - tbar[:, None], 0.0)
-    y0 = np.where(span, x - mean[:, None], 0.0)
+    tbar = np.where(span, cols[None, :], 0.0).sum(axis=1) / nn
+    tc = np.subtract.outer(-tbar, -cols)  # cols - tbar, item by column
+    np.copyto(tc, 0.0, where=outside)
+    y0 = x - mean[:, None]
+    np.copyto(y0, 0.0, where=outside)
     sxx = (tc * tc).sum(axis=1)
     slope = np.where(sxx > 0, (tc * y0).sum(axis=1) / np.where(sxx > 0, sxx, 1.0), 0.0)
-    resid = np.where(span, y0 - slope[:, None] * tc, 0.0)
-
-    cnt = maskf @ onehot
-    sums = resid @ onehot
+    # the residuals, the same kept to the span's first year and to the rest, and the span
+    # and its first year as 0/1, in one buffer: one matrix product gives the five sums by
+    # season (the counts are whole numbers, so exact however they are summed)
+    first_year = span & (cols[None, :] < (begin + ppy)[:, None])
+    later = span & ~first_year
+    parts = np.empty((5, n_items, n_cols))
+    resid = parts[0]
+    np.multiply(slope[:, None], tc, out=resid)
+    np.subtract(y0, resid, out=resid)
+    np.copyto(resid, 0.0, where=outside)
+    np.copyto(parts[1], resid)
+    np.copyto(parts[1], 0.0, where=~first_year)
+    np.copyto(parts[2], resid)
+    np.copyto(parts[2], 0.0, where=~later)
+    np.copyto(parts[3], span)
+    np.copyto(parts[4], first_year)
+    by_season = (parts.reshape(5 * n_items, n_cols) @ onehot).reshape(5, n_items, g)
+    sums, sums_a, sums_b, cnt, ca = by_season
+    del parts
     gmean = np.where(cnt > 0, sums / np.where(cnt > 0, cnt, 1.0), 0.0)
     seen = (cnt > 0).sum(axis=1)
     ssb = (cnt * gmean * gmean).sum(axis=1)  # residuals have mean 0 over the span
-    within = np.where(span, resid - gmean @ onehot.T, 0.0)
+    # each cell less its season's mean (a product with 0/1 weights picks one term; where a
+    # mean is not finite, the product's own NaN/inf pattern is kept for that item)
+    within = resid - gmean[:, season]
+    odd = ~np.isfinite(gmean).all(axis=1)
+    if odd.any():
+        within[odd] = resid[odd] - gmean[odd] @ onehot.T
+    np.copyto(within, 0.0, where=outside)
     ssw = (within * within).sum(axis=1)
     df1 = seen - 1
     df2 = n - seen - 1
@@ -509,13 +546,9 @@ def _seasonality(
     strength = np.where(tested, strength, np.nan)
 
     # repetition: first year of the span vs everything after it
-    offset = np.arange(n_cols)[None, :] - begin[:, None]
-    first_year = span & (offset < ppy)
-    later = span & (offset >= ppy)
-    ca = first_year.astype(float) @ onehot
-    cb = later.astype(float) @ onehot
-    pa = np.where(ca > 0, np.where(first_year, resid, 0.0) @ onehot / np.maximum(ca, 1), 0.0)
-    pb = np.where(cb > 0, np.where(later, resid, 0.0) @ onehot / np.maximum(cb, 1), 0.0)
+    cb = cnt - ca
+    pa = np.where(ca > 0, sums_a / np.maximum(ca, 1), 0.0)
+    pb = np.where(cb > 0, sums_b / np.maximum(cb, 1), 0.0)
     w = (ca > 0) & (cb > 0)
     nw = w.sum(axis=1)
     da = np.where(w, pa - (w * pa).sum(axis=1, keepdims=True) / np.maximum(nw, 1)[:, None], 0.0)
