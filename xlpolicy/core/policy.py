@@ -599,44 +599,59 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
 
         # Whole R for a given Q under the shortage cost: 1 - F(R) = Q H / (p D), then the
         # cheaper of floor and ceil. Where Q H / (p D) >= 1 no safety stock pays: R = mu_L.
+        # Worked out for the shortage-cost items only (k), with their own model.
+        k_sc = np.flatnonzero(sc)
+        model_sc = _subset_model(model, model_factory, muw, sgw, k_sc)
+        H_k, mu_k, pD_k, nopay_k = Hw[k_sc], muw[k_sc], pD[k_sc], nopay[k_sc]
+
         def sc_reorder(q: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-            ratio_q = np.where(pD > 0, q * Hw / pD, np.inf)
-            no_ss_q = sc & (nopay | (ratio_q >= 1.0))
+            ratio_q = np.where(pD_k > 0, q * H_k / pD_k, np.inf)
+            no_ss_q = nopay_k | (ratio_q >= 1.0)
             r_cont = np.where(
-                no_ss_q, muw, model.upper_quantile(np.where(no_ss_q, 0.5, ratio_q))
+                no_ss_q, mu_k, model_sc.upper_quantile(np.where(no_ss_q, 0.5, ratio_q))
             )
             r_lo, r_hi = np.floor(r_cont), np.ceil(r_cont)
 
             def r_cost(r: np.ndarray) -> np.ndarray:
-                return Hw * (r - muw) + pD / q * model.expected_shortage(r)
+                return H_k * (r - mu_k) + pD_k / q * model_sc.expected_shortage(r)
 
             return np.where(r_cost(r_hi) < r_cost(r_lo), r_hi, r_lo), no_ss_q
 
         def sc_cost(q: np.ndarray, r: np.ndarray) -> np.ndarray:
             """Expected annual cost with backorders (Hadley & Whitin 1963), R floored at 0."""
             r0 = np.maximum(r, 0.0)
-            return (Dw * Sw / q + Hw * (q / 2.0 + r0 - muw)
-                    + pD / q * model.expected_shortage(r0))
+            return (Dw[k_sc] * Sw[k_sc] / q + H_k * (q / 2.0 + r0 - mu_k)
+                    + pD_k / q * model_sc.expected_shortage(r0))
 
         # Service measures: the cheaper pack multiple on the EOQ cost curve. Shortage cost:
         # the pack multiple below or above the optimum whose whole (Q, R) costs less in full.
-        q_std = round_order_qty(q_cont, packw, moqw, Dw, s_eff, Hw)
-        q_lo, q_hi, _ = _order_candidates(q_cont, packw, moqw)
-        r_sc_lo, no_ss_lo = sc_reorder(q_lo)
-        r_sc_hi, no_ss_hi = sc_reorder(q_hi)
-        take_hi = sc_cost(q_hi, r_sc_hi) < sc_cost(q_lo, r_sc_lo)
-        Q = np.where(sc, np.where(take_hi, q_hi, q_lo), q_std)
-        r_sc = np.where(take_hi, r_sc_hi, r_sc_lo)
-        no_ss = np.where(take_hi, no_ss_hi, no_ss_lo)
+        Q = round_order_qty(q_cont, packw, moqw, Dw, s_eff, Hw)
+        r_sc = np.zeros(n)  # the shortage-cost reorder point (0 for the other items)
+        no_ss = np.zeros(n, dtype=bool)
+        if k_sc.size:
+            q_lo, q_hi, _ = _order_candidates(q_cont[k_sc], packw[k_sc], moqw[k_sc])
+            r_sc_lo, no_ss_lo = sc_reorder(q_lo)
+            r_sc_hi, no_ss_hi = sc_reorder(q_hi)
+            take_hi = sc_cost(q_hi, r_sc_hi) < sc_cost(q_lo, r_sc_lo)
+            Q[k_sc] = np.where(take_hi, q_hi, q_lo)
+            r_sc[k_sc] = np.where(take_hi, r_sc_hi, r_sc_lo)
+            no_ss[k_sc] = np.where(take_hi, no_ss_hi, no_ss_lo)
+
+        def sc_again(where: np.ndarray) -> None:
+            """The shortage-cost R again, for the items of ``where`` whose Q has changed."""
+            if not k_sc.size or not where[k_sc].any():
+                return
+            r_b, no_b = sc_reorder(Q[k_sc])
+            r_sc[k_sc] = np.where(where[k_sc], r_b, r_sc[k_sc])
+            no_ss[k_sc] = np.where(where[k_sc], no_b, no_ss[k_sc])
+
         if disc is not None and has_breaks.any():
             # The price-break quantity; the reorder point follows from it as usual. Under
             # the shortage-cost measure R is the cost-optimal one for that Q.
             hb = has_breaks & ok
             Q = np.where(hb, disc.order_qty, Q)
             q_cont = np.where(hb, disc.q_continuous, q_cont)
-            r_b, no_b = sc_reorder(Q)
-            r_sc = np.where(hb, r_b, r_sc)
-            no_ss = np.where(hb, no_b, no_ss)
+            sc_again(hb)
         # Shelf life: what the order quantity would be without it, then the cap.
         q_free = Q.copy()
         if disc_unc is not None and has_breaks.any():
@@ -649,9 +664,7 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
             # penalty does not count the cap's cost a second time
             q_cont = np.where(capped, np.minimum(q_cont, np.maximum(life_cont, floor_q)),
                               q_cont)
-            r_b, no_b = sc_reorder(Q)
-            r_sc = np.where(capped, r_b, r_sc)
-            no_ss = np.where(capped, no_b, no_ss)
+            sc_again(capped)
         # What the cap costs a year, on ordering + cycle holding + purchase at the price
         # each quantity pays (the EOQ cost curve; purchase only differs with price breaks).
         price_free = c
@@ -663,16 +676,22 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
             - (Dw * s_eff / q_free + i * price_free * q_free / 2.0 + Dw * price_free),
             np.nan)
 
-        # -- reorder points, each measure on the full arrays, then chosen by mask ------
-        r_cs = _smallest_whole(
-            _ceil_tol(model.quantile(tw)), lambda r: model.cdf(r) >= tw - PROB_TOL
-        )
-        r_fr = _smallest_whole(
-            _ceil_tol(model.min_r_for_shortage((1.0 - tw) * Q)),
-            lambda r: 1.0 - model.expected_shortage(r) / Q >= tw - PROB_TOL,
-        )
-
-        r_raw = np.where(is_cs, r_cs, np.where(is_fr, r_fr, r_sc))
+        # -- reorder points, each measure on its own items (0 for items not planned) ------
+        r_raw = r_sc
+        k_cs = np.flatnonzero(is_cs & ok)
+        if k_cs.size:
+            m_cs, t_cs = _subset_model(model, model_factory, muw, sgw, k_cs), tw[k_cs]
+            r_raw[k_cs] = _smallest_whole(
+                _ceil_tol(m_cs.quantile(t_cs)), lambda r: m_cs.cdf(r) >= t_cs - PROB_TOL
+            )
+        k_fr = np.flatnonzero(is_fr & ok)
+        if k_fr.size:
+            m_fr, t_fr, q_fr = (_subset_model(model, model_factory, muw, sgw, k_fr), tw[k_fr],
+                                Q[k_fr])
+            r_raw[k_fr] = _smallest_whole(
+                _ceil_tol(m_fr.min_r_for_shortage((1.0 - t_fr) * q_fr)),
+                lambda r: 1.0 - m_fr.expected_shortage(r) / q_fr >= t_fr - PROB_TOL,
+            )
         floored = ok & (r_raw < 0)
         R = np.maximum(r_raw, 0.0)
 
@@ -750,6 +769,18 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
         columns=list(POLICY_COLUMNS),
     )
     return frame
+
+
+def _subset_model(model: LeadTimeDemandModel, model_factory: ModelFactory, mean: np.ndarray,
+                  sd: np.ndarray, k: np.ndarray) -> LeadTimeDemandModel:
+    """The model of items k (the whole model when k is every item, in order).
+
+    Every model method works item by item, so a model of some items gives those items'
+    numbers exactly as the model of all items does.
+    """
+    if k.size == mean.shape[0]:
+        return model
+    return model_factory(mean[k], sd[k])
 
 
 def _discounts(inp: PolicyInputs, n: int, D: np.ndarray, S: np.ndarray, i: np.ndarray,
