@@ -524,25 +524,57 @@ class NegativeBinomialLeadTimeDemand(_CountModel):
         n, p, pois, mu_p, mu = prm
         return mu, np.where(pois, mu_p, mu / p)
 
+    # Each item is either Poisson (the fallback) or negative binomial: every function below
+    # evaluates each distribution on its own items only (_per_item), not both on all.
     def _cdf_raw(self, x: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
         n, p, pois, mu_p, _ = prm
-        return np.where(pois, stats.poisson.cdf(x, mu_p), stats.nbinom.cdf(x, n, p))
+        return _per_item(pois, lambda x_, m_: stats.poisson.cdf(x_, m_),
+                         lambda x_, n_, p_: stats.nbinom.cdf(x_, n_, p_),
+                         (x, mu_p), (x, n, p))
 
     def _sf_raw(self, x: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
         n, p, pois, mu_p, _ = prm
-        return np.where(pois, stats.poisson.sf(x, mu_p), stats.nbinom.sf(x, n, p))
+        return _per_item(pois, lambda x_, m_: stats.poisson.sf(x_, m_),
+                         lambda x_, n_, p_: stats.nbinom.sf(x_, n_, p_),
+                         (x, mu_p), (x, n, p))
 
     def _es_raw(self, x: np.ndarray, mean: np.ndarray,
                 prm: tuple[np.ndarray, ...]) -> np.ndarray:
         n, p, pois, mu_p, mu = prm
         k = np.floor(x)
-        nb = mu * stats.nbinom.sf(k - 1.0, n + 1.0, p) - x * stats.nbinom.sf(k, n, p)
-        po = mu_p * stats.poisson.sf(k - 1.0, mu_p) - x * stats.poisson.sf(k, mu_p)
-        return np.where(pois, po, nb)
+
+        def po(x_: np.ndarray, k_: np.ndarray, m_: np.ndarray) -> np.ndarray:
+            return m_ * stats.poisson.sf(k_ - 1.0, m_) - x_ * stats.poisson.sf(k_, m_)
+
+        def nb(x_: np.ndarray, k_: np.ndarray, mu_: np.ndarray, n_: np.ndarray,
+               p_: np.ndarray) -> np.ndarray:
+            return mu_ * stats.nbinom.sf(k_ - 1.0, n_ + 1.0, p_) - x_ * stats.nbinom.sf(k_, n_, p_)
+
+        return _per_item(pois, po, nb, (x, k, mu_p), (x, k, mu, n, p))
 
     def _scipy_ppf(self, p_: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
         n, p, pois, mu_p, _ = prm
-        return np.where(pois, stats.poisson.ppf(p_, mu_p), stats.nbinom.ppf(p_, n, p))
+        return _per_item(pois, lambda q_, m_: stats.poisson.ppf(q_, m_),
+                         lambda q_, n_, pp_: stats.nbinom.ppf(q_, n_, pp_),
+                         (p_, mu_p), (p_, n, p))
+
+
+def _per_item(mask: np.ndarray, f_true: Callable[..., np.ndarray],
+              f_false: Callable[..., np.ndarray], args_true: tuple[np.ndarray, ...],
+              args_false: tuple[np.ndarray, ...]) -> np.ndarray:
+    """np.where(mask, f_true(*args_true), f_false(*args_false)), each side evaluated only
+    on its own elements (the functions are elementwise, so the numbers are the same).
+
+    Every array has the shape of ``mask`` (the model's broadcast arrays).
+    """
+    mask = np.asarray(mask, dtype=bool)
+    out = np.empty(mask.shape)
+    rest = ~mask
+    if mask.any():
+        out[mask] = f_true(*(np.broadcast_to(a, mask.shape)[mask] for a in args_true))
+    if rest.any():
+        out[rest] = f_false(*(np.broadcast_to(a, mask.shape)[rest] for a in args_false))
+    return out
 
 
 # ---------------------------------------------------------------------------------------
