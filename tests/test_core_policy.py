@@ -527,3 +527,22 @@ def test_mixed_measures_and_models_give_each_item_its_own_numbers() -> None:
         while stats.poisson.cdf(r, mu) < inp.service_target[i] - 1e-12:
             r += 1
         assert batch["reorder_point"].iat[i] == max(r, 0)
+
+
+def test_model_names_once_per_distinct_value_equal_the_per_item_rule() -> None:
+    """item_model_names normalises each distinct name once; the reference is the per-item
+    rule itself (pandas strip + lower, missing -> "") applied to every item."""
+    from xlpolicy.core.policy import _normalised_names, item_model_names
+
+    rng = np.random.default_rng(3)
+    pool = np.array([" Normal", "POISSON ", "negative binomial", "Gamma", "auto", "bogus",
+                     "", None, np.nan], dtype=object)
+    names = pool[rng.integers(0, len(pool), 500)]
+    assert list(item_model_names(names, 500)) == list(_normalised_names(names))
+    text_only = pool[:7][rng.integers(0, 7, 500)]
+    got = item_model_names(text_only, 500)
+    assert list(got) == list(_normalised_names(text_only))
+    assert all(type(x) is str for x in got)
+    # numbers that hash alike but read differently stay apart (the per-item path)
+    mixed = np.array([1, 1.0, True, "Gamma"] * 30, dtype=object)
+    assert list(item_model_names(mixed, 120)[:4]) == ["1", "1.0", "true", "gamma"]

@@ -458,7 +458,7 @@ def evaluate_policy(order_qty: ArrayLike, reorder_point: ArrayLike, mean: ArrayL
     r, mu, sd_a, D, S, H, c, p = cols
     names = item_model_names(model, n)
     names[names == ""] = NormalLeadTimeDemand.name
-    out = pd.DataFrame(np.nan, index=pd.RangeIndex(n), columns=list(EVALUATION_COLUMNS))
+    out = {col: np.full(n, np.nan) for col in EVALUATION_COLUMNS}
     ok = np.isfinite(q) & (q > 0) & np.isfinite(r) & np.isfinite(mu) & np.isfinite(sd_a)
     for name in MODEL_NAMES:
         k = np.flatnonzero(ok & (names == name))
@@ -469,8 +469,8 @@ def evaluate_policy(order_qty: ArrayLike, reorder_point: ArrayLike, mean: ArrayL
         for col, key in zip(EVALUATION_COLUMNS, (
                 "safety_stock", "cycle_service", "fill_rate", "short", "ordering",
                 "cycle_hold", "ss_hold", "shortage", "total"), strict=True):
-            out.loc[k, col] = ach[key]
-    return out
+            out[col][k] = ach[key]
+    return pd.DataFrame(out, index=pd.RangeIndex(n), columns=list(EVALUATION_COLUMNS))
 
 
 def item_model_names(model: ArrayLike | None, n: int) -> np.ndarray:
@@ -482,9 +482,30 @@ def item_model_names(model: ArrayLike | None, n: int) -> np.ndarray:
     """
     if model is None:
         return np.full(n, "", dtype=object)
-    raw = pd.Series(np.broadcast_to(np.asarray(model, dtype=object), (n,)), dtype=object)
+    values = np.broadcast_to(np.asarray(model, dtype=object), (n,))
+    return _per_distinct(values, _normalised_names)
+
+
+def _normalised_names(values: np.ndarray) -> np.ndarray:
+    raw = pd.Series(values, dtype=object)
     text = raw.where(raw.notna(), "").astype(str).str.strip().str.lower()
     return text.to_numpy(dtype=object)
+
+
+def _per_distinct(values: np.ndarray, f: Callable[[np.ndarray], np.ndarray]) -> np.ndarray:
+    """f(values) for an elementwise text function f, computed once per distinct value.
+
+    A column of item names or measures holds a handful of distinct texts among 100,000
+    items. Only for text (and missing) values: numbers such as 1, 1.0 and True would be
+    one value to the hashing but three texts to f, so anything else takes f whole.
+    """
+    if len(values) < 64 or pd.api.types.infer_dtype(values, skipna=True) not in (
+            "string", "empty"):
+        return f(values)
+    codes, uniques = pd.factorize(values, use_na_sentinel=True)
+    if (codes < 0).any():  # missing values: f says what they become
+        return f(values)
+    return f(np.asarray(uniques, dtype=object))[codes]
 
 
 def _broadcast_inputs(inp: PolicyInputs, n: int) -> PolicyInputs:
@@ -522,7 +543,7 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
     pack = _column(inp.pack_size, n)
     moq = _column(inp.minimum_order, n)
     measure_raw = np.broadcast_to(np.asarray(inp.measure, dtype=object), (n,))
-    measure = np.char.lower(np.char.strip(measure_raw.astype(str)))
+    measure = _per_distinct(measure_raw, lambda v: np.char.lower(np.char.strip(v.astype(str))))
     is_cs = measure == CYCLE_SERVICE
     is_fr = measure == FILL_RATE
     is_sc = measure == SHORTAGE_COST
