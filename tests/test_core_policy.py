@@ -546,3 +546,29 @@ def test_model_names_once_per_distinct_value_equal_the_per_item_rule() -> None:
     # numbers that hash alike but read differently stay apart (the per-item path)
     mixed = np.array([1, 1.0, True, "Gamma"] * 30, dtype=object)
     assert list(item_model_names(mixed, 120)[:4]) == ["1", "1.0", "true", "gamma"]
+
+
+def test_smallest_whole_asking_each_point_once_equals_the_plain_rounds() -> None:
+    """_smallest_whole_at (each point asked once) against _smallest_whole (the reference:
+    two plain rounds) for monotone conditions r >= threshold, with starts below, at and
+    above the answer, and NaN, inf and huge starts."""
+    from xlpolicy.core.policy import _smallest_whole, _smallest_whole_at
+
+    rng = np.random.default_rng(8)
+    n = 4000
+    thr = rng.integers(-5, 50, n).astype(float) + rng.choice([0.0, 0.3], n)
+    start = np.ceil(thr) + rng.integers(-3, 4, n)
+    start[:6] = [np.nan, np.inf, -np.inf, 2.0 ** 60, -(2.0 ** 60), 2.0 ** 53 + 2]
+    asked = []
+
+    def at(r: np.ndarray, k: np.ndarray) -> np.ndarray:
+        asked.append(len(k))
+        return r >= thr[k]
+
+    want = _smallest_whole(start[6:], lambda r: r >= thr[6:])
+    got = _smallest_whole_at(start[6:], lambda r, k: at(r, k + 6))
+    np.testing.assert_array_equal(got, want)
+    assert sum(asked) < 4 * (n - 6)  # fewer points asked than the plain rounds
+    np.testing.assert_array_equal(  # the huge starts take the plain rounds
+        _smallest_whole_at(start, lambda r, k: r >= thr[k]),
+        _smallest_whole(start, lambda r: r >= thr))

@@ -182,6 +182,42 @@ def _smallest_whole(start: np.ndarray, meets: Callable[[np.ndarray], np.ndarray]
     return r
 
 
+#: Whole numbers up to this size are exact in float, so r - 1 + 1 == r (see below).
+_EXACT_WHOLE = 2.0 ** 52
+
+
+def _smallest_whole_at(start: np.ndarray,
+                       meets: Callable[[np.ndarray, np.ndarray], np.ndarray]) -> np.ndarray:
+    """:func:`_smallest_whole`, asking ``meets`` each point of each item only once.
+
+    ``meets(r, k)`` is the condition for the items k (indices into start) at points r.
+    The two rounds of _smallest_whole visit start - 1, start and at most one of start + 1
+    or start - 2 per item, and revisit the first two; a pure condition gives the same
+    answer there, so only the new points are asked (about half the evaluations). Starts
+    too large for exact whole-number steps take the plain rounds.
+    """
+    big = np.isfinite(start) & (np.abs(start) >= _EXACT_WHOLE)
+    if big.any():
+        every = np.arange(start.shape[0])
+        return _smallest_whole(start, lambda r: meets(r, every))
+    below = start - 1.0
+    a = meets(below, np.arange(start.shape[0]))  # meets(start - 1)
+    b = a.copy()  # meets(r) after the first step: r = start - 1 where a
+    k = np.flatnonzero(~a)
+    if k.size:
+        b[k] = meets(start[k], k)
+    r = np.where(a, below, np.where(b, start, start + 1.0))
+    k = np.flatnonzero(~a & ~b)  # at start + 1: is it enough, or start + 2
+    if k.size:
+        up = start[k] + 1.0
+        r[k] = np.where(meets(up, k), up, up + 1.0)
+    k = np.flatnonzero(a)  # at start - 1 (which meets): does start - 2 as well
+    if k.size:
+        down = below[k] - 1.0
+        r[k] = np.where(meets(down, k), down, below[k])
+    return r
+
+
 def _ceil_tol(x: np.ndarray) -> np.ndarray:
     """Ceiling that ignores float noise just above a whole number."""
     with np.errstate(all="ignore"):
@@ -702,17 +738,21 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
         k_cs = np.flatnonzero(is_cs & ok)
         if k_cs.size:
             m_cs, t_cs = _subset_model(model, model_factory, muw, sgw, k_cs), tw[k_cs]
-            r_raw[k_cs] = _smallest_whole(
-                _ceil_tol(m_cs.quantile(t_cs)), lambda r: m_cs.cdf(r) >= t_cs - PROB_TOL
-            )
+            mu_cs, sd_cs = muw[k_cs], sgw[k_cs]
+            r_raw[k_cs] = _smallest_whole_at(
+                _ceil_tol(m_cs.quantile(t_cs)),
+                lambda r, j: (_subset_model(m_cs, model_factory, mu_cs, sd_cs, j).cdf(r)
+                              >= t_cs[j] - PROB_TOL))
         k_fr = np.flatnonzero(is_fr & ok)
         if k_fr.size:
             m_fr, t_fr, q_fr = (_subset_model(model, model_factory, muw, sgw, k_fr), tw[k_fr],
                                 Q[k_fr])
-            r_raw[k_fr] = _smallest_whole(
+            mu_fr, sd_fr = muw[k_fr], sgw[k_fr]
+            r_raw[k_fr] = _smallest_whole_at(
                 _ceil_tol(m_fr.min_r_for_shortage((1.0 - t_fr) * q_fr)),
-                lambda r: 1.0 - m_fr.expected_shortage(r) / q_fr >= t_fr - PROB_TOL,
-            )
+                lambda r, j: (1.0 - _subset_model(m_fr, model_factory, mu_fr, sd_fr,
+                                                  j).expected_shortage(r) / q_fr[j]
+                              >= t_fr[j] - PROB_TOL))
         floored = ok & (r_raw < 0)
         R = np.maximum(r_raw, 0.0)
 
