@@ -428,11 +428,19 @@ def compute_policy(
         sub = replace(full, **{f.name: getattr(full, f.name)[idx] for f in fields(full)
                                if f.name != "days_per_period"
                                and getattr(full, f.name) is not None})
-        frame = _policy_group(sub, fac, usable=known[idx])
-        frame.index = idx
-        parts.append(frame)
-    out = pd.concat(parts).sort_index()
-    out.index = pd.RangeIndex(n)
+        parts.append((idx, _policy_group_columns(sub, fac, usable=known[idx])))
+    # each group's columns put back at its items' rows (what concatenating the groups'
+    # frames and sorting by row gave, without the frames; a whole-column scalar is an
+    # object column in such a frame, so it is one here too)
+    cols: dict[str, np.ndarray] = {}
+    for key in POLICY_COLUMNS:
+        values = [np.asarray(part[key], dtype=object if np.ndim(part[key]) == 0 else None)
+                  for _, part in parts]
+        col = np.empty(n, dtype=np.result_type(*values))
+        for (idx, _), v in zip(parts, values, strict=True):
+            col[idx] = v
+        cols[key] = col
+    out = pd.DataFrame(cols, index=pd.RangeIndex(n), columns=list(POLICY_COLUMNS))
     unknown = ~known
     if unknown.any():  # say which name was not understood, as the user wrote it
         given = pd.Series(full.model[unknown], dtype=object).astype(str).str.strip()
@@ -565,6 +573,13 @@ def _broadcast_inputs(inp: PolicyInputs, n: int) -> PolicyInputs:
 def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
                   usable: np.ndarray | None = None) -> pd.DataFrame:
     """compute_policy for items sharing one model factory; usable=False forces NaN numbers."""
+    return pd.DataFrame(_policy_group_columns(inp, model_factory, usable),
+                        columns=list(POLICY_COLUMNS))
+
+
+def _policy_group_columns(inp: PolicyInputs, model_factory: ModelFactory,
+                          usable: np.ndarray | None = None) -> dict[str, object]:
+    """The columns of :func:`_policy_group` (arrays, or a scalar for a whole column)."""
     D = np.asarray(inp.annual_demand, dtype=float).reshape(-1)
     n = D.shape[0]
     d = _column(inp.demand_per_period, n)
@@ -784,52 +799,48 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
     def out(x: np.ndarray) -> np.ndarray:
         return np.where(ok, x, np.nan)
 
-    frame = pd.DataFrame(
-        {
-            "annual_demand": D,
-            "demand_per_period": d,
-            "demand_sd_per_period": sd_d,
-            "lead_time_days": lt,
-            "lead_time_demand_mean": mu_l,
-            "lead_time_demand_sd": sig_l,
-            "service_measure": np.asarray(measure_raw, dtype=object),
-            "service_target": target,
-            "model": used,
-            "eoq": out(eoq),
-            "order_qty": out(Q),
-            "reorder_point": out(R),
-            "safety_stock": out(ss),
-            "cycle_service": out(cycle_service),
-            "fill_rate": out(fill),
-            "expected_units_short_per_cycle": out(short),
-            "orders_per_year": out(orders),
-            "annual_ordering_cost": out(ordering),
-            "annual_cycle_holding_cost": out(cycle_hold),
-            "annual_safety_holding_cost": out(ss_hold),
-            "annual_shortage_cost": out(shortage),
-            "annual_total_cost": out(total),
-            "annual_purchase_cost": out(purchase),
-            "average_inventory_value": out(avg_value),
-            "rounding_cost_ratio": out(rounding_ratio),
-            "rounding_penalty": out(np.maximum(rounding_penalty, 0.0)),
-            "flag_no_safety_stock_pays": ok & no_ss,
-            "flag_normal_doubtful": doubtful,
-            "flag_reorder_point_floored": floored,
-            "flag_shortage_cost_missing": is_sc & ~p_given,
-            "unit_price": out(c),
-            "shelf_life_days": np.where(has_life, life, np.nan),
-            "shelf_life_max_qty": out(np.where(has_life, cap_packs, np.nan)),
-            "shelf_life_cost": out(np.maximum(life_cost, 0.0)),
-            "flag_shelf_life_below_minimum": ok & life_short,
-            "price_break_qty": out(disc.break_qty) if disc is not None else np.nan,
-            "discount_saving": (out(np.where(has_breaks, disc.saving, np.nan))
-                                if disc is not None else np.nan),
-            "plain_eoq_qty": (out(np.where(has_breaks, disc.plain_qty, np.nan))
-                              if disc is not None else np.nan),
-        },
-        columns=list(POLICY_COLUMNS),
-    )
-    return frame
+    return {
+        "annual_demand": D,
+        "demand_per_period": d,
+        "demand_sd_per_period": sd_d,
+        "lead_time_days": lt,
+        "lead_time_demand_mean": mu_l,
+        "lead_time_demand_sd": sig_l,
+        "service_measure": np.asarray(measure_raw, dtype=object),
+        "service_target": target,
+        "model": used,
+        "eoq": out(eoq),
+        "order_qty": out(Q),
+        "reorder_point": out(R),
+        "safety_stock": out(ss),
+        "cycle_service": out(cycle_service),
+        "fill_rate": out(fill),
+        "expected_units_short_per_cycle": out(short),
+        "orders_per_year": out(orders),
+        "annual_ordering_cost": out(ordering),
+        "annual_cycle_holding_cost": out(cycle_hold),
+        "annual_safety_holding_cost": out(ss_hold),
+        "annual_shortage_cost": out(shortage),
+        "annual_total_cost": out(total),
+        "annual_purchase_cost": out(purchase),
+        "average_inventory_value": out(avg_value),
+        "rounding_cost_ratio": out(rounding_ratio),
+        "rounding_penalty": out(np.maximum(rounding_penalty, 0.0)),
+        "flag_no_safety_stock_pays": ok & no_ss,
+        "flag_normal_doubtful": doubtful,
+        "flag_reorder_point_floored": floored,
+        "flag_shortage_cost_missing": is_sc & ~p_given,
+        "unit_price": out(c),
+        "shelf_life_days": np.where(has_life, life, np.nan),
+        "shelf_life_max_qty": out(np.where(has_life, cap_packs, np.nan)),
+        "shelf_life_cost": out(np.maximum(life_cost, 0.0)),
+        "flag_shelf_life_below_minimum": ok & life_short,
+        "price_break_qty": out(disc.break_qty) if disc is not None else np.nan,
+        "discount_saving": (out(np.where(has_breaks, disc.saving, np.nan))
+                            if disc is not None else np.nan),
+        "plain_eoq_qty": (out(np.where(has_breaks, disc.plain_qty, np.nan))
+                          if disc is not None else np.nan),
+    }
 
 
 def _subset_model(model: LeadTimeDemandModel, model_factory: ModelFactory, mean: np.ndarray,
