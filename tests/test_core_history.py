@@ -431,3 +431,18 @@ def test_row_median_equals_numpy_nanmedian_to_the_bit() -> None:
     counts = (mask & ~np.isnan(x)).sum(axis=1)
     assert (counts % 2 == 0).any() and (counts % 2 == 1).any()
     assert _row_median(np.zeros((3, 0)), np.zeros((3, 0), bool)).shape == (3,)
+
+
+def test_two_significant_digits_by_table_equal_python_formatting() -> None:
+    """The reasons' short numbers below 10 come from a table where that is exact; the
+    reference is Python's own "%.2g" on every value, with values at and near the halves
+    (0.125, 2.05, 9.95) and the decade edges."""
+    from xlpolicy.core.history import _two_digits
+
+    rng = np.random.default_rng(29)
+    edges = np.array([0.1, 0.0995, 0.995, 0.9949999999, 9.95, 9.9499999, 9.9500001, 1.0,
+                      0.125, 0.375, 2.05, 2.25, 10 - 1e-12, -0.5, 0.0, -0.0, 1e-300])
+    x = np.concatenate([rng.uniform(0, 10, 200_000), np.exp(rng.uniform(-12, 2.3, 50_000)),
+                        np.arange(1000) / 100, np.arange(10_000) / 1000 + 0.0005, edges])
+    got = _two_digits(x)
+    assert list(got) == list(np.char.mod("%.2g", x))  # Python's % on each value

@@ -576,8 +576,36 @@ def _num(x: np.ndarray) -> np.ndarray:
     if big.any():
         out[big] = np.char.mod("%.0f", x[big])
     if (~big).any():
-        out[~big] = np.char.mod("%.2g", x[~big])
+        out[~big] = _two_digits(x[~big])
     return out.astype(str)
+
+
+#: "%.2g" of k / 10 and of k / 100 for k = 0 .. 100: the text of two significant digits.
+_TWO_DIGITS_HI = np.array(["%.2g" % (k / 10) for k in range(101)], dtype=object)
+_TWO_DIGITS_LO = np.array(["%.2g" % (k / 100) for k in range(101)], dtype=object)
+
+
+def _two_digits(x: np.ndarray) -> np.ndarray:
+    """np.char.mod("%.2g", x), looked up from a table for 0.1 <= x < 10.
+
+    There the text depends only on x rounded to two significant digits, round(10 x) or
+    round(100 x), which a product computes exactly unless it sits within a hair of a half
+    (a tie the exact binary value may fall either side of): those, and every other x,
+    are formatted by Python itself.
+    """
+    hi = (x >= 1.0) & (x < 10.0)
+    lo = (x >= 0.1) & (x < 1.0)
+    y = np.where(hi, x * 10.0, x * 100.0)
+    k = np.rint(y)
+    clear = (hi | lo) & (np.abs(y - np.floor(y) - 0.5) > 1e-6)
+    out = np.empty(x.shape, dtype=object)
+    ki = np.where(clear, k, 0).astype(np.int64)
+    out[clear & hi] = _TWO_DIGITS_HI[ki[clear & hi]]
+    out[clear & lo] = _TWO_DIGITS_LO[ki[clear & lo]]
+    rest = ~clear
+    if rest.any():
+        out[rest] = np.char.mod("%.2g", x[rest])
+    return out
 
 
 def choose_model(
