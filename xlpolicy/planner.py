@@ -51,7 +51,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
     """Plan every usable item and assemble the report (no writing)."""
     settings = data.settings
     items = data.items
-    df = items.df.copy()
+    df = items.df  # read only here
     n = len(df)
     ppy = float(settings["periods_per_year"])
     usable = items.usable.copy()
@@ -85,7 +85,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
     portfolio: dict[str, Any] = {}
     trace = None
     if len(idx):
-        sub = df.iloc[idx]
+        sub = df[list(_PLAN_INPUTS)].iloc[idx]  # the columns the policy reads, planned rows
         measure = np.full(len(idx), settings["service_measure"], dtype=object)
         inp = PolicyInputs(
             annual_demand=demand["annual"][idx],
@@ -130,7 +130,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
         for key in pol.columns:
             if key in results.columns:
                 _put(results, idx, key, pol[key].to_numpy())
-        _flag_problems(pol, df.iloc[idx], items, log)
+        _flag_problems(pol, df[["row", "item"]].iloc[idx], items, log)
     _periodic(results, df, planned, demand, target, settings, data, log)
     # The back-test simulates continuous review; items on periodic review are left out
     # (their order-up-to policy has no reorder point to replay).
@@ -165,6 +165,12 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
                   totals=totals, input_summary=summary, source_name=source_name,
                   run_date=run_date or _dt.date.today(), portfolio=portfolio,
                   trace=trace)
+
+
+#: The Items columns the policy reads.
+_PLAN_INPUTS = ("lead_time_days", "lead_time_sd_days", "unit_cost", "order_cost",
+                "holding_rate", "shortage_cost", "pack_size", "minimum_order",
+                "shelf_life_days", "review_period_days")
 
 
 def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
