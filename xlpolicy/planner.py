@@ -206,8 +206,7 @@ def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
     forced = _forced_models(df, settings)
     an = None
     if hist is not None and len(hist.items):
-        pos = hist.index()
-        where = np.array([pos.get(code, -1) for code in codes], dtype=np.int64)
+        where = _history_rows(hist.items, codes)
         has_hist = where >= 0
         w = where[has_hist]
         start = _history_starts(data, df, where, log)
@@ -305,6 +304,15 @@ def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
     return {"mean": mean, "sd": sd, "annual": mean * ppy, "periods": periods, "ok": ok,
             "source": source, "adi": adi, "cv2": cv2, "hist_row": hist_row,
             "span_start": span_start, **out_text}
+
+
+def _history_rows(history_items: list[str], codes: np.ndarray) -> np.ndarray:
+    """Each item's row in History, -1 where it has none (a hash lookup over all codes)."""
+    index = pd.Index(history_items, dtype=object)
+    if index.is_unique:
+        return index.get_indexer(pd.Index(codes, dtype=object)).astype(np.int64)
+    pos = {code: i for i, code in enumerate(history_items)}  # the last row of a repeated code
+    return np.array([pos.get(code, -1) for code in codes], dtype=np.int64)
 
 
 def _label(x: Any) -> str:
