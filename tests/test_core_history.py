@@ -446,3 +446,18 @@ def test_two_significant_digits_by_table_equal_python_formatting() -> None:
                         np.arange(1000) / 100, np.arange(10_000) / 1000 + 0.0005, edges])
     got = _two_digits(x)
     assert list(got) == list(np.char.mod("%.2g", x))  # Python's % on each value
+
+
+def test_upper_tails_equal_scipy_stats() -> None:
+    """The dispersion and seasonality p-values call scipy's special functions directly;
+    references: scipy.stats.chi2.sf and scipy.stats.f.sf, with 0, +inf and NaN."""
+    from scipy import special
+
+    from xlpolicy.core.history import _upper_tail
+
+    rng = np.random.default_rng(31)
+    x = np.concatenate([rng.gamma(1.0, 3.0, 5000), [0.0, np.inf, np.nan, 1e-300, 1e300]])
+    d1 = rng.integers(1, 120, x.size)
+    d2 = rng.integers(1, 120, x.size)
+    np.testing.assert_array_equal(_upper_tail(special.chdtrc, x, d1), stats.chi2.sf(x, d1))
+    np.testing.assert_array_equal(_upper_tail(special.fdtrc, x, d1, d2), stats.f.sf(x, d1, d2))

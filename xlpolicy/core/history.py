@@ -17,7 +17,7 @@ from dataclasses import dataclass, fields
 import numpy as np
 import pandas as pd
 from numpy.typing import ArrayLike
-from scipy import stats
+from scipy import special
 
 from xlpolicy.contract import DEMAND_MODELS
 
@@ -160,6 +160,22 @@ def _row_median(x: np.ndarray, mask: np.ndarray) -> np.ndarray:
     lo_idx = np.maximum(low, 0)
     med = (vals[rows, lo_idx] + vals[rows, hi_idx]) / 2.0
     return np.where(cnt > 0, med, np.nan)
+
+
+def _upper_tail(tail: np.ufunc, x: np.ndarray, *df: np.ndarray) -> np.ndarray:
+    """scipy.stats.chi2.sf(x, df) or f.sf(x, df1, df2) for positive degrees of freedom.
+
+    The same special function scipy's distribution calls (chdtrc, fdtrc), with its edges:
+    1 at or below 0, 0 at +inf, NaN for NaN; without the distribution's argument handling,
+    which cost more than the function itself here.
+    """
+    out = np.zeros(x.shape)
+    inside = (x > 0) & (x < np.inf)
+    if inside.any():
+        out[inside] = tail(*(d[inside] for d in df), x[inside])
+    out[x <= 0] = 1.0
+    out[np.isnan(x)] = np.nan
+    return out
 
 
 def _seasons(n_cols: int, periods_per_year: float) -> tuple[np.ndarray, int] | None:
@@ -348,7 +364,8 @@ def _analyse_block(m: np.ndarray, periods_per_year: float, start: ArrayLike | No
         disp_ok = (n >= 2) & (mean > 0) & np.isfinite(vmr)
         dfree = np.maximum(n - 1, 1)
         dispersion_p = np.where(
-            disp_ok, stats.chi2.sf(np.where(disp_ok, dfree * vmr, 0.0), dfree), np.nan
+            disp_ok, _upper_tail(special.chdtrc, np.where(disp_ok, dfree * vmr, 0.0), dfree),
+            np.nan
         )
 
         trend_ratio, trend = _trend(work, span, n)
@@ -539,7 +556,8 @@ def _seasonality(
     fstat = np.where(ssw > 0, (ssb / df1s) / np.where(ssw > 0, ssw / df2s, 1.0),
                      np.where(ssb > 0, np.inf, np.nan))
     pval = np.where(tested & ~np.isnan(fstat),
-                    stats.f.sf(np.where(np.isnan(fstat), 0.0, fstat), df1s, df2s), np.nan)
+                    _upper_tail(special.fdtrc, np.where(np.isnan(fstat), 0.0, fstat), df1s,
+                                df2s), np.nan)
 
     level = np.where(cnt > 0, gmean + mean[:, None], np.nan)
     hi = np.where(cnt > 0, level, -np.inf).max(axis=1)
