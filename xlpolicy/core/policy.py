@@ -6,8 +6,10 @@ optimum (Hadley & Whitin 1963; Nahmias, (Q, R) chapter). R is the smallest whole
 point meeting a cycle-service or fill-rate target, or the cost-optimal one. Lead-time demand
 follows a model per item (normal, Poisson, negative binomial or gamma; core.models): items
 are grouped by model and each group is computed at once. Everything is numpy over whole
-columns with masks per service measure; there is no per-item loop. Items whose inputs
-cannot give a policy get NaN numbers rather than an exception or a warning.
+columns; each service measure's reorder point is worked out on that measure's items only
+(every model method works item by item, so this gives the same numbers as computing all
+and choosing by mask); there is no per-item loop. Items whose inputs cannot give a policy
+get NaN numbers rather than an exception or a warning.
 """
 
 from __future__ import annotations
