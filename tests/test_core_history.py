@@ -409,3 +409,55 @@ def test_blocks_of_items_give_the_same_analysis(monkeypatch) -> None:
             np.testing.assert_array_equal(a, b, err_msg=f.name)
         else:
             assert (a == b).all(), f.name
+
+
+def test_row_median_equals_numpy_nanmedian_to_the_bit() -> None:
+    """The masked row median (sort + middle pair) against numpy's nanmedian, the reference
+    it replaces: odd and even counts, ties, NaN cells, fractional values and empty rows."""
+    from xlpolicy.core.history import _row_median
+
+    rng = np.random.default_rng(23)
+    scale = 10.0 ** rng.integers(0, 4, (2000, 1))  # whole numbers, or 1 to 3 decimals
+    x = np.round(rng.gamma(0.8, 5.0, (2000, 37)) * scale) / scale
+    x[rng.random(x.shape) < 0.03] = np.nan
+    mask = rng.random(x.shape) < rng.uniform(0.0, 1.0, (2000, 1))
+    mask[:5] = False  # empty rows
+    got = _row_median(x, mask)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN rows
+        want = np.nanmedian(np.where(mask, x, np.nan), axis=1)
+    np.testing.assert_array_equal(got, want)
+    assert np.isnan(got[:5]).all()
+    counts = (mask & ~np.isnan(x)).sum(axis=1)
+    assert (counts % 2 == 0).any() and (counts % 2 == 1).any()
+    assert _row_median(np.zeros((3, 0)), np.zeros((3, 0), bool)).shape == (3,)
+
+
+def test_two_significant_digits_by_table_equal_python_formatting() -> None:
+    """The reasons' short numbers below 10 come from a table where that is exact; the
+    reference is Python's own "%.2g" on every value, with values at and near the halves
+    (0.125, 2.05, 9.95) and the decade edges."""
+    from xlpolicy.core.history import _two_digits
+
+    rng = np.random.default_rng(29)
+    edges = np.array([0.1, 0.0995, 0.995, 0.9949999999, 9.95, 9.9499999, 9.9500001, 1.0,
+                      0.125, 0.375, 2.05, 2.25, 10 - 1e-12, -0.5, 0.0, -0.0, 1e-300])
+    x = np.concatenate([rng.uniform(0, 10, 200_000), np.exp(rng.uniform(-12, 2.3, 50_000)),
+                        np.arange(1000) / 100, np.arange(10_000) / 1000 + 0.0005, edges])
+    got = _two_digits(x)
+    assert list(got) == list(np.char.mod("%.2g", x))  # Python's % on each value
+
+
+def test_upper_tails_equal_scipy_stats() -> None:
+    """The dispersion and seasonality p-values call scipy's special functions directly;
+    references: scipy.stats.chi2.sf and scipy.stats.f.sf, with 0, +inf and NaN."""
+    from scipy import special
+
+    from xlpolicy.core.history import _upper_tail
+
+    rng = np.random.default_rng(31)
+    x = np.concatenate([rng.gamma(1.0, 3.0, 5000), [0.0, np.inf, np.nan, 1e-300, 1e300]])
+    d1 = rng.integers(1, 120, x.size)
+    d2 = rng.integers(1, 120, x.size)
+    np.testing.assert_array_equal(_upper_tail(special.chdtrc, x, d1), stats.chi2.sf(x, d1))
+    np.testing.assert_array_equal(_upper_tail(special.fdtrc, x, d1, d2), stats.f.sf(x, d1, d2))

@@ -492,3 +492,83 @@ def test_normal_doubtful_flag() -> None:
         demand_sd_per_period=np.array([30.0, 80.0, 0.5]), lead_time_days=7.0,
     ))
     assert out["flag_normal_doubtful"].tolist() == [False, True, True]
+
+
+def test_mixed_measures_and_models_give_each_item_its_own_numbers() -> None:
+    """Each measure's reorder point is worked out on that measure's items only: a batch
+    mixing the three measures and four models gives every item exactly the numbers it gets
+    alone. Reference for the cycle-service rows: brute force on scipy.stats, the smallest
+    whole R with P(X <= R) >= target (Poisson: scipy.stats.poisson)."""
+    rng = np.random.default_rng(41)
+    n = 60
+    measures = np.array(SERVICE_MEASURES, dtype=object)[rng.integers(0, 3, n)]
+    models = np.array(["normal", "poisson", "negative binomial", "gamma", ""],
+                      dtype=object)[rng.integers(0, 5, n)]
+    d = rng.uniform(0.5, 40.0, n)
+    inp = make_inputs(n, annual_demand=d * 52, demand_per_period=d,
+                      demand_sd_per_period=np.sqrt(d) * rng.uniform(0.6, 2.5, n),
+                      lead_time_days=rng.uniform(3, 30, n), measure=measures,
+                      service_target=rng.uniform(0.8, 0.99, n),
+                      shortage_cost=np.where(rng.random(n) < 0.9, rng.uniform(1, 80, n), np.nan),
+                      pack_size=rng.choice([1.0, 6.0], n))
+    inp.model = models
+    batch = compute_policy(inp)
+    for i in range(n):
+        alone = compute_policy(PolicyInputs(**{
+            f: (v[i:i + 1] if isinstance(v, np.ndarray) else v)
+            for f, v in vars(inp).items()}))
+        pd.testing.assert_frame_equal(batch.iloc[[i]].reset_index(drop=True), alone,
+                                      check_exact=True)
+    cs = (measures == "cycle service") & (models == "poisson")
+    assert cs.any()
+    for i in np.flatnonzero(cs):
+        mu = batch["lead_time_demand_mean"].iat[i]
+        r = 0
+        while stats.poisson.cdf(r, mu) < inp.service_target[i] - 1e-12:
+            r += 1
+        assert batch["reorder_point"].iat[i] == max(r, 0)
+
+
+def test_model_names_once_per_distinct_value_equal_the_per_item_rule() -> None:
+    """item_model_names normalises each distinct name once; the reference is the per-item
+    rule itself (pandas strip + lower, missing -> "") applied to every item."""
+    from xlpolicy.core.policy import _normalised_names, item_model_names
+
+    rng = np.random.default_rng(3)
+    pool = np.array([" Normal", "POISSON ", "negative binomial", "Gamma", "auto", "bogus",
+                     "", None, np.nan], dtype=object)
+    names = pool[rng.integers(0, len(pool), 500)]
+    assert list(item_model_names(names, 500)) == list(_normalised_names(names))
+    text_only = pool[:7][rng.integers(0, 7, 500)]
+    got = item_model_names(text_only, 500)
+    assert list(got) == list(_normalised_names(text_only))
+    assert all(type(x) is str for x in got)
+    # numbers that hash alike but read differently stay apart (the per-item path)
+    mixed = np.array([1, 1.0, True, "Gamma"] * 30, dtype=object)
+    assert list(item_model_names(mixed, 120)[:4]) == ["1", "1.0", "true", "gamma"]
+
+
+def test_smallest_whole_asking_each_point_once_equals_the_plain_rounds() -> None:
+    """_smallest_whole_at (each point asked once) against _smallest_whole (the reference:
+    two plain rounds) for monotone conditions r >= threshold, with starts below, at and
+    above the answer, and NaN, inf and huge starts."""
+    from xlpolicy.core.policy import _smallest_whole, _smallest_whole_at
+
+    rng = np.random.default_rng(8)
+    n = 4000
+    thr = rng.integers(-5, 50, n).astype(float) + rng.choice([0.0, 0.3], n)
+    start = np.ceil(thr) + rng.integers(-3, 4, n)
+    start[:6] = [np.nan, np.inf, -np.inf, 2.0 ** 60, -(2.0 ** 60), 2.0 ** 53 + 2]
+    asked = []
+
+    def at(r: np.ndarray, k: np.ndarray) -> np.ndarray:
+        asked.append(len(k))
+        return r >= thr[k]
+
+    want = _smallest_whole(start[6:], lambda r: r >= thr[6:])
+    got = _smallest_whole_at(start[6:], lambda r, k: at(r, k + 6))
+    np.testing.assert_array_equal(got, want)
+    assert sum(asked) < 4 * (n - 6)  # fewer points asked than the plain rounds
+    np.testing.assert_array_equal(  # the huge starts take the plain rounds
+        _smallest_whole_at(start, lambda r, k: r >= thr[k]),
+        _smallest_whole(start, lambda r: r >= thr))

@@ -182,3 +182,21 @@ def test_slow_mover_policy_meets_its_target_under_the_true_distribution():
     achieved = stats.poisson.cdf(pol["reorder_point"].to_numpy(), 1.6)
     assert abs(achieved.mean() - 0.95) < 0.02
     assert (model == "poisson").mean() > 0.8
+
+
+def test_history_rows_by_hash_lookup_equal_the_dictionary_rule() -> None:
+    """Items find their History row by a hash index; the reference is the rule it replaces,
+    a dictionary from code to row (the last row of a repeated code), item by item."""
+    from xlpolicy.planner import _history_rows
+
+    rng = np.random.default_rng(5)
+    pool = [f"{k:06d}" for k in range(400)] + ["123", "0123", "A-1", "a-1"]
+    hist = list(rng.choice(pool, 300, replace=False))
+    codes = np.array(list(rng.choice(pool, 1000)), dtype=object)
+    for items in (hist, hist + hist[:7]):  # unique, and with repeated codes
+        pos = {code: i for i, code in enumerate(items)}
+        want = np.array([pos.get(c, -1) for c in codes], dtype=np.int64)
+        got = _history_rows(items, codes)
+        assert got.dtype == np.int64
+        np.testing.assert_array_equal(got, want)
+    assert (_history_rows(hist, codes) == -1).any()

@@ -51,7 +51,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
     """Plan every usable item and assemble the report (no writing)."""
     settings = data.settings
     items = data.items
-    df = items.df.copy()
+    df = items.df  # read only here
     n = len(df)
     ppy = float(settings["periods_per_year"])
     usable = items.usable.copy()
@@ -59,29 +59,33 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
     demand = _demand(data, df, usable, ppy, log)
     planned = usable & demand["ok"]
 
-    results = pd.DataFrame(index=range(n), columns=list(ALL_RESULT_KEYS), dtype=object)
-    for key in ("item", "description", "category", "supplier", "unit_cost", "order_cost",
-                "holding_rate", "shortage_cost", "pack_size", "minimum_order",
-                "shelf_life_days"):
-        results[key] = df[key].to_numpy()
-    for key in ("demand_source", "history_periods", "model", "model_reason", "demand_class",
-                "rate_method", "adi", "cv2", "history_start"):
-        results[key] = demand["source" if key == "demand_source" else
-                              "periods" if key == "history_periods" else key]
-    results["service_measure"] = settings["service_measure"]
-
     # Classes first, from annual demand x unit cost (neither depends on the service target),
     # then each item's target: its own, else its class's, else the Settings default.
     abc = _abc(df, demand["annual"], planned, settings)
     target, target_source = _class_targets(df, items.own_target, abc, settings)
-    results["abc_class"] = abc
-    results["service_target_source"] = target_source
+
+    # The table is made once from its first columns: numbers in float columns from the start
+    # (as _typed leaves them), text in object ones (pandas makes text columns str).
+    first: dict[str, Any] = {key: np.full(n, np.nan, dtype=object if key in TEXT_RESULT_KEYS
+                                          else float) for key in ALL_RESULT_KEYS}
+    for key in ("item", "description", "category", "supplier", "unit_cost", "order_cost",
+                "holding_rate", "shortage_cost", "pack_size", "minimum_order",
+                "shelf_life_days"):
+        first[key] = df[key].to_numpy()
+    for key in ("demand_source", "history_periods", "model", "model_reason", "demand_class",
+                "rate_method", "adi", "cv2", "history_start"):
+        first[key] = demand["source" if key == "demand_source" else
+                            "periods" if key == "history_periods" else key]
+    first["service_measure"] = np.full(n, settings["service_measure"], dtype=object)
+    first["abc_class"] = abc
+    first["service_target_source"] = target_source
+    results = pd.DataFrame(first)
 
     idx = np.flatnonzero(planned)
     portfolio: dict[str, Any] = {}
     trace = None
     if len(idx):
-        sub = df.iloc[idx]
+        sub = df[list(_PLAN_INPUTS)].iloc[idx]  # the columns the policy reads, planned rows
         measure = np.full(len(idx), settings["service_measure"], dtype=object)
         inp = PolicyInputs(
             annual_demand=demand["annual"][idx],
@@ -125,8 +129,8 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
                          code="portfolio-periodic-left-out")
         for key in pol.columns:
             if key in results.columns:
-                results.loc[idx, key] = pol[key].to_numpy()
-        _flag_problems(pol, df.iloc[idx], items, log)
+                _put(results, idx, key, pol[key].to_numpy())
+        _flag_problems(pol, df[["row", "item"]].iloc[idx], items, log)
     _periodic(results, df, planned, demand, target, settings, data, log)
     # The back-test simulates continuous review; items on periodic review are left out
     # (their order-up-to policy has no reorder point to replay).
@@ -163,6 +167,12 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
                   trace=trace)
 
 
+#: The Items columns the policy reads.
+_PLAN_INPUTS = ("lead_time_days", "lead_time_sd_days", "unit_cost", "order_cost",
+                "holding_rate", "shortage_cost", "pack_size", "minimum_order",
+                "shelf_life_days", "review_period_days")
+
+
 def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
             log: ProblemLog) -> dict[str, np.ndarray]:
     """Demand per period (rate, sd), per year, and the lead-time demand model, per item.
@@ -196,8 +206,7 @@ def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
     forced = _forced_models(df, settings)
     an = None
     if hist is not None and len(hist.items):
-        pos = hist.index()
-        where = np.array([pos.get(code, -1) for code in codes], dtype=np.int64)
+        where = _history_rows(hist.items, codes)
         has_hist = where >= 0
         w = where[has_hist]
         start = _history_starts(data, df, where, log)
@@ -295,6 +304,15 @@ def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
     return {"mean": mean, "sd": sd, "annual": mean * ppy, "periods": periods, "ok": ok,
             "source": source, "adi": adi, "cv2": cv2, "hist_row": hist_row,
             "span_start": span_start, **out_text}
+
+
+def _history_rows(history_items: list[str], codes: np.ndarray) -> np.ndarray:
+    """Each item's row in History, -1 where it has none (a hash lookup over all codes)."""
+    index = pd.Index(history_items, dtype=object)
+    if index.is_unique:
+        return index.get_indexer(pd.Index(codes, dtype=object)).astype(np.int64)
+    pos = {code: i for i, code in enumerate(history_items)}  # the last row of a repeated code
+    return np.array([pos.get(code, -1) for code in codes], dtype=np.int64)
 
 
 def _label(x: Any) -> str:
@@ -466,7 +484,7 @@ def _periodic(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray,
         sub["shortage_cost"].to_numpy(float), model=results["model"].to_numpy(object)[k])
     for key in pol.columns:
         if key in results.columns:
-            results.loc[k, key] = pol[key].to_numpy()
+            _put(results, k, key, pol[key].to_numpy())
     # what belongs to continuous review only
     results.loc[k, ["reorder_point", "eoq", "rounding_penalty", "rounding_cost_ratio",
                     "price_break_qty", "plain_eoq_qty", "discount_saving",
@@ -575,14 +593,26 @@ def _abc_and_today(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray,
                      ("current_annual_safety_holding_cost", "annual_safety_holding_cost"),
                      ("current_annual_shortage_cost", "annual_shortage_cost"),
                      ("current_annual_total_cost", "annual_total_cost")):
-        results.loc[k, key] = ev[src].to_numpy()
-    results.loc[k, "annual_saving"] = ev["annual_total_cost"].to_numpy() - col(
-        "annual_total_cost")
+        _put(results, k, key, ev[src].to_numpy())
+    _put(results, k, "annual_saving", ev["annual_total_cost"].to_numpy() - col(
+        "annual_total_cost"))
+
+
+def _put(results: pd.DataFrame, rows: np.ndarray, key: str, values: np.ndarray) -> None:
+    """results.loc[rows, key] = values, by numpy for a number column (pandas for text)."""
+    if results[key].dtype != np.float64:
+        results.loc[rows, key] = values
+        return
+    col = results[key].to_numpy(dtype=float, copy=True)
+    col[rows] = pd.to_numeric(pd.Series(values, dtype=object), errors="coerce").to_numpy(float) \
+        if np.asarray(values).dtype == object else values
+    results[key] = col
 
 
 def _typed(results: pd.DataFrame) -> pd.DataFrame:
+    """Every column but the text ones as float (numbers already are; anything else coerced)."""
     for key in results.columns:
-        if key not in TEXT_RESULT_KEYS:
+        if key not in TEXT_RESULT_KEYS and results[key].dtype != np.float64:
             results[key] = pd.to_numeric(results[key], errors="coerce").astype(float)
     return results
 
@@ -603,16 +633,20 @@ def _reorder_list(results: pd.DataFrame, df: pd.DataFrame) -> pd.DataFrame:
 
 
 def _totals(results: pd.DataFrame, reorder: pd.DataFrame) -> dict[str, float]:
-    ok = results["status"] != STATUS_SKIPPED
-    r = results[ok]
+    ok = (results["status"] != STATUS_SKIPPED).to_numpy()
+
+    def col(key: str) -> np.ndarray:
+        return results[key].to_numpy(float)
 
     def s(key: str) -> float:
-        return float(np.nansum(r[key].to_numpy(float)))
+        return float(np.nansum(col(key)[ok]))
 
     avg_value = s("average_inventory_value")
     purchase = s("annual_purchase_cost")
-    compared = results["annual_saving"].notna()
-    ss_value = float(np.nansum((r["safety_stock"].clip(lower=0) * r["unit_cost"]).to_numpy(float)))
+    compared = ~np.isnan(col("annual_saving"))
+    ss = col("safety_stock")[ok]
+    ss = np.where((ss >= 0) | np.isnan(ss), ss, 0.0)  # clipped at 0, as Series.clip(lower=0)
+    ss_value = float(np.nansum(ss * col("unit_cost")[ok]))
     return {
         "items_planned": float(ok.sum()),
         "items_warning": float((results["status"] == STATUS_WARNING).sum()),
@@ -631,16 +665,16 @@ def _totals(results: pd.DataFrame, reorder: pd.DataFrame) -> dict[str, float]:
         "rounding_penalty": s("rounding_penalty"),
         "discount_saving": s("discount_saving"),
         "shelf_life_cost": s("shelf_life_cost"),
-        "items_capped_by_shelf_life": float((r["shelf_life_cost"] > 0).sum()),
-        "items_with_price_breaks": float(r["discount_saving"].notna().sum()),
+        "items_capped_by_shelf_life": float((col("shelf_life_cost")[ok] > 0).sum()),
+        "items_with_price_breaks": float((~np.isnan(col("discount_saving")[ok])).sum()),
         "items_to_reorder": float(len(reorder)),
         "reorder_value": float(np.nansum(reorder["order_now_value"].to_numpy(float))),
         "items_compared": float(compared.sum()),
         "current_annual_total_cost": float(np.nansum(
-            results.loc[compared, "current_annual_total_cost"].to_numpy(float))),
+            col("current_annual_total_cost")[compared])),
         "compared_recommended_annual_total_cost": float(np.nansum(
-            results.loc[compared, "annual_total_cost"].to_numpy(float))),
-        "annual_saving": float(np.nansum(results.loc[compared, "annual_saving"].to_numpy(float))),
+            col("annual_total_cost")[compared])),
+        "annual_saving": float(np.nansum(col("annual_saving")[compared])),
     }
 
 

@@ -260,6 +260,41 @@ def _first_whole(pred: Callable[[np.ndarray], np.ndarray], guess: np.ndarray) ->
     return np.where(np.isfinite(lo), hi, np.inf)
 
 
+def _first_whole_at(pred: Callable[[np.ndarray, np.ndarray], np.ndarray],
+                    guess: np.ndarray) -> np.ndarray:
+    """:func:`_first_whole` for 1-D items, asking ``pred(k, j)`` only for the items j
+    still searching (each round of the full version asks every item).
+
+    Same steps as _first_whole, so the same answer for a predicate that turns from False
+    to True once: gallop from the guess to a bracket, then bisect on whole numbers.
+    """
+    g = np.maximum(np.where(np.isfinite(guess), np.floor(guess), 0.0), 0.0)
+    at = pred(g, np.arange(g.shape[0]))
+    hi = np.where(at, g, np.inf)  # pred(hi) is True
+    lo = np.where(at, -np.inf, g)  # pred(lo) is False
+    step = 1.0
+    for _ in range(_SEARCH_STEPS):
+        j = np.flatnonzero(~np.isfinite(lo) | ~np.isfinite(hi))
+        if not j.size:
+            break
+        need_lo = ~np.isfinite(lo[j])
+        probe = np.where(need_lo, np.maximum(hi[j] - step, -1.0), lo[j] + step)
+        hit = pred(probe, j)
+        hi[j] = np.where(hit, probe, hi[j])
+        lo[j] = np.where(~hit | (probe <= -1.0), probe, lo[j])
+        step *= 2.0
+    for _ in range(_SEARCH_STEPS + 2):
+        gap = hi - lo
+        j = np.flatnonzero(np.isfinite(gap) & (gap > 1.0))
+        if not j.size:
+            break
+        mid = np.floor(0.5 * (lo[j] + hi[j]))
+        hit = pred(mid, j)
+        hi[j] = np.where(hit, mid, hi[j])
+        lo[j] = np.where(~hit, mid, lo[j])
+    return np.where(np.isfinite(lo), hi, np.inf)
+
+
 class _NonNormalModel(LeadTimeDemandModel):
     """Common parts of the Poisson, negative binomial and gamma models.
 
@@ -410,6 +445,22 @@ class _CountModel(_NonNormalModel):
         return _first_whole(lambda k: self._sf_raw(k, prm) <= t, guess)
 
     def _ppf_raw(self, p: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
+        # The smallest whole k with cdf(k) >= p, by a search on the cdf from a close guess
+        # (normal with a skewness term, Cornish-Fisher; common practice): two or three
+        # cdf evaluations per item where scipy's own ppf costs about nine.
+        if p.ndim != 1:
+            return self._ppf_scipy_checked(p, prm)
+        m, v = self._guess(prm)
+        with np.errstate(all="ignore"):
+            z = ndtri(np.clip(p, 1e-300, 1.0 - 1e-16))
+            sd = np.sqrt(v)
+            skew = (2.0 * v - m) / (m * sd)  # (2 - p) / sqrt(n (1 - p)) for nbinom(n, p)
+            guess = np.floor(m + sd * (z + skew * (z * z - 1.0) / 6.0))
+        k = _first_whole_at(
+            lambda kk, j: self._cdf_raw(kk, tuple(a[j] for a in prm)) >= p[j], guess)
+        return np.where(p == 0, -np.inf, np.where(p == 1, np.inf, k))
+
+    def _ppf_scipy_checked(self, p: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
         # scipy's discrete ppf is the smallest k with cdf(k) >= p; confirm it in double
         # precision on both sides so the promise holds whatever scipy's internals do
         k = self._scipy_ppf(p, prm)
@@ -524,25 +575,57 @@ class NegativeBinomialLeadTimeDemand(_CountModel):
         n, p, pois, mu_p, mu = prm
         return mu, np.where(pois, mu_p, mu / p)
 
+    # Each item is either Poisson (the fallback) or negative binomial: every function below
+    # evaluates each distribution on its own items only (_per_item), not both on all.
     def _cdf_raw(self, x: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
         n, p, pois, mu_p, _ = prm
-        return np.where(pois, stats.poisson.cdf(x, mu_p), stats.nbinom.cdf(x, n, p))
+        return _per_item(pois, lambda x_, m_: stats.poisson.cdf(x_, m_),
+                         lambda x_, n_, p_: stats.nbinom.cdf(x_, n_, p_),
+                         (x, mu_p), (x, n, p))
 
     def _sf_raw(self, x: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
         n, p, pois, mu_p, _ = prm
-        return np.where(pois, stats.poisson.sf(x, mu_p), stats.nbinom.sf(x, n, p))
+        return _per_item(pois, lambda x_, m_: stats.poisson.sf(x_, m_),
+                         lambda x_, n_, p_: stats.nbinom.sf(x_, n_, p_),
+                         (x, mu_p), (x, n, p))
 
     def _es_raw(self, x: np.ndarray, mean: np.ndarray,
                 prm: tuple[np.ndarray, ...]) -> np.ndarray:
         n, p, pois, mu_p, mu = prm
         k = np.floor(x)
-        nb = mu * stats.nbinom.sf(k - 1.0, n + 1.0, p) - x * stats.nbinom.sf(k, n, p)
-        po = mu_p * stats.poisson.sf(k - 1.0, mu_p) - x * stats.poisson.sf(k, mu_p)
-        return np.where(pois, po, nb)
+
+        def po(x_: np.ndarray, k_: np.ndarray, m_: np.ndarray) -> np.ndarray:
+            return m_ * stats.poisson.sf(k_ - 1.0, m_) - x_ * stats.poisson.sf(k_, m_)
+
+        def nb(x_: np.ndarray, k_: np.ndarray, mu_: np.ndarray, n_: np.ndarray,
+               p_: np.ndarray) -> np.ndarray:
+            return mu_ * stats.nbinom.sf(k_ - 1.0, n_ + 1.0, p_) - x_ * stats.nbinom.sf(k_, n_, p_)
+
+        return _per_item(pois, po, nb, (x, k, mu_p), (x, k, mu, n, p))
 
     def _scipy_ppf(self, p_: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
         n, p, pois, mu_p, _ = prm
-        return np.where(pois, stats.poisson.ppf(p_, mu_p), stats.nbinom.ppf(p_, n, p))
+        return _per_item(pois, lambda q_, m_: stats.poisson.ppf(q_, m_),
+                         lambda q_, n_, pp_: stats.nbinom.ppf(q_, n_, pp_),
+                         (p_, mu_p), (p_, n, p))
+
+
+def _per_item(mask: np.ndarray, f_true: Callable[..., np.ndarray],
+              f_false: Callable[..., np.ndarray], args_true: tuple[np.ndarray, ...],
+              args_false: tuple[np.ndarray, ...]) -> np.ndarray:
+    """np.where(mask, f_true(*args_true), f_false(*args_false)), each side evaluated only
+    on its own elements (the functions are elementwise, so the numbers are the same).
+
+    Every array has the shape of ``mask`` (the model's broadcast arrays).
+    """
+    mask = np.asarray(mask, dtype=bool)
+    out = np.empty(mask.shape)
+    rest = ~mask
+    if mask.any():
+        out[mask] = f_true(*(np.broadcast_to(a, mask.shape)[mask] for a in args_true))
+    if rest.any():
+        out[rest] = f_false(*(np.broadcast_to(a, mask.shape)[rest] for a in args_false))
+    return out
 
 
 # ---------------------------------------------------------------------------------------

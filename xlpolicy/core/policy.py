@@ -6,8 +6,10 @@ optimum (Hadley & Whitin 1963; Nahmias, (Q, R) chapter). R is the smallest whole
 point meeting a cycle-service or fill-rate target, or the cost-optimal one. Lead-time demand
 follows a model per item (normal, Poisson, negative binomial or gamma; core.models): items
 are grouped by model and each group is computed at once. Everything is numpy over whole
-columns with masks per service measure; there is no per-item loop. Items whose inputs
-cannot give a policy get NaN numbers rather than an exception or a warning.
+columns; each service measure's reorder point is worked out on that measure's items only
+(every model method works item by item, so this gives the same numbers as computing all
+and choosing by mask); there is no per-item loop. Items whose inputs cannot give a policy
+get NaN numbers rather than an exception or a warning.
 """
 
 from __future__ import annotations
@@ -179,6 +181,42 @@ def _smallest_whole(start: np.ndarray, meets: Callable[[np.ndarray], np.ndarray]
     for _ in range(2):
         r = np.where(meets(r - 1.0), r - 1.0, r)
         r = np.where(meets(r), r, r + 1.0)
+    return r
+
+
+#: Whole numbers up to this size are exact in float, so r - 1 + 1 == r (see below).
+_EXACT_WHOLE = 2.0 ** 52
+
+
+def _smallest_whole_at(start: np.ndarray,
+                       meets: Callable[[np.ndarray, np.ndarray], np.ndarray]) -> np.ndarray:
+    """:func:`_smallest_whole`, asking ``meets`` each point of each item only once.
+
+    ``meets(r, k)`` is the condition for the items k (indices into start) at points r.
+    The two rounds of _smallest_whole visit start - 1, start and at most one of start + 1
+    or start - 2 per item, and revisit the first two; a pure condition gives the same
+    answer there, so only the new points are asked (about half the evaluations). Starts
+    too large for exact whole-number steps take the plain rounds.
+    """
+    big = np.isfinite(start) & (np.abs(start) >= _EXACT_WHOLE)
+    if big.any():
+        every = np.arange(start.shape[0])
+        return _smallest_whole(start, lambda r: meets(r, every))
+    below = start - 1.0
+    a = meets(below, np.arange(start.shape[0]))  # meets(start - 1)
+    b = a.copy()  # meets(r) after the first step: r = start - 1 where a
+    k = np.flatnonzero(~a)
+    if k.size:
+        b[k] = meets(start[k], k)
+    r = np.where(a, below, np.where(b, start, start + 1.0))
+    k = np.flatnonzero(~a & ~b)  # at start + 1: is it enough, or start + 2
+    if k.size:
+        up = start[k] + 1.0
+        r[k] = np.where(meets(up, k), up, up + 1.0)
+    k = np.flatnonzero(a)  # at start - 1 (which meets): does start - 2 as well
+    if k.size:
+        down = below[k] - 1.0
+        r[k] = np.where(meets(down, k), down, below[k])
     return r
 
 
@@ -392,11 +430,19 @@ def compute_policy(
         sub = replace(full, **{f.name: getattr(full, f.name)[idx] for f in fields(full)
                                if f.name != "days_per_period"
                                and getattr(full, f.name) is not None})
-        frame = _policy_group(sub, fac, usable=known[idx])
-        frame.index = idx
-        parts.append(frame)
-    out = pd.concat(parts).sort_index()
-    out.index = pd.RangeIndex(n)
+        parts.append((idx, _policy_group_columns(sub, fac, usable=known[idx])))
+    # each group's columns put back at its items' rows (what concatenating the groups'
+    # frames and sorting by row gave, without the frames; a whole-column scalar is an
+    # object column in such a frame, so it is one here too)
+    cols: dict[str, np.ndarray] = {}
+    for key in POLICY_COLUMNS:
+        values = [np.asarray(part[key], dtype=object if np.ndim(part[key]) == 0 else None)
+                  for _, part in parts]
+        col = np.empty(n, dtype=np.result_type(*values))
+        for (idx, _), v in zip(parts, values, strict=True):
+            col[idx] = v
+        cols[key] = col
+    out = pd.DataFrame(cols, index=pd.RangeIndex(n), columns=list(POLICY_COLUMNS))
     unknown = ~known
     if unknown.any():  # say which name was not understood, as the user wrote it
         given = pd.Series(full.model[unknown], dtype=object).astype(str).str.strip()
@@ -458,7 +504,7 @@ def evaluate_policy(order_qty: ArrayLike, reorder_point: ArrayLike, mean: ArrayL
     r, mu, sd_a, D, S, H, c, p = cols
     names = item_model_names(model, n)
     names[names == ""] = NormalLeadTimeDemand.name
-    out = pd.DataFrame(np.nan, index=pd.RangeIndex(n), columns=list(EVALUATION_COLUMNS))
+    out = {col: np.full(n, np.nan) for col in EVALUATION_COLUMNS}
     ok = np.isfinite(q) & (q > 0) & np.isfinite(r) & np.isfinite(mu) & np.isfinite(sd_a)
     for name in MODEL_NAMES:
         k = np.flatnonzero(ok & (names == name))
@@ -469,8 +515,8 @@ def evaluate_policy(order_qty: ArrayLike, reorder_point: ArrayLike, mean: ArrayL
         for col, key in zip(EVALUATION_COLUMNS, (
                 "safety_stock", "cycle_service", "fill_rate", "short", "ordering",
                 "cycle_hold", "ss_hold", "shortage", "total"), strict=True):
-            out.loc[k, col] = ach[key]
-    return out
+            out[col][k] = ach[key]
+    return pd.DataFrame(out, index=pd.RangeIndex(n), columns=list(EVALUATION_COLUMNS))
 
 
 def item_model_names(model: ArrayLike | None, n: int) -> np.ndarray:
@@ -482,9 +528,30 @@ def item_model_names(model: ArrayLike | None, n: int) -> np.ndarray:
     """
     if model is None:
         return np.full(n, "", dtype=object)
-    raw = pd.Series(np.broadcast_to(np.asarray(model, dtype=object), (n,)), dtype=object)
+    values = np.broadcast_to(np.asarray(model, dtype=object), (n,))
+    return _per_distinct(values, _normalised_names)
+
+
+def _normalised_names(values: np.ndarray) -> np.ndarray:
+    raw = pd.Series(values, dtype=object)
     text = raw.where(raw.notna(), "").astype(str).str.strip().str.lower()
     return text.to_numpy(dtype=object)
+
+
+def _per_distinct(values: np.ndarray, f: Callable[[np.ndarray], np.ndarray]) -> np.ndarray:
+    """f(values) for an elementwise text function f, computed once per distinct value.
+
+    A column of item names or measures holds a handful of distinct texts among 100,000
+    items. Only for text (and missing) values: numbers such as 1, 1.0 and True would be
+    one value to the hashing but three texts to f, so anything else takes f whole.
+    """
+    if len(values) < 64 or pd.api.types.infer_dtype(values, skipna=True) not in (
+            "string", "empty"):
+        return f(values)
+    codes, uniques = pd.factorize(values, use_na_sentinel=True)
+    if (codes < 0).any():  # missing values: f says what they become
+        return f(values)
+    return f(np.asarray(uniques, dtype=object))[codes]
 
 
 def _broadcast_inputs(inp: PolicyInputs, n: int) -> PolicyInputs:
@@ -508,6 +575,13 @@ def _broadcast_inputs(inp: PolicyInputs, n: int) -> PolicyInputs:
 def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
                   usable: np.ndarray | None = None) -> pd.DataFrame:
     """compute_policy for items sharing one model factory; usable=False forces NaN numbers."""
+    return pd.DataFrame(_policy_group_columns(inp, model_factory, usable),
+                        columns=list(POLICY_COLUMNS))
+
+
+def _policy_group_columns(inp: PolicyInputs, model_factory: ModelFactory,
+                          usable: np.ndarray | None = None) -> dict[str, object]:
+    """The columns of :func:`_policy_group` (arrays, or a scalar for a whole column)."""
     D = np.asarray(inp.annual_demand, dtype=float).reshape(-1)
     n = D.shape[0]
     d = _column(inp.demand_per_period, n)
@@ -522,7 +596,7 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
     pack = _column(inp.pack_size, n)
     moq = _column(inp.minimum_order, n)
     measure_raw = np.broadcast_to(np.asarray(inp.measure, dtype=object), (n,))
-    measure = np.char.lower(np.char.strip(measure_raw.astype(str)))
+    measure = _per_distinct(measure_raw, lambda v: np.char.lower(np.char.strip(v.astype(str))))
     is_cs = measure == CYCLE_SERVICE
     is_fr = measure == FILL_RATE
     is_sc = measure == SHORTAGE_COST
@@ -599,44 +673,59 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
 
         # Whole R for a given Q under the shortage cost: 1 - F(R) = Q H / (p D), then the
         # cheaper of floor and ceil. Where Q H / (p D) >= 1 no safety stock pays: R = mu_L.
+        # Worked out for the shortage-cost items only (k), with their own model.
+        k_sc = np.flatnonzero(sc)
+        model_sc = _subset_model(model, model_factory, muw, sgw, k_sc)
+        H_k, mu_k, pD_k, nopay_k = Hw[k_sc], muw[k_sc], pD[k_sc], nopay[k_sc]
+
         def sc_reorder(q: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-            ratio_q = np.where(pD > 0, q * Hw / pD, np.inf)
-            no_ss_q = sc & (nopay | (ratio_q >= 1.0))
+            ratio_q = np.where(pD_k > 0, q * H_k / pD_k, np.inf)
+            no_ss_q = nopay_k | (ratio_q >= 1.0)
             r_cont = np.where(
-                no_ss_q, muw, model.upper_quantile(np.where(no_ss_q, 0.5, ratio_q))
+                no_ss_q, mu_k, model_sc.upper_quantile(np.where(no_ss_q, 0.5, ratio_q))
             )
             r_lo, r_hi = np.floor(r_cont), np.ceil(r_cont)
 
             def r_cost(r: np.ndarray) -> np.ndarray:
-                return Hw * (r - muw) + pD / q * model.expected_shortage(r)
+                return H_k * (r - mu_k) + pD_k / q * model_sc.expected_shortage(r)
 
             return np.where(r_cost(r_hi) < r_cost(r_lo), r_hi, r_lo), no_ss_q
 
         def sc_cost(q: np.ndarray, r: np.ndarray) -> np.ndarray:
             """Expected annual cost with backorders (Hadley & Whitin 1963), R floored at 0."""
             r0 = np.maximum(r, 0.0)
-            return (Dw * Sw / q + Hw * (q / 2.0 + r0 - muw)
-                    + pD / q * model.expected_shortage(r0))
+            return (Dw[k_sc] * Sw[k_sc] / q + H_k * (q / 2.0 + r0 - mu_k)
+                    + pD_k / q * model_sc.expected_shortage(r0))
 
         # Service measures: the cheaper pack multiple on the EOQ cost curve. Shortage cost:
         # the pack multiple below or above the optimum whose whole (Q, R) costs less in full.
-        q_std = round_order_qty(q_cont, packw, moqw, Dw, s_eff, Hw)
-        q_lo, q_hi, _ = _order_candidates(q_cont, packw, moqw)
-        r_sc_lo, no_ss_lo = sc_reorder(q_lo)
-        r_sc_hi, no_ss_hi = sc_reorder(q_hi)
-        take_hi = sc_cost(q_hi, r_sc_hi) < sc_cost(q_lo, r_sc_lo)
-        Q = np.where(sc, np.where(take_hi, q_hi, q_lo), q_std)
-        r_sc = np.where(take_hi, r_sc_hi, r_sc_lo)
-        no_ss = np.where(take_hi, no_ss_hi, no_ss_lo)
+        Q = round_order_qty(q_cont, packw, moqw, Dw, s_eff, Hw)
+        r_sc = np.zeros(n)  # the shortage-cost reorder point (0 for the other items)
+        no_ss = np.zeros(n, dtype=bool)
+        if k_sc.size:
+            q_lo, q_hi, _ = _order_candidates(q_cont[k_sc], packw[k_sc], moqw[k_sc])
+            r_sc_lo, no_ss_lo = sc_reorder(q_lo)
+            r_sc_hi, no_ss_hi = sc_reorder(q_hi)
+            take_hi = sc_cost(q_hi, r_sc_hi) < sc_cost(q_lo, r_sc_lo)
+            Q[k_sc] = np.where(take_hi, q_hi, q_lo)
+            r_sc[k_sc] = np.where(take_hi, r_sc_hi, r_sc_lo)
+            no_ss[k_sc] = np.where(take_hi, no_ss_hi, no_ss_lo)
+
+        def sc_again(where: np.ndarray) -> None:
+            """The shortage-cost R again, for the items of ``where`` whose Q has changed."""
+            if not k_sc.size or not where[k_sc].any():
+                return
+            r_b, no_b = sc_reorder(Q[k_sc])
+            r_sc[k_sc] = np.where(where[k_sc], r_b, r_sc[k_sc])
+            no_ss[k_sc] = np.where(where[k_sc], no_b, no_ss[k_sc])
+
         if disc is not None and has_breaks.any():
             # The price-break quantity; the reorder point follows from it as usual. Under
             # the shortage-cost measure R is the cost-optimal one for that Q.
             hb = has_breaks & ok
             Q = np.where(hb, disc.order_qty, Q)
             q_cont = np.where(hb, disc.q_continuous, q_cont)
-            r_b, no_b = sc_reorder(Q)
-            r_sc = np.where(hb, r_b, r_sc)
-            no_ss = np.where(hb, no_b, no_ss)
+            sc_again(hb)
         # Shelf life: what the order quantity would be without it, then the cap.
         q_free = Q.copy()
         if disc_unc is not None and has_breaks.any():
@@ -649,9 +738,7 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
             # penalty does not count the cap's cost a second time
             q_cont = np.where(capped, np.minimum(q_cont, np.maximum(life_cont, floor_q)),
                               q_cont)
-            r_b, no_b = sc_reorder(Q)
-            r_sc = np.where(capped, r_b, r_sc)
-            no_ss = np.where(capped, no_b, no_ss)
+            sc_again(capped)
         # What the cap costs a year, on ordering + cycle holding + purchase at the price
         # each quantity pays (the EOQ cost curve; purchase only differs with price breaks).
         price_free = c
@@ -663,16 +750,26 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
             - (Dw * s_eff / q_free + i * price_free * q_free / 2.0 + Dw * price_free),
             np.nan)
 
-        # -- reorder points, each measure on the full arrays, then chosen by mask ------
-        r_cs = _smallest_whole(
-            _ceil_tol(model.quantile(tw)), lambda r: model.cdf(r) >= tw - PROB_TOL
-        )
-        r_fr = _smallest_whole(
-            _ceil_tol(model.min_r_for_shortage((1.0 - tw) * Q)),
-            lambda r: 1.0 - model.expected_shortage(r) / Q >= tw - PROB_TOL,
-        )
-
-        r_raw = np.where(is_cs, r_cs, np.where(is_fr, r_fr, r_sc))
+        # -- reorder points, each measure on its own items (0 for items not planned) ------
+        r_raw = r_sc
+        k_cs = np.flatnonzero(is_cs & ok)
+        if k_cs.size:
+            m_cs, t_cs = _subset_model(model, model_factory, muw, sgw, k_cs), tw[k_cs]
+            mu_cs, sd_cs = muw[k_cs], sgw[k_cs]
+            r_raw[k_cs] = _smallest_whole_at(
+                _ceil_tol(m_cs.quantile(t_cs)),
+                lambda r, j: (_subset_model(m_cs, model_factory, mu_cs, sd_cs, j).cdf(r)
+                              >= t_cs[j] - PROB_TOL))
+        k_fr = np.flatnonzero(is_fr & ok)
+        if k_fr.size:
+            m_fr, t_fr, q_fr = (_subset_model(model, model_factory, muw, sgw, k_fr), tw[k_fr],
+                                Q[k_fr])
+            mu_fr, sd_fr = muw[k_fr], sgw[k_fr]
+            r_raw[k_fr] = _smallest_whole_at(
+                _ceil_tol(m_fr.min_r_for_shortage((1.0 - t_fr) * q_fr)),
+                lambda r, j: (1.0 - _subset_model(m_fr, model_factory, mu_fr, sd_fr,
+                                                  j).expected_shortage(r) / q_fr[j]
+                              >= t_fr[j] - PROB_TOL))
         floored = ok & (r_raw < 0)
         R = np.maximum(r_raw, 0.0)
 
@@ -704,52 +801,60 @@ def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
     def out(x: np.ndarray) -> np.ndarray:
         return np.where(ok, x, np.nan)
 
-    frame = pd.DataFrame(
-        {
-            "annual_demand": D,
-            "demand_per_period": d,
-            "demand_sd_per_period": sd_d,
-            "lead_time_days": lt,
-            "lead_time_demand_mean": mu_l,
-            "lead_time_demand_sd": sig_l,
-            "service_measure": np.asarray(measure_raw, dtype=object),
-            "service_target": target,
-            "model": used,
-            "eoq": out(eoq),
-            "order_qty": out(Q),
-            "reorder_point": out(R),
-            "safety_stock": out(ss),
-            "cycle_service": out(cycle_service),
-            "fill_rate": out(fill),
-            "expected_units_short_per_cycle": out(short),
-            "orders_per_year": out(orders),
-            "annual_ordering_cost": out(ordering),
-            "annual_cycle_holding_cost": out(cycle_hold),
-            "annual_safety_holding_cost": out(ss_hold),
-            "annual_shortage_cost": out(shortage),
-            "annual_total_cost": out(total),
-            "annual_purchase_cost": out(purchase),
-            "average_inventory_value": out(avg_value),
-            "rounding_cost_ratio": out(rounding_ratio),
-            "rounding_penalty": out(np.maximum(rounding_penalty, 0.0)),
-            "flag_no_safety_stock_pays": ok & no_ss,
-            "flag_normal_doubtful": doubtful,
-            "flag_reorder_point_floored": floored,
-            "flag_shortage_cost_missing": is_sc & ~p_given,
-            "unit_price": out(c),
-            "shelf_life_days": np.where(has_life, life, np.nan),
-            "shelf_life_max_qty": out(np.where(has_life, cap_packs, np.nan)),
-            "shelf_life_cost": out(np.maximum(life_cost, 0.0)),
-            "flag_shelf_life_below_minimum": ok & life_short,
-            "price_break_qty": out(disc.break_qty) if disc is not None else np.nan,
-            "discount_saving": (out(np.where(has_breaks, disc.saving, np.nan))
-                                if disc is not None else np.nan),
-            "plain_eoq_qty": (out(np.where(has_breaks, disc.plain_qty, np.nan))
-                              if disc is not None else np.nan),
-        },
-        columns=list(POLICY_COLUMNS),
-    )
-    return frame
+    return {
+        "annual_demand": D,
+        "demand_per_period": d,
+        "demand_sd_per_period": sd_d,
+        "lead_time_days": lt,
+        "lead_time_demand_mean": mu_l,
+        "lead_time_demand_sd": sig_l,
+        "service_measure": np.asarray(measure_raw, dtype=object),
+        "service_target": target,
+        "model": used,
+        "eoq": out(eoq),
+        "order_qty": out(Q),
+        "reorder_point": out(R),
+        "safety_stock": out(ss),
+        "cycle_service": out(cycle_service),
+        "fill_rate": out(fill),
+        "expected_units_short_per_cycle": out(short),
+        "orders_per_year": out(orders),
+        "annual_ordering_cost": out(ordering),
+        "annual_cycle_holding_cost": out(cycle_hold),
+        "annual_safety_holding_cost": out(ss_hold),
+        "annual_shortage_cost": out(shortage),
+        "annual_total_cost": out(total),
+        "annual_purchase_cost": out(purchase),
+        "average_inventory_value": out(avg_value),
+        "rounding_cost_ratio": out(rounding_ratio),
+        "rounding_penalty": out(np.maximum(rounding_penalty, 0.0)),
+        "flag_no_safety_stock_pays": ok & no_ss,
+        "flag_normal_doubtful": doubtful,
+        "flag_reorder_point_floored": floored,
+        "flag_shortage_cost_missing": is_sc & ~p_given,
+        "unit_price": out(c),
+        "shelf_life_days": np.where(has_life, life, np.nan),
+        "shelf_life_max_qty": out(np.where(has_life, cap_packs, np.nan)),
+        "shelf_life_cost": out(np.maximum(life_cost, 0.0)),
+        "flag_shelf_life_below_minimum": ok & life_short,
+        "price_break_qty": out(disc.break_qty) if disc is not None else np.nan,
+        "discount_saving": (out(np.where(has_breaks, disc.saving, np.nan))
+                            if disc is not None else np.nan),
+        "plain_eoq_qty": (out(np.where(has_breaks, disc.plain_qty, np.nan))
+                          if disc is not None else np.nan),
+    }
+
+
+def _subset_model(model: LeadTimeDemandModel, model_factory: ModelFactory, mean: np.ndarray,
+                  sd: np.ndarray, k: np.ndarray) -> LeadTimeDemandModel:
+    """The model of items k (the whole model when k is every item, in order).
+
+    Every model method works item by item, so a model of some items gives those items'
+    numbers exactly as the model of all items does.
+    """
+    if k.size == mean.shape[0]:
+        return model
+    return model_factory(mean[k], sd[k])
 
 
 def _discounts(inp: PolicyInputs, n: int, D: np.ndarray, S: np.ndarray, i: np.ndarray,

@@ -347,6 +347,28 @@ class _Costing:
         return evaluate_policy(q, r, t(self.mu), t(self.sd), t(self.model), t(self.D),
                                t(self.S), t(self.H), t(self.c), t(self.p))
 
+    def evaluate_at(self, k: np.ndarray, q: np.ndarray, r: np.ndarray) -> pd.DataFrame:
+        """evaluate for the items k (indices, repeats allowed) at their (q, r)."""
+        return evaluate_policy(q, r, self.mu[k], self.sd[k], self.model[k], self.D[k],
+                               self.S[k], self.H[k], self.c[k], self.p[k])
+
+    def usage_at(self, k: np.ndarray, q: np.ndarray, r: np.ndarray) -> np.ndarray:
+        """usage for the items k at their (q, r)."""
+        with np.errstate(all="ignore"):
+            if self.kind == BUDGET:
+                return self.c[k] * (q / 2.0 + np.maximum(r - self.mu[k], 0.0))
+            return self.D[k] / q
+
+    def allowed_at(self, k: np.ndarray, q: np.ndarray, r: np.ndarray, ev: pd.DataFrame
+                   ) -> np.ndarray:
+        """allowed for the items k at their (q, r), ev = evaluate_at(k, q, r)."""
+        t, cs, fr = self.target[k], self.is_cs[k], self.is_fr[k]
+        ok = (q >= self.q_min[k] - 1e-9) & (r >= 0) & np.isfinite(
+            ev["annual_total_cost"].to_numpy(float))
+        ok &= ~cs | (ev["cycle_service"].to_numpy(float) >= t - PROB_TOL)
+        ok &= ~fr | (ev["fill_rate"].to_numpy(float) >= t - PROB_TOL)
+        return ok
+
     def usage(self, q: np.ndarray, r: np.ndarray, reps: int = 1) -> np.ndarray:
         with np.errstate(all="ignore"):
             if self.kind == BUDGET:
@@ -448,29 +470,42 @@ def _polish(cost: _Costing, q: np.ndarray, r: np.ndarray, ok: np.ndarray, cap: f
     fr = cost.is_fr & ok
     lo_free, hi_free = np.minimum(q, q_free), np.maximum(q, q_free)
     steps = 0
+    # An item's candidate steps and their costs depend only on its own (Q, R), so they
+    # are worked out for every item once, then again only for the items that moved.
+    m = len(dq) + (2 if fr.any() else 0)
+    q_all, r_all = np.empty((m, n)), np.empty((m, n))
+    cost_c, use_c = np.empty((m, n)), np.empty((m, n))
+    allowed = np.empty((m, n), dtype=bool)
+    cost_now, use_now = np.empty(n), np.empty(n)
+    fresh = np.arange(n)
     for _ in range(_POLISH_ROUNDS):
-        ev_now = cost.evaluate(q, r)
-        cost_now = ev_now["annual_total_cost"].to_numpy(float)
-        use_now = cost.usage(q, r)
+        if fresh.size:
+            f = fresh
+            cost_now[f] = cost.evaluate_at(f, q[f], r[f])["annual_total_cost"].to_numpy(float)
+            use_now[f] = cost.usage_at(f, q[f], r[f])
+            for j, (a, b) in enumerate(zip(dq, dr, strict=True)):
+                q_all[j, f] = np.where(fr[f], np.nan, q[f] + a * cost.pack[f])
+                r_all[j, f] = r[f] + b
+            if m > len(dq):  # along the fill-rate rule: R follows Q, Q back towards q_free
+                mine = np.zeros(n, dtype=bool)
+                mine[f] = True
+                for j, a in enumerate((-1.0, 1.0), start=len(dq)):
+                    q_f = q + a * cost.pack
+                    inside = mine & fr & (q_f >= lo_free - 1e-9) & (q_f <= hi_free + 1e-9)
+                    q_all[j, f] = np.where(inside, q_f, np.nan)[f]
+                    r_all[j, f] = np.where(inside, cost.fill_rate_reorder(q_f, inside),
+                                           np.nan)[f]
+            k = np.tile(f, m)
+            q_c, r_c = q_all[:, f].ravel(), r_all[:, f].ravel()
+            ev = cost.evaluate_at(k, q_c, r_c)
+            cost_c[:, f] = ev["annual_total_cost"].to_numpy(float).reshape(m, f.size)
+            use_c[:, f] = cost.usage_at(k, q_c, r_c).reshape(m, f.size)
+            allowed[:, f] = (cost.allowed_at(k, q_c, r_c, ev) & ok[k]).reshape(m, f.size)
         slack = cap - float(np.nansum(np.where(ok, use_now, np.nan)))
-        cands_q = [np.where(fr, np.nan, q + a * cost.pack) for a in dq]
-        cands_r = [r + b for b in dr]
-        if fr.any():  # along the fill-rate rule: R follows Q, Q back towards q_free
-            for a in (-1.0, 1.0):
-                q_f = q + a * cost.pack
-                inside = fr & (q_f >= lo_free - 1e-9) & (q_f <= hi_free + 1e-9)
-                cands_q.append(np.where(inside, q_f, np.nan))
-                cands_r.append(np.where(inside, cost.fill_rate_reorder(q_f, inside), np.nan))
-        m = len(cands_q)
-        q_c, r_c = np.concatenate(cands_q), np.concatenate(cands_r)
-        ev = cost.evaluate(q_c, r_c, m)
-        allowed = cost.allowed(q_c, r_c, ev, m) & np.tile(ok, m)
         with np.errstate(all="ignore"):
-            d_cost = (ev["annual_total_cost"].to_numpy(float) - np.tile(cost_now, m)
-                      ).reshape(m, n)
-            d_use = (cost.usage(q_c, r_c, m) - np.tile(use_now, m)).reshape(m, n)
-            gain = allowed.reshape(m, n) & (
-                d_cost < -1e-9 * np.maximum(1.0, np.abs(cost_now)))
+            d_cost = cost_c - cost_now[None, :]
+            d_use = use_c - use_now[None, :]
+            gain = allowed & (d_cost < -1e-9 * np.maximum(1.0, np.abs(cost_now)))
             # score: saving per unit of the cap; a step that frees the cap and saves first
             score = np.where(d_use <= 0, -1e300, d_cost / d_use)
         score = np.where(gain, score, np.inf)
@@ -490,10 +525,10 @@ def _polish(cost: _Costing, q: np.ndarray, r: np.ndarray, ok: np.ndarray, cap: f
         take = np.cumsum(need) <= slack + 1e-9 * max(abs(cap), 1.0)
         take[0] = True  # the first fits on its own
         chosen = cand[take]
-        q_all, r_all = q_c.reshape(m, n), r_c.reshape(m, n)
         q[chosen] = q_all[best[chosen], chosen]
         r[chosen] = r_all[best[chosen], chosen]
         steps += int(chosen.size)
+        fresh = np.sort(chosen)
     return q, r, steps
 
 
