@@ -332,14 +332,20 @@ def read_wide_typed(head: RawSheet, cells: WideCells, known: set[str],
                                             head.row_numbers[hidx], head.name, settings, log)
     cols = [pcols[p] for p in used]
     at = np.asarray(picked, dtype=np.int64)
-    vals = np.zeros((len(picked), len(cols)), dtype=float)
-    num = np.zeros(vals.shape, dtype=bool)
-    for q, c in enumerate(cols):
-        k = cells.col_of.get(c)
-        if k is not None:
-            vals[:, q] = cells.numbers[k, at]
-            num[:, q] = cells.present[k, at]
-    vals[~num] = 0.0
+    # Columns x rows, as the typed reader keeps them; ``vals`` and ``num`` below are their
+    # transposes (views), so each column stays one contiguous run.
+    rows_t = np.zeros((len(cols), len(picked)), dtype=float)
+    num_t = np.zeros(rows_t.shape, dtype=bool)
+    ks = [cells.col_of.get(c) for c in cols]
+    have = [q for q, k in enumerate(ks) if k is not None]
+    if have:
+        src = np.asarray([ks[q] for q in have], dtype=np.int64)
+        everything = at.size == cells.numbers.shape[1] and bool(
+            np.array_equal(at, np.arange(at.size)))
+        rows_t[have] = cells.numbers[src] if everything else cells.numbers[src][:, at]
+        num_t[have] = cells.present[src] if everything else cells.present[src][:, at]
+    rows_t[~num_t] = 0.0
+    vals, num = rows_t.T, num_t.T
     other = np.zeros(vals.shape, dtype=bool)
     if cells.cells:
         row_at = {int(p): i for i, p in enumerate(picked)}
@@ -439,8 +445,13 @@ def _wide_finish(sheet: str, items: list[str], first_cell: dict[str, str], picke
         vals[i, q] = _quantity(value_at(i, q), ref, sheet, items[i], log,
                                uncalculated=ref in uncalculated)
     matrix = np.zeros((len(items), len(labels)), dtype=float)
-    for q, p in enumerate(used):
-        matrix[:, pidx[p]] += vals[:, q]
+    target = pidx[used]
+    if np.unique(target).size == target.size:  # a column per period: placed in one step
+        matrix[:, target] = vals
+        matrix += 0.0  # (as 0 + x: a -0.0 in the sheet becomes 0.0, as it always did)
+    else:  # several columns in one period (days summed into weeks): added up
+        for q, p in enumerate(used):
+            matrix[:, pidx[p]] += vals[:, q]
     return History(sheet, "wide", items, matrix, labels, period, first_cell)
 
 

@@ -164,11 +164,11 @@ def _assemble(wb: WorkbookFile, name: str, header_row: int, code_col: int, batch
     # problem (negative) may have been text, the general path must tell. A number can only
     # have been text when the sheet holds more text cells than are accounted for here.
     if len(number_cols):
-        finite = np.isfinite(numbers)
-        if not finite[present].all():
+        # (a blank is NaN in ``numbers``: only a NaN or infinity that is present counts)
+        if np.count_nonzero(~np.isfinite(numbers)) != np.count_nonzero(~present):
             raise _NotExact  # "inf", "nan" typed as text: quoted as text by the general path
         text_seen = decoded_texts + code_texts + head_texts
-        if scan.text_cells != text_seen and (numbers[present] < 0).any():
+        if scan.text_cells != text_seen and bool((numbers < 0).any()):
             raise _NotExact
     codes_exact = scan.text_cells == decoded_texts + code_texts + head_texts
     # Rows that hold nothing at all are dropped, as the general path drops them.
