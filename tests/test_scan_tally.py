@@ -47,3 +47,48 @@ def test_the_tally_equals_regular_expressions(parts: list[str]) -> None:
 def test_types_written_with_spaces_make_the_count_unknown() -> None:
     got = _tally(b'<c r="A1" t = "b"><v>1</v></c>')
     assert got.text_cells < 0 and got.bools  # unknown, and on the safe side
+
+
+def test_a_part_reads_the_same_through_either_inflater(tmp_path) -> None:
+    """The scan's own inflating reader (ISA-L where installed) gives the member's bytes
+    exactly as zipfile does, deflated or stored."""
+    import zipfile
+
+    from xlpolicy.reading.workbook import _Inflating, _open_part, _ZipMember
+    rng_text = b"".join(b'<row r="%d"><c r="A%d"><v>%d</v></c></row>' % (k, k, k * 7919 % 1000)
+                        for k in range(1, 60000))
+    path = tmp_path / "p.zip"
+    with zipfile.ZipFile(path, "w") as zf:
+        zf.writestr("deflated.xml", rng_text, compress_type=zipfile.ZIP_DEFLATED)
+        zf.writestr("stored.xml", rng_text, compress_type=zipfile.ZIP_STORED)
+
+    def whole(stream) -> bytes:
+        out = b""
+        with stream as fh:
+            while chunk := fh.read(1 << 16):
+                out += chunk
+        return out
+
+    with zipfile.ZipFile(path) as zf:
+        info = zf.getinfo("deflated.xml")
+    assert whole(_Inflating(path, info)) == rng_text
+    import contextlib
+    assert whole(contextlib.closing(_ZipMember(path, "stored.xml"))) == rng_text
+    for part in ("deflated.xml", "stored.xml"):
+        assert whole(_open_part(path, part)) == rng_text
+
+
+def test_fast_deflate_pieces_inflate_with_zlib() -> None:
+    """fastzlib's raw deflate (ISA-L or zlib), primed and sync-flushed piece by piece as the
+    writer does, is one stream that zlib itself (RFC 1951) inflates back exactly."""
+    import zlib
+
+    from xlpolicy import fastzlib
+    data = b"".join(b'<c r="B%d" s="3"><v>%d.25</v></c>' % (k, k) for k in range(200000))
+    piece, window = 1 << 18, 1 << 15
+    out = b"".join(
+        (lambda c: c.compress(data[s:s + piece]) + c.flush(fastzlib.Z_SYNC_FLUSH))(
+            fastzlib.compressobj(1, data[s - window:s] if s else b""))
+        for s in range(0, len(data), piece)) + zlib.compressobj(1, zlib.DEFLATED, -15).flush()
+    assert zlib.decompress(out, -15) == data
+    assert fastzlib.crc32(data) == zlib.crc32(data)

@@ -38,6 +38,7 @@ from urllib.parse import unquote
 from lxml import etree
 from xlsxwriter.format import Format
 
+from .. import fastzlib
 from .atomic import OutputLocked, atomic_output
 from .bulk import BLOCK_MARKER, CellBlock
 
@@ -1170,11 +1171,8 @@ class _ParallelDeflate:
         self._window = b""
 
     def _deflate(self, data: memoryview | bytes, primer: bytes) -> bytes:
-        if primer:
-            c = zlib.compressobj(self._level, zlib.DEFLATED, -15, zdict=primer)
-        else:
-            c = zlib.compressobj(self._level, zlib.DEFLATED, -15)
-        return c.compress(data) + c.flush(zlib.Z_SYNC_FLUSH)
+        c = fastzlib.compressobj(self._level, primer)  # ISA-L where installed
+        return c.compress(data) + c.flush(fastzlib.Z_SYNC_FLUSH)
 
     def compress(self, data: bytes | memoryview) -> bytes:
         view = memoryview(data).cast("B")
@@ -1223,7 +1221,8 @@ def _zip_info(name: str, like: zipfile.ZipInfo | None) -> zipfile.ZipInfo:
     return info
 
 
-_DAMAGED = (OSError, zipfile.BadZipFile, zlib.error, EOFError, ValueError, NotImplementedError)
+_DAMAGED = (OSError, zipfile.BadZipFile, *fastzlib.ERRORS, EOFError, ValueError,
+            NotImplementedError)
 _LOCAL_HEADER = struct.Struct("<4s22xHH")  # signature, ..., name length, extra length
 
 
@@ -1317,7 +1316,8 @@ def _copy_raw(zin: zipfile.ZipFile, info: zipfile.ZipInfo, zout: zipfile.ZipFile
 
 def _check_raw(fp: IO[bytes], info: zipfile.ZipInfo, start: int) -> None:
     """Inflate a part's data at ``start`` of ``fp``; _Unexpected unless its CRC and size hold."""
-    inflate = zlib.decompressobj(-15) if info.compress_type == zipfile.ZIP_DEFLATED else None
+    deflated = info.compress_type == zipfile.ZIP_DEFLATED
+    inflate = fastzlib.decompressobj() if deflated else None  # ISA-L where installed
     crc, size, left = 0, 0, info.compress_size
     try:
         fp.seek(start)
@@ -1326,10 +1326,10 @@ def _check_raw(fp: IO[bytes], info: zipfile.ZipInfo, start: int) -> None:
             if not chunk:
                 raise EOFError("the part ends early")
             plain = inflate.decompress(chunk) if inflate is not None else chunk
-            crc, size, left = zlib.crc32(plain, crc), size + len(plain), left - len(chunk)
+            crc, size, left = fastzlib.crc32(plain, crc), size + len(plain), left - len(chunk)
         if inflate is not None:
             rest = inflate.flush()
-            crc, size = zlib.crc32(rest, crc), size + len(rest)
+            crc, size = fastzlib.crc32(rest, crc), size + len(rest)
     except _DAMAGED as exc:
         raise _Unexpected(f"its part {info.filename} cannot be read ({exc})") from exc
     if inflate is not None and not inflate.eof:
