@@ -92,3 +92,18 @@ def test_fast_deflate_pieces_inflate_with_zlib() -> None:
         for s in range(0, len(data), piece)) + zlib.compressobj(1, zlib.DEFLATED, -15).flush()
     assert zlib.decompress(out, -15) == data
     assert fastzlib.crc32(data) == zlib.crc32(data)
+
+
+def test_without_isal_fastzlib_is_zlib() -> None:
+    """python-isal is optional: in a fresh interpreter where it cannot be imported, the
+    same functions are zlib's and still round-trip."""
+    import subprocess
+    import sys
+    code = ("import sys; sys.modules['isal'] = None\n"
+            "from xlpolicy import fastzlib; import zlib\n"
+            "assert not fastzlib.FAST and fastzlib.ERRORS == (zlib.error,)\n"
+            "c = fastzlib.compressobj(1); d = c.compress(b'ab' * 999) + c.flush()\n"
+            "assert fastzlib.decompressobj().decompress(d) == b'ab' * 999\n"
+            "assert fastzlib.crc32(b'abc') == zlib.crc32(b'abc')\n")
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert done.returncode == 0, done.stderr
