@@ -333,14 +333,12 @@ class WorkbookFile:
             with _open_part(self.path, part) as fh:
                 carry = b""
                 while True:
-                    chunk = fh.read(1 << 24)
+                    chunk = fh.read(1 << 22)  # (4 MB: the tally's arrays stay small)
                     buf = carry + chunk
-                    cut = len(buf) if not chunk else buf.rfind(b"</row>")
-                    if chunk and cut < 0:
+                    cut = len(buf) if not chunk else _whole_rows(buf)
+                    if cut <= 0:
                         carry = buf
                         continue
-                    if chunk:
-                        cut += len(b"</row>")
                     piece, carry = buf[:cut], buf[cut:]
                     if first:
                         root = _ROOT.search(piece[:8192])
@@ -474,18 +472,26 @@ class _Inflating:
         self._fh.seek(info.header_offset + 30 + name_len + extra_len)
         self._left = info.compress_size
         self._inflate = fastzlib.decompressobj()
+        self._tail = b""  # compressed input not yet inflated (output was at its limit)
 
     def read(self, size: int) -> bytes:
-        """Some inflated bytes (about ``size``; b"" only at the end)."""
-        while self._left > 0:
-            raw = self._fh.read(min(self._left, max(1 << 20, size // 8)))
-            if not raw:
-                raise EOFError("the part ends early")
-            self._left -= len(raw)
-            out = self._inflate.decompress(raw)
+        """Up to ``size`` inflated bytes; b"" only at the end. Never more than ``size``:
+        sheet XML can shrink a thousandfold (a million formatted empty rows), so one
+        megabyte of input must not become a gigabyte of output at once."""
+        while True:
+            if self._tail:
+                raw = self._tail
+            elif self._left > 0:
+                raw = self._fh.read(min(self._left, 1 << 20))
+                if not raw:
+                    raise EOFError("the part ends early")
+                self._left -= len(raw)
+            else:
+                return b"" if self._inflate.eof else self._inflate.flush()
+            out = self._inflate.decompress(raw, size)
+            self._tail = self._inflate.unconsumed_tail
             if out:
                 return out
-        return self._inflate.flush() if not self._inflate.eof else b""
 
     def __enter__(self) -> _Inflating:
         return self
@@ -516,6 +522,17 @@ class _ZipMember:
     def close(self) -> None:
         self._fh.close()
         self._zf.close()
+
+
+def _whole_rows(buf: bytes) -> int:
+    """Where to cut ``buf`` so that the part before holds whole rows only: after the last
+    </row>, or before the last <row when no row in it closes that way (rows written as
+    <row r="9" s="1"/>, as a million formatted empty rows are); 0 if neither."""
+    end = buf.rfind(b"</row>")
+    start = buf.rfind(b"<row")
+    if end >= 0 and end > start:
+        return end + len(b"</row>")
+    return max(start, end + len(b"</row>") if end >= 0 else 0)
 
 
 def _has_formula(zf: zipfile.ZipFile, part: str, chunk: int = 1 << 20) -> bool:
@@ -552,12 +569,10 @@ def _formulas_without_result(src: Any, chunk: int = 1 << 24) -> set[str]:
     while True:
         data = src.read(chunk)
         buf = carry + data
-        cut = len(buf) if not data else buf.rfind(b"</row>")
-        if data and cut < 0:
+        cut = len(buf) if not data else _whole_rows(buf)
+        if cut <= 0:
             carry = buf
             continue
-        if data:
-            cut += len(b"</row>")
         piece, carry = buf[:cut], buf[cut:]
         for pattern in (_NO_RESULT_AFTER_BODY, _NO_RESULT_AFTER_EMPTY):
             for m in pattern.finditer(piece):
