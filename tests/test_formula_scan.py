@@ -69,3 +69,20 @@ def test_a_sheet_with_prefixed_elements_is_parsed(tmp_path) -> None:
         assert _formula_kinds(zf, "plain.xml") == (True, False)  # ("a:f b": text, no tag;
         # the quick test for any formula errs on the safe side)
     assert _formulas_without_result_parsed(io.BytesIO(prefixed)) == {"A1"}
+
+
+@settings(max_examples=80, deadline=None)
+@given(st.lists(st.sampled_from(['<row r="1"><c r="A1"><v>1</v></c></row>',
+                                 '<row r="2" s="1" customFormat="1"/>', "</sheetData>",
+                                 '<c r="B1"><f>X</f></c>']), max_size=12),
+       st.integers(1, 50))
+def test_row_pieces_give_back_every_byte_and_end(parts: list[str], chunk: int) -> None:
+    """The pieces the scans read put back together are the sheet, each but the last ends
+    where a row does, and a sheet that ends right after a row ends the loop (it once
+    waited forever on an empty remainder)."""
+    from xlpolicy.reading.workbook import _row_pieces
+    data = "".join(parts).encode()
+    pieces = list(_row_pieces(io.BytesIO(data), chunk))
+    assert b"".join(pieces) == data
+    for p, q in zip(pieces, pieces[1:], strict=False):  # each cut falls between rows
+        assert p.endswith(b"</row>") or q.startswith(b"<row")

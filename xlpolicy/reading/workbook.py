@@ -21,6 +21,7 @@ import posixpath
 import re
 import zipfile
 import zlib
+from collections.abc import Iterator
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -331,15 +332,7 @@ class WorkbookFile:
         layout_words = False
         try:
             with _open_part(self.path, part) as fh:
-                carry = b""
-                while True:
-                    chunk = fh.read(1 << 22)  # (4 MB: the tally's arrays stay small)
-                    buf = carry + chunk
-                    cut = len(buf) if not chunk else _whole_rows(buf)
-                    if cut <= 0:
-                        carry = buf
-                        continue
-                    piece, carry = buf[:cut], buf[cut:]
+                for piece in _row_pieces(fh, 1 << 22):  # (4 MB: the tally's arrays stay small)
                     if first:
                         root = _ROOT.search(piece[:8192])
                         if root is None or root.group(1):
@@ -365,8 +358,6 @@ class WorkbookFile:
                             scan.formats[at] = self._styles[int(m.group(1))]
                             if _TEXT_TYPE.search(m.group(0)):
                                 scan.styled_text.add(at)
-                    if not chunk:
-                        break
         except (KeyError, zipfile.BadZipFile, OSError, *fastzlib.ERRORS, EOFError):
             return None
         if not layout_words:
@@ -525,6 +516,23 @@ class _ZipMember:
         self._zf.close()
 
 
+def _row_pieces(src: Any, chunk: int) -> Iterator[bytes]:
+    """A sheet's XML from ``src`` in pieces of about ``chunk`` bytes that each hold whole
+    rows (the last piece: whatever is left), so that nothing sought is cut in two."""
+    carry = b""
+    while True:
+        data = src.read(chunk)
+        if not data:
+            if carry:
+                yield carry
+            return
+        buf = carry + data
+        cut = _whole_rows(buf)
+        if cut > 0:
+            yield buf[:cut]
+        carry = buf[cut:]
+
+
 def _whole_rows(buf: bytes) -> int:
     """Where to cut ``buf`` so that the part before holds whole rows only: after the last
     </row>, or before the last <row when no row in it closes that way (rows written as
@@ -571,15 +579,7 @@ def _formulas_without_result(src: Any, chunk: int = 1 << 24) -> set[str]:
     elements with a namespace prefix (<x:f>) get the parse.
     """
     out: set[str] = set()
-    carry = b""
-    while True:
-        data = src.read(chunk)
-        buf = carry + data
-        cut = len(buf) if not data else _whole_rows(buf)
-        if cut <= 0:
-            carry = buf
-            continue
-        piece, carry = buf[:cut], buf[cut:]
+    for piece in _row_pieces(src, chunk):
         for pattern in (_NO_RESULT_AFTER_BODY, _NO_RESULT_AFTER_EMPTY):
             for m in pattern.finditer(piece):
                 start = max(piece.rfind(b"<c ", 0, m.start()),
@@ -590,8 +590,7 @@ def _formulas_without_result(src: Any, chunk: int = 1 << 24) -> set[str]:
                 ref = _REF.search(piece, start, piece.find(b">", start) + 1)
                 if ref is not None:
                     out.add((ref.group(1) + ref.group(2)).decode())
-        if not data:
-            return out
+    return out
 
 
 def _formulas_without_result_parsed(src: Any) -> set[str]:
