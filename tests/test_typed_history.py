@@ -75,6 +75,15 @@ def _history(codes: list[str], seed: int = 5) -> dict[str, list]:
     return {c: [int(x) for x in rng.poisson(4, WEEKS)] for c in codes}
 
 
+def _wide_with(tmp_path: Path, n: int, row: int, week: int, value: object) -> Path:
+    """A wide workbook of ``n`` items with ``value`` in item ``row``'s ``week`` (0-based)."""
+    codes = _codes(n)
+    hist = _history(codes)
+    hist[codes[row]][week] = value
+    return write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist,
+                          layout="wide")
+
+
 def test_a_clean_sheet_reads_the_same_and_the_typed_reader_ran(tmp_path: Path) -> None:
     codes = _codes()
     path = write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes],
@@ -113,22 +122,14 @@ def test_text_that_reads_as_a_troubled_number_goes_the_general_way(tmp_path: Pat
                                                                    text: str) -> None:
     """A negative or endless number typed as text is quoted as text in its message, which
     the typed reader cannot tell from a number: it steps aside, and the problem is the same."""
-    codes = _codes(1050)
-    hist = _history(codes)
-    hist[codes[1030]][3] = text
-    path = write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist,
-                          layout="wide")
+    path = _wide_with(tmp_path, 1050, 1030, 3, text)
     assert not _typed_ran(path)
     problems = _same_both_ways(path)
     assert [p[4] for p in problems if p[2] == "E1032"] == [text]
 
 
 def test_a_negative_number_is_read_the_typed_way(tmp_path: Path) -> None:
-    codes = _codes(1050)
-    hist = _history(codes)
-    hist[codes[1030]][3] = -4
-    path = write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist,
-                          layout="wide")
+    path = _wide_with(tmp_path, 1050, 1030, 3, -4)
     assert _typed_ran(path)
     problems = _same_both_ways(path)
     assert [(p[4], p[6]) for p in problems if p[2] == "E1032"] == [
@@ -196,11 +197,7 @@ def test_period_numbers_or_labels_as_headers(tmp_path: Path, labels: list) -> No
 
 def test_true_false_cells_send_the_sheet_the_general_way(tmp_path: Path) -> None:
     """fastexcel would read TRUE as 1: the scan sees it and the typed reader steps aside."""
-    codes = _codes(1050)
-    hist = _history(codes)
-    hist[codes[1020]][2] = True
-    path = write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist,
-                          layout="wide")
+    path = _wide_with(tmp_path, 1050, 1020, 2, True)
     assert not _typed_ran(path)
     problems = _same_both_ways(path)
     assert any(p[2] == "D1022" and p[6] == "history-quantity-not-number" for p in problems)
@@ -236,11 +233,7 @@ def test_text_comes_back_exactly_through_the_converter_message(tmp_path: Path,
                                                                text: str) -> None:
     """Text in a quantity cell is decoded from fastexcel's message; it must be exact, as
     the general path (python-calamine) gives it: the problem's value shows it."""
-    codes = _codes(3)
-    hist = _history(codes)
-    hist[codes[1]][1] = text
-    path = write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist,
-                          layout="wide")
+    path = _wide_with(tmp_path, 3, 1, 1, text)
     assert _typed_ran(path)
     problems = _same_both_ways(path)
     assert [p[4] for p in problems if p[2] == "C3"] == [text]
