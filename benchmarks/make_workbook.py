@@ -26,13 +26,33 @@ import xlsxwriter
 
 WEEKS = 104
 FIRST_WEEK = _dt.date(2024, 1, 1)  # a Monday
-ITEM_HEADERS = ("Item", "Description", "Category", "Supplier", "Unit cost", "Order cost",
-                "Holding rate", "Lead time days", "Lead time sd days", "Service target",
-                "Pack size", "Minimum order", "On hand", "On order", "Backordered",
-                "Current order qty", "Current reorder point")
+ITEM_HEADERS = (
+    "Item",
+    "Description",
+    "Category",
+    "Supplier",
+    "Unit cost",
+    "Order cost",
+    "Holding rate",
+    "Lead time days",
+    "Lead time sd days",
+    "Service target",
+    "Pack size",
+    "Minimum order",
+    "On hand",
+    "On order",
+    "Backordered",
+    "Current order qty",
+    "Current reorder point",
+)
 CATEGORIES = ("Fasteners", "Hand tools", "Paint", "Garden", "Electrical", "Plumbing")
-SUPPLIERS = ("North Mill Ltd", "Harbour Supply", "Kestrel Trading", "Oakfield Parts",
-             "Bluebrook Wholesale")
+SUPPLIERS = (
+    "North Mill Ltd",
+    "Harbour Supply",
+    "Kestrel Trading",
+    "Oakfield Parts",
+    "Bluebrook Wholesale",
+)
 
 
 def make_data(n_items: int, weeks: int = WEEKS, seed: int = 2024) -> dict[str, np.ndarray]:
@@ -42,22 +62,28 @@ def make_data(n_items: int, weeks: int = WEEKS, seed: int = 2024) -> dict[str, n
     sparse = rng.random(n_items) < 0.25  # a quarter sell now and then (intermittent)
     demand = rng.poisson(rate[:, None], size=(n_items, weeks)).astype(np.int64)
     lumpy = rng.negative_binomial(2, 0.3, size=(n_items, weeks)) * (
-        rng.random((n_items, weeks)) < 0.2)
+        rng.random((n_items, weeks)) < 0.2
+    )
     demand[sparse] = lumpy[sparse]
     cost = np.round(rng.lognormal(2.0, 1.0, n_items), 2) + 0.05
     lead = rng.choice([3, 5, 7, 10, 14, 21, 28], size=n_items)
     on_hand = rng.integers(0, 200, n_items)
     return {
-        "rate": rate, "demand": demand, "cost": cost,
+        "rate": rate,
+        "demand": demand,
+        "cost": cost,
         "order_cost": np.round(rng.uniform(5, 60, n_items), 2),
         "holding": rng.choice([0.18, 0.2, 0.25, 0.3], size=n_items),
-        "lead": lead, "lead_sd": np.round(lead * rng.uniform(0, 0.3, n_items), 1),
+        "lead": lead,
+        "lead_sd": np.round(lead * rng.uniform(0, 0.3, n_items), 1),
         "target": rng.choice([0.9, 0.95, 0.98], size=n_items),
         "pack": rng.choice([1, 1, 6, 12, 24], size=n_items),
         "moq": rng.choice([0, 0, 10, 50], size=n_items),
-        "on_hand": on_hand, "on_order": rng.integers(0, 50, n_items) * (on_hand < 50),
+        "on_hand": on_hand,
+        "on_order": rng.integers(0, 50, n_items) * (on_hand < 50),
         "backordered": rng.integers(0, 5, n_items) * (rng.random(n_items) < 0.05),
-        "cur_q": rng.integers(10, 400, n_items), "cur_r": rng.integers(0, 150, n_items),
+        "cur_q": rng.integers(10, 400, n_items),
+        "cur_r": rng.integers(0, 150, n_items),
     }
 
 
@@ -66,17 +92,20 @@ def item_codes(n_items: int) -> list[str]:
     return [f"{k:06d}" for k in range(1, n_items + 1)]
 
 
-def write_history_file(path: Path, codes: list[str], demand: np.ndarray,
-                       dates: list[_dt.date]) -> Path:
+def write_history_file(
+    path: Path, codes: list[str], demand: np.ndarray, dates: list[_dt.date]
+) -> Path:
     """The long history (a row per item and week with a sale) as CSV or Parquet."""
     import pandas as pd
 
     i, t = np.nonzero(demand)
-    frame = pd.DataFrame({
-        "Item": np.asarray(codes, dtype=object)[i],
-        "Period": np.asarray([d.isoformat() for d in dates], dtype=object)[t],
-        "Quantity": demand[i, t],
-    })
+    frame = pd.DataFrame(
+        {
+            "Item": np.asarray(codes, dtype=object)[i],
+            "Period": np.asarray([d.isoformat() for d in dates], dtype=object)[t],
+            "Quantity": demand[i, t],
+        }
+    )
     if path.suffix == ".csv":
         frame.to_csv(path, index=False)
     else:
@@ -84,22 +113,51 @@ def write_history_file(path: Path, codes: list[str], demand: np.ndarray,
     return path
 
 
-def write_workbook(path: Path, n_items: int, *, layout: str = "wide", weeks: int = WEEKS,
-                   seed: int = 2024, history_format: str = "parquet") -> Path:
+def write_workbook(
+    path: Path,
+    n_items: int,
+    *,
+    layout: str = "wide",
+    weeks: int = WEEKS,
+    seed: int = 2024,
+    history_format: str = "parquet",
+) -> Path:
     """Write the workbook (and for layout "file" its history file); return its path."""
     d = make_data(n_items, weeks, seed)
     codes = item_codes(n_items)
-    wb = xlsxwriter.Workbook(str(path), {"constant_memory": True, "strings_to_numbers": False,
-                                         "strings_to_formulas": False, "strings_to_urls": False})
+    wb = xlsxwriter.Workbook(
+        str(path),
+        {
+            "constant_memory": True,
+            "strings_to_numbers": False,
+            "strings_to_formulas": False,
+            "strings_to_urls": False,
+        },
+    )
     bold = wb.add_format({"bold": True})
     date_fmt = wb.add_format({"num_format": "yyyy-mm-dd", "bold": True})
     cell_date = wb.add_format({"num_format": "yyyy-mm-dd"})
 
     ws = wb.add_worksheet("Items")
     ws.write_row(0, 0, ITEM_HEADERS, bold)
-    numeric = [d[k].tolist() for k in ("cost", "order_cost", "holding", "lead", "lead_sd",
-                                       "target", "pack", "moq", "on_hand", "on_order",
-                                       "backordered", "cur_q", "cur_r")]
+    numeric = [
+        d[k].tolist()
+        for k in (
+            "cost",
+            "order_cost",
+            "holding",
+            "lead",
+            "lead_sd",
+            "target",
+            "pack",
+            "moq",
+            "on_hand",
+            "on_order",
+            "backordered",
+            "cur_q",
+            "cur_r",
+        )
+    ]
     for i, code in enumerate(codes):
         r = i + 1
         ws.write_string(r, 0, code)
@@ -131,8 +189,10 @@ def write_workbook(path: Path, n_items: int, *, layout: str = "wide", weeks: int
         if rows >= 1_048_576:
             wb.close()
             Path(path).unlink(missing_ok=True)
-            raise SystemExit(f"a long History of {n_items:,} items would need {rows:,} rows, "
-                             "more than a sheet holds (1,048,576); use the wide layout")
+            raise SystemExit(
+                f"a long History of {n_items:,} items would need {rows:,} rows, "
+                "more than a sheet holds (1,048,576); use the wide layout"
+            )
         ws.write_row(0, 0, ("Item", "Period", "Quantity"), bold)
         stamps = [_dt.datetime.combine(day, _dt.time()) for day in dates]
         r = 1
@@ -167,8 +227,9 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--seed", type=int, default=2024)
     a = ap.parse_args(argv)
     out = a.output or Path(f"bench-{a.items}-{a.layout}.xlsx")
-    write_workbook(out, a.items, layout=a.layout, weeks=a.weeks, seed=a.seed,
-                   history_format=a.history_format)
+    write_workbook(
+        out, a.items, layout=a.layout, weeks=a.weeks, seed=a.seed, history_format=a.history_format
+    )
     print(out)
     return 0
 

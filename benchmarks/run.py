@@ -46,16 +46,19 @@ def _child_read(reader: str, path: str) -> dict:
     sheets = ("Items",) if history_file.exists() else ("Items", "History")
     if history_file.exists():  # layout "file": the history is read by Arrow, the floor's best
         import pyarrow.parquet as pq
+
         table = pq.read_table(history_file)
         cells += table.num_rows * table.num_columns
     if reader == "calamine":
         from python_calamine import CalamineWorkbook
+
         wb = CalamineWorkbook.from_path(path)
         for name in sheets:
             rows = wb.get_sheet_by_name(name).to_python()
             cells += sum(len(r) for r in rows)
     elif reader == "fastexcel":
         import fastexcel
+
         reader_ = fastexcel.read_excel(path)
         for name in sheets:
             sheet = reader_.load_sheet(name)
@@ -68,6 +71,7 @@ def _child_read(reader: str, path: str) -> dict:
 def _child_write(n_items: str, out: str) -> dict:
     import numpy as np
     import xlsxwriter
+
     n = int(n_items)
     rng = np.random.default_rng(1)
     table = rng.random((n, RESULT_COLUMNS - 1)).tolist()
@@ -92,6 +96,7 @@ def _child_naive(path: str, out: str) -> dict:
 
     from openpyxl import load_workbook
     from scipy import stats
+
     t0 = time.perf_counter()
     wb = load_workbook(path, read_only=True, data_only=True)
     items = list(wb["Items"].iter_rows(values_only=True))
@@ -117,9 +122,29 @@ def _child_naive(path: str, out: str) -> dict:
         z = stats.norm.ppf(float(r[col["service target"]]))
         rop = math.ceil(mu + z * sig)
         loss = sig * stats.norm.pdf(z) - sig * z * stats.norm.sf(z)
-        row = [code, d_year, mean, sd, lead, mu, sig, q, rop, rop - mu, z, loss,
-               d_year / q if q else 0.0, d_year / q * s if q else 0.0, hold * q / 2,
-               hold * (rop - mu), 0.0, 0.0, 0.0, 0.0, 0.0]
+        row = [
+            code,
+            d_year,
+            mean,
+            sd,
+            lead,
+            mu,
+            sig,
+            q,
+            rop,
+            rop - mu,
+            z,
+            loss,
+            d_year / q if q else 0.0,
+            d_year / q * s if q else 0.0,
+            hold * q / 2,
+            hold * (rop - mu),
+            0.0,
+            0.0,
+            0.0,
+            0.0,
+            0.0,
+        ]
         results.append(row[:RESULT_COLUMNS])
     t_loop = time.perf_counter() - t0 - t_read
     out_wb = load_workbook(path)
@@ -142,8 +167,9 @@ CHILDREN = {"read": _child_read, "write": _child_write, "naive": _child_naive}
 def _run_child(args: list[str]) -> dict:
     """Run one child (a fresh interpreter); its JSON plus its wall time."""
     t0 = time.perf_counter()
-    proc = subprocess.Popen([sys.executable, *args], stdout=subprocess.PIPE,
-                            stderr=subprocess.PIPE, cwd=ROOT)
+    proc = subprocess.Popen(
+        [sys.executable, *args], stdout=subprocess.PIPE, stderr=subprocess.PIPE, cwd=ROOT
+    )
     out, err = proc.communicate()
     wall = time.perf_counter() - t0
     if proc.returncode != 0:
@@ -158,8 +184,9 @@ def _run_child(args: list[str]) -> dict:
 def _run_measured(args: list[str]) -> dict:
     """Wall time and peak RSS of one command, via os.wait4 on that very child."""
     t0 = time.perf_counter()
-    proc = subprocess.Popen([sys.executable, *args], stdout=subprocess.DEVNULL,
-                            stderr=subprocess.PIPE, cwd=ROOT)
+    proc = subprocess.Popen(
+        [sys.executable, *args], stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, cwd=ROOT
+    )
     _, status, usage = os.wait4(proc.pid, 0)
     wall = time.perf_counter() - t0
     err = proc.stderr.read().decode() if proc.stderr else ""
@@ -176,8 +203,20 @@ def _child_json(name: str, *args: str) -> dict:
 def _workbook(folder: Path, n: int, layout: str) -> Path:
     path = folder / f"bench-{n}-{layout}.xlsx"
     if not path.exists():  # ("file" also writes bench-<n>-file-history.parquet beside it)
-        subprocess.run([sys.executable, str(HERE / "make_workbook.py"), str(n), "-o", str(path),
-                        "--layout", layout], check=True, stdout=subprocess.DEVNULL, cwd=ROOT)
+        subprocess.run(
+            [
+                sys.executable,
+                str(HERE / "make_workbook.py"),
+                str(n),
+                "-o",
+                str(path),
+                "--layout",
+                layout,
+            ],
+            check=True,
+            stdout=subprocess.DEVNULL,
+            cwd=ROOT,
+        )
     return path
 
 
@@ -189,8 +228,9 @@ def _have(module: str) -> bool:
     return True
 
 
-def measure(folder: Path, n: int, layout: str, naive_max: int,
-            naive_cache: dict[str, tuple[int, float]]) -> dict:
+def measure(
+    folder: Path, n: int, layout: str, naive_max: int, naive_cache: dict[str, tuple[int, float]]
+) -> dict:
     """All measurements for one size and layout."""
     path = _workbook(folder, n, layout)
     row: dict = {"items": n, "layout": layout, "mb": path.stat().st_size / 1e6}
@@ -202,8 +242,9 @@ def measure(folder: Path, n: int, layout: str, naive_max: int,
     row["read"], row["reader"] = reads[best], best
     row["write"] = _child_json("write", str(n), str(folder / "floor-out.xlsx"))["seconds"]
     row["floor"] = row["read"] + row["write"]
-    plan = _run_measured(["-m", "xlpolicy", "plan", str(path), "-q", "-o",
-                          str(folder / f"plan-{n}-{layout}.xlsx")])
+    plan = _run_measured(
+        ["-m", "xlpolicy", "plan", str(path), "-q", "-o", str(folder / f"plan-{n}-{layout}.xlsx")]
+    )
     row["plan"], row["rss_mb"] = plan["seconds"], plan["rss_mb"]
     if layout != "wide":  # the naive path reads the wide History only (and no Parquet)
         row["naive"], row["naive_est"] = float("nan"), False
@@ -214,8 +255,9 @@ def measure(folder: Path, n: int, layout: str, naive_max: int,
     else:
         if layout not in naive_cache:
             m = naive_max
-            naive = _child_json("naive", str(_workbook(folder, m, layout)),
-                                str(folder / "naive-out.xlsx"))
+            naive = _child_json(
+                "naive", str(_workbook(folder, m, layout)), str(folder / "naive-out.xlsx")
+            )
             naive_cache[layout] = (m, naive["seconds"])
         m, secs = naive_cache[layout]
         row["naive"], row["naive_est"] = secs * n / m, True
@@ -250,36 +292,56 @@ def features(folder: Path, n: int, layout: str) -> list[dict]:
     out = []
     for name, opts in FEATURES.items():
         args = [o.replace("{budget}", budget) for o in opts]
-        got = _run_measured(["-m", "xlpolicy", "plan", str(path), "-q", "-o",
-                             str(folder / f"feature-{n}.xlsx"), *args])
+        got = _run_measured(
+            [
+                "-m",
+                "xlpolicy",
+                "plan",
+                str(path),
+                "-q",
+                "-o",
+                str(folder / f"feature-{n}.xlsx"),
+                *args,
+            ]
+        )
         out.append({"items": n, "feature": name, **got})
     return out
 
 
 def feature_table(rows: list[dict]) -> str:
-    lines = ["| items | run | time | extra over the plainest plan | peak RSS MB |",
-             "|" + " --- |" * 5]
+    lines = [
+        "| items | run | time | extra over the plainest plan | peak RSS MB |",
+        "|" + " --- |" * 5,
+    ]
     base = {r["items"]: r["seconds"] for r in rows if r["feature"] == next(iter(FEATURES))}
     for r in rows:
         extra = r["seconds"] - base[r["items"]]
-        lines.append(f"| {r['items']:,} | {r['feature']} | {r['seconds']:.2f} s | "
-                     f"{extra:+.2f} s | {r['rss_mb']:.0f} |")
+        lines.append(
+            f"| {r['items']:,} | {r['feature']} | {r['seconds']:.2f} s | "
+            f"{extra:+.2f} s | {r['rss_mb']:.0f} |"
+        )
     return "\n".join(lines)
 
 
 def table(rows: list[dict]) -> str:
-    head = ("| items | layout | file MB | read (fastest) | write | floor | plan | plan / floor "
-            "| naive | naive / plan | plan peak RSS MB |")
+    head = (
+        "| items | layout | file MB | read (fastest) | write | floor | plan | plan / floor "
+        "| naive | naive / plan | plan peak RSS MB |"
+    )
     lines = [head, "|" + " --- |" * 11]
     for r in rows:
-        naive = (f"{'~' if r['naive_est'] else ''}{r['naive']:.1f} s"
-                 if r["naive"] == r["naive"] else "n/a")
+        naive = (
+            f"{'~' if r['naive_est'] else ''}{r['naive']:.1f} s"
+            if r["naive"] == r["naive"]
+            else "n/a"
+        )
         lines.append(
             f"| {r['items']:,} | {r['layout']} | {r['mb']:.1f} | {r['read']:.2f} s "
             f"({r['reader']}) | {r['write']:.2f} s | {r['floor']:.2f} s | {r['plan']:.2f} s | "
             f"{r['plan'] / r['floor']:.2f} | {naive} | "
             f"{r['naive'] / r['plan'] if r['naive'] == r['naive'] else 'n/a':.4} | "
-            f"{r['rss_mb']:.0f} |")
+            f"{r['rss_mb']:.0f} |"
+        )
     return "\n".join(lines)
 
 
@@ -291,20 +353,34 @@ def main(argv: list[str] | None = None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="1,000 items only (a smoke check)")
     ap.add_argument("--sizes", type=int, nargs="+", default=[1000, 10000, 100000])
-    ap.add_argument("--layout", choices=("wide", "long", "file", "both", "all"),
-                    default="wide", help="both: wide and long; all: wide, long and file "
-                    "(the history in a Parquet file beside the workbook)")
-    ap.add_argument("--features", action="store_true",
-                    help="also time the optional features (exchange curve, back-test, a "
-                         "binding budget) at each size, wide layout")
-    ap.add_argument("--naive-max", type=int, default=10000,
-                    help="largest size at which the naive path is run; larger ones are scaled")
-    ap.add_argument("--dir", type=Path, default=None,
-                    help="where to keep the generated workbooks (default: a temporary folder)")
+    ap.add_argument(
+        "--layout",
+        choices=("wide", "long", "file", "both", "all"),
+        default="wide",
+        help="both: wide and long; all: wide, long and file "
+        "(the history in a Parquet file beside the workbook)",
+    )
+    ap.add_argument(
+        "--features",
+        action="store_true",
+        help="also time the optional features (exchange curve, back-test, a "
+        "binding budget) at each size, wide layout",
+    )
+    ap.add_argument(
+        "--naive-max",
+        type=int,
+        default=10000,
+        help="largest size at which the naive path is run; larger ones are scaled",
+    )
+    ap.add_argument(
+        "--dir",
+        type=Path,
+        default=None,
+        help="where to keep the generated workbooks (default: a temporary folder)",
+    )
     a = ap.parse_args(argv)
     sizes = [1000] if a.quick else sorted(a.sizes)
-    layouts = {"both": ("wide", "long"), "all": ("wide", "long", "file")}.get(
-        a.layout, (a.layout,))
+    layouts = {"both": ("wide", "long"), "all": ("wide", "long", "file")}.get(a.layout, (a.layout,))
     tmp = None
     if a.dir is None:
         tmp = tempfile.TemporaryDirectory(prefix="xlpolicy-bench-")
@@ -329,9 +405,11 @@ def main(argv: list[str] | None = None) -> int:
     finally:
         if tmp is not None:
             tmp.cleanup()
-    print(f"python {sys.version.split()[0]}, {os.cpu_count()} cores; floor = fastest read of "
-          "Items + History + xlsxwriter write of an items x 21 table; ~ = naive path scaled "
-          f"linearly from {a.naive_max:,} items")
+    print(
+        f"python {sys.version.split()[0]}, {os.cpu_count()} cores; floor = fastest read of "
+        "Items + History + xlsxwriter write of an items x 21 table; ~ = naive path scaled "
+        f"linearly from {a.naive_max:,} items"
+    )
     print(table(rows))
     if feats:
         print()

@@ -1,7 +1,7 @@
 """Write the demo workbooks (the generator lives in xlpolicy/demo.py).
 
-    python examples/make_demo.py            # rewrites examples/demo-shop.xlsx and demo-wide.xlsx
-    python examples/make_demo.py OUT_DIR    # writes them to OUT_DIR instead
+python examples/make_demo.py            # rewrites examples/demo-shop.xlsx and demo-wide.xlsx
+python examples/make_demo.py OUT_DIR    # writes them to OUT_DIR instead
 """
 
 import sys

@@ -31,8 +31,9 @@ DPI = 70
 
 
 def _page_texts(pdf: Path) -> list[str]:
-    text = subprocess.run(["pdftotext", "-layout", str(pdf), "-"], capture_output=True,
-                          text=True, check=True).stdout
+    text = subprocess.run(
+        ["pdftotext", "-layout", str(pdf), "-"], capture_output=True, text=True, check=True
+    ).stdout
     return text.split("\f")
 
 
@@ -40,8 +41,10 @@ def render(out_dir: Path) -> list[Path]:
     """Write the pictures into out_dir and return their paths."""
     soffice = shutil.which("soffice") or shutil.which("libreoffice")
     if soffice is None or shutil.which("pdftoppm") is None:
-        raise SystemExit("needs LibreOffice (soffice) and pdftoppm: "
-                         "apt-get install libreoffice-calc-nogui poppler-utils")
+        raise SystemExit(
+            "needs LibreOffice (soffice) and pdftoppm: "
+            "apt-get install libreoffice-calc-nogui poppler-utils"
+        )
     out_dir.mkdir(parents=True, exist_ok=True)
     written = []
     with tempfile.TemporaryDirectory(prefix="xlpolicy-pictures-") as tmp:
@@ -49,9 +52,22 @@ def render(out_dir: Path) -> list[Path]:
         report = analyse(HERE / "demo-shop.xlsx", run_date=RUN_DATE)
         sheets = work / "demo-shop-policy.xlsx"
         write_generated_workbook(sheets, report, link_to_input=False)
-        subprocess.run([soffice, f"-env:UserInstallation={(work / 'profile').as_uri()}",
-                        "--headless", "--norestore", "--convert-to", "pdf", "--outdir",
-                        str(work), str(sheets)], check=True, capture_output=True, timeout=300)
+        subprocess.run(
+            [
+                soffice,
+                f"-env:UserInstallation={(work / 'profile').as_uri()}",
+                "--headless",
+                "--norestore",
+                "--convert-to",
+                "pdf",
+                "--outdir",
+                str(work),
+                str(sheets),
+            ],
+            check=True,
+            capture_output=True,
+            timeout=300,
+        )
         pdf = work / "demo-shop-policy.pdf"
         texts = _page_texts(pdf)
         for name, marker in PAGES.items():
@@ -59,8 +75,22 @@ def render(out_dir: Path) -> list[Path]:
             if page is None:
                 raise SystemExit(f"no page shows {marker!r}")
             stem = work / name.removesuffix(".png")
-            subprocess.run(["pdftoppm", "-r", str(DPI), "-png", "-singlefile", "-f", str(page),
-                            "-l", str(page), str(pdf), str(stem)], check=True)
+            subprocess.run(
+                [
+                    "pdftoppm",
+                    "-r",
+                    str(DPI),
+                    "-png",
+                    "-singlefile",
+                    "-f",
+                    str(page),
+                    "-l",
+                    str(page),
+                    str(pdf),
+                    str(stem),
+                ],
+                check=True,
+            )
             target = out_dir / name
             shutil.copyfile(stem.with_suffix(".png"), target)
             written.append(target)

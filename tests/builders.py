@@ -15,18 +15,33 @@ from typing import Any
 import numpy as np
 from openpyxl import Workbook
 
-BASE_HEADERS = ["Item", "Description", "Supplier", "Unit cost", "Order cost", "Holding rate",
-                "Lead time (days)"]
+BASE_HEADERS = [
+    "Item",
+    "Description",
+    "Supplier",
+    "Unit cost",
+    "Order cost",
+    "Holding rate",
+    "Lead time (days)",
+]
 
 
-def item_row(code: str, cost: float = 10.0, order: float = 20.0, rate: float = 0.2,
-             lead: float = 14.0, desc: str = "thing", supplier: str = "Acme") -> list[Any]:
+def item_row(
+    code: str,
+    cost: float = 10.0,
+    order: float = 20.0,
+    rate: float = 0.2,
+    lead: float = 14.0,
+    desc: str = "thing",
+    supplier: str = "Acme",
+) -> list[Any]:
     """One Items row in BASE_HEADERS order."""
     return [code, desc, supplier, cost, order, rate, lead]
 
 
-def weekly_history(codes: Sequence[str], weeks: int = 60, seed: int = 7,
-                   mean: float = 20.0) -> dict[str, list[float]]:
+def weekly_history(
+    codes: Sequence[str], weeks: int = 60, seed: int = 7, mean: float = 20.0
+) -> dict[str, list[float]]:
     """Poisson weekly demand per item (seeded), for items that just need some history."""
     rng = np.random.default_rng(seed)
     return {c: [float(x) for x in rng.poisson(mean, weeks)] for c in codes}
@@ -66,9 +81,14 @@ def write_workbook(
         for t in history_title_rows:
             hs.append([t])
         n = max((len(v) for v in history.values()), default=0)
-        periods = list(labels) if labels is not None else [
-            dt.datetime.combine(start + dt.timedelta(days=step_days * k), dt.time())
-            for k in range(n)]
+        periods = (
+            list(labels)
+            if labels is not None
+            else [
+                dt.datetime.combine(start + dt.timedelta(days=step_days * k), dt.time())
+                for k in range(n)
+            ]
+        )
         if layout == "long":
             hs.append(["Item", "Period", "Quantity"])
             for code, qty in history.items():
@@ -95,5 +115,6 @@ def write_workbook(
 
 def simple_workbook(path: Path, codes: Sequence[str] = ("A1", "B2", "C3"), **kw: Any) -> Path:
     """Three well-formed items with a year of weekly history."""
-    return write_workbook(path, [item_row(c) for c in codes],
-                          history=weekly_history(codes, weeks=60), **kw)
+    return write_workbook(
+        path, [item_row(c) for c in codes], history=weekly_history(codes, weeks=60), **kw
+    )

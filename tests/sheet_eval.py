@@ -17,14 +17,17 @@ import re
 from collections.abc import Callable
 from typing import Any
 
-_TOKEN = re.compile(r"""
+_TOKEN = re.compile(
+    r"""
     (?P<ws>\s+)
   | (?P<str>"(?:[^"]|"")*")
   | (?P<ref>(?:(?:'(?:[^']|'')+'|[A-Za-z_][\w. ]*)!)?\$?[A-Z]{1,3}\$?\d+(?::\$?[A-Z]{1,3}\$?\d+)?)
   | (?P<num>\d+(?:\.\d+)?(?:[eE][-+]?\d+)?)
   | (?P<func>[A-Z][A-Z0-9.]*)\(
   | (?P<op><>|<=|>=|[-+*/^&=<>(),])
-""", re.VERBOSE)
+""",
+    re.VERBOSE,
+)
 
 FUNCTION_NAME = re.compile(r"([A-Z][A-Z0-9.]*)\(")
 
@@ -59,8 +62,8 @@ def _cells(ref: str) -> list[str]:
     cb, rb = re.fullmatch(r"\$?([A-Z]+)\$?(\d+)", b).groups()
     from openpyxl.utils import column_index_from_string as ci
     from openpyxl.utils import get_column_letter as gl
-    return [f"{gl(c)}{r}" for r in range(int(ra), int(rb) + 1)
-            for c in range(ci(ca), ci(cb) + 1)]
+
+    return [f"{gl(c)}{r}" for r in range(int(ra), int(rb) + 1) for c in range(ci(ca), ci(cb) + 1)]
 
 
 def _num(v: Any) -> float:
@@ -88,9 +91,15 @@ def _matches(value: Any, crit: Any) -> bool:
         if isinstance(target, float):
             if not isinstance(value, (int, float)) or isinstance(value, bool):
                 return op == "<>"
-            return {"": value == target, "=": value == target, "<>": value != target,
-                    "<": value < target, ">": value > target, "<=": value <= target,
-                    ">=": value >= target}[op]
+            return {
+                "": value == target,
+                "=": value == target,
+                "<>": value != target,
+                "<": value < target,
+                ">": value > target,
+                "<=": value <= target,
+                ">=": value >= target,
+            }[op]
         return (op == "<>") != (isinstance(value, str) and value.lower() == target.lower())
     if crit is None:
         return value in (None, "")
@@ -109,7 +118,7 @@ class Evaluator:
         self.i = 0
         value = self.compare()
         if self.i != len(self.toks):
-            raise ValueError(f"left over in {formula!r}: {self.toks[self.i:]}")
+            raise ValueError(f"left over in {formula!r}: {self.toks[self.i :]}")
         return value
 
     def peek(self) -> tuple[str, str] | None:
@@ -140,8 +149,7 @@ class Evaluator:
             a, b = (0, 1) if not isinstance(a, str) else (1, 0)
             if op in ("=", "<>"):
                 return op == "<>"
-        return {"=": a == b, "<>": a != b, "<": a < b, ">": a > b, "<=": a <= b,
-                ">=": a >= b}[op]
+        return {"=": a == b, "<>": a != b, "<": a < b, ">": a > b, "<=": a <= b, ">=": a >= b}[op]
 
     def concat(self) -> Any:
         a = self.add()
@@ -209,8 +217,9 @@ class Evaluator:
         sheet = self.sheet
         if "!" in text:
             sheet_part, text = text.rsplit("!", 1)
-            sheet = (sheet_part[1:-1].replace("''", "'") if sheet_part.startswith("'")
-                     else sheet_part)
+            sheet = (
+                sheet_part[1:-1].replace("''", "'") if sheet_part.startswith("'") else sheet_part
+            )
         cells = _cells(text)
         if ":" in text:
             return ("range", [self.get(sheet, c) for c in cells])
@@ -234,8 +243,11 @@ class Evaluator:
             cond = self._scalar(args[0])
             return args[1] if cond else (args[2] if len(args) > 2 else False)
         if name in ("SUM", "MAX", "MIN"):
-            nums = [float(v) for v in self._values(args)
-                    if isinstance(v, (int, float)) and not isinstance(v, bool)]
+            nums = [
+                float(v)
+                for v in self._values(args)
+                if isinstance(v, (int, float)) and not isinstance(v, bool)
+            ]
             if name == "SUM":
                 return math.fsum(nums)
             return (max if name == "MAX" else min)(nums) if nums else 0.0
@@ -248,8 +260,11 @@ class Evaluator:
         if name == "SUMIF":
             rng, crit = args[0][1], self._scalar(args[1])
             sums = args[2][1] if len(args) > 2 else rng
-            return math.fsum(float(s) for v, s in zip(rng, sums, strict=True)
-                             if _matches(v, crit) and isinstance(s, (int, float)))
+            return math.fsum(
+                float(s)
+                for v, s in zip(rng, sums, strict=True)
+                if _matches(v, crit) and isinstance(s, (int, float))
+            )
         if name == "COUNTIF":
             return float(sum(1 for v in args[0][1] if _matches(v, self._scalar(args[1]))))
         if name == "COUNTIFS":
@@ -261,6 +276,8 @@ class Evaluator:
 
 def workbook_getter(wb_values: Any) -> Getter:
     """Cell values from an openpyxl workbook loaded with data_only=True."""
+
     def get(sheet: str, cell: str) -> Any:
         return wb_values[sheet][cell].value
+
     return get

@@ -24,8 +24,10 @@ DEMAND = {"P1": 600, "P2": 250, "P3": 90, "P4": 40, "P5": 20}
 
 def _items(own: dict[str, float] | None = None) -> list[list]:
     own = own or {}
-    return [[code, "thing", "Acme", 10.0, 20.0, 0.2, 14.0, d, 3.0, own.get(code)]
-            for code, d in DEMAND.items()]
+    return [
+        [code, "thing", "Acme", 10.0, 20.0, 0.2, 14.0, d, 3.0, own.get(code)]
+        for code, d in DEMAND.items()
+    ]
 
 
 def _brute_classes(spend: dict[str, float], a: float, ab: float) -> dict[str, str]:
@@ -92,8 +94,9 @@ def test_class_targets_change_the_reorder_point(tmp_path):
 
 
 def test_bad_share_is_reported_by_cell(tmp_path):
-    path = write_workbook(tmp_path / "w.xlsx", _items(), headers=HEADERS,
-                          settings={"ABC share A": 1.5})
+    path = write_workbook(
+        tmp_path / "w.xlsx", _items(), headers=HEADERS, settings={"ABC share A": 1.5}
+    )
     p = [p for p in xlpolicy.check(path) if p.code == "setting-abc_share_a"]
     assert len(p) == 1 and p[0].sheet == "Settings" and p[0].cell.startswith("B")
     assert "between 0 and 1" in p[0].message
@@ -107,8 +110,9 @@ def test_shares_over_100_percent_are_reported(tmp_path):
 
 
 def test_bad_class_target_is_reported_by_cell(tmp_path):
-    path = write_workbook(tmp_path / "w.xlsx", _items(), headers=HEADERS,
-                          settings={"Service target B": "120%"})
+    path = write_workbook(
+        tmp_path / "w.xlsx", _items(), headers=HEADERS, settings={"Service target B": "120%"}
+    )
     p = [p for p in xlpolicy.check(path) if p.code == "setting-service_target_b"]
     assert len(p) == 1 and p[0].sheet == "Settings" and p[0].cell
 
@@ -116,8 +120,9 @@ def test_bad_class_target_is_reported_by_cell(tmp_path):
 def test_set_option_on_the_command_line(tmp_path):
     path = write_workbook(tmp_path / "w.xlsx", _items(), headers=HEADERS)
     out = tmp_path / "o.csv"
-    res = CliRunner().invoke(main, ["plan", str(path), "-q", "--csv", str(out),
-                                    "--set", "service target a=0.99"])
+    res = CliRunner().invoke(
+        main, ["plan", str(path), "-q", "--csv", str(out), "--set", "service target a=0.99"]
+    )
     assert res.exit_code == 0, res.output
     import pandas as pd
 

@@ -37,11 +37,17 @@ def _shop(tmp_path: Path, settings: dict | None = None) -> Path:
     weeks = 416  # eight years (see test_simulate.lumpy_history)
     steady = [float(x) for x in rng.poisson(6.0, weeks)]
     headers = BASE_HEADERS + ["Demand model"]
-    rows = [item_row("000777", cost=3.0, order=25, rate=0.25, lead=14) + [None],
-            item_row("LMP-1", cost=10.0, order=20, rate=0.25, lead=14) + ["normal"]]
-    return write_workbook(tmp_path / "shop.xlsx", rows, headers=headers,
-                          history={"000777": steady, "LMP-1": list(lumpy_history(weeks))},
-                          settings=settings or {"Service target": "98%"})
+    rows = [
+        item_row("000777", cost=3.0, order=25, rate=0.25, lead=14) + [None],
+        item_row("LMP-1", cost=10.0, order=20, rate=0.25, lead=14) + ["normal"],
+    ]
+    return write_workbook(
+        tmp_path / "shop.xlsx",
+        rows,
+        headers=headers,
+        history={"000777": steady, "LMP-1": list(lumpy_history(weeks))},
+        settings=settings or {"Service target": "98%"},
+    )
 
 
 def test_plan_with_simulate_flags_the_lumpy_item_and_writes_the_columns(tmp_path):
@@ -56,9 +62,14 @@ def test_plan_with_simulate_flags_the_lumpy_item_and_writes_the_columns(tmp_path
         rows = {r["item"]: r for r in csv.DictReader(f)}
     steady, lumpy = rows["000777"], rows["LMP-1"]
     for r in (steady, lumpy):
-        cs, lo, hi = (float(r[k]) for k in ("simulated_cycle_service",
-                                            "simulated_cycle_service_low",
-                                            "simulated_cycle_service_high"))
+        cs, lo, hi = (
+            float(r[k])
+            for k in (
+                "simulated_cycle_service",
+                "simulated_cycle_service_low",
+                "simulated_cycle_service_high",
+            )
+        )
         assert 0 <= lo <= cs <= hi <= 1
         assert 0 <= float(r["simulated_fill_rate"]) <= 1
         assert r["simulation_source"] == "history, block bootstrap"
@@ -84,20 +95,27 @@ def test_plan_with_simulate_flags_the_lumpy_item_and_writes_the_columns(tmp_path
     items = [ws.cell(row=r, column=1).value for r in range(2, 4)]
     k = items.index("LMP-1") + 2
     assert ws.cell(row=k, column=col).value == pytest.approx(
-        float(lumpy["simulated_cycle_service"]))
+        float(lumpy["simulated_cycle_service"])
+    )
     check_col = header.index("Back-test: service against the promise") + 1
     assert ws.cell(row=k, column=check_col).value == "short of promise"
 
     warnings = [[c.value for c in row] for row in wb["Warnings"].iter_rows()]
-    hits = [w for w in warnings if "LMP-1" in w and any(
-        isinstance(v, str) and v.startswith("Back-test: simulated cycle service") for v in w)]
+    hits = [
+        w
+        for w in warnings
+        if "LMP-1" in w
+        and any(
+            isinstance(v, str) and v.startswith("Back-test: simulated cycle service") for v in w
+        )
+    ]
     assert len(hits) == 1
     assert any(v == "A3" for v in hits[0])  # the item's cell in Items
-    summary = " ".join(str(c.value) for row in wb["Summary"].iter_rows() for c in row
-                       if c.value)
+    summary = " ".join(str(c.value) for row in wb["Summary"].iter_rows() for c in row if c.value)
     assert "Back-test: in simulation on their own demand" in summary
-    method = " ".join(str(c.value) for row in wb["How it works"].iter_rows() for c in row
-                      if c.value)
+    method = " ".join(
+        str(c.value) for row in wb["How it works"].iter_rows() for c in row if c.value
+    )
     assert "simulated 150 times" in method
 
 
@@ -112,8 +130,7 @@ def test_without_simulate_the_back_test_columns_stay_out(tmp_path):
     assert all(row[k] == "" for k in SIMULATION_RESULT_KEYS)  # the CSV keeps its columns
 
 
-def test_by_default_small_catalogues_are_back_tested_and_big_ones_told(tmp_path,
-                                                                     monkeypatch):
+def test_by_default_small_catalogues_are_back_tested_and_big_ones_told(tmp_path, monkeypatch):
     """Blank 'Simulation runs': 100 runs up to AUTO_MAX_ITEMS items, a note above it."""
     import xlpolicy.backtest as backtest
 
@@ -196,7 +213,7 @@ def test_stock_trace_sheet_replays_the_history_as_by_hand(tmp_path):
         code = rows[k - 2][0]
         assert code in hist
         table = []
-        for row in rows[k + 1:]:
+        for row in rows[k + 1 :]:
             if row[0] is None:
                 break
             table.append(row)

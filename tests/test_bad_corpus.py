@@ -60,19 +60,33 @@ def run_cli(path: Path, out: Path) -> dict:
     """`xlpolicy plan PATH -o OUT` in a fresh interpreter: exit, output, seconds, peak MB."""
     rss_file = out.with_suffix(".rss.json")
     root = str(Path(xlpolicy.__file__).resolve().parent.parent)
-    env = dict(os.environ, XLPOLICY_RSS_FILE=str(rss_file),
-               PYTHONPATH=os.pathsep.join([root, os.environ.get("PYTHONPATH", "")]))
+    env = dict(
+        os.environ,
+        XLPOLICY_RSS_FILE=str(rss_file),
+        PYTHONPATH=os.pathsep.join([root, os.environ.get("PYTHONPATH", "")]),
+    )
     env.pop("XLPOLICY_DEBUG", None)
     env.pop("XLPOLICY_ALLOW_LARGE", None)
     before = _digest(path)
     t0 = time.monotonic()
-    proc = subprocess.run([sys.executable, "-c", _RUNNER, "plan", str(path), "-o", str(out)],
-                          capture_output=True, text=True, env=env, timeout=120,
-                          cwd=str(out.parent))
+    proc = subprocess.run(
+        [sys.executable, "-c", _RUNNER, "plan", str(path), "-o", str(out)],
+        capture_output=True,
+        text=True,
+        env=env,
+        timeout=120,
+        cwd=str(out.parent),
+    )
     seconds = time.monotonic() - t0
     rss = json.loads(rss_file.read_text())["rss_kb"] / 1024 if rss_file.exists() else None
-    return {"code": proc.returncode, "text": proc.stdout + proc.stderr, "seconds": seconds,
-            "rss_mb": rss, "unchanged": _digest(path) == before, "wrote": out.exists()}
+    return {
+        "code": proc.returncode,
+        "text": proc.stdout + proc.stderr,
+        "seconds": seconds,
+        "rss_mb": rss,
+        "unchanged": _digest(path) == before,
+        "wrote": out.exists(),
+    }
 
 
 @pytest.fixture(scope="module")
@@ -120,8 +134,9 @@ def test_bad_file_through_the_cli(runs, case):
     assert r["rss_mb"] is not None and r["rss_mb"] < base + MEMORY_MARGIN_MB, (r["rss_mb"], base)
 
 
-@pytest.mark.parametrize("case", [c for c in make_bad.CASES if c.codes or c.planned],
-                         ids=lambda c: c.name)
+@pytest.mark.parametrize(
+    "case", [c for c in make_bad.CASES if c.codes or c.planned], ids=lambda c: c.name
+)
 def test_bad_file_through_the_api(runs, case, tmp_path):
     path = BAD / case.name
     if not case.committed:

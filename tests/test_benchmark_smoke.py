@@ -14,9 +14,22 @@ ROOT = Path(__file__).resolve().parent.parent
 def test_quick_benchmark_completes_and_prints_its_table(tmp_path: Path) -> None:
     pytest.importorskip("python_calamine")
     pytest.importorskip("pyarrow")
-    proc = subprocess.run([sys.executable, str(ROOT / "benchmarks" / "run.py"), "--quick",
-                           "--layout", "all", "--features", "--dir", str(tmp_path)],
-                          capture_output=True, text=True, cwd=ROOT, timeout=600)
+    proc = subprocess.run(
+        [
+            sys.executable,
+            str(ROOT / "benchmarks" / "run.py"),
+            "--quick",
+            "--layout",
+            "all",
+            "--features",
+            "--dir",
+            str(tmp_path),
+        ],
+        capture_output=True,
+        text=True,
+        cwd=ROOT,
+        timeout=600,
+    )
     assert proc.returncode == 0, proc.stderr
     lines = proc.stdout.splitlines()
     header = next(ln for ln in lines if ln.startswith("| items"))

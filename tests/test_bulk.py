@@ -21,16 +21,45 @@ from python_calamine import CalamineWorkbook
 from xlpolicy.writing.bulk import ROW, BlockSheet, CellBlock
 from xlpolicy.writing.package import merge_generated_sheets
 
-TEXTS = ["000123", "plain", "a & b < c > d", "=1+1", "-dash", "@at", "  lead", "trail ",
-         "two\nlines", "_x0041_ literal", "", None, "naïve – ünïcode", "+plus"]
-NUMBERS = [1.5, np.nan, 0.1 + 0.2, -3.0, 1e-12, 123456789.125, np.inf, 0.0, 7.0, 2.5e20,
-           -0.5, 42.0, np.nan, 1 / 3]
+TEXTS = [
+    "000123",
+    "plain",
+    "a & b < c > d",
+    "=1+1",
+    "-dash",
+    "@at",
+    "  lead",
+    "trail ",
+    "two\nlines",
+    "_x0041_ literal",
+    "",
+    None,
+    "naïve – ünïcode",
+    "+plus",
+]
+NUMBERS = [
+    1.5,
+    np.nan,
+    0.1 + 0.2,
+    -3.0,
+    1e-12,
+    123456789.125,
+    np.inf,
+    0.0,
+    7.0,
+    2.5e20,
+    -0.5,
+    42.0,
+    np.nan,
+    1 / 3,
+]
 
 
 def _sheets(path: Path) -> tuple[BlockSheet, BlockSheet, xlsxwriter.Workbook, dict]:
-    wb = xlsxwriter.Workbook(str(path), {"strings_to_formulas": False,
-                                         "strings_to_numbers": False,
-                                         "strings_to_urls": False})
+    wb = xlsxwriter.Workbook(
+        str(path),
+        {"strings_to_formulas": False, "strings_to_numbers": False, "strings_to_urls": False},
+    )
     a = wb.add_worksheet("cells", worksheet_class=BlockSheet)
     b = wb.add_worksheet("block", worksheet_class=BlockSheet)
     fmts = {
@@ -87,8 +116,12 @@ def _value(v: object) -> object:
 
 
 def _cells(ws: openpyxl.worksheet.worksheet.Worksheet) -> list[tuple]:
-    return [(c.coordinate, _value(c.value), c.number_format, bool(c.quotePrefix), c.font.b)
-            for row in ws.iter_rows() for c in row if c.value is not None or c.has_style]
+    return [
+        (c.coordinate, _value(c.value), c.number_format, bool(c.quotePrefix), c.font.b)
+        for row in ws.iter_rows()
+        for c in row
+        if c.value is not None or c.has_style
+    ]
 
 
 @pytest.mark.parametrize("first", [1, 3])
@@ -109,7 +142,8 @@ def test_block_reads_back_like_cell_calls(tmp_path: Path, first: int) -> None:
     block_rows = cal.get_sheet_by_name("block").to_python()
     cell_rows = cal.get_sheet_by_name("cells").to_python()
     assert [[v if isinstance(v, str) else _value(v) for v in r] for r in block_rows] == [
-        [v if isinstance(v, str) else _value(v) for v in r] for r in cell_rows]
+        [v if isinstance(v, str) else _value(v) for v in r] for r in cell_rows
+    ]
     # ...and the block's numbers are the floats themselves, to the last bit.
     assert block_rows[first + 2][1] == 0.1 + 0.2
 

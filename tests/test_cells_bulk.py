@@ -14,16 +14,41 @@ from hypothesis import strategies as st
 
 from xlpolicy.reading.cells import item_code, item_codes, text, texts
 
-_AWKWARD = st.sampled_from([" ", "  ", "\t", "\n", "\u00a0", "\u2007", "\u202f", "\u3000",
-                            "_x0009_", "_x005F_", "_x", "0", "A", "é", "-", "."])
+_AWKWARD = st.sampled_from(
+    [
+        " ",
+        "  ",
+        "\t",
+        "\n",
+        "\u00a0",
+        "\u2007",
+        "\u202f",
+        "\u3000",
+        "_x0009_",
+        "_x005F_",
+        "_x",
+        "0",
+        "A",
+        "é",
+        "-",
+        ".",
+    ]
+)
 _TEXT = st.lists(st.one_of(_AWKWARD, st.text(max_size=3)), max_size=6).map("".join)
-_VALUES = st.one_of(_TEXT, st.none(), st.integers(-10**6, 10**16),
-                    st.floats(allow_nan=False, allow_infinity=False), st.booleans(),
-                    st.just(dt.datetime(2024, 5, 1, 12, 30)), st.just(dt.date(2024, 5, 1)))
+_VALUES = st.one_of(
+    _TEXT,
+    st.none(),
+    st.integers(-(10**6), 10**16),
+    st.floats(allow_nan=False, allow_infinity=False),
+    st.booleans(),
+    st.just(dt.datetime(2024, 5, 1, 12, 30)),
+    st.just(dt.date(2024, 5, 1)),
+)
 
 
-@given(st.lists(st.tuples(_VALUES, st.sampled_from(["", "General", "000000", "0.0%"])),
-                max_size=30))
+@given(
+    st.lists(st.tuples(_VALUES, st.sampled_from(["", "General", "000000", "0.0%"])), max_size=30)
+)
 def test_item_codes_equal_item_code_of_each(pairs: list) -> None:
     values = [v for v, _ in pairs]
     formats = [f for _, f in pairs]

@@ -22,21 +22,53 @@ from xlpolicy.reading.cells import parse_number, typed_periods
 NBSP, NNBSP = "\u00a0", "\u202f"
 
 
-@pytest.mark.parametrize("text, value", [
-    ("$12.50", 12.5), ("12,50 €", 12.5), (f"12,50{NBSP}€", 12.5), ("£1,250.00", 1250.0),
-    ("EUR 12.50", 12.5), ("12.50 USD", 12.5), (f"1{NBSP}250,50", 1250.5),
-    (f"1{NNBSP}250.50", 1250.5), ("1.250,50", 1250.5), ("1,250.50", 1250.5),
-    ("1'250.50", 1250.5), ("€ 1.234.567,89", 1234567.89), ("12,5", 12.5),
-    ("1,250", 1250.0),  # as a spreadsheet set to English reads it
-    ("1.250.000", 1250000.0), ("(12.50)", -12.5), ("-$12.50", -12.5), ("$-12.50", -12.5),
-    ("12.50-", -12.5), (" 3 ", 3.0), ("R$ 10,00", 10.0),
-])
+@pytest.mark.parametrize(
+    "text, value",
+    [
+        ("$12.50", 12.5),
+        ("12,50 €", 12.5),
+        (f"12,50{NBSP}€", 12.5),
+        ("£1,250.00", 1250.0),
+        ("EUR 12.50", 12.5),
+        ("12.50 USD", 12.5),
+        (f"1{NBSP}250,50", 1250.5),
+        (f"1{NNBSP}250.50", 1250.5),
+        ("1.250,50", 1250.5),
+        ("1,250.50", 1250.5),
+        ("1'250.50", 1250.5),
+        ("€ 1.234.567,89", 1234567.89),
+        ("12,5", 12.5),
+        ("1,250", 1250.0),  # as a spreadsheet set to English reads it
+        ("1.250.000", 1250000.0),
+        ("(12.50)", -12.5),
+        ("-$12.50", -12.5),
+        ("$-12.50", -12.5),
+        ("12.50-", -12.5),
+        (" 3 ", 3.0),
+        ("R$ 10,00", 10.0),
+    ],
+)
 def test_numbers_typed_as_text_are_read(text, value):
     assert parse_number(text) == (pytest.approx(value), None)
 
 
-@pytest.mark.parametrize("text", ["abc", "12abc", "$", "--5", "(-5)", "1,2,3", "1.2.3",
-                                  "12 boxes", "0x10", "nan", "inf", "1,25,0.5"])
+@pytest.mark.parametrize(
+    "text",
+    [
+        "abc",
+        "12abc",
+        "$",
+        "--5",
+        "(-5)",
+        "1,2,3",
+        "1.2.3",
+        "12 boxes",
+        "0x10",
+        "nan",
+        "inf",
+        "1,25,0.5",
+    ],
+)
 def test_text_that_is_not_a_number_stays_a_problem(text):
     x, why = parse_number(text)
     assert x is None and why == "text where a number belongs"
@@ -50,9 +82,11 @@ def test_percent_typed_as_text(text, rate):
 def test_items_with_typed_numbers_are_planned_like_real_numbers(tmp_path):
     codes = ["A", "B", "C"]
     hist = weekly_history(codes)
-    plain = write_workbook(tmp_path / "plain.xlsx",
-                           [item_row(c, cost=1250.5, order=12.5, rate=0.25) for c in codes],
-                           history=hist)
+    plain = write_workbook(
+        tmp_path / "plain.xlsx",
+        [item_row(c, cost=1250.5, order=12.5, rate=0.25) for c in codes],
+        history=hist,
+    )
     typed_rows = [
         ["A", "x", "s", "$1,250.50", "$12.50", "25%", "14"],
         ["B", "x", "s", f"1{NBSP}250,50 €", "12,50 €", "25 %", " 14 "],
@@ -68,8 +102,9 @@ def test_items_with_typed_numbers_are_planned_like_real_numbers(tmp_path):
 def _history_values(tmp_path: Path, name: str, periods: list) -> Path:
     codes = ["A", "B"]
     hist = weekly_history(codes, weeks=len(periods))
-    return write_workbook(tmp_path / name, [item_row(c) for c in codes], history=hist,
-                          labels=periods)
+    return write_workbook(
+        tmp_path / name, [item_row(c) for c in codes], history=hist, labels=periods
+    )
 
 
 def test_dates_typed_as_text_give_the_same_policy_as_real_dates(tmp_path):
@@ -126,8 +161,9 @@ def test_a_1904_based_workbook_reads_the_same_dates(tmp_path):
 
 
 def test_hidden_rows_are_read_with_a_warning_naming_them(tmp_path):
-    p = write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in "ABCD"],
-                       history=weekly_history(list("ABCD")))
+    p = write_workbook(
+        tmp_path / "w.xlsx", [item_row(c) for c in "ABCD"], history=weekly_history(list("ABCD"))
+    )
     wb = load_workbook(p)
     for r in (3, 4):
         wb["Items"].row_dimensions[r].hidden = True
@@ -139,8 +175,9 @@ def test_hidden_rows_are_read_with_a_warning_naming_them(tmp_path):
 
 
 def test_a_hidden_sheet_is_found_with_a_note(tmp_path):
-    p = write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in "AB"],
-                       history=weekly_history(list("AB")))
+    p = write_workbook(
+        tmp_path / "w.xlsx", [item_row(c) for c in "AB"], history=weekly_history(list("AB"))
+    )
     wb = load_workbook(p)
     wb.create_sheet("Cover", 0)
     wb["History"].sheet_state = "hidden"
@@ -152,8 +189,11 @@ def test_a_hidden_sheet_is_found_with_a_note(tmp_path):
 
 
 def test_merged_cells_in_the_data_are_reported_by_range(tmp_path):
-    p = write_workbook(tmp_path / "w.xlsx", [item_row(c, supplier="Acme") for c in "ABC"],
-                       history=weekly_history(list("ABC")))
+    p = write_workbook(
+        tmp_path / "w.xlsx",
+        [item_row(c, supplier="Acme") for c in "ABC"],
+        history=weekly_history(list("ABC")),
+    )
     wb = load_workbook(p)
     wb["Items"].merge_cells("C2:C4")  # one supplier typed once over three items
     wb.save(p)

@@ -62,18 +62,25 @@ def quad_shortage(dist: stats.rv_frozen, r: float) -> float:
     """E[(X - r)^+] for a continuous X by scipy.integrate.quad of sf over (r, inf)."""
     # E[(X - r)^+] = integral_r^inf P(X > x) dx (any probability text)
     lo = max(r, 0.0)
-    val, _ = integrate.quad(lambda x: dist.sf(x), lo, np.inf, limit=200, epsabs=1e-13,
-                            epsrel=1e-11)
+    val, _ = integrate.quad(lambda x: dist.sf(x), lo, np.inf, limit=200, epsabs=1e-13, epsrel=1e-11)
     return val + (lo - r)
 
 
 def make(n: int, model: object, **over: object) -> PolicyInputs:
     """PolicyInputs for n items with daily periods; lead-time demand = d * L by default."""
     base: dict[str, object] = {
-        "annual_demand": 365.0, "demand_per_period": 1.0, "demand_sd_per_period": 1.0,
-        "lead_time_days": 6.0, "lead_time_sd_days": 0.0, "unit_cost": 20.0,
-        "order_cost": 30.0, "holding_rate": 0.25, "measure": "cycle service",
-        "service_target": 0.95, "shortage_cost": np.nan, "pack_size": 1.0,
+        "annual_demand": 365.0,
+        "demand_per_period": 1.0,
+        "demand_sd_per_period": 1.0,
+        "lead_time_days": 6.0,
+        "lead_time_sd_days": 0.0,
+        "unit_cost": 20.0,
+        "order_cost": 30.0,
+        "holding_rate": 0.25,
+        "measure": "cycle service",
+        "service_target": 0.95,
+        "shortage_cost": np.nan,
+        "pack_size": 1.0,
         "minimum_order": 0.0,
     }
     base.update(over)
@@ -88,6 +95,7 @@ def make(n: int, model: object, **over: object) -> PolicyInputs:
 # ---------------------------------------------------------------------------------------
 # Names
 # ---------------------------------------------------------------------------------------
+
 
 def test_model_names_and_factory() -> None:
     assert MODEL_NAMES == DEMAND_MODELS  # the workbook contract lists the same names
@@ -105,6 +113,7 @@ def test_model_names_and_factory() -> None:
 # Each model against scipy.stats and brute force
 # ---------------------------------------------------------------------------------------
 
+
 @pytest.mark.parametrize("name", ["poisson", "negative binomial", "gamma"])
 def test_cdf_sf_quantile_match_scipy(name: str) -> None:
     m = model_factory(name)(MEANS, SDS)
@@ -118,8 +127,9 @@ def test_cdf_sf_quantile_match_scipy(name: str) -> None:
         if name == "gamma":
             np.testing.assert_allclose(q, ref.ppf(p), rtol=1e-10)
             tails = np.array([0.3, 1e-3, 1e-9, 1e-30])
-            np.testing.assert_allclose(m.upper_quantile(tails[:, None])[:, j], ref.isf(tails),
-                                       rtol=1e-9)
+            np.testing.assert_allclose(
+                m.upper_quantile(tails[:, None])[:, j], ref.isf(tails), rtol=1e-9
+            )
         else:
             # scipy's ppf convention: the smallest whole k with cdf(k) >= p
             np.testing.assert_array_equal(q, ref.ppf(p))
@@ -138,8 +148,10 @@ def test_count_upper_quantile_is_exact_even_for_tiny_tails(name: str) -> None:
         for i, t in enumerate(tails):
             assert got[i, j] == k[np.argmax(sf <= t)]
     # scipy's own isf goes through 1 - tail and loses tiny tails; ours does not
-    assert np.isnan(stats.poisson.isf(1e-20, 3.0)) and np.isfinite(
-        PoissonLeadTimeDemand(3.0, 0.0).upper_quantile(1e-20)).all()
+    assert (
+        np.isnan(stats.poisson.isf(1e-20, 3.0))
+        and np.isfinite(PoissonLeadTimeDemand(3.0, 0.0).upper_quantile(1e-20)).all()
+    )
 
 
 @pytest.mark.parametrize("name", ["poisson", "negative binomial"])
@@ -181,7 +193,8 @@ def test_poisson_table_values_by_hand() -> None:
     assert m.expected_shortage(4.0)[0] == pytest.approx(0.0750, abs=5e-4)
     # cross-check with scipy.stats exactly
     assert m.expected_shortage(4.0)[0] == pytest.approx(
-        2 * stats.poisson.sf(3, 2.0) - 4 * stats.poisson.sf(4, 2.0), rel=1e-13)
+        2 * stats.poisson.sf(3, 2.0) - 4 * stats.poisson.sf(4, 2.0), rel=1e-13
+    )
     assert m.sd[0] == pytest.approx(math.sqrt(2.0))
 
 
@@ -227,15 +240,22 @@ def test_point_masses_and_bad_parameters_are_quiet() -> None:
 # Reorder points under each model, against brute force with scipy.stats
 # ---------------------------------------------------------------------------------------
 
+
 def random_items(k: int, seed: int, measure: str) -> PolicyInputs:
     rng = np.random.default_rng(seed)
     d = rng.uniform(0.05, 30.0, k)
     names = np.array(list(MODEL_NAMES) * (k // 4), dtype=object)
     return make(
-        k, names, annual_demand=d * 365, demand_per_period=d,
-        demand_sd_per_period=d * rng.uniform(0.3, 3.0, k), lead_time_days=rng.uniform(1, 20, k),
-        order_cost=rng.uniform(2, 100, k), pack_size=rng.integers(1, 6, k).astype(float),
-        measure=measure, service_target=rng.uniform(0.6, 0.995, k),
+        k,
+        names,
+        annual_demand=d * 365,
+        demand_per_period=d,
+        demand_sd_per_period=d * rng.uniform(0.3, 3.0, k),
+        lead_time_days=rng.uniform(1, 20, k),
+        order_cost=rng.uniform(2, 100, k),
+        pack_size=rng.integers(1, 6, k).astype(float),
+        measure=measure,
+        service_target=rng.uniform(0.6, 0.995, k),
     )
 
 
@@ -280,6 +300,7 @@ def test_fill_rate_reorder_point_by_brute_force_under_each_model() -> None:
 # Simulation: the achieved service under the true distribution
 # ---------------------------------------------------------------------------------------
 
+
 def draw(rng: np.random.Generator, name: str, mean: float, sd: float, size: int) -> np.ndarray:
     """Lead-time demand drawn by numpy from the distribution the model stands for."""
     var = sd * sd
@@ -295,10 +316,17 @@ def draw(rng: np.random.Generator, name: str, mean: float, sd: float, size: int)
 @pytest.mark.parametrize("name", MODEL_NAMES)
 def test_simulated_service_matches_reported(name: str) -> None:
     rng = np.random.default_rng(list(MODEL_NAMES).index(name) + 500)
-    inp = make(2, name, demand_per_period=1.2, demand_sd_per_period=1.5, lead_time_days=5.0,
-               annual_demand=1.2 * 365, order_cost=4.0,
-               measure=np.array(["cycle service", "fill rate"], dtype=object),
-               service_target=np.array([0.9, 0.97]))
+    inp = make(
+        2,
+        name,
+        demand_per_period=1.2,
+        demand_sd_per_period=1.5,
+        lead_time_days=5.0,
+        annual_demand=1.2 * 365,
+        order_cost=4.0,
+        measure=np.array(["cycle service", "fill rate"], dtype=object),
+        service_target=np.array([0.9, 0.97]),
+    )
     out = compute_policy(inp)
     mean, sd = out["lead_time_demand_mean"][0], out["lead_time_demand_sd"][0]
     n = 200_000
@@ -320,14 +348,23 @@ def test_simulated_service_matches_reported(name: str) -> None:
 # Shortage cost with discrete models: brute force over whole (Q, R)
 # ---------------------------------------------------------------------------------------
 
+
 def shortage_items(name: str, k: int = 40) -> PolicyInputs:
     rng = np.random.default_rng(44)
     d = rng.uniform(0.1, 20, k)
-    return make(k, name, annual_demand=d * 365, demand_per_period=d,
-                demand_sd_per_period=d * rng.uniform(0.5, 3, k),
-                lead_time_days=rng.uniform(1, 30, k), unit_cost=rng.uniform(1, 80, k),
-                order_cost=rng.uniform(1, 80, k), measure="shortage cost",
-                shortage_cost=rng.exponential(40, k), service_target=np.nan)
+    return make(
+        k,
+        name,
+        annual_demand=d * 365,
+        demand_per_period=d,
+        demand_sd_per_period=d * rng.uniform(0.5, 3, k),
+        lead_time_days=rng.uniform(1, 30, k),
+        unit_cost=rng.uniform(1, 80, k),
+        order_cost=rng.uniform(1, 80, k),
+        measure="shortage cost",
+        shortage_cost=rng.exponential(40, k),
+        service_target=np.nan,
+    )
 
 
 @pytest.mark.parametrize("name", ["poisson", "negative binomial"])
@@ -354,14 +391,18 @@ def test_shortage_cost_under_count_models_is_the_brute_force_optimum(name: str) 
         grid = D * S / qs + H * (qs / 2 + rs[None, :] - mu) + p * D / qs * es[None, :]
         assert row["annual_total_cost"] == pytest.approx(grid.min(), rel=1e-9)
         assert grid.min() == pytest.approx(
-            D * S / row["order_qty"] + H * (row["order_qty"] / 2 + r0 - mu)
-            + p * D / row["order_qty"] * brute_shortage(ref, r0), rel=1e-9)
+            D * S / row["order_qty"]
+            + H * (row["order_qty"] / 2 + r0 - mu)
+            + p * D / row["order_qty"] * brute_shortage(ref, r0),
+            rel=1e-9,
+        )
     assert checked >= 30
 
 
 @pytest.mark.parametrize("name", ["poisson", "negative binomial", "gamma"])
-def test_bracketing_fallback_agrees_with_iteration(name: str,
-                                                   monkeypatch: pytest.MonkeyPatch) -> None:
+def test_bracketing_fallback_agrees_with_iteration(
+    name: str, monkeypatch: pytest.MonkeyPatch
+) -> None:
     inp = shortage_items(name, 60)
     iterated = compute_policy(inp)
     monkeypatch.setattr(policy_mod, "SHORTAGE_MAX_ITER", 0)  # every item by bracketing
@@ -376,6 +417,7 @@ def test_bracketing_fallback_agrees_with_iteration(name: str,
 # A model per item
 # ---------------------------------------------------------------------------------------
 
+
 def test_mixed_batch_equals_each_group_alone_in_row_order() -> None:
     rng = np.random.default_rng(5)
     k = 40
@@ -384,11 +426,20 @@ def test_mixed_batch_equals_each_group_alone_in_row_order() -> None:
     names[:6] = ["gamma", None, "poisson", " Negative Binomial", "negative binomial", ""]
     sd = d * rng.uniform(0.2, 2.5, k)
     sd[4] = 0.0  # variance 0 <= mean: this negative binomial item falls back to Poisson
-    inp = make(k, names, annual_demand=d * 365, demand_per_period=d, demand_sd_per_period=sd,
-               lead_time_days=rng.uniform(1, 30, k), order_cost=rng.uniform(1, 50, k),
-               measure=rng.choice(np.array(["cycle service", "fill rate", "shortage cost"],
-                                           dtype=object), k),
-               shortage_cost=rng.uniform(5, 60, k), service_target=rng.uniform(0.7, 0.99, k))
+    inp = make(
+        k,
+        names,
+        annual_demand=d * 365,
+        demand_per_period=d,
+        demand_sd_per_period=sd,
+        lead_time_days=rng.uniform(1, 30, k),
+        order_cost=rng.uniform(1, 50, k),
+        measure=rng.choice(
+            np.array(["cycle service", "fill rate", "shortage cost"], dtype=object), k
+        ),
+        shortage_cost=rng.uniform(5, 60, k),
+        service_target=rng.uniform(0.7, 0.99, k),
+    )
     mixed = compute_policy(inp)
     assert len(mixed) == k and isinstance(mixed.index, pd.RangeIndex)
     np.testing.assert_array_equal(mixed["annual_demand"], d * 365)  # row order kept
@@ -397,14 +448,22 @@ def test_mixed_batch_equals_each_group_alone_in_row_order() -> None:
     expected_names[4] = "poisson"
     assert mixed["model"].tolist() == expected_names.tolist()
     for key in ["normal", *MODEL_NAMES[1:]]:
-        grp = np.flatnonzero(np.char.lower(np.char.strip(
-            np.where(pd.isna(names), "", names).astype(str))) == ("" if key == "normal" else key))
+        grp = np.flatnonzero(
+            np.char.lower(np.char.strip(np.where(pd.isna(names), "", names).astype(str)))
+            == ("" if key == "normal" else key)
+        )
         if key == "normal":
             grp = np.union1d(grp, np.flatnonzero(np.asarray(names == "normal")))
-        sub = PolicyInputs(**{f: (getattr(inp, f)[grp]
-                                  if f != "days_per_period" and getattr(inp, f) is not None
-                                  else getattr(inp, f))
-                              for f in PolicyInputs.__dataclass_fields__})
+        sub = PolicyInputs(
+            **{
+                f: (
+                    getattr(inp, f)[grp]
+                    if f != "days_per_period" and getattr(inp, f) is not None
+                    else getattr(inp, f)
+                )
+                for f in PolicyInputs.__dataclass_fields__
+            }
+        )
         alone = compute_policy(sub)
         got = mixed.iloc[grp].reset_index(drop=True)
         pd.testing.assert_frame_equal(got, alone, check_dtype=False)
@@ -414,8 +473,12 @@ def test_mixed_batch_equals_each_group_alone_in_row_order() -> None:
 
 
 def test_model_factory_applies_to_items_without_a_name() -> None:
-    inp = make(3, np.array([None, "normal", ""], dtype=object), demand_per_period=2.0,
-               demand_sd_per_period=3.0)
+    inp = make(
+        3,
+        np.array([None, "normal", ""], dtype=object),
+        demand_per_period=2.0,
+        demand_sd_per_period=3.0,
+    )
     out = compute_policy(inp, model_factory=GammaLeadTimeDemand)
     assert out["model"].tolist() == ["gamma", "normal", "gamma"]
     ref = stats.gamma(12.0**2 / 54.0, scale=54.0 / 12.0)  # mean 12, variance 9 * 6 = 54
@@ -438,20 +501,33 @@ def test_unknown_model_name_gives_nan_not_an_error() -> None:
 # Property: the reorder point never falls as the target rises
 # ---------------------------------------------------------------------------------------
 
+
 @settings(max_examples=60, deadline=None)
-@given(name=st.sampled_from(MODEL_NAMES), measure=st.sampled_from(["cycle service",
-                                                                    "fill rate"]),
-       d=st.floats(min_value=0.01, max_value=200.0), cv=st.floats(min_value=0.0, max_value=4.0),
-       lt=st.floats(min_value=0.5, max_value=60.0),
-       t1=st.floats(min_value=0.01, max_value=0.999), t2=st.floats(min_value=0.01,
-                                                                   max_value=0.999))
-def test_reorder_point_never_falls_as_target_rises(name: str, measure: str, d: float,
-                                                   cv: float, lt: float, t1: float,
-                                                   t2: float) -> None:
+@given(
+    name=st.sampled_from(MODEL_NAMES),
+    measure=st.sampled_from(["cycle service", "fill rate"]),
+    d=st.floats(min_value=0.01, max_value=200.0),
+    cv=st.floats(min_value=0.0, max_value=4.0),
+    lt=st.floats(min_value=0.5, max_value=60.0),
+    t1=st.floats(min_value=0.01, max_value=0.999),
+    t2=st.floats(min_value=0.01, max_value=0.999),
+)
+def test_reorder_point_never_falls_as_target_rises(
+    name: str, measure: str, d: float, cv: float, lt: float, t1: float, t2: float
+) -> None:
     lo, hi = min(t1, t2), max(t1, t2)
-    out = compute_policy(make(2, name, annual_demand=d * 365, demand_per_period=d,
-                              demand_sd_per_period=cv * d, lead_time_days=lt,
-                              measure=measure, service_target=np.array([lo, hi])))
+    out = compute_policy(
+        make(
+            2,
+            name,
+            annual_demand=d * 365,
+            demand_per_period=d,
+            demand_sd_per_period=cv * d,
+            lead_time_days=lt,
+            measure=measure,
+            service_target=np.array([lo, hi]),
+        )
+    )
     r = out["reorder_point"].to_numpy()
     assert np.isfinite(r).all()
     assert r[0] <= r[1]
@@ -466,13 +542,17 @@ def test_count_quantile_search_equals_scipy_ppf_on_random_items() -> None:
     n = 3000
     mean = np.exp(rng.uniform(np.log(0.05), np.log(3000.0), n))
     sd = np.sqrt(mean) * np.exp(rng.uniform(0.01, 1.5, n))  # variance above the mean
-    p = np.concatenate([rng.uniform(0.5, 0.9999, n - 8),
-                        [1e-9, 1e-4, 0.01, 0.5, 0.999999, 1 - 1e-12, 0.0, 1.0]])
+    p = np.concatenate(
+        [rng.uniform(0.5, 0.9999, n - 8), [1e-9, 1e-4, 0.01, 0.5, 0.999999, 1 - 1e-12, 0.0, 1.0]]
+    )
     var = sd * sd
     for model, ref in (
-            (NegativeBinomialLeadTimeDemand(mean, sd),
-             stats.nbinom(mean * mean / (var - mean), mean / var)),
-            (PoissonLeadTimeDemand(mean, sd), stats.poisson(mean))):
+        (
+            NegativeBinomialLeadTimeDemand(mean, sd),
+            stats.nbinom(mean * mean / (var - mean), mean / var),
+        ),
+        (PoissonLeadTimeDemand(mean, sd), stats.poisson(mean)),
+    ):
         k = model.quantile(p)
         np.testing.assert_array_equal(k[:-2], ref.ppf(p)[:-2])  # p = 0: ours says -inf
         inner = (p > 0) & (p < 1)

@@ -40,14 +40,16 @@ def test_chopra_meindl_vitamins_from_memory():
     # 20 %, price 3.00 below 5,000, 2.96 from 5,000, 2.92 from 10,000. By hand: at 2.92 the
     # EOQ (6,411) is below 10,000, so Q = 10,000: TC = 1,200 + 2,920 + 350,400 = 354,520; at
     # 2.96 the EOQ 6,367 is feasible: TC = 358,969.4. Best: 10,000 at 2.92.
-    r = all_units_order_qty([120_000], [100], [0.2], [3.0], [[5000, 10_000]],
-                            [[2.96, 2.92]], [1], [0])
+    r = all_units_order_qty(
+        [120_000], [100], [0.2], [3.0], [[5000, 10_000]], [[2.96, 2.92]], [1], [0]
+    )
     assert r.order_qty[0] == 10_000 and r.unit_price[0] == pytest.approx(2.92)
     assert r.total_cost[0] == pytest.approx(354_520.0, rel=1e-12)
     # the plain EOQ at 3.00 (6,325 after rounding) lands in the 2.96 range and pays 2.96
     assert r.plain_qty[0] == 6325
     assert r.plain_cost[0] == pytest.approx(
-        120_000 * 100 / 6325 + 0.2 * 2.96 * 6325 / 2 + 120_000 * 2.96, rel=1e-12)
+        120_000 * 100 / 6325 + 0.2 * 2.96 * 6325 / 2 + 120_000 * 2.96, rel=1e-12
+    )
 
 
 def _brute(D, S, i, c0, bq, bp, pack, moq, q_max):
@@ -78,13 +80,22 @@ def test_brute_force_over_every_allowed_quantity():
     r = all_units_order_qty(D, S, i, c0, bq, bp, pack, moq)
     for j in range(n):
         keep = np.isfinite(bq[j])
-        q_max = int(max(np.nanmax(bq[j], initial=0), np.sqrt(2 * D[j] * S[j] / (i[j] * bp[j][
-            keep].min() if keep.any() else i[j] * c0[j])), moq[j]) * 3 + 10 * pack[j])
-        q, p, tc = _brute(D[j], S[j], i[j], c0[j], bq[j][keep], bp[j][keep], pack[j], moq[j],
-                          q_max)
+        q_max = int(
+            max(
+                np.nanmax(bq[j], initial=0),
+                np.sqrt(
+                    2 * D[j] * S[j] / (i[j] * bp[j][keep].min() if keep.any() else i[j] * c0[j])
+                ),
+                moq[j],
+            )
+            * 3
+            + 10 * pack[j]
+        )
+        q, p, tc = _brute(D[j], S[j], i[j], c0[j], bq[j][keep], bp[j][keep], pack[j], moq[j], q_max)
         assert r.total_cost[j] == pytest.approx(tc, rel=1e-12), j
-        assert r.unit_price[j] == pytest.approx(price_at([r.order_qty[j]], [c0[j]],
-                                                         bq[j:j + 1], bp[j:j + 1])[0])
+        assert r.unit_price[j] == pytest.approx(
+            price_at([r.order_qty[j]], [c0[j]], bq[j : j + 1], bp[j : j + 1])[0]
+        )
         assert r.order_qty[j] % pack[j] == 0 and r.order_qty[j] >= moq[j]
         assert r.saving[j] >= 0
 
@@ -98,14 +109,23 @@ def test_price_at_all_units():
 def _inputs(breaks: bool, measure: str = FILL_RATE) -> PolicyInputs:
     one = np.ones(1)
     return PolicyInputs(
-        annual_demand=np.array([600.0]), demand_per_period=np.array([600 / 52]),
-        demand_sd_per_period=np.array([4.0]), lead_time_days=np.array([14.0]),
-        lead_time_sd_days=np.zeros(1), unit_cost=np.array([0.30]), order_cost=np.array([8.0]),
-        holding_rate=np.array([0.2]), measure=np.array([measure], dtype=object),
-        service_target=np.array([0.98]), shortage_cost=np.full(1, np.nan), pack_size=one,
-        minimum_order=np.zeros(1), days_per_period=7.0,
+        annual_demand=np.array([600.0]),
+        demand_per_period=np.array([600 / 52]),
+        demand_sd_per_period=np.array([4.0]),
+        lead_time_days=np.array([14.0]),
+        lead_time_sd_days=np.zeros(1),
+        unit_cost=np.array([0.30]),
+        order_cost=np.array([8.0]),
+        holding_rate=np.array([0.2]),
+        measure=np.array([measure], dtype=object),
+        service_target=np.array([0.98]),
+        shortage_cost=np.full(1, np.nan),
+        pack_size=one,
+        minimum_order=np.zeros(1),
+        days_per_period=7.0,
         break_qty=np.array([[500.0, 1000.0]]) if breaks else None,
-        break_price=np.array([[0.29, 0.28]]) if breaks else None)
+        break_price=np.array([[0.29, 0.28]]) if breaks else None,
+    )
 
 
 def test_policy_uses_the_break_and_its_price():

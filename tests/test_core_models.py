@@ -26,6 +26,7 @@ def std_model(k: int = 1) -> NormalLeadTimeDemand:
 # Quantiles and cdf
 # ---------------------------------------------------------------------------------------
 
+
 @pytest.mark.parametrize(
     ("p", "z_table"),
     [
@@ -63,6 +64,7 @@ def test_quantile_outside_unit_interval_is_nan() -> None:
 # ---------------------------------------------------------------------------------------
 # Standard normal loss function
 # ---------------------------------------------------------------------------------------
+
 
 @pytest.mark.parametrize(
     ("z", "g_table"),
@@ -115,8 +117,9 @@ def test_inverse_normal_loss_round_trips() -> None:
     z = inverse_normal_loss(g)
     np.testing.assert_allclose(normal_loss(z), g, rtol=1e-9)
     z_grid = np.linspace(-Z_LIMIT, 30.0, 500)
-    np.testing.assert_allclose(inverse_normal_loss(normal_loss(z_grid)), z_grid, rtol=1e-9,
-                               atol=1e-12)
+    np.testing.assert_allclose(
+        inverse_normal_loss(normal_loss(z_grid)), z_grid, rtol=1e-9, atol=1e-12
+    )
 
 
 def test_inverse_normal_loss_matches_scipy_root_finder() -> None:
@@ -124,8 +127,9 @@ def test_inverse_normal_loss_matches_scipy_root_finder() -> None:
 
     for g in (0.3989, 0.08, 0.0085, 1e-5, 2.5):
         # scipy.optimize.brentq on scipy's textbook-form G is the independent reference
-        ref = brentq(lambda x, g=g: stats.norm.pdf(x) - x * stats.norm.sf(x) - g, -20, 8,
-                     xtol=1e-14)
+        ref = brentq(
+            lambda x, g=g: stats.norm.pdf(x) - x * stats.norm.sf(x) - g, -20, 8, xtol=1e-14
+        )
         assert inverse_normal_loss(g) == pytest.approx(ref, abs=1e-9)
 
 
@@ -138,6 +142,7 @@ def test_inverse_normal_loss_edges() -> None:
 # ---------------------------------------------------------------------------------------
 # Expected shortage
 # ---------------------------------------------------------------------------------------
+
 
 def test_expected_shortage_matches_monte_carlo() -> None:
     rng = np.random.default_rng(20240611)
@@ -161,8 +166,9 @@ def test_expected_shortage_chopra_meindl_example() -> None:
     assert esc == pytest.approx(25.13, abs=0.02)
     assert 1 - esc / 10000 == pytest.approx(0.9975, abs=1e-4)
     # independent check: scipy.integrate.quad of (x - R) f(x) over x > R
-    ref, _ = integrate.quad(lambda x: (x - 6000.0) * stats.norm.pdf(x, 5000.0, m.sd[0]),
-                            6000.0, np.inf)
+    ref, _ = integrate.quad(
+        lambda x: (x - 6000.0) * stats.norm.pdf(x, 5000.0, m.sd[0]), 6000.0, np.inf
+    )
     assert esc == pytest.approx(ref, rel=1e-8)
 
 
@@ -190,6 +196,7 @@ def test_very_large_shortage_target_gives_mean_minus_target() -> None:
 # Deterministic lead-time demand (sd == 0) and bad parameters
 # ---------------------------------------------------------------------------------------
 
+
 def test_zero_sd_is_a_point_mass() -> None:
     m = NormalLeadTimeDemand(np.array([70.0, 70.0, 70.0]), np.zeros(3))
     r = np.array([69.0, 70.0, 71.5])
@@ -197,8 +204,9 @@ def test_zero_sd_is_a_point_mass() -> None:
     np.testing.assert_array_equal(m.sf(r), [1.0, 0.0, 0.0])
     np.testing.assert_array_equal(m.quantile(np.array([0.1, 0.5, 0.999])), [70.0] * 3)
     np.testing.assert_array_equal(m.expected_shortage(r), [1.0, 0.0, 0.0])
-    np.testing.assert_array_equal(m.min_r_for_shortage(np.array([0.0, 5.0, 2.5])),
-                                  [70.0, 65.0, 67.5])
+    np.testing.assert_array_equal(
+        m.min_r_for_shortage(np.array([0.0, 5.0, 2.5])), [70.0, 65.0, 67.5]
+    )
 
 
 def test_zero_sd_step_ignores_float_noise() -> None:
@@ -227,6 +235,7 @@ def test_methods_broadcast_over_items() -> None:
 # ---------------------------------------------------------------------------------------
 # Demand statistics from history
 # ---------------------------------------------------------------------------------------
+
 
 def test_history_statistics_match_stdlib_sample_statistics() -> None:
     rows = [
@@ -258,7 +267,8 @@ def test_history_statistics_single_row_and_empty() -> None:
 
 def test_lead_time_demand_constant_lead_time() -> None:
     # sigma_L = sigma_d sqrt(L) for a fixed lead time (field notes; any inventory text)
-    mu, sigma = lead_time_demand(np.array([2500.0]), np.array([500.0]), np.array([2.0]),
-                                 np.array([0.0]))
+    mu, sigma = lead_time_demand(
+        np.array([2500.0]), np.array([500.0]), np.array([2.0]), np.array([0.0])
+    )
     assert mu[0] == 5000.0
     assert sigma[0] == pytest.approx(707.1068, abs=1e-4)  # Chopra & Meindl example, from memory

@@ -57,8 +57,9 @@ def normal_es(r: np.ndarray, mu: np.ndarray, sigma: np.ndarray) -> np.ndarray:
     return sigma * (stats.norm.pdf(z) - z * stats.norm.sf(z))
 
 
-def hw_cost(q: float, r: float, D: float, S: float, H: float, p: float, mu: float,
-            sigma: float) -> float:
+def hw_cost(
+    q: float, r: float, D: float, S: float, H: float, p: float, mu: float, sigma: float
+) -> float:
     """Expected annual cost with backorders, Hadley & Whitin (1963) / Nahmias (Q, R) chapter.
 
     Scalar, with the loss function written out from math.erfc (fast inside scipy.optimize).
@@ -72,6 +73,7 @@ def hw_cost(q: float, r: float, D: float, S: float, H: float, p: float, mu: floa
 # ---------------------------------------------------------------------------------------
 # EOQ and rounding
 # ---------------------------------------------------------------------------------------
+
 
 def test_output_columns_and_row_order() -> None:
     inp = make_inputs(3, annual_demand=np.array([1200.0, 50.0, 9000.0]))
@@ -125,11 +127,14 @@ def test_rounding_any_q_takes_the_cheaper_neighbour() -> None:
     got = round_order_qty(q, pack, moq, D, S, H)
     for j in range(k):
         floor_q = max(pack[j], math.ceil(moq[j] / pack[j]) * pack[j])
-        near = {max(math.floor(q[j] / pack[j]) * pack[j], floor_q),
-                max(math.ceil(q[j] / pack[j]) * pack[j], floor_q)}
+        near = {
+            max(math.floor(q[j] / pack[j]) * pack[j], floor_q),
+            max(math.ceil(q[j] / pack[j]) * pack[j], floor_q),
+        }
         assert got[j] in near
         assert D[j] * S[j] / got[j] + H[j] * got[j] / 2 == min(
-            D[j] * S[j] / a + H[j] * a / 2 for a in near)
+            D[j] * S[j] / a + H[j] * a / 2 for a in near
+        )
 
 
 def test_minimum_order_raises_q_to_a_pack_multiple() -> None:
@@ -163,8 +168,11 @@ def test_rounding_cost_ratio_is_the_textbook_identity() -> None:
 
 
 def test_zero_order_cost_orders_the_smallest_allowed_quantity() -> None:
-    out = compute_policy(make_inputs(2, order_cost=0.0, pack_size=np.array([6.0, 6.0]),
-                                     minimum_order=np.array([0.0, 20.0])))
+    out = compute_policy(
+        make_inputs(
+            2, order_cost=0.0, pack_size=np.array([6.0, 6.0]), minimum_order=np.array([0.0, 20.0])
+        )
+    )
     np.testing.assert_array_equal(out["eoq"], [0.0, 0.0])
     np.testing.assert_array_equal(out["order_qty"], [6.0, 24.0])
     assert np.isnan(out["rounding_cost_ratio"]).all()  # cost(Q*) is 0: the ratio is undefined
@@ -174,13 +182,20 @@ def test_zero_order_cost_orders_the_smallest_allowed_quantity() -> None:
 # Service targets
 # ---------------------------------------------------------------------------------------
 
+
 def test_chopra_meindl_cycle_service_example() -> None:
     # Chopra & Meindl, safety inventory chapter (from memory): weekly demand 2500, sd 500,
     # lead time 2 weeks, CSL 0.90 -> safety inventory NORMSINV(0.9) * 707 = about 906.
-    out = compute_policy(make_inputs(
-        annual_demand=2500.0 * 52, demand_per_period=2500.0, demand_sd_per_period=500.0,
-        lead_time_days=14.0, service_target=0.90, days_per_period=7.0,
-    ))
+    out = compute_policy(
+        make_inputs(
+            annual_demand=2500.0 * 52,
+            demand_per_period=2500.0,
+            demand_sd_per_period=500.0,
+            lead_time_days=14.0,
+            service_target=0.90,
+            days_per_period=7.0,
+        )
+    )
     sigma_l = 500.0 * np.sqrt(2.0)
     assert out["lead_time_demand_sd"][0] == pytest.approx(sigma_l)
     # independent: scipy.stats.norm.ppf, rounded up to a whole unit
@@ -194,11 +209,20 @@ def test_nahmias_fill_rate_example() -> None:
     # Nahmias, (Q, R) chapter, Harvey's Specialty Shop (from memory): 6-month lead-time demand
     # mean 100, sd 25; D = 200/yr, S = $50, c = $10, i = 20 %, so EOQ = 100. A 98 % fill rate
     # with Q = EOQ needs n(R) = 0.02 * 100 = 2 = 25 G(z), z about 1.02, R about 126.
-    out = compute_policy(make_inputs(
-        annual_demand=200.0, demand_per_period=200.0 / 12, demand_sd_per_period=25 / np.sqrt(6),
-        lead_time_days=6 * MONTH, unit_cost=10.0, order_cost=50.0, holding_rate=0.2,
-        measure="fill rate", service_target=0.98, days_per_period=MONTH,
-    ))
+    out = compute_policy(
+        make_inputs(
+            annual_demand=200.0,
+            demand_per_period=200.0 / 12,
+            demand_sd_per_period=25 / np.sqrt(6),
+            lead_time_days=6 * MONTH,
+            unit_cost=10.0,
+            order_cost=50.0,
+            holding_rate=0.2,
+            measure="fill rate",
+            service_target=0.98,
+            days_per_period=MONTH,
+        )
+    )
     assert out["lead_time_demand_mean"][0] == pytest.approx(100.0)
     assert out["lead_time_demand_sd"][0] == pytest.approx(25.0)
     assert out["order_qty"][0] == 100.0
@@ -214,8 +238,12 @@ def test_cycle_service_reorder_point_is_the_smallest_that_meets_target() -> None
     k = 300
     d = rng.uniform(0.5, 200, k)
     inp = make_inputs(
-        k, annual_demand=d * 52, demand_per_period=d, demand_sd_per_period=rng.uniform(0, 80, k),
-        lead_time_days=rng.uniform(1, 60, k), lead_time_sd_days=rng.uniform(0, 6, k),
+        k,
+        annual_demand=d * 52,
+        demand_per_period=d,
+        demand_sd_per_period=rng.uniform(0, 80, k),
+        lead_time_days=rng.uniform(1, 60, k),
+        lead_time_sd_days=rng.uniform(0, 6, k),
         service_target=rng.uniform(0.5, 0.999, k),
     )
     out = compute_policy(inp)
@@ -233,10 +261,16 @@ def test_fill_rate_reorder_point_is_the_smallest_that_meets_target() -> None:
     k = 300
     d = rng.uniform(0.5, 200, k)
     inp = make_inputs(
-        k, annual_demand=d * 52, demand_per_period=d, demand_sd_per_period=rng.uniform(1, 80, k),
-        lead_time_days=rng.uniform(1, 60, k), lead_time_sd_days=rng.uniform(0, 6, k),
-        order_cost=rng.uniform(1, 150, k), pack_size=rng.integers(1, 12, k).astype(float),
-        measure="fill rate", service_target=rng.uniform(0.8, 0.999, k),
+        k,
+        annual_demand=d * 52,
+        demand_per_period=d,
+        demand_sd_per_period=rng.uniform(1, 80, k),
+        lead_time_days=rng.uniform(1, 60, k),
+        lead_time_sd_days=rng.uniform(0, 6, k),
+        order_cost=rng.uniform(1, 150, k),
+        pack_size=rng.integers(1, 12, k).astype(float),
+        measure="fill rate",
+        service_target=rng.uniform(0.8, 0.999, k),
     )
     out = compute_policy(inp)
     mu, sg = out["lead_time_demand_mean"].to_numpy(), out["lead_time_demand_sd"].to_numpy()
@@ -253,12 +287,20 @@ def test_fill_rate_reorder_point_is_the_smallest_that_meets_target() -> None:
 
 def test_zero_sd_gives_deterministic_reorder_points() -> None:
     # demand known exactly: 10 a day for 7 days = 70 in the lead time (by hand)
-    out = compute_policy(make_inputs(
-        3, annual_demand=3650.0, demand_per_period=10.0, demand_sd_per_period=0.0,
-        lead_time_days=7.0, days_per_period=1.0, order_cost=1.0, minimum_order=100.0,
-        measure=np.array(["cycle service", "fill rate", "cycle service"], dtype=object),
-        service_target=np.array([0.99, 0.95, 0.5]),
-    ))
+    out = compute_policy(
+        make_inputs(
+            3,
+            annual_demand=3650.0,
+            demand_per_period=10.0,
+            demand_sd_per_period=0.0,
+            lead_time_days=7.0,
+            days_per_period=1.0,
+            order_cost=1.0,
+            minimum_order=100.0,
+            measure=np.array(["cycle service", "fill rate", "cycle service"], dtype=object),
+            service_target=np.array([0.99, 0.95, 0.5]),
+        )
+    )
     np.testing.assert_array_equal(out["lead_time_demand_sd"], [0.0, 0.0, 0.0])
     np.testing.assert_array_equal(out["order_qty"], [100.0, 100.0, 100.0])
     # cycle service: R = 70 whatever the target; fill rate: 70 - (1 - 0.95) * 100 = 65
@@ -268,17 +310,28 @@ def test_zero_sd_gives_deterministic_reorder_points() -> None:
 
 
 def test_zero_sd_ignores_float_noise_in_lead_time_demand() -> None:
-    out = compute_policy(make_inputs(demand_per_period=10.0 / 7.0, demand_sd_per_period=0.0,
-                                     lead_time_days=7.0, days_per_period=1.0))
+    out = compute_policy(
+        make_inputs(
+            demand_per_period=10.0 / 7.0,
+            demand_sd_per_period=0.0,
+            lead_time_days=7.0,
+            days_per_period=1.0,
+        )
+    )
     assert out["reorder_point"][0] == 10.0  # 10/7 a day for 7 days is 10, not 11
 
 
 def test_reorder_point_below_zero_is_floored_and_flagged() -> None:
     # a low target on a small, variable item puts mu + z sigma below zero
-    out = compute_policy(make_inputs(
-        2, demand_per_period=1.0, demand_sd_per_period=4.0, lead_time_days=7.0,
-        service_target=np.array([0.1, 0.95]),
-    ))
+    out = compute_policy(
+        make_inputs(
+            2,
+            demand_per_period=1.0,
+            demand_sd_per_period=4.0,
+            lead_time_days=7.0,
+            service_target=np.array([0.1, 0.95]),
+        )
+    )
     assert out["reorder_point"][0] == 0.0 and out["flag_reorder_point_floored"][0]
     assert not out["flag_reorder_point_floored"][1]
     assert out["flag_normal_doubtful"].all()  # mu_L = 1 < 10 and sd/mean >= 0.5
@@ -289,10 +342,17 @@ def test_reorder_point_below_zero_is_floored_and_flagged() -> None:
 # ---------------------------------------------------------------------------------------
 
 HARVEY = {
-    "annual_demand": 200.0, "demand_per_period": 200.0 / 12,
-    "demand_sd_per_period": 25 / np.sqrt(6), "lead_time_days": 6 * MONTH, "unit_cost": 10.0,
-    "order_cost": 50.0, "holding_rate": 0.2, "measure": "shortage cost",
-    "service_target": np.nan, "shortage_cost": 25.0, "days_per_period": MONTH,
+    "annual_demand": 200.0,
+    "demand_per_period": 200.0 / 12,
+    "demand_sd_per_period": 25 / np.sqrt(6),
+    "lead_time_days": 6 * MONTH,
+    "unit_cost": 10.0,
+    "order_cost": 50.0,
+    "holding_rate": 0.2,
+    "measure": "shortage cost",
+    "service_target": np.nan,
+    "shortage_cost": 25.0,
+    "days_per_period": MONTH,
 }
 
 
@@ -305,22 +365,26 @@ def test_nahmias_shortage_cost_example() -> None:
     D, S, H, p, mu, sg = 200.0, 50.0, 2.0, 25.0, 100.0, 25.0
 
     # independent: scipy.optimize minimising the Hadley-Whitin expected annual cost
-    res = optimize.minimize(lambda x: hw_cost(x[0], x[1], D, S, H, p, mu, sg), x0=[100, 130],
-                            method="Nelder-Mead",
-                            options={"xatol": 1e-9, "fatol": 1e-12, "maxiter": 5000})
+    res = optimize.minimize(
+        lambda x: hw_cost(x[0], x[1], D, S, H, p, mu, sg),
+        x0=[100, 130],
+        method="Nelder-Mead",
+        options={"xatol": 1e-9, "fatol": 1e-12, "maxiter": 5000},
+    )
     q_star, r_star = res.x
     assert out["order_qty"][0] in (math.floor(q_star), math.ceil(q_star))
     assert out["reorder_point"][0] in (math.floor(r_star), math.ceil(r_star))
     # rounding ratio against the continuous optimum (Silver, Pyke & Peterson identity)
     q = out["order_qty"][0]
-    assert out["rounding_cost_ratio"][0] == pytest.approx((q / q_star + q_star / q) / 2,
-                                                          rel=1e-6)
+    assert out["rounding_cost_ratio"][0] == pytest.approx((q / q_star + q_star / q) / 2, rel=1e-6)
     # and the whole-unit pair is the best on a brute-force grid of whole (Q, R)
-    grid = min(hw_cost(qq, rr, D, S, H, p, mu, sg)
-               for qq in range(90, 131) for rr in range(125, 161))
+    grid = min(
+        hw_cost(qq, rr, D, S, H, p, mu, sg) for qq in range(90, 131) for rr in range(125, 161)
+    )
     assert out["annual_total_cost"][0] == pytest.approx(grid, rel=1e-9)
     assert out["annual_total_cost"][0] == pytest.approx(
-        hw_cost(110, 143, D, S, H, p, mu, sg), rel=1e-12)
+        hw_cost(110, 143, D, S, H, p, mu, sg), rel=1e-12
+    )
 
 
 def test_shortage_cost_matches_scipy_optimum_on_random_items() -> None:
@@ -329,9 +393,14 @@ def test_shortage_cost_matches_scipy_optimum_on_random_items() -> None:
     d = rng.uniform(5, 100, k)
     sd = rng.uniform(1, 40, k)
     inp = make_inputs(
-        k, annual_demand=d * 52, demand_per_period=d, demand_sd_per_period=sd,
-        lead_time_days=rng.uniform(7, 42, k), unit_cost=rng.uniform(1, 50, k),
-        order_cost=rng.uniform(0, 80, k), measure="shortage cost",
+        k,
+        annual_demand=d * 52,
+        demand_per_period=d,
+        demand_sd_per_period=sd,
+        lead_time_days=rng.uniform(7, 42, k),
+        unit_cost=rng.uniform(1, 50, k),
+        order_cost=rng.uniform(0, 80, k),
+        measure="shortage cost",
         shortage_cost=rng.uniform(5, 100, k),
     )
     out = compute_policy(inp)
@@ -350,8 +419,9 @@ def test_shortage_cost_matches_scipy_optimum_on_random_items() -> None:
 
         q_eoq = max(np.sqrt(2 * D * S / H), 1.0)
         x0 = [q_eoq, float(stats.norm.isf(min(q_eoq * H / (p * D), 0.5), mu, sg))]
-        res = optimize.minimize(f, x0=x0, method="Nelder-Mead",
-                                options={"xatol": 1e-8, "fatol": 1e-11, "maxiter": 4000})
+        res = optimize.minimize(
+            f, x0=x0, method="Nelder-Mead", options={"xatol": 1e-8, "fatol": 1e-11, "maxiter": 4000}
+        )
         # scipy's continuous optimum lower-bounds the whole-unit cost, and ours is close to it
         ours = f(np.array([row["order_qty"], row["reorder_point"]]))
         assert ours >= res.fun - 1e-7 * abs(res.fun)
@@ -373,8 +443,12 @@ def test_zero_order_cost_with_shortage_cost_matches_scipy() -> None:
     # S = 0 starts the iteration elsewhere (EOQ = 0 would stall it); check against scipy
     out = compute_policy(make_inputs(**{**HARVEY, "order_cost": 0.0}))
     D, H, p, mu, sg = 200.0, 2.0, 25.0, 100.0, 25.0
-    res = optimize.minimize(lambda x: hw_cost(x[0], x[1], D, 0.0, H, p, mu, sg), x0=[20, 150],
-                            method="Nelder-Mead", options={"xatol": 1e-9, "fatol": 1e-12})
+    res = optimize.minimize(
+        lambda x: hw_cost(x[0], x[1], D, 0.0, H, p, mu, sg),
+        x0=[20, 150],
+        method="Nelder-Mead",
+        options={"xatol": 1e-9, "fatol": 1e-12},
+    )
     assert abs(out["order_qty"][0] - res.x[0]) <= 1.0
     assert abs(out["reorder_point"][0] - res.x[1]) <= 1.0
 
@@ -384,11 +458,18 @@ def test_bracketing_fallback_agrees_with_the_iteration(monkeypatch: pytest.Monke
     k = 400
     d = rng.uniform(0.5, 50, k)
     inp = make_inputs(
-        k, annual_demand=d * 52, demand_per_period=d, demand_sd_per_period=rng.uniform(0, 30, k),
-        lead_time_days=rng.uniform(1, 60, k), lead_time_sd_days=rng.uniform(0, 5, k),
-        unit_cost=rng.uniform(0.5, 100, k), order_cost=rng.uniform(0, 100, k),
-        holding_rate=rng.uniform(0.1, 0.4, k), measure="shortage cost",
-        shortage_cost=rng.exponential(30, k), pack_size=rng.integers(1, 6, k).astype(float),
+        k,
+        annual_demand=d * 52,
+        demand_per_period=d,
+        demand_sd_per_period=rng.uniform(0, 30, k),
+        lead_time_days=rng.uniform(1, 60, k),
+        lead_time_sd_days=rng.uniform(0, 5, k),
+        unit_cost=rng.uniform(0.5, 100, k),
+        order_cost=rng.uniform(0, 100, k),
+        holding_rate=rng.uniform(0.1, 0.4, k),
+        measure="shortage cost",
+        shortage_cost=rng.exponential(30, k),
+        pack_size=rng.integers(1, 6, k).astype(float),
     )
     iterated = compute_policy(inp)
     monkeypatch.setattr(policy_mod, "SHORTAGE_MAX_ITER", 0)  # every item by bracketing
@@ -402,11 +483,13 @@ def test_bracketing_fallback_agrees_with_the_iteration(monkeypatch: pytest.Monke
 def test_missing_shortage_cost_is_flagged_not_fatal() -> None:
     with warnings.catch_warnings():
         warnings.simplefilter("error")
-        out = compute_policy(make_inputs(2, measure="shortage cost",
-                                         shortage_cost=np.array([np.nan, 20.0])))
+        out = compute_policy(
+            make_inputs(2, measure="shortage cost", shortage_cost=np.array([np.nan, 20.0]))
+        )
     assert out["flag_shortage_cost_missing"].tolist() == [True, False]
-    assert np.isnan(out.loc[0, ["order_qty", "reorder_point", "annual_total_cost"]]
-                    .astype(float)).all()
+    assert np.isnan(
+        out.loc[0, ["order_qty", "reorder_point", "annual_total_cost"]].astype(float)
+    ).all()
     assert np.isfinite(out.loc[1, "order_qty"])
 
 
@@ -414,14 +497,25 @@ def test_missing_shortage_cost_is_flagged_not_fatal() -> None:
 # Costs, random lead time, bad rows
 # ---------------------------------------------------------------------------------------
 
+
 def test_annual_costs_add_up() -> None:
     k = 3
-    out = compute_policy(make_inputs(
-        k, measure=np.array(list(SERVICE_MEASURES), dtype=object),
-        shortage_cost=np.array([4.0, np.nan, 4.0]), pack_size=np.array([1.0, 12.0, 5.0]),
-    ))
-    parts = out[["annual_ordering_cost", "annual_cycle_holding_cost",
-                 "annual_safety_holding_cost", "annual_shortage_cost"]].sum(axis=1)
+    out = compute_policy(
+        make_inputs(
+            k,
+            measure=np.array(list(SERVICE_MEASURES), dtype=object),
+            shortage_cost=np.array([4.0, np.nan, 4.0]),
+            pack_size=np.array([1.0, 12.0, 5.0]),
+        )
+    )
+    parts = out[
+        [
+            "annual_ordering_cost",
+            "annual_cycle_holding_cost",
+            "annual_safety_holding_cost",
+            "annual_shortage_cost",
+        ]
+    ].sum(axis=1)
     np.testing.assert_allclose(out["annual_total_cost"], parts, rtol=1e-12)
     # shortage cost counted where p is given: p * D / Q * expected units short (field notes)
     exp = 4.0 * out["orders_per_year"][0] * out["expected_units_short_per_cycle"][0]
@@ -429,10 +523,12 @@ def test_annual_costs_add_up() -> None:
     assert out["annual_shortage_cost"][1] == 0.0
     ss = out["reorder_point"] - out["lead_time_demand_mean"]
     np.testing.assert_allclose(out["safety_stock"], ss)
-    np.testing.assert_allclose(out["average_inventory_value"],
-                               10.0 * (out["order_qty"] / 2 + np.maximum(ss, 0)))
-    np.testing.assert_allclose(out["annual_cycle_holding_cost"],
-                               order_cost_terms(out["order_qty"], 0.0, 0.0, 2.5))
+    np.testing.assert_allclose(
+        out["average_inventory_value"], 10.0 * (out["order_qty"] / 2 + np.maximum(ss, 0))
+    )
+    np.testing.assert_allclose(
+        out["annual_cycle_holding_cost"], order_cost_terms(out["order_qty"], 0.0, 0.0, 2.5)
+    )
 
 
 def test_random_lead_time_sigma_matches_simulation() -> None:
@@ -458,9 +554,15 @@ def test_random_lead_time_sigma_matches_simulation() -> None:
     se_var = np.sqrt(((dev**4).mean() - var**2) / trials)
     assert abs(var - float(sigma) ** 2) < 5 * se_var
     # and the lead-time sd in days feeds through compute_policy the same way
-    out = compute_policy(make_inputs(demand_per_period=d, demand_sd_per_period=sd_d,
-                                     lead_time_days=L, lead_time_sd_days=sLT,
-                                     days_per_period=1.0))
+    out = compute_policy(
+        make_inputs(
+            demand_per_period=d,
+            demand_sd_per_period=sd_d,
+            lead_time_days=L,
+            lead_time_sd_days=sLT,
+            days_per_period=1.0,
+        )
+    )
     assert out["lead_time_demand_sd"][0] == pytest.approx(float(sigma))
 
 
@@ -471,8 +573,9 @@ def test_bad_rows_give_nan_without_warnings() -> None:
         annual_demand=np.array([0.0, np.nan, 1200, 1200, 1200, 1200, 1200, 1200]),
         unit_cost=np.array([10, 10, np.nan, 10, 10, 10, 10, 10]),
         service_target=np.array([0.95, 0.95, 0.95, 1.0, np.nan, 0.95, 0.95, 0.95]),
-        measure=np.array(["cycle service"] * 5 + ["guess", " Fill Rate ", "fill rate"],
-                         dtype=object),
+        measure=np.array(
+            ["cycle service"] * 5 + ["guess", " Fill Rate ", "fill rate"], dtype=object
+        ),
         pack_size=np.array([1, 1, 1, 1, 1, 1, 1, 2.5]),
     )
     with warnings.catch_warnings():
@@ -487,10 +590,14 @@ def test_bad_rows_give_nan_without_warnings() -> None:
 
 def test_normal_doubtful_flag() -> None:
     # rule of thumb (common practice): sigma_L / mu_L >= 0.5 or mu_L < 10 units
-    out = compute_policy(make_inputs(
-        3, demand_per_period=np.array([100.0, 100.0, 2.0]),
-        demand_sd_per_period=np.array([30.0, 80.0, 0.5]), lead_time_days=7.0,
-    ))
+    out = compute_policy(
+        make_inputs(
+            3,
+            demand_per_period=np.array([100.0, 100.0, 2.0]),
+            demand_sd_per_period=np.array([30.0, 80.0, 0.5]),
+            lead_time_days=7.0,
+        )
+    )
     assert out["flag_normal_doubtful"].tolist() == [False, True, True]
 
 
@@ -502,23 +609,35 @@ def test_mixed_measures_and_models_give_each_item_its_own_numbers() -> None:
     rng = np.random.default_rng(41)
     n = 60
     measures = np.array(SERVICE_MEASURES, dtype=object)[rng.integers(0, 3, n)]
-    models = np.array(["normal", "poisson", "negative binomial", "gamma", ""],
-                      dtype=object)[rng.integers(0, 5, n)]
+    models = np.array(["normal", "poisson", "negative binomial", "gamma", ""], dtype=object)[
+        rng.integers(0, 5, n)
+    ]
     d = rng.uniform(0.5, 40.0, n)
-    inp = make_inputs(n, annual_demand=d * 52, demand_per_period=d,
-                      demand_sd_per_period=np.sqrt(d) * rng.uniform(0.6, 2.5, n),
-                      lead_time_days=rng.uniform(3, 30, n), measure=measures,
-                      service_target=rng.uniform(0.8, 0.99, n),
-                      shortage_cost=np.where(rng.random(n) < 0.9, rng.uniform(1, 80, n), np.nan),
-                      pack_size=rng.choice([1.0, 6.0], n))
+    inp = make_inputs(
+        n,
+        annual_demand=d * 52,
+        demand_per_period=d,
+        demand_sd_per_period=np.sqrt(d) * rng.uniform(0.6, 2.5, n),
+        lead_time_days=rng.uniform(3, 30, n),
+        measure=measures,
+        service_target=rng.uniform(0.8, 0.99, n),
+        shortage_cost=np.where(rng.random(n) < 0.9, rng.uniform(1, 80, n), np.nan),
+        pack_size=rng.choice([1.0, 6.0], n),
+    )
     inp.model = models
     batch = compute_policy(inp)
     for i in range(n):
-        alone = compute_policy(PolicyInputs(**{
-            f: (v[i:i + 1] if isinstance(v, np.ndarray) else v)
-            for f, v in vars(inp).items()}))
-        pd.testing.assert_frame_equal(batch.iloc[[i]].reset_index(drop=True), alone,
-                                      check_exact=True)
+        alone = compute_policy(
+            PolicyInputs(
+                **{
+                    f: (v[i : i + 1] if isinstance(v, np.ndarray) else v)
+                    for f, v in vars(inp).items()
+                }
+            )
+        )
+        pd.testing.assert_frame_equal(
+            batch.iloc[[i]].reset_index(drop=True), alone, check_exact=True
+        )
     cs = (measures == "cycle service") & (models == "poisson")
     assert cs.any()
     for i in np.flatnonzero(cs):
@@ -535,8 +654,10 @@ def test_model_names_once_per_distinct_value_equal_the_per_item_rule() -> None:
     from xlpolicy.core.policy import _normalised_names, item_model_names
 
     rng = np.random.default_rng(3)
-    pool = np.array([" Normal", "POISSON ", "negative binomial", "Gamma", "auto", "bogus",
-                     "", None, np.nan], dtype=object)
+    pool = np.array(
+        [" Normal", "POISSON ", "negative binomial", "Gamma", "auto", "bogus", "", None, np.nan],
+        dtype=object,
+    )
     names = pool[rng.integers(0, len(pool), 500)]
     assert list(item_model_names(names, 500)) == list(_normalised_names(names))
     text_only = pool[:7][rng.integers(0, 7, 500)]
@@ -558,7 +679,7 @@ def test_smallest_whole_asking_each_point_once_equals_the_plain_rounds() -> None
     n = 4000
     thr = rng.integers(-5, 50, n).astype(float) + rng.choice([0.0, 0.3], n)
     start = np.ceil(thr) + rng.integers(-3, 4, n)
-    start[:6] = [np.nan, np.inf, -np.inf, 2.0 ** 60, -(2.0 ** 60), 2.0 ** 53 + 2]
+    start[:6] = [np.nan, np.inf, -np.inf, 2.0**60, -(2.0**60), 2.0**53 + 2]
     asked = []
 
     def at(r: np.ndarray, k: np.ndarray) -> np.ndarray:
@@ -571,4 +692,5 @@ def test_smallest_whole_asking_each_point_once_equals_the_plain_rounds() -> None
     assert sum(asked) < 4 * (n - 6)  # fewer points asked than the plain rounds
     np.testing.assert_array_equal(  # the huge starts take the plain rounds
         _smallest_whole_at(start, lambda r, k: r >= thr[k]),
-        _smallest_whole(start, lambda r: r >= thr))
+        _smallest_whole(start, lambda r: r >= thr),
+    )

@@ -65,10 +65,10 @@ def test_every_item_gets_a_named_model_and_no_negative_reorder_point(mixed):
 
 def test_models_fit_the_histories(mixed):
     _, r = mixed
-    assert r.at["STEADY", "model"] == "normal"          # 120 units over the lead time
-    assert r.at["SLOW", "model"] == "poisson"            # 1.6 units, variance ~ mean
+    assert r.at["STEADY", "model"] == "normal"  # 120 units over the lead time
+    assert r.at["SLOW", "model"] == "poisson"  # 1.6 units, variance ~ mean
     assert r.at["LUMPY", "model"] == "negative binomial"  # variance far above the mean
-    assert r.at["LUMPY", "demand_class"] == "lumpy"       # SBC 2005 cut-offs
+    assert r.at["LUMPY", "demand_class"] == "lumpy"  # SBC 2005 cut-offs
     assert r.at["LUMPY", "rate_method"] == "SBA"
     assert r.at["STEADY", "demand_class"] == "smooth"
 
@@ -107,8 +107,9 @@ def test_planner_notes_read_like_a_planners(mixed):
 def test_new_item_is_planned_on_its_own_span(mixed):
     _, r = mixed
     assert r.at["NEW", "history_periods"] == 14
-    assert r.at["NEW", "history_start"] == (dt.date(2024, 1, 1) + dt.timedelta(weeks=90)
-                                            ).isoformat()
+    assert (
+        r.at["NEW", "history_start"] == (dt.date(2024, 1, 1) + dt.timedelta(weeks=90)).isoformat()
+    )
     assert 8 < r.at["NEW", "demand_per_period"] < 16  # ~12 a week, not 14/104 of it
 
 
@@ -119,8 +120,12 @@ def test_model_forced_per_item_and_for_all(tmp_path):
     p = write_workbook(tmp_path / "w.xlsx", rows, headers=headers, history=hist)
     r = xlpolicy.analyse(p).results.set_index("item")
     assert r.at["SLOW", "model"] == "gamma" and r.at["SLOW", "model_reason"] == "set by the user"
-    p2 = write_workbook(tmp_path / "w2.xlsx", [item_row(c, lead=14) for c in hist],
-                        history=hist, settings={"Demand model": "normal"})
+    p2 = write_workbook(
+        tmp_path / "w2.xlsx",
+        [item_row(c, lead=14) for c in hist],
+        history=hist,
+        settings={"Demand model": "normal"},
+    )
     r2 = xlpolicy.analyse(p2).results
     assert set(r2["model"]) == {"normal"}
 
@@ -137,8 +142,11 @@ def test_unknown_model_name_is_reported_and_auto_used(tmp_path):
 def test_history_start_column_overrides_first_sale(tmp_path):
     hist = mixed_histories()
     headers = BASE_HEADERS + ["History start"]
-    rows = [item_row(c, lead=14) + [dt.datetime(2024, 1, 1) + dt.timedelta(weeks=80)
-                                    if c == "RISING" else None] for c in hist]
+    rows = [
+        item_row(c, lead=14)
+        + [dt.datetime(2024, 1, 1) + dt.timedelta(weeks=80) if c == "RISING" else None]
+        for c in hist
+    ]
     p = write_workbook(tmp_path / "w.xlsx", rows, headers=headers, history=hist)
     r = xlpolicy.analyse(p).results.set_index("item")
     assert r.at["RISING", "history_periods"] == WEEKS - 80
@@ -150,8 +158,9 @@ def test_cap_outliers_setting_caps_and_still_reports(tmp_path):
     hist = mixed_histories()
     rows = [item_row(c, lead=14) for c in hist]
     plain = xlpolicy.analyse(write_workbook(tmp_path / "a.xlsx", rows, history=hist))
-    capped = xlpolicy.analyse(write_workbook(tmp_path / "b.xlsx", rows, history=hist,
-                                             settings={"Cap outliers": "yes"}))
+    capped = xlpolicy.analyse(
+        write_workbook(tmp_path / "b.xlsx", rows, history=hist, settings={"Cap outliers": "yes"})
+    )
     a = plain.results.set_index("item").at["SPIKY", "demand_sd_per_period"]
     b = capped.results.set_index("item").at["SPIKY", "demand_sd_per_period"]
     assert b < 0.7 * a
@@ -173,12 +182,25 @@ def test_slow_mover_policy_meets_its_target_under_the_true_distribution():
     model, _ = choose_model(an, 2.0, 0.0)
     n = m.shape[0]
     one = np.ones(n)
-    pol = compute_policy(PolicyInputs(
-        annual_demand=an.rate * 52, demand_per_period=an.rate, demand_sd_per_period=an.sd,
-        lead_time_days=14 * one, lead_time_sd_days=0 * one, unit_cost=one, order_cost=one,
-        holding_rate=0.25 * one, measure=np.full(n, "cycle service", dtype=object),
-        service_target=0.95 * one, shortage_cost=np.full(n, math.nan), pack_size=one,
-        minimum_order=0 * one, days_per_period=7.0, model=model))
+    pol = compute_policy(
+        PolicyInputs(
+            annual_demand=an.rate * 52,
+            demand_per_period=an.rate,
+            demand_sd_per_period=an.sd,
+            lead_time_days=14 * one,
+            lead_time_sd_days=0 * one,
+            unit_cost=one,
+            order_cost=one,
+            holding_rate=0.25 * one,
+            measure=np.full(n, "cycle service", dtype=object),
+            service_target=0.95 * one,
+            shortage_cost=np.full(n, math.nan),
+            pack_size=one,
+            minimum_order=0 * one,
+            days_per_period=7.0,
+            model=model,
+        )
+    )
     achieved = stats.poisson.cdf(pol["reorder_point"].to_numpy(), 1.6)
     assert abs(achieved.mean() - 0.95) < 0.02
     assert (model == "poisson").mean() > 0.8

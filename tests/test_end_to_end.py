@@ -27,8 +27,15 @@ from xlpolicy.cli import main
 from xlpolicy.contract import RESULT_KEYS, TEXT_RESULT_KEYS
 
 REPO = Path(__file__).resolve().parent.parent
-GENERATED = ["Summary", "Reorder now", "Policy", "Today vs plan", "Warnings", "How it works",
-             "Stock trace"]  # the last: the back-test's, on by default for small catalogues
+GENERATED = [
+    "Summary",
+    "Reorder now",
+    "Policy",
+    "Today vs plan",
+    "Warnings",
+    "How it works",
+    "Stock trace",
+]  # the last: the back-test's, on by default for small catalogues
 
 
 def run(*args: str):
@@ -41,14 +48,23 @@ def digest(path: Path) -> str:
 
 def shop(tmp_path: Path, layout: str = "long", **kw) -> Path:
     headers = BASE_HEADERS + ["On hand", "Pack size"]
-    rows = [item_row("000123", cost=4.0, order=30, rate=0.25, lead=14) + [5, 12],
-            item_row("B-7", cost=12.5, order=30, rate=0.25, lead=7) + [500, None],
-            item_row("C-9", cost=2.0, order=15, rate=0.3, lead=21) + [None, None]]
+    rows = [
+        item_row("000123", cost=4.0, order=30, rate=0.25, lead=14) + [5, 12],
+        item_row("B-7", cost=12.5, order=30, rate=0.25, lead=7) + [500, None],
+        item_row("C-9", cost=2.0, order=15, rate=0.3, lead=21) + [None, None],
+    ]
     hist = weekly_history(["000123", "B-7", "C-9"], weeks=78, mean=25, seed=11)
-    return write_workbook(tmp_path / "shop.xlsx", rows, headers=headers, history=hist,
-                          layout=layout, title_rows=["Corner store stock list", ""],
-                          history_title_rows=["Weekly sales"],
-                          settings={"Service target": "95%"}, **kw)
+    return write_workbook(
+        tmp_path / "shop.xlsx",
+        rows,
+        headers=headers,
+        history=hist,
+        layout=layout,
+        title_rows=["Corner store stock list", ""],
+        history_title_rows=["Weekly sales"],
+        settings={"Service target": "95%"},
+        **kw,
+    )
 
 
 @pytest.mark.parametrize("layout", ["long", "wide"])
@@ -74,11 +90,12 @@ def test_plan_writes_policy_workbook_and_leaves_input_alone(tmp_path, layout):
     assert [r["item"] for r in rows] == ["000123", "B-7", "C-9"]
 
     # independent computation of the first item's policy from the same history
-    hist = np.array(weekly_history(["000123", "B-7", "C-9"], weeks=78, mean=25,
-                                   seed=11)["000123"])
+    hist = np.array(weekly_history(["000123", "B-7", "C-9"], weeks=78, mean=25, seed=11)["000123"])
     d, s = hist.mean(), hist.std(ddof=1)  # sample sd (contract)
-    r = {k: float(v) if v not in ("", None) and k not in TEXT_RESULT_KEYS else v
-         for k, v in rows[0].items()}
+    r = {
+        k: float(v) if v not in ("", None) and k not in TEXT_RESULT_KEYS else v
+        for k, v in rows[0].items()
+    }
     assert r["demand_per_period"] == pytest.approx(d)
     assert r["demand_sd_per_period"] == pytest.approx(s)
     D = d * 52
@@ -96,8 +113,12 @@ def test_plan_writes_policy_workbook_and_leaves_input_alone(tmp_path, layout):
     assert norm.cdf(rop, mu, sigma) >= 0.95 > norm.cdf(rop - 1, mu, sigma)
     assert r["safety_stock"] == pytest.approx(rop - mu)
     assert r["cycle_service"] == pytest.approx(norm.cdf(rop, mu, sigma))
-    total = (r["annual_ordering_cost"] + r["annual_cycle_holding_cost"]
-             + r["annual_safety_holding_cost"] + r["annual_shortage_cost"])
+    total = (
+        r["annual_ordering_cost"]
+        + r["annual_cycle_holding_cost"]
+        + r["annual_safety_holding_cost"]
+        + r["annual_shortage_cost"]
+    )
     assert r["annual_total_cost"] == pytest.approx(total)
 
     # the Policy sheet shows the same numbers as the CSV
@@ -124,7 +145,11 @@ def test_rerun_replaces_generated_sheets(tmp_path):
     res = run("plan", out, "-o", tmp_path / "again.xlsx")
     assert res.exit_code == 0, res.output
     assert load_workbook(tmp_path / "again.xlsx").sheetnames == [
-        "Items", "History", "Settings", *GENERATED]
+        "Items",
+        "History",
+        "Settings",
+        *GENERATED,
+    ]
     # and re-running onto the same output replaces it
     assert run("plan", src).exit_code == 0
     assert load_workbook(out).sheetnames.count("Policy") == 1
@@ -209,8 +234,9 @@ def test_usage_errors_exit_2(tmp_path):
 def test_measure_override_changes_the_policy(tmp_path):
     headers = BASE_HEADERS + ["Shortage cost"]
     rows = [item_row(c) + [40] for c in ("A", "B")]
-    src = write_workbook(tmp_path / "w.xlsx", rows, headers=headers,
-                         history=weekly_history(["A", "B"]))
+    src = write_workbook(
+        tmp_path / "w.xlsx", rows, headers=headers, history=weekly_history(["A", "B"])
+    )
     for measure in ("cycle service", "fill rate", "shortage cost"):
         res = run("plan", src, "--measure", measure, "--json", tmp_path / "p.json")
         assert res.exit_code == 0, res.output
@@ -222,8 +248,12 @@ def test_measure_override_changes_the_policy(tmp_path):
 def test_python_module_entry_point_runs_the_demo(tmp_path):
     demo = tmp_path / "demo.xlsx"
     demo.write_bytes((REPO / "examples" / "demo-shop.xlsx").read_bytes())
-    proc = subprocess.run([sys.executable, "-m", "xlpolicy", "plan", str(demo), "-q"],
-                          capture_output=True, text=True, timeout=300)
+    proc = subprocess.run(
+        [sys.executable, "-m", "xlpolicy", "plan", str(demo), "-q"],
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
     assert proc.returncode == 0, proc.stderr
     out = tmp_path / "demo-policy.xlsx"
     assert proc.stdout.strip() == str(out)
@@ -282,12 +312,21 @@ def test_demo_command_runs_end_to_end_with_its_planted_mistakes(tmp_path):
     res = run("demo", tmp_path / "d")
     assert res.exit_code == 0, res.output
     assert (tmp_path / "d" / "demo-shop-policy.xlsx").exists()
-    for where in ("Items!E22 [BR-130]", "Items!A15 [000421]", "Items!J25 [DT-203]",
-                  "Items!H43 [AC-231]", "History!A9838 [000422]"):
+    for where in (
+        "Items!E22 [BR-130]",
+        "Items!A15 [000421]",
+        "Items!J25 [DT-203]",
+        "Items!H43 [AC-231]",
+        "History!A9838 [000422]",
+    ):
         assert where in res.output
-    problems = {(p.sheet, p.cell, p.code) for p in xlpolicy.check(tmp_path / "d" /
-                                                                    "demo-shop.xlsx")}
-    assert {("Items", "E22", "unit_cost-not-number"), ("Items", "A15", "item-duplicate"),
-            ("Items", "J25", "service_target-out-of-range"),
-            ("Items", "H43", "lead_time_days-out-of-range"),
-            ("History", "A9838", "history-unknown-item")} <= problems
+    problems = {
+        (p.sheet, p.cell, p.code) for p in xlpolicy.check(tmp_path / "d" / "demo-shop.xlsx")
+    }
+    assert {
+        ("Items", "E22", "unit_cost-not-number"),
+        ("Items", "A15", "item-duplicate"),
+        ("Items", "J25", "service_target-out-of-range"),
+        ("Items", "H43", "lead_time_days-out-of-range"),
+        ("History", "A9838", "history-unknown-item"),
+    } <= problems

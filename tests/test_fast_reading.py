@@ -55,12 +55,14 @@ def test_text_in_a_wide_history_past_row_1000_is_reported(tmp_path: Path) -> Non
     codes = _codes()
     hist[codes[1400]][5] = "n/a"  # sheet row 1402, column G
     hist[codes[1450]][0] = -3  # a return: counted as 0, reported
-    path = write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist,
-                          layout="wide")
+    path = write_workbook(
+        tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist, layout="wide"
+    )
     probs = xlpolicy.check(path)
     bad = [p for p in probs if p.code == "history-quantity-not-number"]
     assert [(p.sheet, p.cell, p.item, p.value) for p in bad] == [
-        ("History", "G1402", "001401", "n/a")]
+        ("History", "G1402", "001401", "n/a")
+    ]
     neg = [p for p in probs if p.code == "history-quantity-negative"]
     assert [(p.cell, p.value) for p in neg] == [("B1452", -3)]
 
@@ -69,8 +71,9 @@ def test_text_in_a_long_history_past_row_1000_is_reported(tmp_path: Path) -> Non
     codes = _codes()[:60]
     hist = {c: list(v) for c, v in list(_history().items())[:60]}  # 60 x 30 = 1,800 rows
     hist[codes[50]][10] = "n/a"  # row 2 + 50 * 30 + 10 = 1512, column C
-    path = write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist,
-                          layout="long")
+    path = write_workbook(
+        tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist, layout="long"
+    )
     bad = [p for p in xlpolicy.check(path) if p.code == "history-quantity-not-number"]
     assert [(p.cell, p.item, p.value) for p in bad] == [("C1512", codes[50], "n/a")]
 
@@ -95,8 +98,9 @@ def test_a_zero_padded_code_past_row_1000_matches_its_history(tmp_path: Path) ->
     """'000123' as text in both sheets, past row 1,000, is one item with its history."""
     codes = _codes()
     hist = _history()
-    path = write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist,
-                          layout="wide")
+    path = write_workbook(
+        tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist, layout="wide"
+    )
     report = xlpolicy.analyse(path)
     row = report.results.set_index("item").loc["001234"]
     # Sample mean of that item's 30 weeks (numpy, independent of the reader).
@@ -114,8 +118,9 @@ def test_fast_path_gives_what_openpyxl_gives(tmp_path: Path) -> None:
     ws.append(BASE_HEADERS + ["Service target", "History start"])
     for k in range(1, 1200):
         ws.append([f"{k:06d}", "thing", "Acme", 10.5, 20, 0.2, 14, 0.95, None])
-    ws.append([123, "padded number", "Acme", "n/a", "#N/A", "25%", "", True,
-               dt.datetime(2024, 3, 4)])
+    ws.append(
+        [123, "padded number", "Acme", "n/a", "#N/A", "25%", "", True, dt.datetime(2024, 3, 4)]
+    )
     ws.cell(ws.max_row, 1).number_format = "000000"
     ws.cell(ws.max_row, 8).value = 0.9
     ws.cell(ws.max_row, 8).number_format = "0%"

@@ -8,9 +8,16 @@ import xlsxwriter
 
 from xlpolicy.writing.sheetkit import write_formula
 
-FORMULAS = ['=IF(K5="",0,K5*D5/Q5*N5)', "=SQRT(2*D7*S7/(I7*C7))", "=MAX(0,1-N2/Q2)",
-            "=SUM(B2:B9)", "=A1+'Reorder now (2)'!B4", "=XLOOKUP(A1,B:B,C:C)",
-            "=STDEV.S(A1:A9)", "={1,2}"]
+FORMULAS = [
+    '=IF(K5="",0,K5*D5/Q5*N5)',
+    "=SQRT(2*D7*S7/(I7*C7))",
+    "=MAX(0,1-N2/Q2)",
+    "=SUM(B2:B9)",
+    "=A1+'Reorder now (2)'!B4",
+    "=XLOOKUP(A1,B:B,C:C)",
+    "=STDEV.S(A1:A9)",
+    "={1,2}",
+]
 
 
 def _tables(path: Path, use_future: bool) -> tuple[list, list]:

@@ -35,14 +35,19 @@ CELLS = [
 
 
 @settings(max_examples=60, deadline=None)
-@given(st.lists(st.lists(st.integers(0, len(CELLS) - 1), min_size=1, max_size=6),
-                min_size=1, max_size=8),
-       st.integers(5, 400))
+@given(
+    st.lists(
+        st.lists(st.integers(0, len(CELLS) - 1), min_size=1, max_size=6), min_size=1, max_size=8
+    ),
+    st.integers(5, 400),
+)
 def test_the_quick_search_finds_what_the_parse_finds(rows: list[list[int]], chunk: int) -> None:
     body = "".join(
-        f'<row r="{i}">' + "".join(CELLS[k].format(r=f"{'ABCDEF'[j]}{i}")
-                                   for j, k in enumerate(row)) + "</row>"
-        for i, row in enumerate(rows, start=1))
+        f'<row r="{i}">'
+        + "".join(CELLS[k].format(r=f"{'ABCDEF'[j]}{i}") for j, k in enumerate(row))
+        + "</row>"
+        for i, row in enumerate(rows, start=1)
+    )
     xml = f'<worksheet xmlns="{NS}"><sheetData>{body}</sheetData></worksheet>'.encode()
     quick = _formulas_without_result(io.BytesIO(xml), chunk=chunk)
     parsed = _formulas_without_result_parsed(io.BytesIO(xml))
@@ -55,11 +60,16 @@ def test_a_sheet_with_prefixed_elements_is_parsed(tmp_path) -> None:
     import zipfile
 
     from xlpolicy.reading.workbook import _formula_kinds
-    prefixed = (f'<x:worksheet xmlns:x="{NS}"><x:sheetData><x:row r="1">'
-                '<x:c r="A1"><x:f>1+1</x:f></x:c><x:c r="B1"><x:v>3</x:v></x:c>'
-                '</x:row></x:sheetData></x:worksheet>').encode()
-    plain = (f'<worksheet xmlns="{NS}"><sheetData><row r="1"><c r="A1" t="inlineStr">'
-             '<is><t>a:f b</t></is></c></row></sheetData></worksheet>').encode()
+
+    prefixed = (
+        f'<x:worksheet xmlns:x="{NS}"><x:sheetData><x:row r="1">'
+        '<x:c r="A1"><x:f>1+1</x:f></x:c><x:c r="B1"><x:v>3</x:v></x:c>'
+        "</x:row></x:sheetData></x:worksheet>"
+    ).encode()
+    plain = (
+        f'<worksheet xmlns="{NS}"><sheetData><row r="1"><c r="A1" t="inlineStr">'
+        "<is><t>a:f b</t></is></c></row></sheetData></worksheet>"
+    ).encode()
     path = tmp_path / "p.zip"
     with zipfile.ZipFile(path, "w") as zf:
         zf.writestr("prefixed.xml", prefixed)
@@ -72,15 +82,26 @@ def test_a_sheet_with_prefixed_elements_is_parsed(tmp_path) -> None:
 
 
 @settings(max_examples=80, deadline=None)
-@given(st.lists(st.sampled_from(['<row r="1"><c r="A1"><v>1</v></c></row>',
-                                 '<row r="2" s="1" customFormat="1"/>', "</sheetData>",
-                                 '<c r="B1"><f>X</f></c>']), max_size=12),
-       st.integers(1, 50))
+@given(
+    st.lists(
+        st.sampled_from(
+            [
+                '<row r="1"><c r="A1"><v>1</v></c></row>',
+                '<row r="2" s="1" customFormat="1"/>',
+                "</sheetData>",
+                '<c r="B1"><f>X</f></c>',
+            ]
+        ),
+        max_size=12,
+    ),
+    st.integers(1, 50),
+)
 def test_row_pieces_give_back_every_byte_and_end(parts: list[str], chunk: int) -> None:
     """The pieces the scans read put back together are the sheet, each but the last ends
     where a row does, and a sheet that ends right after a row ends the loop (it once
     waited forever on an empty remainder)."""
     from xlpolicy.reading.workbook import _row_pieces
+
     data = "".join(parts).encode()
     pieces = list(_row_pieces(io.BytesIO(data), chunk))
     assert b"".join(pieces) == data

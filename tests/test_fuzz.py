@@ -46,29 +46,49 @@ CI_SECONDS = 30.0
 
 def _spellings(name: str) -> st.SearchStrategy[str]:
     """Ways people write a header: case, underscores, extra spaces, a unit in brackets."""
-    return st.sampled_from([name, name.upper(), name.lower().replace(" ", "_"),
-                            f"  {name} ", name.title(), f"{name} (units)", name.replace(" ", "")])
+    return st.sampled_from(
+        [
+            name,
+            name.upper(),
+            name.lower().replace(" ", "_"),
+            f"  {name} ",
+            name.title(),
+            f"{name} (units)",
+            name.replace(" ", ""),
+        ]
+    )
 
 
 CELL = st.one_of(
-    st.none(), st.integers(-10**6, 10**9), st.floats(allow_nan=True, allow_infinity=False,
-                                                      width=32),
-    st.text(alphabet=string.ascii_letters + string.digits + string.punctuation + " €£\u00a0",
-            max_size=12),
-    st.sampled_from(["n/a", "#N/A", "#DIV/0!", "12%", "$4.50", "1.250,5", "(3)", "=1+1",
-                     "000123", "TRUE", ""]),
-    st.booleans(), st.dates(dt.date(1950, 1, 1), dt.date(2100, 1, 1)),
+    st.none(),
+    st.integers(-(10**6), 10**9),
+    st.floats(allow_nan=True, allow_infinity=False, width=32),
+    st.text(
+        alphabet=string.ascii_letters + string.digits + string.punctuation + " €£\u00a0",
+        max_size=12,
+    ),
+    st.sampled_from(
+        ["n/a", "#N/A", "#DIV/0!", "12%", "$4.50", "1.250,5", "(3)", "=1+1", "000123", "TRUE", ""]
+    ),
+    st.booleans(),
+    st.dates(dt.date(1950, 1, 1), dt.date(2100, 1, 1)),
 )
 
 
 _TEXT = st.text(alphabet=string.ascii_letters + " ", max_size=10)
 VALID = {  # a plausible value for columns whose range is narrower than "a positive number"
-    "holding_rate": st.floats(0.01, 0.99), "service_target": st.floats(0.5, 0.999),
-    "description": _TEXT, "category": _TEXT, "supplier": _TEXT,
-    "demand_model": st.sampled_from(["", "auto", "normal", "poisson", "gamma",
-                                     "negative binomial"]),
-    "history_start": st.none(), "pack_size": st.integers(1, 24),
-    "minimum_order": st.integers(0, 100), "on_hand": st.integers(0, 500),
+    "holding_rate": st.floats(0.01, 0.99),
+    "service_target": st.floats(0.5, 0.999),
+    "description": _TEXT,
+    "category": _TEXT,
+    "supplier": _TEXT,
+    "demand_model": st.sampled_from(
+        ["", "auto", "normal", "poisson", "gamma", "negative binomial"]
+    ),
+    "history_start": st.none(),
+    "pack_size": st.integers(1, 24),
+    "minimum_order": st.integers(0, 100),
+    "on_hand": st.integers(0, 500),
 }
 
 
@@ -76,11 +96,18 @@ VALID = {  # a plausible value for columns whose range is narrower than "a posit
 def contract_workbook(draw: st.DrawFn) -> bytes:
     """An Items sheet with required and some optional columns, a History, maybe Settings."""
     required = [c for c in ITEM_COLUMNS if c.required != "no"]  # "yes" or "unless ..."
-    optional = draw(st.lists(st.sampled_from([c for c in ITEM_COLUMNS if c.required == "no"]),
-                             max_size=5, unique_by=lambda c: c.key))
+    optional = draw(
+        st.lists(
+            st.sampled_from([c for c in ITEM_COLUMNS if c.required == "no"]),
+            max_size=5,
+            unique_by=lambda c: c.key,
+        )
+    )
     cols = required + optional
-    headers = [draw(st.one_of(_spellings(c.title), st.sampled_from(sorted(c.names()) or [c.title])))
-               for c in cols]
+    headers = [
+        draw(st.one_of(_spellings(c.title), st.sampled_from(sorted(c.names()) or [c.title])))
+        for c in cols
+    ]
     n_items = draw(st.integers(0, 6))
     codes = [f"P{k}" for k in range(n_items)]
     wb = Workbook()
@@ -101,8 +128,9 @@ def contract_workbook(draw: st.DrawFn) -> bytes:
         ws.append(row)
     if draw(st.booleans()):
         hs = wb.create_sheet(draw(st.sampled_from(["History", "Sales", "demand history"])))
-        hs.append([draw(_spellings("Item")), draw(_spellings("Period")),
-                   draw(_spellings("Quantity"))])
+        hs.append(
+            [draw(_spellings("Item")), draw(_spellings("Period")), draw(_spellings("Quantity"))]
+        )
         weeks = draw(st.integers(0, 40))
         for code in codes:
             for w in range(weeks):
@@ -116,9 +144,22 @@ def contract_workbook(draw: st.DrawFn) -> bytes:
     if draw(st.booleans()):
         ss = wb.create_sheet("Settings")
         ss.append(["Setting", "Value"])
-        for name in draw(st.lists(st.sampled_from(["Period", "Service target", "Holding rate",
-                                                   "Order cost", "Service measure", "Currency",
-                                                   "Nonsense"]), max_size=4)):
+        for name in draw(
+            st.lists(
+                st.sampled_from(
+                    [
+                        "Period",
+                        "Service target",
+                        "Holding rate",
+                        "Order cost",
+                        "Service measure",
+                        "Currency",
+                        "Nonsense",
+                    ]
+                ),
+                max_size=4,
+            )
+        ):
             ss.append([name, draw(CELL)])
     buf = io.BytesIO()
     wb.save(buf)
@@ -150,11 +191,13 @@ def test_random_contract_shaped_workbooks_plan_or_report(data):
         assert outcome in ("planned", "unusable")
         assert _digest(src) == before
         written = sorted(p.name for p in Path(tmp).iterdir())
-        assert written == (["random-policy.xlsx", "random.xlsx"] if outcome == "planned"
-                           else ["random.xlsx"])
+        assert written == (
+            ["random-policy.xlsx", "random.xlsx"] if outcome == "planned" else ["random.xlsx"]
+        )
 
 
 # --- byte-level fuzzing -------------------------------------------------------------------
+
 
 def seeds() -> list[bytes]:
     """Valid workbooks to mutate: the corpus's good workbook and two of its odd-but-valid
@@ -178,18 +221,35 @@ def _mutate_bytes(rng: random.Random, data: bytes) -> bytes:
         elif op == 1:
             b[i] = rng.randrange(256)
         elif op == 2:
-            del b[i:i + rng.randint(1, 64)]
+            del b[i : i + rng.randint(1, 64)]
         elif op == 3:
             j = rng.randrange(len(b))
-            b[i:i] = b[j:j + rng.randint(1, 64)]
+            b[i:i] = b[j : j + rng.randint(1, 64)]
         else:
             b = b[: max(1, i)]
     return bytes(b)
 
 
-_JUNK = [b"<", b">", b"&", b"&amp;", b'"', b"\x00", b"-1", b"1e308", b"999999999", b"</c>",
-         b"<c r=\"A1\" t=\"s\"><v>99</v></c>", b"<row r=\"0\">", b"t=\"e\"", b"\xff\xfe",
-         b"<v></v>", b"NaN", b"r=\"XFD1048576\"", b"s=\"9999\""]
+_JUNK = [
+    b"<",
+    b">",
+    b"&",
+    b"&amp;",
+    b'"',
+    b"\x00",
+    b"-1",
+    b"1e308",
+    b"999999999",
+    b"</c>",
+    b'<c r="A1" t="s"><v>99</v></c>',
+    b'<row r="0">',
+    b't="e"',
+    b"\xff\xfe",
+    b"<v></v>",
+    b"NaN",
+    b'r="XFD1048576"',
+    b's="9999"',
+]
 
 
 def _mutate_part(rng: random.Random, data: bytes) -> bytes:
@@ -201,12 +261,12 @@ def _mutate_part(rng: random.Random, data: bytes) -> bytes:
         i = rng.randrange(max(1, len(b)))
         op = rng.randrange(4)
         if op == 0:
-            b[i:i + rng.randint(0, 8)] = rng.choice(_JUNK)
+            b[i : i + rng.randint(0, 8)] = rng.choice(_JUNK)
         elif op == 1:
-            del b[i:i + rng.randint(1, 200)]
+            del b[i : i + rng.randint(1, 200)]
         elif op == 2:
             j = rng.randrange(max(1, len(b)))
-            b[i:i] = b[j:j + rng.randint(1, 400)]
+            b[i:i] = b[j : j + rng.randint(1, 400)]
         else:
             if b:
                 b[i % len(b)] = rng.randrange(32, 127)
@@ -218,8 +278,9 @@ def _mutate_part(rng: random.Random, data: bytes) -> bytes:
     return out.getvalue()
 
 
-def fuzz(n: int, seed: int = 20240101, seconds: float | None = None,
-         keep: Path | None = None) -> tuple[int, list[tuple[int, str]]]:
+def fuzz(
+    n: int, seed: int = 20240101, seconds: float | None = None, keep: Path | None = None
+) -> tuple[int, list[tuple[int, str]]]:
     """Run up to ``n`` mutations (stopping after ``seconds``); (runs done, failures).
 
     A failure is any exception other than UnusableWorkbook, or a changed input file. With
@@ -258,8 +319,9 @@ def test_mutated_workbooks_plan_or_report_within_the_time_bound():
     assert done >= 100, f"only {done} mutations ran in {CI_SECONDS} s"
 
 
-@pytest.mark.parametrize("path", sorted(FUZZ_DIR.glob("*.xlsx")) or [None],
-                         ids=lambda p: p.name if p else "none-kept")
+@pytest.mark.parametrize(
+    "path", sorted(FUZZ_DIR.glob("*.xlsx")) or [None], ids=lambda p: p.name if p else "none-kept"
+)
 def test_inputs_kept_from_earlier_fuzzing_plan_or_report(path, tmp_path):
     if path is None:
         pytest.skip("no fuzz findings kept")

@@ -105,18 +105,27 @@ def test_compound_file_builder_makes_a_real_compound_file():
 
 def _rows_then_gap_then_data(path: Path, gap: int) -> Path:
     """History with formatted empty rows between two halves of its data."""
+
     def fn(xml: bytes) -> bytes:
         import re
 
         rows = re.findall(rb"<row .*?</row>", xml, flags=re.DOTALL)
         half = len(rows) // 2
         first_last = int(re.search(rb'<row r="(\d+)"', rows[half - 1]).group(1))
-        empties = b"".join(b'<row r="%d" s="1" customFormat="1"/>' % r
-                           for r in range(first_last + 1, first_last + 1 + gap))
-        moved = [re.sub(rb'(r="[A-Z]*)(\d+)"',
-                        lambda m: m.group(1) + str(int(m.group(2)) + gap).encode() + b'"', r)
-                 for r in rows[half:]]
+        empties = b"".join(
+            b'<row r="%d" s="1" customFormat="1"/>' % r
+            for r in range(first_last + 1, first_last + 1 + gap)
+        )
+        moved = [
+            re.sub(
+                rb'(r="[A-Z]*)(\d+)"',
+                lambda m: m.group(1) + str(int(m.group(2)) + gap).encode() + b'"',
+                r,
+            )
+            for r in rows[half:]
+        ]
         return xml.replace(b"".join(rows[half:]), empties + b"".join(moved))
+
     make_bad._changed(path, make_bad.SHEET2, fn)
     return path
 
@@ -131,8 +140,9 @@ def test_data_below_many_formatted_empty_rows_is_still_read(tmp_path):
     assert a.results[cols].equals(b.results[cols])
 
 
-@pytest.mark.parametrize("name", ["used-range-too-small.xlsx", "used-range-whole-sheet.xlsx",
-                                  "huge-merge.xlsx"])
+@pytest.mark.parametrize(
+    "name", ["used-range-too-small.xlsx", "used-range-whole-sheet.xlsx", "huge-merge.xlsx"]
+)
 def test_lying_sizes_and_huge_merges_read_like_the_plain_workbook(tmp_path, name):
     plain = xlpolicy.analyse(make_bad.good_workbook(tmp_path / "plain.xlsx"))
     t0 = time.monotonic()

@@ -25,8 +25,11 @@ CODES = ["000123", "000124", "B-7"]
 
 
 def _rows(history: dict[str, list[float]], start: dt.date = dt.date(2024, 1, 1)) -> list:
-    return [(code, (start + dt.timedelta(weeks=k)).isoformat(), q)
-            for code, qty in history.items() for k, q in enumerate(qty)]
+    return [
+        (code, (start + dt.timedelta(weeks=k)).isoformat(), q)
+        for code, qty in history.items()
+        for k, q in enumerate(qty)
+    ]
 
 
 def _frame(rows: list) -> pd.DataFrame:
@@ -44,8 +47,15 @@ def _plan(tmp: Path, name: str, **kw) -> pd.DataFrame:
     return result.report.results.set_index("item")
 
 
-KEYS = ["order_qty", "reorder_point", "safety_stock", "annual_demand", "demand_sd_per_period",
-        "annual_total_cost", "model"]
+KEYS = [
+    "order_qty",
+    "reorder_point",
+    "safety_stock",
+    "annual_demand",
+    "demand_sd_per_period",
+    "annual_total_cost",
+    "model",
+]
 
 
 @pytest.mark.parametrize("kind", ["csv", "parquet", "semicolon"])
@@ -61,8 +71,12 @@ def test_file_gives_the_same_policies_as_the_sheet(tmp_path: Path, kind: str) ->
         _csv(tmp_path / "sales.csv", rows)
         file = "sales.csv"
     else:
-        _csv(tmp_path / "sales.csv", [(a, b, str(q).replace(".", ",")) for a, b, q in rows],
-             header="Item;Period;Quantity", sep=";")
+        _csv(
+            tmp_path / "sales.csv",
+            [(a, b, str(q).replace(".", ",")) for a, b, q in rows],
+            header="Item;Period;Quantity",
+            sep=";",
+        )
         file = "sales.csv"
     write_workbook(tmp_path / "file.xlsx", items, settings={"History file": file})
     a, b = _plan(tmp_path, "sheet.xlsx"), _plan(tmp_path, "file.xlsx")
@@ -77,8 +91,9 @@ def test_history_option_overrides_the_sheet(tmp_path: Path) -> None:
     write_workbook(tmp_path / "w.xlsx", items, history=hist)
     _frame(_rows(doubled)).to_parquet(tmp_path / "big.parquet", index=False)
     base = _plan(tmp_path, "w.xlsx")
-    other = xlpolicy.plan(tmp_path / "w.xlsx", write_workbook=False,
-                          history=tmp_path / "big.parquet").report
+    other = xlpolicy.plan(
+        tmp_path / "w.xlsx", write_workbook=False, history=tmp_path / "big.parquet"
+    ).report
     got = other.results.set_index("item")
     np.testing.assert_allclose(got["annual_demand"], 2 * base["annual_demand"])
     assert any(p.code == "history-from-file" for p in other.problems)
@@ -95,8 +110,9 @@ def test_bad_cells_far_down_are_reported_by_line(tmp_path: Path) -> None:
     rows[1510] = ("999999", rows[1510][1], 4)
     rows[1520] = (rows[1520][0], "someday", 4)
     _csv(tmp_path / "h.csv", rows)
-    write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes],
-                   settings={"History file": "h.csv"})
+    write_workbook(
+        tmp_path / "w.xlsx", [item_row(c) for c in codes], settings={"History file": "h.csv"}
+    )
     problems = xlpolicy.check(tmp_path / "w.xlsx")
     by_code = {p.code: p for p in problems}
     assert by_code["history-quantity-not-number"].cell == "C1402"  # header = line 1
@@ -113,24 +129,30 @@ def test_bad_cells_far_down_are_reported_by_line(tmp_path: Path) -> None:
 
 def test_many_bad_rows_are_counted_not_listed(tmp_path: Path) -> None:
     codes = ["A1"]
-    rows = [("A1", (dt.date(2024, 1, 1) + dt.timedelta(weeks=k)).isoformat(),
-             "x" if k % 2 else 3) for k in range(100)]
+    rows = [
+        ("A1", (dt.date(2024, 1, 1) + dt.timedelta(weeks=k)).isoformat(), "x" if k % 2 else 3)
+        for k in range(100)
+    ]
     _csv(tmp_path / "h.csv", rows)
-    write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes],
-                   settings={"History file": "h.csv"})
-    bad = [p for p in xlpolicy.check(tmp_path / "w.xlsx")
-           if p.code == "history-quantity-not-number"]
+    write_workbook(
+        tmp_path / "w.xlsx", [item_row(c) for c in codes], settings={"History file": "h.csv"}
+    )
+    bad = [
+        p for p in xlpolicy.check(tmp_path / "w.xlsx") if p.code == "history-quantity-not-number"
+    ]
     assert len(bad) == 21 and "and 30 more rows" in bad[-1].message
 
 
-@pytest.mark.parametrize("setup, code", [
-    ("missing", "history-file-missing"),
-    ("type", "history-file-type"),
-    ("columns", "history-file-columns"),
-    ("garbage", "history-file-unreadable"),
-])
-def test_unusable_history_file_stops_with_a_message(tmp_path: Path, setup: str,
-                                                    code: str) -> None:
+@pytest.mark.parametrize(
+    "setup, code",
+    [
+        ("missing", "history-file-missing"),
+        ("type", "history-file-type"),
+        ("columns", "history-file-columns"),
+        ("garbage", "history-file-unreadable"),
+    ],
+)
+def test_unusable_history_file_stops_with_a_message(tmp_path: Path, setup: str, code: str) -> None:
     name = {"type": "h.json", "garbage": "h.parquet"}.get(setup, "h.csv")
     if setup == "type":
         (tmp_path / name).write_text("{}")
@@ -150,14 +172,37 @@ def test_cli_history_option_and_exit_codes(tmp_path: Path) -> None:
     write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in hist])
     _csv(tmp_path / "h.csv", _rows(hist))
     out = tmp_path / "out.xlsx"
-    run = subprocess.run([sys.executable, "-m", "xlpolicy", "plan", str(tmp_path / "w.xlsx"),
-                          "--history", str(tmp_path / "h.csv"), "-o", str(out), "-q"],
-                         capture_output=True, text=True)
+    run = subprocess.run(
+        [
+            sys.executable,
+            "-m",
+            "xlpolicy",
+            "plan",
+            str(tmp_path / "w.xlsx"),
+            "--history",
+            str(tmp_path / "h.csv"),
+            "-o",
+            str(out),
+            "-q",
+        ],
+        capture_output=True,
+        text=True,
+    )
     assert run.returncode == 0, run.stderr
     assert out.exists()
-    run = subprocess.run([sys.executable, "-m", "xlpolicy", "plan", str(tmp_path / "w.xlsx"),
-                          "--history", str(tmp_path / "nope.csv")],
-                         capture_output=True, text=True)
+    run = subprocess.run(
+        [
+            sys.executable,
+            "-m",
+            "xlpolicy",
+            "plan",
+            str(tmp_path / "w.xlsx"),
+            "--history",
+            str(tmp_path / "nope.csv"),
+        ],
+        capture_output=True,
+        text=True,
+    )
     assert run.returncode == 2 and "Traceback" not in run.stderr
 
 
@@ -168,15 +213,17 @@ def test_parquet_numeric_item_codes_read_as_a_cell_would(tmp_path: Path) -> None
     frame["Item"] = frame["Item"].astype(int)
     frame["Period"] = pd.to_datetime(frame["Period"])  # a real date column
     frame.to_parquet(tmp_path / "h.parquet", index=False)
-    write_workbook(tmp_path / "w.xlsx", [item_row(123), item_row(124)],
-                   settings={"History file": "h.parquet"})
+    write_workbook(
+        tmp_path / "w.xlsx", [item_row(123), item_row(124)], settings={"History file": "h.parquet"}
+    )
     write_workbook(tmp_path / "s.xlsx", [item_row(123), item_row(124)], history=hist)
     a, b = _plan(tmp_path, "s.xlsx"), _plan(tmp_path, "w.xlsx")
     pd.testing.assert_frame_equal(a[KEYS], b[KEYS])
 
 
 def test_without_pyarrow_csv_goes_through_pandas_and_parquet_says_what_to_install(
-        tmp_path: Path) -> None:
+    tmp_path: Path,
+) -> None:
     """pyarrow is optional (the 'large' extra): hide it from a fresh interpreter and check.
 
     CSV: pandas' own parser gives the same policies as the History sheet; Parquet: a fatal
@@ -199,14 +246,17 @@ def test_without_pyarrow_csv_goes_through_pandas_and_parquet_says_what_to_instal
         f"r = xlpolicy.plan({str(tmp_path / 'csv.xlsx')!r}, write_workbook=False)\n"
         f"r.report.results.to_json({str(tmp_path / 'csv.json')!r}, orient='records')\n"
         f"p = xlpolicy.check({str(tmp_path / 'pq.xlsx')!r})\n"
-        "print(json.dumps([[x.severity.value, x.code, x.message] for x in p]))\n")
+        "print(json.dumps([[x.severity.value, x.code, x.message] for x in p]))\n"
+    )
     run = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True)
     assert run.returncode == 0, run.stderr
     got = pd.read_json(tmp_path / "csv.json", orient="records", dtype={"item": str})
     got = got.set_index("item")
-    pd.testing.assert_frame_equal(expect[KEYS], got[KEYS], check_dtype=False,
-                                  check_index_type=False)
+    pd.testing.assert_frame_equal(
+        expect[KEYS], got[KEYS], check_dtype=False, check_index_type=False
+    )
     import json
+
     fatal = [p for p in json.loads(run.stdout.strip().splitlines()[-1]) if p[0] == "fatal"]
     assert fatal and fatal[0][1] == "history-file-pyarrow"
     assert "xlpolicy[large]" in fatal[0][2]

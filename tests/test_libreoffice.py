@@ -29,7 +29,8 @@ if SOFFICE is None and os.environ.get("XLPOLICY_REQUIRE_LIBREOFFICE"):
 pytestmark = pytest.mark.skipif(
     SOFFICE is None,
     reason="LibreOffice Calc is not installed (.ci/run installs it: "
-           "apt-get install libreoffice-calc-nogui)")
+    "apt-get install libreoffice-calc-nogui)",
+)
 
 # LibreOffice's own setting: recalculate OOXML and ODF files on load always (0), so the
 # values it saves are its own, not the cached ones it read.
@@ -51,9 +52,21 @@ def recalculated(src: Path, work: Path) -> Path:
     (profile / "user" / "registrymodifications.xcu").write_text(_RECALC_ALWAYS)
     out = work / "lo-out"
     proc = subprocess.run(
-        [SOFFICE, f"-env:UserInstallation={profile.as_uri()}", "--headless", "--norestore",
-         "--convert-to", "xlsx:Calc MS Excel 2007 XML", "--outdir", str(out), str(src)],
-        capture_output=True, text=True, timeout=300)
+        [
+            SOFFICE,
+            f"-env:UserInstallation={profile.as_uri()}",
+            "--headless",
+            "--norestore",
+            "--convert-to",
+            "xlsx:Calc MS Excel 2007 XML",
+            "--outdir",
+            str(out),
+            str(src),
+        ],
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
     result = out / (src.stem + ".xlsx")
     assert result.exists(), proc.stdout + proc.stderr
     return result
@@ -98,7 +111,9 @@ def test_every_formula_of_the_demo_output_recalculates_to_its_cached_value(tmp_p
     ours = formula_cells(out)
     assert len(ours) > 100  # the policy and summary sheets are live formulas
     theirs = load_workbook(recalculated(out, tmp_path), data_only=True)
-    bad = [(sheet, cell, cached, theirs[sheet][cell].value)
-           for (sheet, cell), cached in ours.items()
-           if not same(cached, theirs[sheet][cell].value)]
+    bad = [
+        (sheet, cell, cached, theirs[sheet][cell].value)
+        for (sheet, cell), cached in ours.items()
+        if not same(cached, theirs[sheet][cell].value)
+    ]
     assert not bad, bad[:20]

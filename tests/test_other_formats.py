@@ -32,18 +32,27 @@ from xlpolicy.reading.sources import csv_value, open_source, sniff_delimiter
 SOFFICE = shutil.which("soffice") or shutil.which("libreoffice")
 REQUIRE_LO = bool(os.environ.get("XLPOLICY_REQUIRE_LIBREOFFICE"))
 
-HEADERS = ["Item", "Description", "Supplier", "Unit cost", "Order cost", "Holding rate",
-           "Lead time (days)"]
+HEADERS = [
+    "Item",
+    "Description",
+    "Supplier",
+    "Unit cost",
+    "Order cost",
+    "Holding rate",
+    "Lead time (days)",
+]
 CODES = ["000123", "B2", "C3", "000456"]
 START = dt.date(2024, 1, 1)
 WEEKS = 60
 
 
 def items() -> list[list]:
-    return [item_row("000123", cost=12.5, rate=0.25, desc="Grease, 400 g"),
-            item_row("B2", lead=7, cost=1234.5),
-            item_row("C3", cost=3.2, order=35.75),
-            item_row("000456", cost=8.0, rate=0.3)]
+    return [
+        item_row("000123", cost=12.5, rate=0.25, desc="Grease, 400 g"),
+        item_row("B2", lead=7, cost=1234.5),
+        item_row("C3", cost=3.2, order=35.75),
+        item_row("000456", cost=8.0, rate=0.3),
+    ]
 
 
 HISTORY = weekly_history(CODES, weeks=WEEKS, seed=11)
@@ -80,8 +89,14 @@ def assert_same_policies(got: pd.DataFrame, ref: pd.DataFrame) -> None:
     numeric = [c for c in ref.columns if pd.api.types.is_float_dtype(ref[c])]
     assert "order_qty" in numeric and "reorder_point" in numeric
     for c in numeric:
-        np.testing.assert_allclose(got[c].to_numpy(float), ref[c].to_numpy(float),
-                                   rtol=1e-12, atol=1e-12, equal_nan=True, err_msg=c)
+        np.testing.assert_allclose(
+            got[c].to_numpy(float),
+            ref[c].to_numpy(float),
+            rtol=1e-12,
+            atol=1e-12,
+            equal_nan=True,
+            err_msg=c,
+        )
 
 
 def test_reference_workbook_reads_the_padded_code(xlsx):
@@ -92,19 +107,34 @@ def test_reference_workbook_reads_the_padded_code(xlsx):
 
 # --- LibreOffice conversions ----------------------------------------------------------------
 
+
 def convert(src: Path, fmt: str, work: Path) -> Path:
     """``src`` converted by LibreOffice headless into ``fmt`` ("ods" or "xls")."""
     if SOFFICE is None:
         if REQUIRE_LO:
             pytest.fail("XLPOLICY_REQUIRE_LIBREOFFICE is set but LibreOffice is not installed")
-        pytest.skip("LibreOffice (soffice) is not installed, so no .ods/.xls can be made "
-                    "(apt-get install libreoffice-calc-nogui)")
+        pytest.skip(
+            "LibreOffice (soffice) is not installed, so no .ods/.xls can be made "
+            "(apt-get install libreoffice-calc-nogui)"
+        )
     profile = work / "lo-profile"
     out = work / f"lo-{fmt}"
     proc = subprocess.run(
-        [SOFFICE, f"-env:UserInstallation={profile.as_uri()}", "--headless", "--norestore",
-         "--convert-to", fmt, "--outdir", str(out), str(src)],
-        capture_output=True, text=True, timeout=300)
+        [
+            SOFFICE,
+            f"-env:UserInstallation={profile.as_uri()}",
+            "--headless",
+            "--norestore",
+            "--convert-to",
+            fmt,
+            "--outdir",
+            str(out),
+            str(src),
+        ],
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
     result = out / f"{src.stem}.{fmt}"
     assert result.exists(), proc.stdout + proc.stderr
     return result
@@ -175,8 +205,16 @@ def test_output_names_for_other_inputs(tmp_path):
 
 # --- CSV folders --------------------------------------------------------------------------
 
-def write_csv_folder(folder: Path, *, delimiter: str = ",", number=str, date=None,
-                     encoding: str = "utf-8", items_rows: list[list] | None = None) -> Path:
+
+def write_csv_folder(
+    folder: Path,
+    *,
+    delimiter: str = ",",
+    number=str,
+    date=None,
+    encoding: str = "utf-8",
+    items_rows: list[list] | None = None,
+) -> Path:
     """The reference data as Items.csv, History.csv, Settings.csv, written with csv."""
     folder.mkdir(parents=True, exist_ok=True)
     date = date or (lambda d: d.isoformat())
@@ -216,8 +254,9 @@ def test_semicolon_decimal_comma_folder_gives_the_same_policies(xlsx, tmp_path):
         whole = f"{int(whole):,}".replace(",", ".")
         return f"{whole},{frac}"
 
-    folder = write_csv_folder(tmp_path / "eu", delimiter=";", number=eu,
-                              date=lambda d: d.strftime("%d.%m.%Y"))
+    folder = write_csv_folder(
+        tmp_path / "eu", delimiter=";", number=eu, date=lambda d: d.strftime("%d.%m.%Y")
+    )
     text = (folder / "Items.csv").read_text()
     assert "1.234,5" in text and "12,5" in text and "0,25" in text  # the test writes what it says
     assert_same_policies(policies(folder), policies(xlsx))
@@ -241,8 +280,12 @@ def test_csv_codes_stay_text_and_bad_cells_point_at_file_row_column(tmp_path):
     problems = xlpolicy.check(folder)
     bad = [p for p in problems if p.code == "unit_cost-not-number"]
     assert len(bad) == 1
-    assert (bad[0].sheet, bad[0].cell, bad[0].item, bad[0].value) == ("Items.csv", "D3", "B2",
-                                                                      "n/a")
+    assert (bad[0].sheet, bad[0].cell, bad[0].item, bad[0].value) == (
+        "Items.csv",
+        "D3",
+        "B2",
+        "n/a",
+    )
     res = CliRunner().invoke(main, ["check", str(folder)])
     assert "Items.csv!D3 [B2]" in res.output and "'n/a'" in res.output
     ok = policies(folder)
@@ -251,8 +294,11 @@ def test_csv_codes_stay_text_and_bad_cells_point_at_file_row_column(tmp_path):
 
 
 def test_csv_loose_names_and_windows_encoding(tmp_path):
-    folder = write_csv_folder(tmp_path / "win", encoding="cp1252",
-                              items_rows=[item_row(c, desc="Café crème") for c in CODES])
+    folder = write_csv_folder(
+        tmp_path / "win",
+        encoding="cp1252",
+        items_rows=[item_row(c, desc="Café crème") for c in CODES],
+    )
     (folder / "Items.csv").rename(folder / "ITEMS.csv")
     (folder / "History.csv").rename(folder / "Sales_History.csv")
     report = xlpolicy.analyse(folder)
@@ -261,27 +307,46 @@ def test_csv_loose_names_and_windows_encoding(tmp_path):
     assert report.input_summary["items_planned"] == 4
 
 
-@pytest.mark.parametrize("text, delim", [
-    ("Item,Unit cost\nA,1\n", ","), ("Item;Unit cost\nA;1,5\nB;2\n", ";"),
-    ("Item\tUnit cost\nA\t1\n", "\t"), ('Item,Description\nA,"x; y"\nB,"p; q"\n', ","),
-])
+@pytest.mark.parametrize(
+    "text, delim",
+    [
+        ("Item,Unit cost\nA,1\n", ","),
+        ("Item;Unit cost\nA;1,5\nB;2\n", ";"),
+        ("Item\tUnit cost\nA\t1\n", "\t"),
+        ('Item,Description\nA,"x; y"\nB,"p; q"\n', ","),
+    ],
+)
 def test_delimiter_is_sniffed(text, delim):
     assert sniff_delimiter(text) == delim
 
 
-@pytest.mark.parametrize("raw, comma, value", [
-    ("000123", False, "000123"), ("123", False, 123), ("2.5", False, 2.5),
-    ("2.50", False, "2.50"), ("1e5", False, "1e5"), ("n/a", False, "n/a"), ("", False, None),
-    ("1,5", True, 1.5), ("1.234,5", True, 1234.5), ("1.234", True, 1234), ("14,5%", True, "14.5%"),
-    ("1,5", False, "1,5"), ("2024-03-01", False, dt.datetime(2024, 3, 1)),
-    ("01.03.2024", True, dt.datetime(2024, 3, 1)), ("01.03.2024", False, "01.03.2024"),
-])
+@pytest.mark.parametrize(
+    "raw, comma, value",
+    [
+        ("000123", False, "000123"),
+        ("123", False, 123),
+        ("2.5", False, 2.5),
+        ("2.50", False, "2.50"),
+        ("1e5", False, "1e5"),
+        ("n/a", False, "n/a"),
+        ("", False, None),
+        ("1,5", True, 1.5),
+        ("1.234,5", True, 1234.5),
+        ("1.234", True, 1234),
+        ("14,5%", True, "14.5%"),
+        ("1,5", False, "1,5"),
+        ("2024-03-01", False, dt.datetime(2024, 3, 1)),
+        ("01.03.2024", True, dt.datetime(2024, 3, 1)),
+        ("01.03.2024", False, "01.03.2024"),
+    ],
+)
 def test_csv_values_are_converted_only_when_unambiguous(raw, comma, value):
     got = csv_value(raw, comma_decimals=comma)
     assert got == value and type(got) is type(value)
 
 
 # --- inputs that cannot be used -----------------------------------------------------------
+
 
 def fatal_cases(tmp_path: Path) -> list[tuple[Path, str]]:
     cases = []

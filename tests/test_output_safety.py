@@ -93,7 +93,8 @@ def test_user_text_lands_as_text_in_every_sheet_and_the_csv(tmp_path):
                             assert cell.quotePrefix, (name, cell.coordinate)
     assert seen >= 5  # descriptions and suppliers on the Policy and Reorder sheets
     assert "boltset withescapes" in {
-        c.value for row in wb[DEFAULT_SHEET_NAMES["policy"]].iter_rows() for c in row}
+        c.value for row in wb[DEFAULT_SHEET_NAMES["policy"]].iter_rows() for c in row
+    }
     table = pd.read_csv(tmp_path / "h.csv", dtype=str, keep_default_na=False)
     desc = dict(zip(table["item"], table["description"], strict=True))
     assert desc["EQ"] == "'" + HOSTILE["EQ"] and desc["AT"] == "'" + HOSTILE["AT"]
@@ -101,10 +102,20 @@ def test_user_text_lands_as_text_in_every_sheet_and_the_csv(tmp_path):
     assert desc["CTRL"] == "boltset withescapes"
 
 
-@pytest.mark.parametrize("raw, safe", [
-    ("=1+1", "'=1+1"), ("-12", "-12"), ("-1.5e3", "-1.5e3"), ("-A1", "'-A1"),
-    ("@x", "'@x"), ("plain", "plain"), ("a\x00b", "ab"), (12.5, 12.5), (None, None),
-])
+@pytest.mark.parametrize(
+    "raw, safe",
+    [
+        ("=1+1", "'=1+1"),
+        ("-12", "-12"),
+        ("-1.5e3", "-1.5e3"),
+        ("-A1", "'-A1"),
+        ("@x", "'@x"),
+        ("plain", "plain"),
+        ("a\x00b", "ab"),
+        (12.5, 12.5),
+        (None, None),
+    ],
+)
 def test_csv_safe(raw, safe):
     assert csv_safe(raw) == safe
 
@@ -114,8 +125,11 @@ def _repeated(df: pd.DataFrame, n: int) -> pd.DataFrame:
 
 
 def _real_report(tmp_path: Path):
-    src = write_workbook(tmp_path / "w.xlsx", [["A", "d", "s", 10.0, 20.0, 0.2, 14.0]],
-                         history=weekly_history(["A"], weeks=60))
+    src = write_workbook(
+        tmp_path / "w.xlsx",
+        [["A", "d", "s", 10.0, 20.0, 0.2, 14.0]],
+        history=weekly_history(["A"], weeks=60),
+    )
     return src, xlpolicy.analyse(src)
 
 
@@ -137,8 +151,9 @@ def test_warnings_past_the_row_limit_are_cut_with_a_note(tmp_path, monkeypatch):
     # the real limit needs a million problems; the sheet's own cut-off is lowered instead
     monkeypatch.setattr(warnings_sheet, "MAX_PROBLEM_ROWS", 4)
     src, report = _real_report(tmp_path)
-    extra = [Problem(Severity.WARNING, "Items", f"B{k}", "A", None, f"note {k}", "x")
-             for k in range(10)]
+    extra = [
+        Problem(Severity.WARNING, "Items", f"B{k}", "A", None, f"note {k}", "x") for k in range(10)
+    ]
     report = dataclasses.replace(report, problems=report.problems + extra)
     out = tmp_path / "out.xlsx"
     api.write_policy_workbook(src, out, report)
@@ -160,16 +175,28 @@ def test_a_failure_while_writing_keeps_the_old_output(tmp_path, standalone):
     if standalone:  # an .ods-like path: the standalone writer (no merge into a copy)
         src = tmp_path / "csv-folder"
         src.mkdir()
-        (src / "Items.csv").write_text("Item,Unit cost,Order cost,Holding rate,Lead time days\n"
-                                       "A,10,20,0.2,14\n")
-        (src / "History.csv").write_text("Item,Period,Quantity\n" + "".join(
-            f"A,{k + 1},{q:g}\n" for k, q in enumerate(weekly_history(["A"])["A"])))
+        (src / "Items.csv").write_text(
+            "Item,Unit cost,Order cost,Holding rate,Lead time days\nA,10,20,0.2,14\n"
+        )
+        (src / "History.csv").write_text(
+            "Item,Period,Quantity\n"
+            + "".join(f"A,{k + 1},{q:g}\n" for k, q in enumerate(weekly_history(["A"])["A"]))
+        )
     first = xlpolicy.plan(src)
     old = digest(first.output)
     input_before = digest(src) if src.is_file() else None
     report = xlpolicy.analyse(src)
-    report.problems.append(Problem(Severity.WARNING, "Items", "A2", "A", Unwritable(),
-                                   "a problem whose value cannot be written", "x"))
+    report.problems.append(
+        Problem(
+            Severity.WARNING,
+            "Items",
+            "A2",
+            "A",
+            Unwritable(),
+            "a problem whose value cannot be written",
+            "x",
+        )
+    )
     with pytest.raises(RuntimeError, match="cannot be written"):
         api.write_policy_workbook(src, first.output, report)
     assert digest(first.output) == old
@@ -202,8 +229,13 @@ def test_a_terminated_run_leaves_the_old_output_and_no_temporary_file(tmp_path):
     old, input_before = digest(out), digest(src)
     root = str(Path(xlpolicy.__file__).resolve().parent.parent)
     env = dict(os.environ, PYTHONPATH=os.pathsep.join([root, os.environ.get("PYTHONPATH", "")]))
-    proc = subprocess.run([sys.executable, "-c", _SIGTERM_SCRIPT, str(src), str(out)],
-                          capture_output=True, text=True, env=env, timeout=120)
+    proc = subprocess.run(
+        [sys.executable, "-c", _SIGTERM_SCRIPT, str(src), str(out)],
+        capture_output=True,
+        text=True,
+        env=env,
+        timeout=120,
+    )
     assert proc.returncode == 130, proc.stderr
     assert "Stopped before the end" in proc.stderr and "Traceback" not in proc.stderr
     assert digest(out) == old and digest(src) == input_before

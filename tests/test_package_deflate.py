@@ -22,19 +22,22 @@ from xlpolicy.writing.package import _deflate_in_threads, _ParallelDeflate
 
 def _xmlish(n_rows: int, seed: int = 3) -> bytes:
     rng = np.random.default_rng(seed)
-    return "".join(f'<row r="{r}"><c r="A{r}"><v>{v!r}</v></c></row>'
-                   for r, v in enumerate(rng.random(n_rows).tolist(), 1)).encode()
+    return "".join(
+        f'<row r="{r}"><c r="A{r}"><v>{v!r}</v></c></row>'
+        for r, v in enumerate(rng.random(n_rows).tolist(), 1)
+    ).encode()
 
 
-@pytest.mark.parametrize("sizes", [[], [0], [1], [10, 0, 5], [40_000, 1, 70_000, 3_000],
-                                   [300_000] * 5])
+@pytest.mark.parametrize(
+    "sizes", [[], [0], [1], [10, 0, 5], [40_000, 1, 70_000, 3_000], [300_000] * 5]
+)
 def test_pieces_make_one_deflate_stream(monkeypatch, sizes):
     monkeypatch.setattr(package, "_DEFLATE_PIECE", 50_000)  # many pieces, some < a window
     monkeypatch.setattr(package, "_DEFLATE_AHEAD", 2)
     data = _xmlish(40_000)
     chunks, pos = [], 0
     for n in sizes:
-        chunks.append(data[pos:pos + n])
+        chunks.append(data[pos : pos + n])
         pos += n
     with concurrent.futures.ThreadPoolExecutor(2) as pool:
         d = _ParallelDeflate(pool, 1)
@@ -63,13 +66,15 @@ def test_zip_entry_written_with_threads_reads_back(tmp_path: Path, monkeypatch):
     path = tmp_path / "t.zip"
     info = zipfile.ZipInfo("xl/worksheets/sheet1.xml", date_time=(1980, 1, 1, 0, 0, 0))
     info.compress_type = zipfile.ZIP_DEFLATED
-    with (zipfile.ZipFile(path, "w") as zf,
-          concurrent.futures.ThreadPoolExecutor(2) as pool,
-          zf.open(info, "w") as dst):
+    with (
+        zipfile.ZipFile(path, "w") as zf,
+        concurrent.futures.ThreadPoolExecutor(2) as pool,
+        zf.open(info, "w") as dst,
+    ):
         _deflate_in_threads(dst, pool)
         assert isinstance(dst._compressor, _ParallelDeflate)
         for k in range(0, len(data), 100_000):
-            dst.write(data[k:k + 100_000])
+            dst.write(data[k : k + 100_000])
     with zipfile.ZipFile(path) as zf:
         assert zf.testzip() is None
         assert zf.read("xl/worksheets/sheet1.xml") == data

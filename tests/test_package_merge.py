@@ -40,13 +40,16 @@ MAIN = "http://schemas.openxmlformats.org/spreadsheetml/2006/main"
 PKG_REL = "http://schemas.openxmlformats.org/package/2006/relationships"
 CT = "http://schemas.openxmlformats.org/package/2006/content-types"
 DOC_REL = "http://schemas.openxmlformats.org/officeDocument/2006/relationships"
-XLSX_OPTIONS = {"strings_to_formulas": False, "strings_to_urls": False,
-                "strings_to_numbers": False}
+XLSX_OPTIONS = {"strings_to_formulas": False, "strings_to_urls": False, "strings_to_numbers": False}
 MONEY = '"$"#,##0.00'
 PERCENT = "0.0%"
 # Parts the merge may rewrite; everything else must come through byte for byte.
-ALLOWED_CHANGES = {"[Content_Types].xml", "xl/workbook.xml", "xl/_rels/workbook.xml.rels",
-                   "xl/styles.xml"}
+ALLOWED_CHANGES = {
+    "[Content_Types].xml",
+    "xl/workbook.xml",
+    "xl/_rels/workbook.xml.rels",
+    "xl/styles.xml",
+}
 
 
 # --- fixtures: workbooks made with the real libraries -----------------------------------
@@ -68,8 +71,11 @@ def make_user_openpyxl(path: Path) -> Path:
     ws["G1"] = "notes"
     ws.merge_cells("G1:H1")
     ws.conditional_formatting.add(
-        "C2:C3", CellIsRule(operator="greaterThan", formula=["10"],
-                            fill=PatternFill("solid", bgColor="00FF00")))
+        "C2:C3",
+        CellIsRule(
+            operator="greaterThan", formula=["10"], fill=PatternFill("solid", bgColor="00FF00")
+        ),
+    )
     wb.defined_names["main_cost"] = DefinedName("main_cost", attr_text="Items!$B$2")
     hist = wb.create_sheet("History")
     hist.append(["item", "period", "quantity"])
@@ -119,8 +125,11 @@ def make_generated(path: Path, scale: float = 1.0, extras: bool = False) -> Path
     red = wb.add_format({"font_color": "#FF0000"})
     ws = wb.add_worksheet("Policy")
     ws.write_row(0, 0, ["item", "order qty", "annual cost", "fill rate"], bold)
-    rows = [("000123", 40, 118.5, 0.975), ("B-77", 25, 260.0, 0.951), ("=not a formula", 5,
-                                                                          9.75, 0.9)]
+    rows = [
+        ("000123", 40, 118.5, 0.975),
+        ("B-77", 25, 260.0, 0.951),
+        ("=not a formula", 5, 9.75, 0.9),
+    ]
     for r, (item, qty, cost, fill) in enumerate(rows, start=1):
         ws.write_string(r, 0, item)
         ws.write_number(r, 1, qty * scale)
@@ -129,8 +138,9 @@ def make_generated(path: Path, scale: float = 1.0, extras: bool = False) -> Path
     ws.freeze_panes(1, 0)
     ws.autofilter(0, 0, len(rows), 3)
     ws.repeat_rows(0)
-    ws.conditional_format(1, 3, len(rows), 3, {"type": "cell", "criteria": "<",
-                                               "value": 0.95, "format": red})
+    ws.conditional_format(
+        1, 3, len(rows), 3, {"type": "cell", "criteria": "<", "value": 0.95, "format": red}
+    )
     ws.write_url(5, 0, "https://example.org/xlpolicy-help", string="how to read this")
     ws.set_column(2, 2, 14)
     tot = wb.add_worksheet("Totals")
@@ -143,8 +153,10 @@ def make_generated(path: Path, scale: float = 1.0, extras: bool = False) -> Path
         chart = wb.add_chart({"type": "line"})
         chart.add_series({"values": "=Policy!$C$2:$C$4"})
         tot.insert_chart("D2", chart)
-        tot.add_table("A5:B7", {"name": "GeneratedTotals",
-                                "columns": [{"header": "what"}, {"header": "amount"}]})
+        tot.add_table(
+            "A5:B7",
+            {"name": "GeneratedTotals", "columns": [{"header": "what"}, {"header": "amount"}]},
+        )
     wb.close()
     return path
 
@@ -237,8 +249,11 @@ def check_package(path: Path) -> dict[str, bytes]:
     selected = 0
     for name, tree in trees.items():
         if name.startswith("xl/worksheets/") and name.endswith(".xml"):
-            selected += sum(1 for v in tree.iter(f"{{{MAIN}}}sheetView")
-                            if v.get("tabSelected") in ("1", "true"))
+            selected += sum(
+                1
+                for v in tree.iter(f"{{{MAIN}}}sheetView")
+                if v.get("tabSelected") in ("1", "true")
+            )
     assert selected <= 1, "several tabs selected: Excel would group the sheets"
     return parts
 
@@ -345,8 +360,9 @@ def test_output_reads_back_with_openpyxl(user_xlsx: Path, generated: Path, tmp_p
 
     # print titles and the marks are scoped to the generated sheets' new positions
     root = workbook_root(out)
-    scoped = {(dn.get("name"), dn.get("localSheetId"))
-              for dn in root.iter(f"{{{MAIN}}}definedName")}
+    scoped = {
+        (dn.get("name"), dn.get("localSheetId")) for dn in root.iter(f"{{{MAIN}}}definedName")
+    }
     assert ("_xlnm.Print_Titles", "3") in scoped
     assert ("_xlnm._FilterDatabase", "3") in scoped
     assert (GENERATED_MARK, "3") in scoped and (GENERATED_MARK, "4") in scoped
@@ -363,8 +379,12 @@ def test_chart_and_drawing_parts_survive(tmp_path: Path):
     assert_unchanged_parts(user, out)
     names_in, parts_in = zip_parts(user)
     names_out, parts_out = zip_parts(out)
-    for name in ("xl/charts/chart1.xml", "xl/drawings/drawing1.xml",
-                 "xl/drawings/_rels/drawing1.xml.rels", "xl/drawings/vmlDrawing1.vml"):
+    for name in (
+        "xl/charts/chart1.xml",
+        "xl/drawings/drawing1.xml",
+        "xl/drawings/_rels/drawing1.xml.rels",
+        "xl/drawings/vmlDrawing1.vml",
+    ):
         assert parts_out[name] == parts_in[name]
     assert b"Figures are units shipped" in parts_out["xl/drawings/drawing1.xml"]
     # the generated chart, drawing and notes came along under new names
@@ -424,8 +444,11 @@ def test_rerun_replaces_generated_sheets(user_xlsx: Path, generated: Path, tmp_p
     # styles did not grow: the same records are found again instead of appended
     assert parts1["xl/styles.xml"] == parts2["xl/styles.xml"]
     root = workbook_root(second)
-    marks = [dn.get("localSheetId") for dn in root.iter(f"{{{MAIN}}}definedName")
-             if dn.get("name") == GENERATED_MARK]
+    marks = [
+        dn.get("localSheetId")
+        for dn in root.iter(f"{{{MAIN}}}definedName")
+        if dn.get("name") == GENERATED_MARK
+    ]
     assert marks == ["3", "4"]
     check_package(second)
     # a third run on the first output gives the same package again
@@ -447,19 +470,33 @@ def test_rerun_removes_generated_charts_notes_tables(tmp_path: Path):
 
 def add_calc_chain(src: Path, dst: Path, sheet_id: str) -> Path:
     """What Excel adds on save: a calculation chain naming formula cells by sheetId."""
-    chain = (b'<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\r\n<calcChain xmlns="'
-             + MAIN.encode() + b'"><c r="B1" i="' + sheet_id.encode() + b'"/></calcChain>')
+    chain = (
+        b'<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\r\n<calcChain xmlns="'
+        + MAIN.encode()
+        + b'"><c r="B1" i="'
+        + sheet_id.encode()
+        + b'"/></calcChain>'
+    )
     with zipfile.ZipFile(src) as zin, zipfile.ZipFile(dst, "w") as zout:
         for info in zin.infolist():
             data = zin.read(info)
             if info.filename == "xl/_rels/workbook.xml.rels":
-                data = data.replace(b"</Relationships>", (
-                    b'<Relationship Id="rId99" Type="' + DOC_REL.encode()
-                    + b'/calcChain" Target="calcChain.xml"/></Relationships>'))
+                data = data.replace(
+                    b"</Relationships>",
+                    (
+                        b'<Relationship Id="rId99" Type="'
+                        + DOC_REL.encode()
+                        + b'/calcChain" Target="calcChain.xml"/></Relationships>'
+                    ),
+                )
             if info.filename == "[Content_Types].xml":
-                data = data.replace(b"</Types>", (
-                    b'<Override PartName="/xl/calcChain.xml" ContentType="application/'
-                    b'vnd.openxmlformats-officedocument.spreadsheetml.calcChain+xml"/></Types>'))
+                data = data.replace(
+                    b"</Types>",
+                    (
+                        b'<Override PartName="/xl/calcChain.xml" ContentType="application/'
+                        b'vnd.openxmlformats-officedocument.spreadsheetml.calcChain+xml"/></Types>'
+                    ),
+                )
             zout.writestr(info, data)
         zout.writestr("xl/calcChain.xml", chain)
     return dst
@@ -480,8 +517,10 @@ def test_rerun_drops_stale_calc_chain(user_xlsx: Path, generated: Path, tmp_path
     # on a first run the chain is left alone: it names only the user's sheets
     with_chain = add_calc_chain(user_xlsx, tmp_path / "chain.xlsx", "1")
     merge_generated_sheets(with_chain, generated, tmp_path / "kept.xlsx")
-    assert zip_parts(tmp_path / "kept.xlsx")[1]["xl/calcChain.xml"] == zip_parts(
-        with_chain)[1]["xl/calcChain.xml"]
+    assert (
+        zip_parts(tmp_path / "kept.xlsx")[1]["xl/calcChain.xml"]
+        == zip_parts(with_chain)[1]["xl/calcChain.xml"]
+    )
 
 
 def test_user_package_without_styles_part(tmp_path: Path, generated: Path):
@@ -507,8 +546,7 @@ def test_user_package_without_styles_part(tmp_path: Path, generated: Path):
     assert pol["C2"].number_format == MONEY and pol["A1"].font.b
 
 
-def test_rerun_after_user_moved_a_generated_sheet(user_xlsx: Path, generated: Path,
-                                                  tmp_path: Path):
+def test_rerun_after_user_moved_a_generated_sheet(user_xlsx: Path, generated: Path, tmp_path: Path):
     """The user re-saved the output with a generated sheet moved to the front."""
     first = tmp_path / "first.xlsx"
     merge_generated_sheets(user_xlsx, generated, first)
@@ -563,18 +601,25 @@ def rewrite_member(src: Path, dst: Path, name: str, change) -> Path:
     return dst
 
 
-def test_strict_missing_and_broken_workbook_parts(user_xlsx: Path, generated: Path,
-                                                  tmp_path: Path):
+def test_strict_missing_and_broken_workbook_parts(user_xlsx: Path, generated: Path, tmp_path: Path):
     strict = rewrite_member(
-        user_xlsx, tmp_path / "strict.xlsx", "_rels/.rels",
-        lambda d: d.replace(b"http://schemas.openxmlformats.org/officeDocument/2006/"
-                            b"relationships/officeDocument",
-                            b"http://purl.oclc.org/ooxml/officeDocument/relationships/"
-                            b"officeDocument"))
-    broken = rewrite_member(user_xlsx, tmp_path / "broken.xlsx", "xl/workbook.xml",
-                            lambda d: d[: len(d) // 2])
-    no_wb = rewrite_member(user_xlsx, tmp_path / "nowb.xlsx", "_rels/.rels",
-                           lambda d: d.replace(b"xl/workbook.xml", b"xl/missing.xml"))
+        user_xlsx,
+        tmp_path / "strict.xlsx",
+        "_rels/.rels",
+        lambda d: d.replace(
+            b"http://schemas.openxmlformats.org/officeDocument/2006/relationships/officeDocument",
+            b"http://purl.oclc.org/ooxml/officeDocument/relationships/officeDocument",
+        ),
+    )
+    broken = rewrite_member(
+        user_xlsx, tmp_path / "broken.xlsx", "xl/workbook.xml", lambda d: d[: len(d) // 2]
+    )
+    no_wb = rewrite_member(
+        user_xlsx,
+        tmp_path / "nowb.xlsx",
+        "_rels/.rels",
+        lambda d: d.replace(b"xl/workbook.xml", b"xl/missing.xml"),
+    )
     for bad, word in ((strict, "Strict"), (broken, "workbook"), (no_wb, "workbook")):
         with pytest.raises(CannotMerge, match=word):
             merge_generated_sheets(bad, generated, tmp_path / "out.xlsx")
@@ -614,8 +659,11 @@ def test_merge_failure_leaves_previous_output(user_xlsx: Path, tmp_path: Path):
     with pytest.raises(CannotMerge):
         merge_generated_sheets(user_xlsx, bad_generated, out)
     assert out.read_bytes() == b"previous run"
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["gen.xlsx", "stock-policy.xlsx",
-                                                          "stock.xlsx"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == [
+        "gen.xlsx",
+        "stock-policy.xlsx",
+        "stock.xlsx",
+    ]
 
 
 EXCEL_STYLE_WORKBOOK = (
@@ -634,7 +682,7 @@ EXCEL_STYLE_WORKBOOK = (
     '<mc:AlternateContent xmlns:mc="http://schemas.openxmlformats.org/markup-compatibility/2006">'
     '<mc:Choice Requires="x15"><x15ac:absPath url="C:\\stock\\" '
     'xmlns:x15ac="http://schemas.microsoft.com/office/spreadsheetml/2010/11/ac"/>'
-    '</mc:Choice></mc:AlternateContent>'
+    "</mc:Choice></mc:AlternateContent>"
     '<xr:revisionPtr revIDLastSave="0" documentId="8_{0F1E2D3C-0000-4000-8000-0000000000AA}" '
     'xr6:coauthVersionLast="47" xr6:coauthVersionMax="47" '
     'xr10:uidLastSave="{00000000-0000-0000-0000-000000000000}"/>'
@@ -655,14 +703,23 @@ def test_excel_style_markup_is_preserved(user_xlsx: Path, generated: Path, tmp_p
     ElementTree would rename the prefixes and leave mc:Ignorable naming prefixes that no
     longer exist, which Excel rejects (ECMA-376 Part 3, 10.1.1: Ignorable lists prefixes).
     """
-    excelish = rewrite_member(user_xlsx, tmp_path / "excelish.xlsx", "xl/workbook.xml",
-                              lambda _: EXCEL_STYLE_WORKBOOK.encode())
+    excelish = rewrite_member(
+        user_xlsx,
+        tmp_path / "excelish.xlsx",
+        "xl/workbook.xml",
+        lambda _: EXCEL_STYLE_WORKBOOK.encode(),
+    )
     out = tmp_path / "out.xlsx"
     merge_generated_sheets(excelish, generated, out)
     data = zip_parts(out)[1]["xl/workbook.xml"]
     assert data.startswith(b'<?xml version="1.0" encoding="UTF-8" standalone="yes"?>')
-    for fragment in (b'mc:Ignorable="x15 xr xr6 xr10 xr2"', b"<x15ac:absPath",
-                     b"<xr:revisionPtr", b'xr2:uid="{9A8B7C6D', b"<x15:workbookPr"):
+    for fragment in (
+        b'mc:Ignorable="x15 xr xr6 xr10 xr2"',
+        b"<x15ac:absPath",
+        b"<xr:revisionPtr",
+        b'xr2:uid="{9A8B7C6D',
+        b"<x15:workbookPr",
+    ):
         assert fragment in data
     root = etree.fromstring(data)
     order = [etree.QName(c).localname for c in root]
@@ -711,8 +768,14 @@ def test_output_locked_when_directory_not_writable():
     python = sys.executable
     if hasattr(os, "geteuid") and os.geteuid() == 0:
         kwargs["user"] = 65534
-        python = next((p for p in (sys.executable, shutil.which("python3"), "/usr/bin/python3")
-                       if _world_executable(p)), None)
+        python = next(
+            (
+                p
+                for p in (sys.executable, shutil.which("python3"), "/usr/bin/python3")
+                if _world_executable(p)
+            ),
+            None,
+        )
         if python is None:
             pytest.skip("no interpreter that an unprivileged user may run")
     base = Path(tempfile.mkdtemp())
@@ -722,9 +785,15 @@ def test_output_locked_when_directory_not_writable():
         locked.mkdir()
         locked.chmod(0o555)
         env = {"PATH": os.environ.get("PATH", ""), "PYTHONDONTWRITEBYTECODE": "1"}
-        run = subprocess.run([python, "-c", code, str(locked), str(atomic_file)],
-                             capture_output=True, text=True, env=env, cwd=base, timeout=60,
-                             **kwargs)
+        run = subprocess.run(
+            [python, "-c", code, str(locked), str(atomic_file)],
+            capture_output=True,
+            text=True,
+            env=env,
+            cwd=base,
+            timeout=60,
+            **kwargs,
+        )
         assert "LOCKED" in run.stdout, run.stderr
         assert "close it and try again" in run.stdout
         assert list(locked.iterdir()) == []

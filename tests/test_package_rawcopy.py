@@ -53,12 +53,19 @@ def test_user_parts_copied_as_compressed_bytes(tmp_path: Path) -> None:
     with zipfile.ZipFile(user) as zu, zipfile.ZipFile(out) as zo:
         assert zo.testzip() is None  # every part of the output reads back with its CRC
         for info in zu.infolist():
-            if info.filename in ("[Content_Types].xml", "xl/workbook.xml",
-                                 "xl/_rels/workbook.xml.rels", "xl/styles.xml"):
+            if info.filename in (
+                "[Content_Types].xml",
+                "xl/workbook.xml",
+                "xl/_rels/workbook.xml.rels",
+                "xl/styles.xml",
+            ):
                 continue
             got = zo.getinfo(info.filename)
             assert (got.CRC, got.file_size, got.compress_type) == (
-                info.CRC, info.file_size, info.compress_type)
+                info.CRC,
+                info.file_size,
+                info.compress_type,
+            )
             assert _raw(out, info.filename) == _raw(user, info.filename)
     assert openpyxl.load_workbook(out)["History"]["A2000"].value == "001999"
 
@@ -71,10 +78,10 @@ def test_damaged_user_part_is_still_found(tmp_path: Path) -> None:
         info = zf.getinfo(name)
         start = info.header_offset
     data = bytearray(user.read_bytes())
-    n, m = struct.unpack("<HH", data[start + 26:start + 30])
+    n, m = struct.unpack("<HH", data[start + 26 : start + 30])
     body = start + 30 + n + m
     middle = body + info.compress_size // 2
-    data[middle:middle + 8] = bytes(8)  # eight zero bytes inside the deflate stream
+    data[middle : middle + 8] = bytes(8)  # eight zero bytes inside the deflate stream
     bad = tmp_path / "bad.xlsx"
     bad.write_bytes(bytes(data))
     out = tmp_path / "out.xlsx"

@@ -18,10 +18,25 @@ from xlpolicy.contract import CYCLE_SERVICE, FILL_RATE, SHORTAGE_COST
 from xlpolicy.core.periodic import periodic_policy
 
 
-def _pp(T, d, sd, L, measure, target, model="normal", p=np.nan, dpp=7.0, ppy=52.0,
-        S=20.0, i=0.25, c=8.0, sL=0.0):
-    return periodic_policy([T], [d], [sd], [L], [sL], dpp, ppy, [S], [i], [c], measure,
-                           [target], [p], model=[model]).iloc[0]
+def _pp(
+    T,
+    d,
+    sd,
+    L,
+    measure,
+    target,
+    model="normal",
+    p=np.nan,
+    dpp=7.0,
+    ppy=52.0,
+    S=20.0,
+    i=0.25,
+    c=8.0,
+    sL=0.0,
+):
+    return periodic_policy(
+        [T], [d], [sd], [L], [sL], dpp, ppy, [S], [i], [c], measure, [target], [p], model=[model]
+    ).iloc[0]
 
 
 def test_chopra_meindl_order_up_to_level_from_memory():
@@ -46,8 +61,7 @@ def test_chopra_meindl_order_up_to_level_from_memory():
 
 def test_poisson_level_against_scipy():
     # 3 a day, reviewed weekly, 5-day lead time: Poisson with mean 36 over T + L
-    pol = _pp(7, 3.0, np.sqrt(3.0), 5, CYCLE_SERVICE, 0.97, model="poisson", dpp=1.0,
-              ppy=365.0)
+    pol = _pp(7, 3.0, np.sqrt(3.0), 5, CYCLE_SERVICE, 0.97, model="poisson", dpp=1.0, ppy=365.0)
     assert pol["order_up_to_level"] == stats.poisson.ppf(0.97, 36)
     assert pol["cycle_service"] == pytest.approx(stats.poisson.cdf(pol["order_up_to_level"], 36))
 
@@ -55,7 +69,7 @@ def test_poisson_level_against_scipy():
 def test_fill_rate_level_brute_force_with_scipy_loss():
     pol = _pp(14, 40, 12, 10, FILL_RATE, 0.99, sL=2.0)
     mu = 40 * 24 / 7
-    sig = np.sqrt(24 / 7 * 12 ** 2 + 40 ** 2 * (2 / 7) ** 2)  # the SPP lead-time formula
+    sig = np.sqrt(24 / 7 * 12**2 + 40**2 * (2 / 7) ** 2)  # the SPP lead-time formula
     assert pol["protection_demand_sd"] == pytest.approx(sig)
     q_bar = 40 * 2
     s = np.arange(0, 400)
@@ -87,17 +101,29 @@ def test_longer_review_needs_a_higher_level():
     assert long["annual_ordering_cost"] < short["annual_ordering_cost"]
 
 
-HEADERS = [*BASE_HEADERS, "Annual demand", "Demand sd", "Pack size", "On hand",
-           "Review period (days)"]
+HEADERS = [
+    *BASE_HEADERS,
+    "Annual demand",
+    "Demand sd",
+    "Pack size",
+    "On hand",
+    "Review period (days)",
+]
 
 
 def test_workbook_column_setting_and_reorder(tmp_path):
-    items = [["W1", "a", "Acme", 5.0, 20.0, 0.2, 7.0, 2080, 10.0, 6, 10, None],
-             ["W2", "b", "Acme", 5.0, 20.0, 0.2, 7.0, 2080, 10.0, 1, 10, 0],
-             ["W3", "c", "Acme", 5.0, 20.0, 0.2, 7.0, 2080, 10.0, 1, 10, 28],
-             ["W4", "d", "Acme", 5.0, 20.0, 0.2, 7.0, 2080, 10.0, 1, 10, -3]]
-    path = write_workbook(tmp_path / "w.xlsx", items, headers=HEADERS,
-                          settings={"Review period days": 14, "Demand model": "normal"})
+    items = [
+        ["W1", "a", "Acme", 5.0, 20.0, 0.2, 7.0, 2080, 10.0, 6, 10, None],
+        ["W2", "b", "Acme", 5.0, 20.0, 0.2, 7.0, 2080, 10.0, 1, 10, 0],
+        ["W3", "c", "Acme", 5.0, 20.0, 0.2, 7.0, 2080, 10.0, 1, 10, 28],
+        ["W4", "d", "Acme", 5.0, 20.0, 0.2, 7.0, 2080, 10.0, 1, 10, -3],
+    ]
+    path = write_workbook(
+        tmp_path / "w.xlsx",
+        items,
+        headers=HEADERS,
+        settings={"Review period days": 14, "Demand model": "normal"},
+    )
     report = xlpolicy.analyse(path)
     r = report.results.set_index("item")
     assert r.loc["W1", "review"] == "periodic" and r.loc["W1", "review_period_days"] == 14
@@ -115,8 +141,9 @@ def test_workbook_column_setting_and_reorder(tmp_path):
 
 def test_bad_review_setting_is_reported(tmp_path):
     items = [["W1", "a", "Acme", 5.0, 20.0, 0.2, 7.0, 2080, 10.0, 6, 10, None]]
-    path = write_workbook(tmp_path / "w.xlsx", items, headers=HEADERS,
-                          settings={"Review period days": "weekly"})
+    path = write_workbook(
+        tmp_path / "w.xlsx", items, headers=HEADERS, settings={"Review period days": "weekly"}
+    )
     p = [p for p in xlpolicy.check(path) if p.code == "setting-review_period_days"]
     assert len(p) == 1 and p[0].sheet == "Settings"
 
@@ -125,8 +152,7 @@ def test_simulated_review_cycles_match_the_service_achieved():
     # A day-by-day simulation of the (T, S) system with backorders (independent of the
     # formulas): Poisson demand 6 a day, review every 7 days, lead time 4 days.
     lam, T, L = 6.0, 7, 4
-    pol = _pp(T, lam, np.sqrt(lam), L, FILL_RATE, 0.97, model="poisson", dpp=1.0,
-              ppy=365.0)
+    pol = _pp(T, lam, np.sqrt(lam), L, FILL_RATE, 0.97, model="poisson", dpp=1.0, ppy=365.0)
     S = pol["order_up_to_level"]
     rng = np.random.default_rng(11)
     days = 7 * 6000

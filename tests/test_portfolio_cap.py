@@ -23,8 +23,9 @@ from xlpolicy.core.policy import PolicyInputs, compute_policy
 from xlpolicy.core.portfolio import BUDGET, ORDERS, apply_cap, cap_usage
 
 
-def inputs(measure: str = "cycle service", packs: bool = True, n: int = 6,
-           seed: int = 4) -> PolicyInputs:
+def inputs(
+    measure: str = "cycle service", packs: bool = True, n: int = 6, seed: int = 4
+) -> PolicyInputs:
     """A small invented instance (test data only): normal and Poisson items, some packs."""
     rng = np.random.default_rng(seed)
     d = rng.uniform(2, 40, n)
@@ -32,14 +33,22 @@ def inputs(measure: str = "cycle service", packs: bool = True, n: int = 6,
     pack = np.where(np.arange(n) % 3 == 1, 6.0, 1.0) if packs else one
     moq = np.where(np.arange(n) % 3 == 2, 30.0, 0.0) if packs else 0 * one
     return PolicyInputs(
-        annual_demand=d * 52, demand_per_period=d, demand_sd_per_period=np.sqrt(d) * 1.5,
-        lead_time_days=rng.uniform(5, 21, n), lead_time_sd_days=0 * one,
-        unit_cost=rng.uniform(2, 60, n), order_cost=rng.uniform(10, 50, n),
-        holding_rate=0.2 * one, measure=np.full(n, measure, dtype=object),
+        annual_demand=d * 52,
+        demand_per_period=d,
+        demand_sd_per_period=np.sqrt(d) * 1.5,
+        lead_time_days=rng.uniform(5, 21, n),
+        lead_time_sd_days=0 * one,
+        unit_cost=rng.uniform(2, 60, n),
+        order_cost=rng.uniform(10, 50, n),
+        holding_rate=0.2 * one,
+        measure=np.full(n, measure, dtype=object),
         service_target=0.95 * one,
         shortage_cost=rng.uniform(5, 40, n) if measure == "shortage cost" else np.nan * one,
-        pack_size=pack, minimum_order=moq, days_per_period=7.0,
-        model=np.array(["normal", "poisson"] * (n // 2), dtype=object))
+        pack_size=pack,
+        minimum_order=moq,
+        days_per_period=7.0,
+        model=np.array(["normal", "poisson"] * (n // 2), dtype=object),
+    )
 
 
 class Independent:
@@ -103,8 +112,9 @@ def brute_force_no_better_change(inp, res, kind, r_span=6):
     checked = 0
     for k in range(n):
         pack = inp.pack_size[k]
-        eoq = math.sqrt(2 * inp.annual_demand[k] * inp.order_cost[k]
-                        / (inp.holding_rate[k] * inp.unit_cost[k]))
+        eoq = math.sqrt(
+            2 * inp.annual_demand[k] * inp.order_cost[k] / (inp.holding_rate[k] * inp.unit_cost[k])
+        )
         for q2 in np.arange(pack, 4 * eoq + 4 * pack, pack):
             for r2 in range(int(max(r[k] - r_span, 0)), int(r[k] + r_span + 1)):
                 if (q2, r2) == (q[k], r[k]) or not ind.allowed(k, q2, r2):
@@ -176,6 +186,7 @@ def test_multiplier_matches_the_closed_form_continuous_optimum():
         mid = (lo + hi) / 2
         lo, hi = (mid, hi) if spent(mid) > cap else (lo, mid)
     assert res.multiplier == pytest.approx(hi, rel=0.05)
+
     # the envelope theorem: the last $ of budget is worth the multiplier a year; check it
     # against the continuous cost's slope, C(B) = sum sqrt(2 D S c (i+lam)) ... by difference
     def cost_at(budget: float) -> float:
@@ -185,6 +196,7 @@ def test_multiplier_matches_the_closed_form_continuous_optimum():
             a, b = (m, b) if spent(m) > budget else (a, m)
         q = np.sqrt(2 * D * S / (c * (i + b)))
         return float(np.sum(D * S / q + i * c * q / 2))
+
     slope = (cost_at(cap - 50) - cost_at(cap + 50)) / 100
     assert slope == pytest.approx(hi, rel=1e-3)
 
@@ -197,11 +209,11 @@ def test_budget_below_what_the_targets_need_is_reported_infeasible():
     assert res.binding and not res.feasible
     assert res.usage > res.cap
     # the least: every item at its smallest allowed order
-    q_min = np.maximum(inp.pack_size, inp.pack_size * np.ceil(inp.minimum_order
-                                                              / inp.pack_size))
+    q_min = np.maximum(inp.pack_size, inp.pack_size * np.ceil(inp.minimum_order / inp.pack_size))
     assert np.allclose(res.policy["order_qty"], q_min)
-    assert res.least == pytest.approx(float(np.sum(inp.unit_cost * (q_min / 2 + np.maximum(
-        base["safety_stock"], 0)))))
+    assert res.least == pytest.approx(
+        float(np.sum(inp.unit_cost * (q_min / 2 + np.maximum(base["safety_stock"], 0))))
+    )
 
 
 @pytest.mark.parametrize("kind, share", [(BUDGET, 0.6), (ORDERS, 0.7)])
@@ -249,8 +261,7 @@ def _polish_every_item_each_round(cost, q, r, ok, cap, q_free):
         ev = cost.evaluate(q_c, r_c, m)
         allowed = cost.allowed(q_c, r_c, ev, m) & np.tile(ok, m)
         with np.errstate(all="ignore"):
-            d_cost = (ev["annual_total_cost"].to_numpy(float) - np.tile(cost_now, m)
-                      ).reshape(m, n)
+            d_cost = (ev["annual_total_cost"].to_numpy(float) - np.tile(cost_now, m)).reshape(m, n)
             d_use = (cost.usage(q_c, r_c, m) - np.tile(use_now, m)).reshape(m, n)
             gain = allowed.reshape(m, n) & (d_cost < -1e-9 * np.maximum(1.0, np.abs(cost_now)))
             score = np.where(d_use <= 0, -1e300, d_cost / d_use)
@@ -293,5 +304,4 @@ def test_polish_recosting_only_moved_items_equals_recosting_all(monkeypatch, mea
     assert got.polish_steps == want.polish_steps and got.polish_steps > 0
     np.testing.assert_array_equal(got.policy["order_qty"], want.policy["order_qty"])
     np.testing.assert_array_equal(got.policy["reorder_point"], want.policy["reorder_point"])
-    np.testing.assert_array_equal(got.policy["annual_total_cost"],
-                                  want.policy["annual_total_cost"])
+    np.testing.assert_array_equal(got.policy["annual_total_cost"], want.policy["annual_total_cost"])

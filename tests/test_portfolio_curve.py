@@ -20,34 +20,49 @@ from xlpolicy.core.policy import PolicyInputs, compute_policy
 from xlpolicy.core.portfolio import exchange_curve, scaled_inputs
 
 
-def inputs(n: int = 24, measure: str = "cycle service", seed: int = 3,
-           targets: np.ndarray | None = None) -> PolicyInputs:
+def inputs(
+    n: int = 24, measure: str = "cycle service", seed: int = 3, targets: np.ndarray | None = None
+) -> PolicyInputs:
     """Invented items (test data only) under all four demand models."""
     rng = np.random.default_rng(seed)
     one = np.ones(n)
     d = rng.uniform(0.3, 60, n)
-    models = np.array(["normal", "poisson", "negative binomial", "gamma"] * (n // 4),
-                      dtype=object)
+    models = np.array(["normal", "poisson", "negative binomial", "gamma"] * (n // 4), dtype=object)
     return PolicyInputs(
-        annual_demand=d * 52, demand_per_period=d, demand_sd_per_period=np.sqrt(d) * 1.7,
-        lead_time_days=rng.uniform(3, 30, n), lead_time_sd_days=0 * one,
-        unit_cost=rng.uniform(1, 80, n), order_cost=rng.uniform(5, 40, n),
-        holding_rate=0.22 * one, measure=np.full(n, measure, dtype=object),
+        annual_demand=d * 52,
+        demand_per_period=d,
+        demand_sd_per_period=np.sqrt(d) * 1.7,
+        lead_time_days=rng.uniform(3, 30, n),
+        lead_time_sd_days=0 * one,
+        unit_cost=rng.uniform(1, 80, n),
+        order_cost=rng.uniform(5, 40, n),
+        holding_rate=0.22 * one,
+        measure=np.full(n, measure, dtype=object),
         service_target=0.95 * one if targets is None else targets,
-        shortage_cost=rng.uniform(2, 30, n), pack_size=one, minimum_order=0 * one,
-        days_per_period=7.0, model=models)
+        shortage_cost=rng.uniform(2, 30, n),
+        pack_size=one,
+        minimum_order=0 * one,
+        days_per_period=7.0,
+        model=models,
+    )
 
 
 def totals(pol) -> dict[str, float]:
     """The same sums as the curve's, from one compute_policy frame."""
     return {
-        "safety_stock_investment": float(np.nansum(
-            np.maximum(pol["safety_stock"], 0) * pol["annual_purchase_cost"]
-            / pol["annual_demand"])),
-        "units_short_per_year": float(np.nansum(
-            pol["orders_per_year"] * pol["expected_units_short_per_cycle"])),
-        "stockout_occasions_per_year": float(np.nansum(
-            pol["orders_per_year"] * (1 - pol["cycle_service"]))),
+        "safety_stock_investment": float(
+            np.nansum(
+                np.maximum(pol["safety_stock"], 0)
+                * pol["annual_purchase_cost"]
+                / pol["annual_demand"]
+            )
+        ),
+        "units_short_per_year": float(
+            np.nansum(pol["orders_per_year"] * pol["expected_units_short_per_cycle"])
+        ),
+        "stockout_occasions_per_year": float(
+            np.nansum(pol["orders_per_year"] * (1 - pol["cycle_service"]))
+        ),
     }
 
 
@@ -107,11 +122,22 @@ def test_points_against_scipy_on_a_small_instance():
     S = np.array([25.0, 40.0, 15.0])
     i = 0.2
     inp = PolicyInputs(
-        annual_demand=D, demand_per_period=d, demand_sd_per_period=sd, lead_time_days=lead,
-        lead_time_sd_days=np.zeros(3), unit_cost=c, order_cost=S, holding_rate=np.full(3, i),
-        measure=np.full(3, "cycle service", dtype=object), service_target=np.full(3, 0.95),
-        shortage_cost=np.full(3, np.nan), pack_size=np.ones(3), minimum_order=np.zeros(3),
-        days_per_period=7.0, model=np.array(["normal", "normal", "poisson"], dtype=object))
+        annual_demand=D,
+        demand_per_period=d,
+        demand_sd_per_period=sd,
+        lead_time_days=lead,
+        lead_time_sd_days=np.zeros(3),
+        unit_cost=c,
+        order_cost=S,
+        holding_rate=np.full(3, i),
+        measure=np.full(3, "cycle service", dtype=object),
+        service_target=np.full(3, 0.95),
+        shortage_cost=np.full(3, np.nan),
+        pack_size=np.ones(3),
+        minimum_order=np.zeros(3),
+        days_per_period=7.0,
+        model=np.array(["normal", "normal", "poisson"], dtype=object),
+    )
     curve = exchange_curve(inp, 0.95, "cycle service", targets=(0.8, 0.9, 0.99))
     mu = d * lead / 7
     sig = sd * np.sqrt(lead / 7)

@@ -32,12 +32,13 @@ def run(*args: object):
 def shop(tmp_path: Path, settings: dict | None = None, name: str = "shop.xlsx") -> Path:
     """Six invented items (test data only), two in packs, one with a minimum order."""
     headers = BASE_HEADERS + ["Pack size", "Minimum order"]
-    rows = [item_row(c, cost=3.0 + 7 * k, order=25 + 5 * k, rate=0.25, lead=7 + 3 * k)
-            + [6 if k % 3 == 1 else None, 40 if k == 2 else None]
-            for k, c in enumerate(CODES)]
+    rows = [
+        item_row(c, cost=3.0 + 7 * k, order=25 + 5 * k, rate=0.25, lead=7 + 3 * k)
+        + [6 if k % 3 == 1 else None, 40 if k == 2 else None]
+        for k, c in enumerate(CODES)
+    ]
     hist = weekly_history(CODES, weeks=70, mean=18, seed=21)
-    return write_workbook(tmp_path / name, rows, headers=headers, history=hist,
-                          settings=settings)
+    return write_workbook(tmp_path / name, rows, headers=headers, history=hist, settings=settings)
 
 
 def summary_rows(path: Path) -> list[list]:
@@ -80,19 +81,24 @@ def test_stock_budget_from_settings_is_met_in_the_written_workbook(tmp_path):
     assert cap_row[0].startswith("Average stock value")
     assert cap_row[1] == pytest.approx(free.totals["average_inventory_value"])
     assert cap_row[2] <= cap_row[3] == pytest.approx(budget)
-    text = " ".join(str(r[0]) for r in rows[k:k + 12] if r and r[0])
+    text = " ".join(str(r[0]) for r in rows[k : k + 12] if r and r[0])
     assert "Each extra" in text and "of stock budget would save about" in text
 
-    method = [c.value for row in load_workbook(out)["How it works"].iter_rows() for c in row
-              if isinstance(c.value, str)]
+    method = [
+        c.value
+        for row in load_workbook(out)["How it works"].iter_rows()
+        for c in row
+        if isinstance(c.value, str)
+    ]
     k = method.index("Across all items")
     assert "Lagrangian relaxation" in method[k + 2] and "safety-critical" in method[k + 3]
 
     doc = json.loads((tmp_path / "p.json").read_text())
     cap = doc["portfolio"]["cap"]
     assert cap["binding"] and cap["feasible"] and cap["usage"] <= budget
-    assert cap["cost_of_cap"] == pytest.approx(cap["annual_total_cost"]
-                                               - cap["uncapped_annual_total_cost"])
+    assert cap["cost_of_cap"] == pytest.approx(
+        cap["annual_total_cost"] - cap["uncapped_annual_total_cost"]
+    )
     assert cap["cost_of_cap"] > 0
     assert [i["order_qty"] for i in doc["items"]] == list(q)
 
@@ -138,8 +144,12 @@ def test_exchange_curve_table_and_chart_on_the_summary(tmp_path):
     # today's point is a series of its own on the table's marked row
     first, last, now = head + 2, j, head + 2 + table.index(today[0])
     refs = re.findall(r"<c:f>([^<]*)</c:f>", scatter[0])
-    assert refs == [f"Summary!$B${first}:$B${last}", f"Summary!$C${first}:$C${last}",
-                    f"Summary!$B${now}", f"Summary!$C${now}"]
+    assert refs == [
+        f"Summary!$B${first}:$B${last}",
+        f"Summary!$C${first}:$C${last}",
+        f"Summary!$B${now}",
+        f"Summary!$C${now}",
+    ]
 
 
 def test_no_curve_leaves_it_out(tmp_path):
@@ -148,8 +158,7 @@ def test_no_curve_leaves_it_out(tmp_path):
     doc = json.loads((tmp_path / "p.json").read_text())
     assert "exchange_curve" not in doc["portfolio"]
     rows = summary_rows(tmp_path / "shop-policy.xlsx")
-    assert not any(r and r[0] == "Exchange curve: safety stock against shortages"
-                   for r in rows)
+    assert not any(r and r[0] == "Exchange curve: safety stock against shortages" for r in rows)
 
 
 def test_bad_cap_on_the_command_line_is_a_usage_error(tmp_path):
@@ -159,18 +168,25 @@ def test_bad_cap_on_the_command_line_is_a_usage_error(tmp_path):
 
 # --- Settings rules ---------------------------------------------------------------------
 
-@pytest.mark.parametrize("name, value, code", [
-    ("Stock budget", -100, "setting-stock_budget"),
-    ("Stock budget", "plenty", "setting-stock_budget"),
-    ("Orders a year cap", 0, "setting-orders_cap"),
-    ("Exchange curve", "perhaps", "setting-exchange_curve"),
-])
+
+@pytest.mark.parametrize(
+    "name, value, code",
+    [
+        ("Stock budget", -100, "setting-stock_budget"),
+        ("Stock budget", "plenty", "setting-stock_budget"),
+        ("Orders a year cap", 0, "setting-orders_cap"),
+        ("Exchange curve", "perhaps", "setting-exchange_curve"),
+    ],
+)
 def test_bad_portfolio_setting_falls_back_to_default(tmp_path, name, value, code):
     problems = xlpolicy.check(shop(tmp_path, {name: value}))
     found = [p for p in problems if p.code == code]
     assert len(found) == 1
     assert (found[0].severity, found[0].sheet, found[0].cell) == (
-        Severity.WARNING, "Settings", "B2")
+        Severity.WARNING,
+        "Settings",
+        "B2",
+    )
     assert "default" in found[0].message
 
 
@@ -196,8 +212,11 @@ def test_periodic_review_items_stay_outside_the_cap_and_the_curve(tmp_path):
     budget must be met by the continuous items' own average stock (the cap's definition).
     """
     headers = BASE_HEADERS + ["Review period days"]
-    rows = [item_row(c, cost=3.0 + 7 * k, order=25 + 5 * k, rate=0.25, lead=7 + 3 * k)
-            + [14 if k == 0 else None] for k, c in enumerate(CODES)]
+    rows = [
+        item_row(c, cost=3.0 + 7 * k, order=25 + 5 * k, rate=0.25, lead=7 + 3 * k)
+        + [14 if k == 0 else None]
+        for k, c in enumerate(CODES)
+    ]
     hist = weekly_history(CODES, weeks=70, mean=18, seed=21)
     src = write_workbook(tmp_path / "p.xlsx", rows, headers=headers, history=hist)
     free = xlpolicy.analyse(src).results.set_index("item")

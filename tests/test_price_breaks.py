@@ -17,8 +17,10 @@ HEADERS = [*BASE_HEADERS, "Annual demand", "Demand sd", "Pack size"]
 
 
 def _book(tmp_path, breaks, sheet="Price breaks", header=("Item", "Min qty", "Price")):
-    items = [["K1", "bolt", "Acme", 0.30, 8.0, 0.2, 14.0, 600, 4.0, None],
-             ["K2", "nut", "Acme", 2.00, 30.0, 0.25, 7.0, 2000, 15.0, 10]]
+    items = [
+        ["K1", "bolt", "Acme", 0.30, 8.0, 0.2, 14.0, 600, 4.0, None],
+        ["K2", "nut", "Acme", 2.00, 30.0, 0.25, 7.0, 2000, 15.0, 10],
+    ]
     path = write_workbook(tmp_path / "w.xlsx", items, headers=HEADERS)
     wb = openpyxl.load_workbook(path)
     ws = wb.create_sheet(sheet)
@@ -40,8 +42,12 @@ def _only(problems, code):
 
 
 def test_breaks_are_read_loosely_and_used(tmp_path):
-    path = _book(tmp_path, GOOD, sheet="quantity_discounts",
-                 header=("SKU", "From quantity (units)", "Unit price"))
+    path = _book(
+        tmp_path,
+        GOOD,
+        sheet="quantity_discounts",
+        header=("SKU", "From quantity (units)", "Unit price"),
+    )
     report = xlpolicy.analyse(path)
     r = report.results.set_index("item")
     assert r.loc["K1", "order_qty"] == 500 and r.loc["K1", "unit_price"] == pytest.approx(0.29)
@@ -51,11 +57,15 @@ def test_breaks_are_read_loosely_and_used(tmp_path):
     price = np.where(qs >= 1000, 1.80, 2.00)
     tc = 2000 * 30 / qs + 0.25 * price * qs / 2 + 2000 * price
     assert r.loc["K2", "order_qty"] == qs[np.argmin(tc)]
-    best = r.loc["K2", "annual_ordering_cost"] + r.loc["K2", "annual_cycle_holding_cost"] + \
-        r.loc["K2", "annual_purchase_cost"]
+    best = (
+        r.loc["K2", "annual_ordering_cost"]
+        + r.loc["K2", "annual_cycle_holding_cost"]
+        + r.loc["K2", "annual_purchase_cost"]
+    )
     assert best == pytest.approx(tc.min(), rel=1e-12)
     assert report.totals["discount_saving"] == pytest.approx(
-        np.nansum(report.results["discount_saving"]))
+        np.nansum(report.results["discount_saving"])
+    )
     assert report.totals["items_with_price_breaks"] == 2
 
 
@@ -65,8 +75,11 @@ def test_policy_sheet_shows_the_break(tmp_path):
     xlpolicy.plan(path, out)
     ws = openpyxl.load_workbook(out)["Policy"]
     head = [c.value for c in ws[1]]
-    for title in ("Unit price paid (after any price break)", "Price break used: from (units)",
-                  "Yearly saving of the price break over the plain EOQ"):
+    for title in (
+        "Unit price paid (after any price break)",
+        "Price break used: from (units)",
+        "Yearly saving of the price break over the plain EOQ",
+    ):
         assert title in head
     # the cycle-holding formula names the price paid, not the Unit cost
     col = head.index("Annual cycle stock holding cost")
@@ -101,8 +114,10 @@ def test_missing_item_code_is_reported(tmp_path):
 
 
 def test_duplicate_quantity_is_reported(tmp_path):
-    p = _only(xlpolicy.check(_book(tmp_path, [("K1", 500, 0.29), ("K1", 500, 0.27)])),
-              "price-break-duplicate")
+    p = _only(
+        xlpolicy.check(_book(tmp_path, [("K1", 500, 0.29), ("K1", 500, 0.27)])),
+        "price-break-duplicate",
+    )
     assert p.cell == "B4" and "B3" in p.message
 
 

@@ -12,11 +12,17 @@ from xlpolicy.cli import _Bar, main
 
 def test_api_reports_each_stage_in_order(tmp_path):
     calls: list[tuple[str, int, int | None]] = []
-    xlpolicy.plan(simple_workbook(tmp_path / "w.xlsx"),
-                  progress=lambda s, d, t: calls.append((s, d, t)))
+    xlpolicy.plan(
+        simple_workbook(tmp_path / "w.xlsx"), progress=lambda s, d, t: calls.append((s, d, t))
+    )
     stages = list(dict.fromkeys(s for s, _, _ in calls))
-    assert stages == ["Opening the workbook", "Reading Items", "Reading History", "Planning",
-                      "Writing w-policy.xlsx"]
+    assert stages == [
+        "Opening the workbook",
+        "Reading Items",
+        "Reading History",
+        "Planning",
+        "Writing w-policy.xlsx",
+    ]
     # a sheet's last report says it is complete
     last_history = [c for c in calls if c[0] == "Reading History"][-1]
     assert last_history[2] is not None and last_history[1] == last_history[2]

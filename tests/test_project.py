@@ -68,8 +68,10 @@ def test_readme_and_output_carry_the_safety_caution():
     assert "do not replace" in README and "licensed staff" in README
 
 
-@pytest.mark.skipif(shutil.which("ruff") is None and not (Path(sys.executable).parent / "ruff")
-                    .exists(), reason="ruff is installed with the [test] extra")
+@pytest.mark.skipif(
+    shutil.which("ruff") is None and not (Path(sys.executable).parent / "ruff").exists(),
+    reason="ruff is installed with the [test] extra",
+)
 def test_code_is_ruff_clean():
     ruff = shutil.which("ruff") or str(Path(sys.executable).parent / "ruff")
     proc = subprocess.run([ruff, "check", str(REPO)], capture_output=True, text=True)

@@ -46,6 +46,7 @@ from xlpolicy.writing.tables import results_for_export, write_csv, write_json
 
 GENERATED = ["Summary", "Reorder now", "Policy", "Today vs plan", "Warnings", "How it works"]
 
+
 @pytest.fixture()
 def written(tmp_path: Path):
     report = make_report()
@@ -122,10 +123,19 @@ def test_policy_headers_in_plain_words(written):
     _, _, wb, _, _ = written
     header = _header(wb["Policy"])
     assert header[:5] == ["Item", "Description", "Category", "Supplier", "Status"]
-    for title in ("Order quantity (units)", "Reorder point (units)", "Safety stock (units)",
-                  "Cycle service achieved", "Fill rate achieved", "Annual total cost",
-                  "Annual purchase cost", "Average inventory value", "Lead time (days)",
-                  "Service target", "Orders per year"):
+    for title in (
+        "Order quantity (units)",
+        "Reorder point (units)",
+        "Safety stock (units)",
+        "Cycle service achieved",
+        "Fill rate achieved",
+        "Annual total cost",
+        "Annual purchase cost",
+        "Average inventory value",
+        "Lead time (days)",
+        "Service target",
+        "Orders per year",
+    ):
         assert title in header
     # Every result key has a column (none silently dropped).
     assert len(header) == len(COLUMNS) and len(set(header)) == len(header)
@@ -139,13 +149,16 @@ def test_one_row_per_item_and_codes_stay_text(written):
     assert items[0].value == "000123" and items[0].data_type == "s"
 
 
-@pytest.mark.parametrize("item,title,expected", [
-    ("000123", "Description", "=SUM(A1:A3) spare filter"),
-    ("000123", "Category", "+fast"),
-    ("A-77", "Category", "-slow"),
-    ("A-77", "Description", "@x hook bracket"),   # control character \x07 removed
-    ("B-9", "Description", "-old stock"),
-])
+@pytest.mark.parametrize(
+    "item,title,expected",
+    [
+        ("000123", "Description", "=SUM(A1:A3) spare filter"),
+        ("000123", "Category", "+fast"),
+        ("A-77", "Category", "-slow"),
+        ("A-77", "Description", "@x hook bracket"),  # control character \x07 removed
+        ("B-9", "Description", "-old stock"),
+    ],
+)
 def test_formula_like_text_lands_as_text(written, item, title, expected):
     _, _, wb, _, _ = written
     cell = _policy_cell(wb["Policy"], item, title)
@@ -186,12 +199,13 @@ def test_policy_frozen_filtered_and_tinted(written):
     assert ws.freeze_panes == "B2"
     assert ws.auto_filter.ref.startswith("A1:")
     status_letter = openpyxl.utils.get_column_letter(_header(ws).index("Status") + 1)
-    formulas = [f for rng in ws.conditional_formatting for rule in rng.rules
-                for f in rule.formula]
+    formulas = [f for rng in ws.conditional_formatting for rule in rng.rules for f in rule.formula]
     assert f'${status_letter}2="skipped"' in formulas
     assert f'${status_letter}2="warning"' in formulas
-    widths = [ws.column_dimensions[openpyxl.utils.get_column_letter(i)].width
-              for i in range(1, ws.max_column + 1)]
+    widths = [
+        ws.column_dimensions[openpyxl.utils.get_column_letter(i)].width
+        for i in range(1, ws.max_column + 1)
+    ]
     assert all(8 <= w <= 46 for w in widths)
 
 
@@ -236,8 +250,11 @@ def test_reorder_grouped_with_subtotals(written):
     items = [ws.cell(row=r, column=2).value for r in range(6, ws.max_row + 1)]
     assert [i for i in items if i] == ["000123", "A-77", "C-3"]
     # Grand total: the sum of all order values.
-    grand = [r for r in range(1, ws.max_row + 1)
-             if ws.cell(row=r, column=11).value == "Total to order now"]
+    grand = [
+        r
+        for r in range(1, ws.max_row + 1)
+        if ws.cell(row=r, column=11).value == "Total to order now"
+    ]
     assert len(grand) == 1
     assert wv.cell(row=grand[0], column=12).value == pytest.approx(expected.sum())
     assert "$" in ws.cell(row=grand[0], column=12).number_format
@@ -308,8 +325,15 @@ def test_summary_title_blocks_and_pointer(written):
     assert "harbor-stock.xlsx" in ws["A1"].value
     assert RUN.isoformat() in ws["A2"].value
     rows = _summary_rows(ws)
-    for block in ("Totals for the planned items", "Items by status", "At a glance",
-                  "By ABC class", "By category", "By supplier", "What was read"):
+    for block in (
+        "Totals for the planned items",
+        "Items by status",
+        "At a glance",
+        "By ABC class",
+        "By category",
+        "By supplier",
+        "What was read",
+    ):
         assert block in rows
     assert rows["Totals for the planned items"] < rows["What was read"]
     text = " ".join(str(k) for k in rows)
@@ -321,13 +345,22 @@ def test_method_sheet_blocks_and_sources(written):
     _, _, wb, _, _ = written
     ws = wb["How it works"]
     rows = _summary_rows(ws)
-    for block in ("The method, step by step", "How the demand model is chosen",
-                  "What the Policy sheet's columns are", "ABC classes", "Settings used",
-                  "Cautions"):
+    for block in (
+        "The method, step by step",
+        "How the demand model is chosen",
+        "What the Policy sheet's columns are",
+        "ABC classes",
+        "Settings used",
+        "Cautions",
+    ):
         assert block in rows
     text = " ".join(str(k) for k in rows)
-    for source in ("Harris 1913", "Wilson 1934", "Silver, Pyke & Peterson 1998",
-                   "Hadley & Whitin 1963"):
+    for source in (
+        "Harris 1913",
+        "Wilson 1934",
+        "Silver, Pyke & Peterson 1998",
+        "Hadley & Whitin 1963",
+    ):
         assert source in text
     assert "licensed staff and local rules" in text
     assert "80%" in text and "15%" in text  # the ABC cut-offs from the settings
@@ -336,15 +369,18 @@ def test_method_sheet_blocks_and_sources(written):
     assert ws.cell(row=rows["ABC cut-offs"], column=2).value == "80% / 95%"
 
 
-@pytest.mark.parametrize("label,key", [
-    ("Annual total cost (the four above)", "annual_total_cost"),
-    ("Annual ordering cost", "annual_ordering_cost"),
-    ("Average inventory value", "average_inventory_value"),
-    ("Items planned", "items_planned"),
-    ("Items skipped", "items_skipped"),
-    ("Items to reorder now", "items_to_reorder"),
-    ("Value to reorder now", "reorder_value"),
-])
+@pytest.mark.parametrize(
+    "label,key",
+    [
+        ("Annual total cost (the four above)", "annual_total_cost"),
+        ("Annual ordering cost", "annual_ordering_cost"),
+        ("Average inventory value", "average_inventory_value"),
+        ("Items planned", "items_planned"),
+        ("Items skipped", "items_skipped"),
+        ("Items to reorder now", "items_to_reorder"),
+        ("Value to reorder now", "reorder_value"),
+    ],
+)
 def test_summary_totals_are_live_formulas(written, label, key):
     report, _, wb, values, _ = written
     ws, wv = wb["Summary"], values["Summary"]
@@ -378,10 +414,17 @@ def test_summary_total_that_does_not_match_is_written_plain(tmp_path):
 
 def test_renamed_sheets_are_quoted_in_formulas(tmp_path):
     path = tmp_path / "a.xlsx"
-    names = write_generated_workbook(path, make_report(),
-                                     {"policy": "Bob's plan", "reorder": "Order/today"})
-    assert names == ["Summary", "Ordertoday", "Bob's plan", "Today vs plan", "Warnings",
-                     "How it works"]
+    names = write_generated_workbook(
+        path, make_report(), {"policy": "Bob's plan", "reorder": "Order/today"}
+    )
+    assert names == [
+        "Summary",
+        "Ordertoday",
+        "Bob's plan",
+        "Today vs plan",
+        "Warnings",
+        "How it works",
+    ]
     wb = openpyxl.load_workbook(path)
     ws = wb["Summary"]
     f = ws.cell(row=_summary_rows(ws)["Annual total cost (the four above)"], column=2).value
@@ -488,8 +531,12 @@ def test_nullable_and_infinite_numbers_become_blanks(tmp_path):
 
 def test_no_items_at_all(tmp_path):
     empty = pd.DataFrame(columns=COLUMNS)
-    report = make_report(results=empty, reorder=pd.DataFrame(columns=list(REORDER_KEYS)),
-                         totals={k: 0 for k in TOTAL_KEYS}, input_summary={})
+    report = make_report(
+        results=empty,
+        reorder=pd.DataFrame(columns=list(REORDER_KEYS)),
+        totals={k: 0 for k in TOTAL_KEYS},
+        input_summary={},
+    )
     names = write_generated_workbook(tmp_path / "a.xlsx", report)
     wb = openpyxl.load_workbook(tmp_path / "a.xlsx")
     assert wb.sheetnames == names

@@ -30,8 +30,9 @@ def _rows(ws):
     first = HEADER_ROW + 2
     rows = []
     r = first
-    while ws.cell(row=r, column=1).value and not str(ws.cell(row=r, column=1).value
-                                                      ).startswith("Total"):
+    while ws.cell(row=r, column=1).value and not str(ws.cell(row=r, column=1).value).startswith(
+        "Total"
+    ):
         rows.append(r)
         r += 1
     return rows, r
@@ -68,15 +69,17 @@ def test_saving_current_and_recommended_per_item_and_in_total(tmp_path):
         assert rec == res.loc[code, "annual_total_cost"]
         assert sav == pytest.approx(cur - rec, rel=1e-12)
         # re-evaluated from this sheet's visible inputs (D, S, i, c, p, n, mu, Q, R)
-        assert ev(cur_f) == pytest.approx(res.loc[code, "current_annual_total_cost"],
-                                          rel=1e-9)
+        assert ev(cur_f) == pytest.approx(res.loc[code, "current_annual_total_cost"], rel=1e-9)
         assert ev(rec_f) == rec
         assert ev(sav_f) == pytest.approx(res.loc[code, "annual_saving"], rel=1e-9)
         sums["cur"] += cur
         sums["rec"] += rec
         sums["sav"] += sav
-    for key, col in (("cur", "current_annual_total_cost"), ("rec", "annual_total_cost"),
-                     ("sav", "annual_saving")):
+    for key, col in (
+        ("cur", "current_annual_total_cost"),
+        ("rec", "annual_total_cost"),
+        ("sav", "annual_saving"),
+    ):
         cell = ws.cell(row=total, column=COL[col])
         assert cell.value.startswith("=SUM(")
         assert wv.cell(row=total, column=COL[col]).value == pytest.approx(sums[key])
@@ -111,8 +114,10 @@ def test_headline_when_the_change_costs_more(tmp_path):
     assert "but raises the share of demand met from the shelf from 90.00% to" in line
     # the rows no longer match today's formula: their cost is written as a value
     rows, _ = _rows(wb[SHEET])
-    assert all(wb[SHEET].cell(row=r, column=COL["current_annual_total_cost"]).data_type == "n"
-               for r in rows)
+    assert all(
+        wb[SHEET].cell(row=r, column=COL["current_annual_total_cost"]).data_type == "n"
+        for r in rows
+    )
 
 
 def test_no_current_figures_says_what_to_fill_in(tmp_path):

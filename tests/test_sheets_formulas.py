@@ -45,9 +45,16 @@ def _policy_formulas(wb, values, report):
             cell = ws.cell(row=r, column=c)
             if cell.data_type != "f":
                 continue
-            out.append((ws.cell(row=r, column=1).value, key, cell.value,
-                        wv.cell(row=r, column=c).value, evaluate(cell.value),
-                        float(res.loc[r - 2, key])))
+            out.append(
+                (
+                    ws.cell(row=r, column=1).value,
+                    key,
+                    cell.value,
+                    wv.cell(row=r, column=c).value,
+                    evaluate(cell.value),
+                    float(res.loc[r - 2, key]),
+                )
+            )
     return out
 
 
@@ -73,19 +80,32 @@ def test_policy_formulas_recomputed_per_column(tmp_path):
     for code in ("000123", "A-77", "C-3", "D-10"):
         r = row_of(wv, code)
         v = {k: wv.cell(row=r, column=c).value for k, c in cols.items() if k}
-        D, Q, R, mu = v["annual_demand"], v["order_qty"], v["reorder_point"], \
-            v["lead_time_demand_mean"]
-        S, i, c, p, n = v["order_cost"], v["holding_rate"], v["unit_cost"], \
-            v["shortage_cost"], v["expected_units_short_per_cycle"]
+        D, Q, R, mu = (
+            v["annual_demand"],
+            v["order_qty"],
+            v["reorder_point"],
+            v["lead_time_demand_mean"],
+        )
+        S, i, c, p, n = (
+            v["order_cost"],
+            v["holding_rate"],
+            v["unit_cost"],
+            v["shortage_cost"],
+            v["expected_units_short_per_cycle"],
+        )
         short = 0.0 if p is None else p * D / Q * n
         expect = {
-            "safety_stock": R - mu, "orders_per_year": D / Q,
-            "annual_ordering_cost": D * S / Q, "annual_cycle_holding_cost": i * c * Q / 2,
-            "annual_safety_holding_cost": i * c * (R - mu), "annual_shortage_cost": short,
+            "safety_stock": R - mu,
+            "orders_per_year": D / Q,
+            "annual_ordering_cost": D * S / Q,
+            "annual_cycle_holding_cost": i * c * Q / 2,
+            "annual_safety_holding_cost": i * c * (R - mu),
+            "annual_shortage_cost": short,
             "annual_total_cost": D * S / Q + i * c * Q / 2 + i * c * (R - mu) + short,
             "annual_purchase_cost": D * c,
             "average_inventory_value": c * (Q / 2 + max(R - mu, 0)),
-            "fill_rate": max(0.0, 1 - n / Q), "eoq": math.sqrt(2 * D * S / (i * c)),
+            "fill_rate": max(0.0, 1 - n / Q),
+            "eoq": math.sqrt(2 * D * S / (i * c)),
         }
         for key, value in expect.items():
             assert v[key] == pytest.approx(value, rel=1e-9, abs=1e-12), (code, key)
@@ -122,7 +142,7 @@ def test_blank_shortage_cost_counts_as_none(tmp_path):
     r = row_of(ws, "000123")
     assert ws.cell(row=r, column=cols["shortage_cost"]).value is None
     f = ws.cell(row=r, column=cols["annual_shortage_cost"]).value
-    assert f.startswith('=IF(') and '=""' in f
+    assert f.startswith("=IF(") and '=""' in f
     assert Evaluator(workbook_getter(values), "Policy")(f) == 0.0
 
 
@@ -130,8 +150,7 @@ def test_header_notes_say_which_columns_are_values(tmp_path):
     wb, _ = _write(tmp_path, make_report())
     ws = wb["Policy"]
     titles = header(ws)
-    for key in ("reorder_point", "cycle_service", "expected_units_short_per_cycle",
-                "order_qty"):
+    for key in ("reorder_point", "cycle_service", "expected_units_short_per_cycle", "order_qty"):
         c = titles.index(next(col.title for col in POLICY_COLUMNS if col.key == key)) + 1
         assert "not a formula" in ws.cell(row=1, column=c).comment.text
     c = titles.index("Annual ordering cost") + 1
@@ -142,10 +161,12 @@ def test_real_core_numbers_are_reproduced_by_the_formulas(tmp_path):
     # Numbers from the real planner (not hand-made): every planned item's formulas must
     # rebuild the core's numbers, with no fallback, including a shortage-cost item.
     headers = BASE_HEADERS + ["Shortage cost", "Pack size", "Category"]
-    rows = [item_row("P1", cost=4.0, order=30, rate=0.25, lead=14) + [None, 12, "Filters"],
-            item_row("P2", cost=12.5, order=22, rate=0.2, lead=7) + [3.5, None, "Filters"],
-            item_row("P3", cost=2.0, order=15, rate=0.3, lead=21) + [None, None, "Seals"],
-            item_row("P4", cost=7.0, order=40, rate=0.25, lead=10) + [1.0, 5, "Seals"]]
+    rows = [
+        item_row("P1", cost=4.0, order=30, rate=0.25, lead=14) + [None, 12, "Filters"],
+        item_row("P2", cost=12.5, order=22, rate=0.2, lead=7) + [3.5, None, "Filters"],
+        item_row("P3", cost=2.0, order=15, rate=0.3, lead=21) + [None, None, "Seals"],
+        item_row("P4", cost=7.0, order=40, rate=0.25, lead=10) + [1.0, 5, "Seals"],
+    ]
     hist = weekly_history(["P1", "P2", "P3"], weeks=60, mean=25, seed=5)
     hist["P4"] = [float(x) for x in np.random.default_rng(3).poisson(1.2, 60)]  # slow mover
     src = write_workbook(tmp_path / "shop.xlsx", rows, headers=headers, history=hist)

@@ -24,9 +24,15 @@ def _write(tmp_path, **kw):
 
 # Policy (about 60 columns) is unreadable shrunk to one page wide (seen in LibreOffice's
 # PDF of the demo): it prints full size across pages with the item column repeated.
-@pytest.mark.parametrize("sheet,titles,frozen,fit", [
-    ("Policy", "1:1", "B2", False), ("Reorder now", "5:5", "A6", True),
-    ("Warnings", "1:1", "A2", True), ("Today vs plan", "5:5", "B6", True)])
+@pytest.mark.parametrize(
+    "sheet,titles,frozen,fit",
+    [
+        ("Policy", "1:1", "B2", False),
+        ("Reorder now", "5:5", "A6", True),
+        ("Warnings", "1:1", "A2", True),
+        ("Today vs plan", "5:5", "B6", True),
+    ],
+)
 def test_print_setup_and_frozen_headers(tmp_path, sheet, titles, frozen, fit):
     _, wb = _write(tmp_path)
     ws = wb[sheet]
@@ -61,8 +67,12 @@ def test_warnings_link_to_the_input_cells(tmp_path):
         cell = ws.cell(row=r, column=3)
         if cell.hyperlink is not None:
             links[cell.value] = cell.hyperlink.location
-    assert links == {"B2": "'Settings'!B2", "E4": "'Items'!E4", "F3": "'Items'!F3",
-                     "C9": "'History'!C9"}
+    assert links == {
+        "B2": "'Settings'!B2",
+        "E4": "'Items'!E4",
+        "F3": "'Items'!F3",
+        "C9": "'History'!C9",
+    }
     # a problem with no cell has no link
     assert ws.cell(row=ws.max_row, column=3).hyperlink is None
     assert "$" in wb["Reorder now"].cell(row=7, column=12).number_format

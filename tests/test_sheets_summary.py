@@ -27,8 +27,12 @@ def book(tmp_path):
     report = make_report()
     path = tmp_path / "out.xlsx"
     write_generated_workbook(path, report)
-    return (report, path, openpyxl.load_workbook(path),
-            openpyxl.load_workbook(path, data_only=True))
+    return (
+        report,
+        path,
+        openpyxl.load_workbook(path),
+        openpyxl.load_workbook(path, data_only=True),
+    )
 
 
 def _table(ws, title):
@@ -45,9 +49,10 @@ def _col(ws, title_row, title):
     return next(c for c in range(1, 10) if ws.cell(row=title_row, column=c).value == title)
 
 
-@pytest.mark.parametrize("title,key", [("By category", "category"),
-                                       ("By supplier", "supplier"),
-                                       ("By ABC class", "abc_class")])
+@pytest.mark.parametrize(
+    "title,key",
+    [("By category", "category"), ("By supplier", "supplier"), ("By ABC class", "abc_class")],
+)
 def test_breakdowns_are_live_and_add_up(book, title, key):
     report, _, wb, values = book
     ws, wv = wb["Summary"], values["Summary"]
@@ -58,24 +63,34 @@ def test_breakdowns_are_live_and_add_up(book, title, key):
     plan = res[res["status"] != "skipped"]
     groups = plan[key].fillna("")
     assert len(rows) == groups.nunique()
-    cols = {t: _col(ws, head, t) for t in ("Items planned", "Annual purchase cost",
-                                           "Average inventory value", "Annual holding cost",
-                                           "Annual total cost", "Share of purchase cost")}
+    cols = {
+        t: _col(ws, head, t)
+        for t in (
+            "Items planned",
+            "Annual purchase cost",
+            "Average inventory value",
+            "Annual holding cost",
+            "Annual total cost",
+            "Share of purchase cost",
+        )
+    }
     for name, r in rows.items():
         mask = groups == ("" if name.startswith("(no ") else name)
         expect = {
             "Items planned": float(mask.sum()),
             "Annual purchase cost": plan.loc[mask, "annual_purchase_cost"].sum(),
             "Average inventory value": plan.loc[mask, "average_inventory_value"].sum(),
-            "Annual holding cost": (plan.loc[mask, "annual_cycle_holding_cost"].sum()
-                                    + plan.loc[mask, "annual_safety_holding_cost"].sum()),
+            "Annual holding cost": (
+                plan.loc[mask, "annual_cycle_holding_cost"].sum()
+                + plan.loc[mask, "annual_safety_holding_cost"].sum()
+            ),
             "Annual total cost": plan.loc[mask, "annual_total_cost"].sum(),
-            "Share of purchase cost": (plan.loc[mask, "annual_purchase_cost"].sum()
-                                       / plan["annual_purchase_cost"].sum()),
+            "Share of purchase cost": (
+                plan.loc[mask, "annual_purchase_cost"].sum() / plan["annual_purchase_cost"].sum()
+            ),
         }
         for t, c in cols.items():
-            assert wv.cell(row=r, column=c).value == pytest.approx(expect[t], rel=1e-12), \
-                (name, t)
+            assert wv.cell(row=r, column=c).value == pytest.approx(expect[t], rel=1e-12), (name, t)
             f = ws.cell(row=r, column=c).value
             if isinstance(f, str) and f.startswith("="):
                 assert ev(f) == pytest.approx(expect[t], rel=1e-12), (name, t, f)
@@ -113,8 +128,11 @@ def test_top_items_by_annual_total_cost(book):
     report, _, wb, values = book
     ws, wv = wb["Summary"], values["Summary"]
     ev = Evaluator(workbook_getter(values), "Summary")
-    start = next(r for r in range(1, ws.max_row + 1)
-                 if str(ws.cell(row=r, column=1).value).startswith("The 4 items that cost most"))
+    start = next(
+        r
+        for r in range(1, ws.max_row + 1)
+        if str(ws.cell(row=r, column=1).value).startswith("The 4 items that cost most")
+    )
     plan = report.results[report.results["status"] != "skipped"]
     expect = plan.sort_values("annual_total_cost", ascending=False, kind="stable")
     for k, (_, rec) in enumerate(expect.iterrows()):
@@ -139,8 +157,9 @@ def test_turns_and_compare_totals_are_formulas(book):
     assert ev(f) == pytest.approx(report.totals["inventory_turns"], rel=1e-12)
     f = ws.cell(row=rows["Annual saving from the change"], column=2).value
     assert f.startswith("='Today vs plan'!$")
-    assert wv.cell(row=rows["Annual saving from the change"], column=2).value == \
-        pytest.approx(report.totals["annual_saving"])
+    assert wv.cell(row=rows["Annual saving from the change"], column=2).value == pytest.approx(
+        report.totals["annual_saving"]
+    )
 
 
 def test_charts_exist_and_point_at_the_tables(book):
@@ -152,8 +171,9 @@ def test_charts_exist_and_point_at_the_tables(book):
         docs = [etree.fromstring(z.read(n)) for n in charts]
     by_kind = {}
     for doc in docs:
-        kind = "bar" if doc.find(".//c:barChart/c:barDir[@val='bar']", C_NS) is not None \
-            else "column"
+        kind = (
+            "bar" if doc.find(".//c:barChart/c:barDir[@val='bar']", C_NS) is not None else "column"
+        )
         by_kind[kind] = doc
 
     def refs(doc, tag):

@@ -19,16 +19,24 @@ def _inp(life, pack=1.0, moq=0.0, D=5200.0, breaks=None) -> PolicyInputs:
     n = len(life)
     full = np.ones(n)
     return PolicyInputs(
-        annual_demand=D * full, demand_per_period=D / 52 * full,
-        demand_sd_per_period=20.0 * full, lead_time_days=7.0 * full,
-        lead_time_sd_days=0 * full, unit_cost=4.0 * full, order_cost=50.0 * full,
-        holding_rate=0.25 * full, measure=np.array([CYCLE_SERVICE] * n, dtype=object),
-        service_target=0.95 * full, shortage_cost=np.full(n, np.nan),
+        annual_demand=D * full,
+        demand_per_period=D / 52 * full,
+        demand_sd_per_period=20.0 * full,
+        lead_time_days=7.0 * full,
+        lead_time_sd_days=0 * full,
+        unit_cost=4.0 * full,
+        order_cost=50.0 * full,
+        holding_rate=0.25 * full,
+        measure=np.array([CYCLE_SERVICE] * n, dtype=object),
+        service_target=0.95 * full,
+        shortage_cost=np.full(n, np.nan),
         pack_size=np.asarray(pack, dtype=float) * full,
-        minimum_order=np.asarray(moq, dtype=float) * full, days_per_period=7.0,
+        minimum_order=np.asarray(moq, dtype=float) * full,
+        days_per_period=7.0,
         shelf_life_days=np.asarray(life, dtype=float),
         break_qty=None if breaks is None else np.tile(breaks[0], (n, 1)),
-        break_price=None if breaks is None else np.tile(breaks[1], (n, 1)))
+        break_price=None if breaks is None else np.tile(breaks[1], (n, 1)),
+    )
 
 
 def _eoq_cost(q, D=5200.0, S=50.0, H=0.25 * 4.0):
@@ -39,8 +47,9 @@ def test_cap_binds_and_costs_what_the_eoq_formula_says():
     # EOQ = sqrt(2 * 5200 * 50 / 1) = 721.1; 100 units a week; 21 days of life -> 300 units.
     pol = compute_policy(_inp([21.0, 70.0, np.nan])).reset_index(drop=True)
     assert pol.loc[0, "shelf_life_max_qty"] == 300 and pol.loc[0, "order_qty"] == 300
-    assert pol.loc[0, "shelf_life_cost"] == pytest.approx(_eoq_cost(300) - _eoq_cost(721),
-                                                          rel=1e-12)
+    assert pol.loc[0, "shelf_life_cost"] == pytest.approx(
+        _eoq_cost(300) - _eoq_cost(721), rel=1e-12
+    )
     # 70 days -> 1,000 units: the cap does not bind; no life: no cap, no cost
     assert pol.loc[1, "order_qty"] == 721 and pol.loc[1, "shelf_life_cost"] == 0
     assert pol.loc[2, "order_qty"] == 721 and np.isnan(pol.loc[2, "shelf_life_cost"])
@@ -81,9 +90,11 @@ HEADERS = [*BASE_HEADERS, "Annual demand", "Demand sd", "Pack size", "Shelf life
 
 
 def test_workbook_column_warning_and_output(tmp_path):
-    items = [["M1", "milk", "Dairy", 1.2, 15.0, 0.3, 2.0, 3650, 3.0, 1, 5],
-             ["M2", "cream", "Dairy", 2.0, 15.0, 0.3, 2.0, 365, 1.0, 24, 10],
-             ["M3", "cheese", "Dairy", 5.0, 15.0, 0.3, 2.0, 365, 1.0, 1, "soon"]]
+    items = [
+        ["M1", "milk", "Dairy", 1.2, 15.0, 0.3, 2.0, 3650, 3.0, 1, 5],
+        ["M2", "cream", "Dairy", 2.0, 15.0, 0.3, 2.0, 365, 1.0, 24, 10],
+        ["M3", "cheese", "Dairy", 5.0, 15.0, 0.3, 2.0, 365, 1.0, 1, "soon"],
+    ]
     path = write_workbook(tmp_path / "w.xlsx", items, headers=HEADERS)
     out = tmp_path / "o.xlsx"
     result = xlpolicy.plan(path, out)
@@ -97,8 +108,7 @@ def test_workbook_column_warning_and_output(tmp_path):
     # M3: a bad cell skips the item and names the cell (column K, row 4)
     bad = [p for p in result.problems if p.code == "shelf_life_days-not-number"]
     assert len(bad) == 1 and bad[0].cell == "K4" and r.loc["M3", "status"] == "skipped"
-    assert result.report.totals["shelf_life_cost"] == pytest.approx(
-        np.nansum(r["shelf_life_cost"]))
+    assert result.report.totals["shelf_life_cost"] == pytest.approx(np.nansum(r["shelf_life_cost"]))
     import openpyxl
 
     head = [c.value for c in openpyxl.load_workbook(out)["Policy"][1]]

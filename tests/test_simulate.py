@@ -45,8 +45,7 @@ def _widened(est: float, lo: float, hi: float) -> tuple[float, float]:
     return est - half, est + half
 
 
-def _analytic(name: str, d: float, s: float, L: float, R: float, Q: float
-              ) -> tuple[float, float]:
+def _analytic(name: str, d: float, s: float, L: float, R: float, Q: float) -> tuple[float, float]:
     """Cycle service and fill rate of (Q, R) by the textbook formulas, computed with scipy.
 
     Lead-time demand over L periods of independent demand: normal N(dL, L s^2), Poisson(dL),
@@ -124,8 +123,9 @@ def test_random_lead_times_keep_the_items_mean_and_sd(L, sd):
     # outstanding at a time.
     R = np.arange(16.0)
     src = ModelDraws(np.array(["normal"] * 16), np.ones(16), np.zeros(16), 4000)
-    res = simulate_policy(np.full(16, 30.0), R, np.full(16, L), np.full(16, sd), src,
-                          replications=20, seed=3)
+    res = simulate_policy(
+        np.full(16, 30.0), R, np.full(16, L), np.full(16, sd), src, replications=20, seed=3
+    )
     f = L - math.floor(L)
     lead = R - 1 + f if f > 0 else R  # lead-time demand K + f <= R means K <= R - 1 if f > 0
     p = np.diff(np.r_[0.0, res.cycle_service])
@@ -143,15 +143,18 @@ def test_rounding_variance_limits():
     e = np.random.default_rng(1).normal(0.0, 0.3, 200_000)
     phi = e - np.floor(e)
     assert _rounding_variance(np.array([0.09]))[0] == pytest.approx(
-        float(np.mean(phi * (1 - phi))), abs=2e-3)
+        float(np.mean(phi * (1 - phi))), abs=2e-3
+    )
 
 
 # ---------------------------------------------------------------------------------------
 # An independent discrete-event model of the same policy, with SimPy
 # ---------------------------------------------------------------------------------------
 
-def _simpy_run(name: str, d: float, s: float, L: float, Q: float, R: float, periods: int,
-               seed: int) -> tuple[int, int, float, float]:
+
+def _simpy_run(
+    name: str, d: float, s: float, L: float, Q: float, R: float, periods: int, seed: int
+) -> tuple[int, int, float, float]:
     """One run of the (Q, R) policy as events; returns cycles, stocked-out cycles,
     units short and units ordered over the counted cycles.
 
@@ -204,19 +207,21 @@ def _simpy_run(name: str, d: float, s: float, L: float, Q: float, R: float, peri
             if pos <= R:
                 k = math.floor((R - pos) / Q) + 1
                 state["pipe"] += k * Q
-                env.process(delivery(k * Q, R - pos, state["cum"], t >= warm,
-                                     t + 1 + whole + f))
+                env.process(delivery(k * Q, R - pos, state["cum"], t >= warm, t + 1 + whole + f))
 
     env.process(shop())
     env.run()
     return out["cycles"], out["outs"], out["short"], out["qty"]
 
 
-@pytest.mark.parametrize("case", [
-    ("poisson", 2.0, math.sqrt(2.0), 3.0, 12.0, 8.0),
-    ("gamma", 5.0, 4.0, 2.5, 30.0, 17.0),
-    ("normal", 25.0, 8.0, 1.5, 60.0, 45.0),
-])
+@pytest.mark.parametrize(
+    "case",
+    [
+        ("poisson", 2.0, math.sqrt(2.0), 3.0, 12.0, 8.0),
+        ("gamma", 5.0, 4.0, 2.5, 30.0, 17.0),
+        ("normal", 25.0, 8.0, 1.5, 60.0, 45.0),
+    ],
+)
 def test_vectorised_simulator_agrees_with_a_simpy_model(case):
     name, d, s, L, Q, R = case
     runs = [_simpy_run(name, d, s, L, Q, R, 600, seed) for seed in range(12)]
@@ -244,18 +249,29 @@ def test_vectorised_simulator_agrees_with_a_simpy_model(case):
 # A lumpy item breaks the normal assumption and is flagged
 # ---------------------------------------------------------------------------------------
 
-def _normal_policy(hist: np.ndarray, lead_days: float, target: float = 0.95
-                   ) -> tuple[np.ndarray, np.ndarray, float]:
+
+def _normal_policy(
+    hist: np.ndarray, lead_days: float, target: float = 0.95
+) -> tuple[np.ndarray, np.ndarray, float]:
     st_ = history_statistics(hist)
     n = hist.shape[0]
     inp = PolicyInputs(
-        annual_demand=st_.mean * 52, demand_per_period=st_.mean, demand_sd_per_period=st_.sd,
-        lead_time_days=np.full(n, lead_days), lead_time_sd_days=np.zeros(n),
-        unit_cost=np.full(n, 10.0), order_cost=np.full(n, 20.0),
-        holding_rate=np.full(n, 0.25), measure=np.full(n, "cycle service", dtype=object),
-        service_target=np.full(n, target), shortage_cost=np.full(n, np.nan),
-        pack_size=np.ones(n), minimum_order=np.zeros(n), days_per_period=7.0,
-        model=np.full(n, "normal", dtype=object))
+        annual_demand=st_.mean * 52,
+        demand_per_period=st_.mean,
+        demand_sd_per_period=st_.sd,
+        lead_time_days=np.full(n, lead_days),
+        lead_time_sd_days=np.zeros(n),
+        unit_cost=np.full(n, 10.0),
+        order_cost=np.full(n, 20.0),
+        holding_rate=np.full(n, 0.25),
+        measure=np.full(n, "cycle service", dtype=object),
+        service_target=np.full(n, target),
+        shortage_cost=np.full(n, np.nan),
+        pack_size=np.ones(n),
+        minimum_order=np.zeros(n),
+        days_per_period=7.0,
+        model=np.full(n, "normal", dtype=object),
+    )
     pol = compute_policy(inp)
     return pol, st_, lead_days / 7.0
 
@@ -279,11 +295,13 @@ def test_lumpy_item_under_a_normal_model_is_flagged_and_a_smooth_one_is_not():
     pol, _, L = _normal_policy(hist, 14.0, 0.98)
     assert pol.reorder_point[0] < 50
     src = BlockBootstrap(hist, np.zeros(2, int), block_length([L, L], [T, T]), T)
-    res = simulate_policy(pol.order_qty, pol.reorder_point, [L, L], [0, 0], src,
-                          replications=200, seed=0)
+    res = simulate_policy(
+        pol.order_qty, pol.reorder_point, [L, L], [0, 0], src, replications=200, seed=0
+    )
     band = history_band(res.columns, [T, T], [L, L])
-    flag = service_check(pol.cycle_service, band["cycle_service_low"],
-                         band["cycle_service_high"], margin=0.01)
+    flag = service_check(
+        pol.cycle_service, band["cycle_service_low"], band["cycle_service_high"], margin=0.01
+    )
     assert flag[0] == -1  # promised about 98 %, delivers clearly less
     assert flag[1] == 0
     # the widened band still holds the simulation's own band
@@ -292,9 +310,14 @@ def test_lumpy_item_under_a_normal_model_is_flagged_and_a_smooth_one_is_not():
 
 
 def test_history_band_rule_of_three_when_nothing_ran_short():
-    cols = {"cycle_service": np.array([1.0]), "cycle_service_low": np.array([1.0]),
-            "cycle_service_high": np.array([1.0]), "fill_rate": np.array([1.0]),
-            "fill_rate_low": np.array([1.0]), "fill_rate_high": np.array([1.0])}
+    cols = {
+        "cycle_service": np.array([1.0]),
+        "cycle_service_low": np.array([1.0]),
+        "cycle_service_high": np.array([1.0]),
+        "fill_rate": np.array([1.0]),
+        "fill_rate_low": np.array([1.0]),
+        "fill_rate_high": np.array([1.0]),
+    }
     band = history_band(cols, [100.0], [2.0])
     # 50 separate lead times without a shortage: the exact binomial 95 % bound on the
     # share short is 1 - 0.05^(1/50) = 0.058; the rule of three gives 3/50 = 0.06
@@ -303,8 +326,12 @@ def test_history_band_rule_of_three_when_nothing_ran_short():
 
 
 def test_service_check_directions_and_margin():
-    got = service_check([0.95, 0.95, 0.95, 0.95, np.nan], [0.90, 0.958, 0.94, 0.955, 0.9],
-                        [0.93, 0.97, 0.96, 0.96, 0.99], margin=0.01)
+    got = service_check(
+        [0.95, 0.95, 0.95, 0.95, np.nan],
+        [0.90, 0.958, 0.94, 0.955, 0.9],
+        [0.93, 0.97, 0.96, 0.96, 0.99],
+        margin=0.01,
+    )
     assert list(got) == [-1, 0, 0, 0, 0]  # 0.958 - 0.95 is within the margin
     assert list(service_check([0.95], [0.97], [0.99], margin=0.01)) == [1]
 
@@ -312,20 +339,22 @@ def test_service_check_directions_and_margin():
 def test_block_bootstrap_draws_only_history_values_in_runs():
     hist = np.arange(1.0, 53.0).reshape(1, -1)  # distinct values show where they came from
     src = BlockBootstrap(hist, np.array([0]), np.array([4]), 80)
-    res = simulate_policy([30.0], [10.0], [1.0], [0.0], src, replications=3, seed=1,
-                          trace_items=[0])
+    res = simulate_policy(
+        [30.0], [10.0], [1.0], [0.0], src, replications=3, seed=1, trace_items=[0]
+    )
     drawn = res.trace["demand"][0]
     assert set(drawn) <= set(hist[0])
     # inside a block of 4 the periods follow each other (circularly: 52 is followed by 1)
     for b in range(0, 80, 4):
-        block = drawn[b:b + 4]
+        block = drawn[b : b + 4]
         assert all((y - x) % 52 == 1 for x, y in zip(block, block[1:], strict=False))
 
 
 def test_replay_starts_at_the_items_first_period():
     hist = np.vstack([np.r_[np.zeros(50), np.full(50, 5.0)], np.full(100, 5.0)])
-    res = simulate_policy([20.0, 20.0], [10.0, 10.0], [1.0, 1.0], [0, 0],
-                          HistoryReplay(hist, np.array([50, 0])))
+    res = simulate_policy(
+        [20.0, 20.0], [10.0, 10.0], [1.0, 1.0], [0, 0], HistoryReplay(hist, np.array([50, 0]))
+    )
     assert res.cycles[0] < res.cycles[1]
     assert res.cycle_service[0] == 1.0  # constant 5 a period against R = 10 over 1 period
 
@@ -359,20 +388,24 @@ def test_higher_reorder_point_never_lowers_service_on_the_same_draws(p, dr, seed
 
 
 @settings(max_examples=30, deadline=None)
-@given(p=_policy, lost=st.booleans(), sd_lt=st.sampled_from([0.0, 0.4, 1.5]),
-       model=st.sampled_from(["normal", "poisson", "gamma", "negative binomial"]),
-       seed=st.integers(0, 2**31 - 1))
+@given(
+    p=_policy,
+    lost=st.booleans(),
+    sd_lt=st.sampled_from([0.0, 0.4, 1.5]),
+    model=st.sampled_from(["normal", "poisson", "gamma", "negative binomial"]),
+    seed=st.integers(0, 2**31 - 1),
+)
 def test_units_are_conserved_and_rates_are_proportions(p, lost, sd_lt, model, seed):
     d, q, r, lt = p
     sd = 1.6 * math.sqrt(d)
     src = ModelDraws(np.array([model]), np.array([d]), np.array([sd]), 90)
-    res = simulate_policy([q], [r], [lt], [sd_lt], src, replications=3, seed=seed,
-                          lost_sales=lost)
+    res = simulate_policy([q], [r], [lt], [sd_lt], src, replications=3, seed=seed, lost_sales=lost)
     t = res.totals
     # stock balance: what was there + what came in - what went out = what is there now
     served = t["demand"] - t["lost"]
     assert t["start"][0] + t["received"][0] - served[0] == pytest.approx(
-        t["end_net"][0], abs=1e-6 * max(1.0, t["demand"][0]))
+        t["end_net"][0], abs=1e-6 * max(1.0, t["demand"][0])
+    )
     assert t["ordered"][0] == pytest.approx(t["received"][0] + t["end_pipeline"][0])
     if lost:
         assert t["end_net"][0] >= -1e-9 or model == "normal"  # normal draws can be returns
@@ -386,13 +419,15 @@ def test_units_are_conserved_and_rates_are_proportions(p, lost, sd_lt, model, se
 
 def test_unusable_policies_give_nan_not_errors():
     src = ModelDraws(np.array(["normal"] * 3), np.array([5.0] * 3), np.array([1.0] * 3), 30)
-    res = simulate_policy([np.nan, 0.0, 10.0], [5.0, 5.0, np.nan], [1.0] * 3, [0.0] * 3, src,
-                          replications=2)
+    res = simulate_policy(
+        [np.nan, 0.0, 10.0], [5.0, 5.0, np.nan], [1.0] * 3, [0.0] * 3, src, replications=2
+    )
     assert np.isnan(res.cycle_service).all()
 
 
-def _by_hand(demand: np.ndarray, q: float, r: float, lead: int, lost: bool
-             ) -> tuple[list[float], float]:
+def _by_hand(
+    demand: np.ndarray, q: float, r: float, lead: int, lost: bool
+) -> tuple[list[float], float]:
     """Brute force, from the rules in words (whole lead time): start with R + Q on hand,
     nothing on order; each period take in what is due, then sell what the shelf holds
     (the rest backordered, or lost), and at the end order enough Qs to lift the position
@@ -417,8 +452,15 @@ def _by_hand(demand: np.ndarray, q: float, r: float, lead: int, lost: bool
 @pytest.mark.parametrize("lost", [False, True])
 def test_replay_follows_the_rules_by_hand(lost):
     hist = np.random.default_rng(11).poisson(4.0, (1, 150)).astype(float)  # invented data
-    res = simulate_policy([14.0], [9.0], [2.0], [0.0], HistoryReplay(hist, np.array([0])),
-                          lost_sales=lost, trace_items=[0])
+    res = simulate_policy(
+        [14.0],
+        [9.0],
+        [2.0],
+        [0.0],
+        HistoryReplay(hist, np.array([0])),
+        lost_sales=lost,
+        trace_items=[0],
+    )
     path, lost_units = _by_hand(hist[0], 14.0, 9.0, 2, lost)
     assert res.trace["net_stock"][0] == pytest.approx(path)
     assert res.totals["lost"][0] == pytest.approx(lost_units)

@@ -50,11 +50,15 @@ def template(tmp_path_factory: pytest.TempPathFactory) -> Path:
 def test_committed_template_is_up_to_date(template: Path) -> None:
     fresh = sheet_values(template)
     committed = sheet_values(COMMITTED_TEMPLATE)
-    assert list(fresh) == list(committed) == ["Read me", "Items", "History", "Settings",
-                                                        "Price breaks"]
+    assert (
+        list(fresh)
+        == list(committed)
+        == ["Read me", "Items", "History", "Settings", "Price breaks"]
+    )
     for name in fresh:
         assert fresh[name] == committed[name], (
-            f"sheet {name!r} differs: run `python -m xlpolicy.template`")
+            f"sheet {name!r} differs: run `python -m xlpolicy.template`"
+        )
 
 
 def test_template_is_deterministic(template: Path, tmp_path: Path) -> None:
@@ -85,8 +89,11 @@ def test_items_headers_have_notes_and_required_are_marked(template: Path) -> Non
 def test_template_example_rows_are_valid(template: Path) -> None:
     ws = openpyxl.load_workbook(template)["Items"]
     keys = [column_for(c.value)[0] for c in ws[1]]
-    rows = [dict(zip(keys, r, strict=True)) for r in ws.iter_rows(min_row=2, values_only=True)
-            if any(v is not None for v in r)]
+    rows = [
+        dict(zip(keys, r, strict=True))
+        for r in ws.iter_rows(min_row=2, values_only=True)
+        if any(v is not None for v in r)
+    ]
     assert len(rows) == 3
     for row in rows:
         assert isinstance(row["item"], str) and row["item"]
@@ -120,8 +127,9 @@ def test_template_settings_and_validation(template: Path) -> None:
     for (_, value, meaning), setting in zip(rows, contract.SETTINGS, strict=True):
         assert value == setting.default
         assert meaning == setting.meaning
-    lists = {str(dv.sqref): dv.formula1 for dv in ws.data_validations.dataValidation
-             if dv.type == "list"}
+    lists = {
+        str(dv.sqref): dv.formula1 for dv in ws.data_validations.dataValidation if dv.type == "list"
+    }
     measures = ",".join(contract.SERVICE_MEASURES)
     assert lists == {"B2": '"day,week,month"', "B4": f'"{measures}"'}
 
@@ -156,8 +164,9 @@ def test_template_read_me_says_how_and_cautions(template: Path) -> None:
 @pytest.fixture(scope="module")
 def demo_dir(tmp_path_factory: pytest.TempPathFactory) -> Path:
     out = tmp_path_factory.mktemp("demo")
-    subprocess.run([sys.executable, str(EXAMPLES / "make_demo.py"), str(out)], check=True,
-                   capture_output=True)
+    subprocess.run(
+        [sys.executable, str(EXAMPLES / "make_demo.py"), str(out)], check=True, capture_output=True
+    )
     return out
 
 
@@ -165,12 +174,14 @@ def demo_dir(tmp_path_factory: pytest.TempPathFactory) -> Path:
 def test_demo_is_reproducible(demo_dir: Path, name: str) -> None:
     fresh = sheet_values(demo_dir / name)
     committed = sheet_values(EXAMPLES / name)
-    sheets = ["Items", "History", "Settings"] + (["Price breaks"] if name == "demo-shop.xlsx"
-                                                   else [])
+    sheets = ["Items", "History", "Settings"] + (
+        ["Price breaks"] if name == "demo-shop.xlsx" else []
+    )
     assert list(fresh) == list(committed) == sheets
     for sheet in fresh:
         assert fresh[sheet] == committed[sheet], (
-            f"{name}: sheet {sheet!r} differs: run `python examples/make_demo.py`")
+            f"{name}: sheet {sheet!r} differs: run `python examples/make_demo.py`"
+        )
 
 
 @pytest.mark.parametrize("name,header_row", [("demo-shop.xlsx", 3), ("demo-wide.xlsx", 1)])

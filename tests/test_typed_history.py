@@ -38,8 +38,9 @@ def _read(path: Path, typed_on: bool):
         data = reading.read_input(path, {}, log)
     finally:
         reading.TYPED_HISTORY = saved
-    problems = [(p.severity, p.sheet, p.cell, p.item, p.value, p.message, p.code)
-                for p in log.problems]
+    problems = [
+        (p.severity, p.sheet, p.cell, p.item, p.value, p.message, p.code) for p in log.problems
+    ]
     return data, problems
 
 
@@ -80,14 +81,16 @@ def _wide_with(tmp_path: Path, n: int, row: int, week: int, value: object) -> Pa
     codes = _codes(n)
     hist = _history(codes)
     hist[codes[row]][week] = value
-    return write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist,
-                          layout="wide")
+    return write_workbook(
+        tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist, layout="wide"
+    )
 
 
 def test_a_clean_sheet_reads_the_same_and_the_typed_reader_ran(tmp_path: Path) -> None:
     codes = _codes()
-    path = write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes],
-                          history=_history(codes), layout="wide")
+    path = write_workbook(
+        tmp_path / "w.xlsx", [item_row(c) for c in codes], history=_history(codes), layout="wide"
+    )
     assert _typed_ran(path)
     assert _same_both_ways(path) == []
 
@@ -95,31 +98,56 @@ def test_a_clean_sheet_reads_the_same_and_the_typed_reader_ran(tmp_path: Path) -
 def test_every_kind_of_bad_cell_past_row_1000_is_reported_the_same(tmp_path: Path) -> None:
     codes = _codes()
     hist = _history(codes)
-    bad = {1050: "n/a", 1060: "n/a", 1070: "1e3", 1080: "1,250.5", 1090: " 3 ", 1100: "",
-           1110: "#N/A", 1120: dt.datetime(2024, 3, 1), 1130: 'x"y\\z\né', 1140: "5 units",
-           1150: 2.5, 1160: "  ", 1170: "12", 1180: "=1+1", 1190: dt.timedelta(hours=5)}
+    bad = {
+        1050: "n/a",
+        1060: "n/a",
+        1070: "1e3",
+        1080: "1,250.5",
+        1090: " 3 ",
+        1100: "",
+        1110: "#N/A",
+        1120: dt.datetime(2024, 3, 1),
+        1130: 'x"y\\z\né',
+        1140: "5 units",
+        1150: 2.5,
+        1160: "  ",
+        1170: "12",
+        1180: "=1+1",
+        1190: dt.timedelta(hours=5),
+    }
     for k, v in bad.items():
         hist[codes[k]][3] = v
     path = write_workbook(
-        tmp_path / "w.xlsx", [item_row(c) for c in codes[:-5]], history=hist, layout="wide",
-        extra_history_rows=[[codes[10], *[1] * WEEKS],  # a second row for one item
-                            [None, 4, 5],  # quantities without a code
-                            ["  ", None, None]])  # nothing but spaces
+        tmp_path / "w.xlsx",
+        [item_row(c) for c in codes[:-5]],
+        history=hist,
+        layout="wide",
+        extra_history_rows=[
+            [codes[10], *[1] * WEEKS],  # a second row for one item
+            [None, 4, 5],  # quantities without a code
+            ["  ", None, None],
+        ],
+    )  # nothing but spaces
     assert _typed_ran(path)
     problems = _same_both_ways(path)
     codes_found = {p[6] for p in problems}
     # (the five codes left out of Items, the duplicate and the row without a code)
-    assert {"history-unknown-item", "history-duplicate-item", "history-item-missing",
-            "history-quantity-not-number",
-            "cell-uncalculated"} <= codes_found
+    assert {
+        "history-unknown-item",
+        "history-duplicate-item",
+        "history-item-missing",
+        "history-quantity-not-number",
+        "cell-uncalculated",
+    } <= codes_found
     cells = {p[2] for p in problems}
     for k in (1050, 1060, 1110, 1120, 1130, 1140, 1180, 1190):  # E = the 4th week
         assert f"E{k + 2}" in cells
 
 
 @pytest.mark.parametrize("text", ["-5", "inf", "NaN"])
-def test_text_that_reads_as_a_troubled_number_goes_the_general_way(tmp_path: Path,
-                                                                   text: str) -> None:
+def test_text_that_reads_as_a_troubled_number_goes_the_general_way(
+    tmp_path: Path, text: str
+) -> None:
     """A negative or endless number typed as text is quoted as text in its message, which
     the typed reader cannot tell from a number: it steps aside, and the problem is the same."""
     path = _wide_with(tmp_path, 1050, 1030, 3, text)
@@ -133,7 +161,8 @@ def test_a_negative_number_is_read_the_typed_way(tmp_path: Path) -> None:
     assert _typed_ran(path)
     problems = _same_both_ways(path)
     assert [(p[4], p[6]) for p in problems if p[2] == "E1032"] == [
-        (-4, "history-quantity-negative")]
+        (-4, "history-quantity-negative")
+    ]
 
 
 def test_title_rows_a_blank_first_column_and_a_note_far_below(tmp_path: Path) -> None:
@@ -147,8 +176,9 @@ def test_title_rows_a_blank_first_column_and_a_note_far_below(tmp_path: Path) ->
     hs = wb.create_sheet("History")
     hs["C1"] = "Weekly sales, exported"
     hs.append([])
-    hs.append([None, "Item", *[dt.datetime(2024, 1, 1) + dt.timedelta(weeks=k)
-                               for k in range(WEEKS)]])
+    hs.append(
+        [None, "Item", *[dt.datetime(2024, 1, 1) + dt.timedelta(weeks=k) for k in range(WEEKS)]]
+    )
     rng = np.random.default_rng(2)
     for k, c in enumerate(codes):
         hs.append([None, c, *[int(x) for x in rng.poisson(3, WEEKS)]])
@@ -185,12 +215,18 @@ def test_numeric_codes_shown_zero_padded_stay_as_the_user_sees_them(tmp_path: Pa
     assert [p[3] for p in problems if p[6] == "history-unknown-item"] == ["1101"]
 
 
-@pytest.mark.parametrize("labels", [list(range(1, WEEKS + 1)),
-                                    [f"W{k}" for k in range(1, WEEKS + 1)]])
+@pytest.mark.parametrize(
+    "labels", [list(range(1, WEEKS + 1)), [f"W{k}" for k in range(1, WEEKS + 1)]]
+)
 def test_period_numbers_or_labels_as_headers(tmp_path: Path, labels: list) -> None:
     codes = _codes(1050)
-    path = write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes],
-                          history=_history(codes), layout="wide", labels=labels)
+    path = write_workbook(
+        tmp_path / "w.xlsx",
+        [item_row(c) for c in codes],
+        history=_history(codes),
+        layout="wide",
+        labels=labels,
+    )
     assert _typed_ran(path)
     _same_both_ways(path)
 
@@ -207,30 +243,43 @@ def test_a_date_as_an_item_code_sends_the_sheet_the_general_way(tmp_path: Path) 
     codes = _codes(1050)
     hist: dict = _history(codes)
     hist[dt.datetime(2024, 5, 1)] = [1] * WEEKS  # a date where a code belongs
-    path = write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist,
-                          layout="wide")
+    path = write_workbook(
+        tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist, layout="wide"
+    )
     assert not _typed_ran(path)
     _same_both_ways(path)
 
 
 def test_a_long_history_is_left_to_the_general_reader(tmp_path: Path) -> None:
     codes = _codes(20)
-    path = write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes],
-                          history=_history(codes), layout="long")
+    path = write_workbook(
+        tmp_path / "w.xlsx", [item_row(c) for c in codes], history=_history(codes), layout="long"
+    )
     wb = WorkbookFile(path, ProblemLog())
     assert wb.open()
     try:
         from xlpolicy.reading.history import wide_header
+
         assert wide_header(wb.peek("History")) is None
     finally:
         wb.close()
     _same_both_ways(path)
 
 
-@pytest.mark.parametrize("text", ['a"b', "back\\slash", "new\nline", "tab\there",
-                                  "ünïcødé ✓", "quote's", "\u200bzero width", "e\u0301"])
-def test_text_comes_back_exactly_through_the_converter_message(tmp_path: Path,
-                                                               text: str) -> None:
+@pytest.mark.parametrize(
+    "text",
+    [
+        'a"b',
+        "back\\slash",
+        "new\nline",
+        "tab\there",
+        "ünïcødé ✓",
+        "quote's",
+        "\u200bzero width",
+        "e\u0301",
+    ],
+)
+def test_text_comes_back_exactly_through_the_converter_message(tmp_path: Path, text: str) -> None:
     """Text in a quantity cell is decoded from fastexcel's message; it must be exact, as
     the general path (python-calamine) gives it: the problem's value shows it."""
     path = _wide_with(tmp_path, 3, 1, 1, text)
@@ -241,9 +290,11 @@ def test_text_comes_back_exactly_through_the_converter_message(tmp_path: Path,
 
 def test_hidden_rows_and_merged_cells_are_noted_the_same(tmp_path: Path) -> None:
     codes = _codes(1050)
-    path = write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes],
-                          history=_history(codes), layout="wide")
+    path = write_workbook(
+        tmp_path / "w.xlsx", [item_row(c) for c in codes], history=_history(codes), layout="wide"
+    )
     from openpyxl import load_workbook
+
     wb = load_workbook(path)
     hs = wb["History"]
     hs.row_dimensions[1030].hidden = True
@@ -257,12 +308,12 @@ def test_hidden_rows_and_merged_cells_are_noted_the_same(tmp_path: Path) -> None
 def test_shared_strings_as_a_spreadsheet_program_writes_them(tmp_path: Path) -> None:
     """openpyxl writes text inline; Excel and xlsxwriter write a shared-strings table."""
     import xlsxwriter
+
     codes = _codes(1100)
     path = tmp_path / "w.xlsx"
     book = xlsxwriter.Workbook(str(path))
     items = book.add_worksheet("Items")
-    items.write_row(0, 0, ["Item", "Unit cost", "Order cost", "Holding rate",
-                           "Lead time (days)"])
+    items.write_row(0, 0, ["Item", "Unit cost", "Order cost", "Holding rate", "Lead time (days)"])
     hs = book.add_worksheet("History")
     date = book.add_format({"num_format": "yyyy-mm-dd"})
     hs.write_string(0, 0, "Item")
@@ -287,12 +338,14 @@ def test_cells_written_without_their_reference_read_the_same(tmp_path: Path) -> 
     result must equal openpyxl's, which counts cells in order."""
     import re
     import zipfile
+
     codes = _codes(1050)
     hist = _history(codes)
     hist[codes[1020]][2] = "#N/A"
     hist[codes[1030]][4] = "n/a"
-    src = write_workbook(tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist,
-                         layout="wide")
+    src = write_workbook(
+        tmp_path / "w.xlsx", [item_row(c) for c in codes], history=hist, layout="wide"
+    )
     path = tmp_path / "no-refs.xlsx"
     with zipfile.ZipFile(src) as zin, zipfile.ZipFile(path, "w", zipfile.ZIP_DEFLATED) as zout:
         for info in zin.infolist():
@@ -302,6 +355,7 @@ def test_cells_written_without_their_reference_read_the_same(tmp_path: Path) -> 
             zout.writestr(info, data)
     problems = _same_both_ways(path)
     from openpyxl import load_workbook
+
     wb = load_workbook(path, read_only=True)
     assert wb["History"]["D1022"].value == "#N/A"  # (openpyxl places them by order)
     wb.close()

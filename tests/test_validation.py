@@ -44,6 +44,7 @@ def planned_items(path: Path, **kw) -> set[str]:
 
 # --- the workbook as a whole (fatal: exit 1) ----------------------------------------------
 
+
 def test_missing_items_sheet_is_fatal(tmp_path):
     wb = Workbook()
     wb.active.title = "Stuff"
@@ -66,8 +67,13 @@ def test_items_sheet_without_header_row_is_fatal(tmp_path):
 def test_missing_required_column_is_fatal(tmp_path):
     headers = [h for h in BASE_HEADERS if h != "Unit cost"]
     rows = [[c, "x", "s", 20, 0.2, 14] for c in GOOD]
-    p = write_workbook(tmp_path / "w.xlsx", rows, headers=headers,
-                       history=weekly_history(GOOD), title_rows=["Our items"])
+    p = write_workbook(
+        tmp_path / "w.xlsx",
+        rows,
+        headers=headers,
+        history=weekly_history(GOOD),
+        title_rows=["Our items"],
+    )
     prob = only(problems_of(p), "items-missing-column")
     assert prob.severity is Severity.FATAL
     assert prob.cell == "A2" and "'Unit cost'" in prob.message
@@ -80,17 +86,25 @@ def test_missing_order_cost_column_without_settings_default_is_fatal(tmp_path):
     prob = only(problems_of(p), "items-missing-column")
     assert "'Order cost'" in prob.message and "Settings" in prob.message
     # ... and the same workbook is fine once Settings gives the default
-    p2 = write_workbook(tmp_path / "w2.xlsx", rows, headers=headers, history=weekly_history(GOOD),
-                        settings={"Order cost": 25})
+    p2 = write_workbook(
+        tmp_path / "w2.xlsx",
+        rows,
+        headers=headers,
+        history=weekly_history(GOOD),
+        settings={"Order cost": 25},
+    )
     assert planned_items(p2) == set(GOOD)
 
 
-@pytest.mark.parametrize("content, name, code", [
-    (b"item,cost\nA,1\n", "w.xlsx", "file-not-zip"),
-    (b"", "w.xlsx", "file-empty"),
-    (b"\xd0\xcf\x11\xe0" + b"\0" * 60, "w.xlsx", "file-not-zip"),
-    (b"a,b\n", "w.csv", "file-type"),
-])
+@pytest.mark.parametrize(
+    "content, name, code",
+    [
+        (b"item,cost\nA,1\n", "w.xlsx", "file-not-zip"),
+        (b"", "w.xlsx", "file-empty"),
+        (b"\xd0\xcf\x11\xe0" + b"\0" * 60, "w.xlsx", "file-not-zip"),
+        (b"a,b\n", "w.csv", "file-type"),
+    ],
+)
 def test_files_that_are_not_workbooks_are_fatal(tmp_path, content, name, code):
     (tmp_path / name).write_bytes(content)
     prob = only(problems_of(tmp_path / name), code)
@@ -103,8 +117,9 @@ def test_missing_file_is_fatal(tmp_path):
 
 
 def test_no_usable_item_is_fatal(tmp_path):
-    p = write_workbook(tmp_path / "w.xlsx", [item_row("A", cost="n/a")],
-                       history=weekly_history(["A"]))
+    p = write_workbook(
+        tmp_path / "w.xlsx", [item_row("A", cost="n/a")], history=weekly_history(["A"])
+    )
     probs = problems_of(p)
     fatal = only(probs, "no-usable-item")
     assert fatal.severity is Severity.FATAL and "No item" in fatal.message
@@ -124,15 +139,19 @@ def test_history_without_readable_header_is_fatal(tmp_path):
 
 # --- bad cells in Items: the item is skipped, the run goes on ----------------------------
 
-@pytest.mark.parametrize("row, cell, code, words", [
-    (item_row("X", cost="n/a"), "D5", "unit_cost-not-number", "'n/a' is text where a number"),
-    (item_row("X", cost=0), "D5", "unit_cost-out-of-range", "more than 0"),
-    (item_row("X", order=-5), "E5", "order_cost-out-of-range", "cannot be negative"),
-    (item_row("X", rate=25), "F5", "holding_rate-out-of-range", "at most 1"),
-    (item_row("X", lead=0), "G5", "lead_time_days-out-of-range", "more than 0 days"),
-    (item_row("X", lead="two weeks"), "G5", "lead_time_days-not-number", "text where a number"),
-    (item_row("X", cost=None), "D5", "unit_cost-missing", "is blank"),
-])
+
+@pytest.mark.parametrize(
+    "row, cell, code, words",
+    [
+        (item_row("X", cost="n/a"), "D5", "unit_cost-not-number", "'n/a' is text where a number"),
+        (item_row("X", cost=0), "D5", "unit_cost-out-of-range", "more than 0"),
+        (item_row("X", order=-5), "E5", "order_cost-out-of-range", "cannot be negative"),
+        (item_row("X", rate=25), "F5", "holding_rate-out-of-range", "at most 1"),
+        (item_row("X", lead=0), "G5", "lead_time_days-out-of-range", "more than 0 days"),
+        (item_row("X", lead="two weeks"), "G5", "lead_time_days-not-number", "text where a number"),
+        (item_row("X", cost=None), "D5", "unit_cost-missing", "is blank"),
+    ],
+)
 def test_bad_item_cell_skips_the_item(tmp_path, row, cell, code, words):
     p = workbook_with(tmp_path, [row])
     prob = only(problems_of(p), code)
@@ -142,37 +161,44 @@ def test_bad_item_cell_skips_the_item(tmp_path, row, cell, code, words):
     assert planned_items(p) == set(GOOD)
 
 
-@pytest.mark.parametrize("header, value, code, words", [
-    ("Lead time sd (days)", -1, "lead_time_sd_days-out-of-range", "cannot be negative"),
-    ("Service target", 1.5, "service_target-out-of-range", "strictly between 0 and 1"),
-    ("Service target", 0, "service_target-out-of-range", "strictly between 0 and 1"),
-    ("Shortage cost", -2, "shortage_cost-out-of-range", "more than 0"),
-    ("Pack size", 2.5, "pack_size-out-of-range", "whole number"),
-    ("Minimum order", -1, "minimum_order-out-of-range", "cannot be negative"),
-    ("Annual demand", -100, "annual_demand-out-of-range", "cannot be negative"),
-])
+@pytest.mark.parametrize(
+    "header, value, code, words",
+    [
+        ("Lead time sd (days)", -1, "lead_time_sd_days-out-of-range", "cannot be negative"),
+        ("Service target", 1.5, "service_target-out-of-range", "strictly between 0 and 1"),
+        ("Service target", 0, "service_target-out-of-range", "strictly between 0 and 1"),
+        ("Shortage cost", -2, "shortage_cost-out-of-range", "more than 0"),
+        ("Pack size", 2.5, "pack_size-out-of-range", "whole number"),
+        ("Minimum order", -1, "minimum_order-out-of-range", "cannot be negative"),
+        ("Annual demand", -100, "annual_demand-out-of-range", "cannot be negative"),
+    ],
+)
 def test_bad_optional_policy_cell_skips_the_item(tmp_path, header, value, code, words):
     headers = BASE_HEADERS + [header]
     rows = [item_row(c) + [None] for c in GOOD] + [item_row("X") + [value]]
-    p = write_workbook(tmp_path / "w.xlsx", rows, headers=headers,
-                       history=weekly_history(list(GOOD) + ["X"]))
+    p = write_workbook(
+        tmp_path / "w.xlsx", rows, headers=headers, history=weekly_history(list(GOOD) + ["X"])
+    )
     prob = only(problems_of(p), code)
     assert (prob.severity, prob.cell, prob.item) == (Severity.ERROR, "H5", "X")
     assert words in prob.message
     assert planned_items(p) == set(GOOD)
 
 
-@pytest.mark.parametrize("header, value, code", [
-    ("On order", -3, "on_order-out-of-range"),
-    ("On hand", "lots", "on_hand-not-number"),
-    ("Backordered", -1, "backordered-out-of-range"),
-])
-def test_bad_stock_cell_is_a_warning_and_the_item_is_still_planned(tmp_path, header, value,
-                                                                    code):
+@pytest.mark.parametrize(
+    "header, value, code",
+    [
+        ("On order", -3, "on_order-out-of-range"),
+        ("On hand", "lots", "on_hand-not-number"),
+        ("Backordered", -1, "backordered-out-of-range"),
+    ],
+)
+def test_bad_stock_cell_is_a_warning_and_the_item_is_still_planned(tmp_path, header, value, code):
     headers = BASE_HEADERS + [header]
     rows = [item_row(c) + [None] for c in GOOD] + [item_row("X") + [value]]
-    p = write_workbook(tmp_path / "w.xlsx", rows, headers=headers,
-                       history=weekly_history(list(GOOD) + ["X"]))
+    p = write_workbook(
+        tmp_path / "w.xlsx", rows, headers=headers, history=weekly_history(list(GOOD) + ["X"])
+    )
     prob = only(problems_of(p), code)
     assert (prob.severity, prob.cell, prob.item) == (Severity.WARNING, "H5", "X")
     assert "left out" in prob.message
@@ -204,8 +230,9 @@ def test_blank_order_cost_without_default(tmp_path):
 def test_shortage_cost_measure_needs_a_shortage_cost(tmp_path):
     headers = BASE_HEADERS + ["Shortage cost"]
     rows = [item_row(c) + [30] for c in GOOD] + [item_row("X") + [None]]
-    p = write_workbook(tmp_path / "w.xlsx", rows, headers=headers,
-                       history=weekly_history(list(GOOD) + ["X"]))
+    p = write_workbook(
+        tmp_path / "w.xlsx", rows, headers=headers, history=weekly_history(list(GOOD) + ["X"])
+    )
     prob = only(problems_of(p, service_measure="shortage cost"), "shortage_cost-missing")
     assert (prob.severity, prob.cell, prob.item) == (Severity.ERROR, "H5", "X")
 
@@ -221,6 +248,7 @@ def test_formula_without_saved_result(tmp_path):
 
 
 # --- History ------------------------------------------------------------------------------
+
 
 def test_history_for_unknown_item(tmp_path):
     hist = weekly_history(list(GOOD) + ["ZZ"])
@@ -273,8 +301,12 @@ def test_zero_demand_is_skipped_with_a_warning(tmp_path):
 
 
 def test_single_period_history_is_too_short(tmp_path):
-    p = workbook_with(tmp_path, [item_row("X")], history=weekly_history(GOOD),
-                      extra_history_rows=[["X", dt.datetime(2024, 1, 1), 5]])
+    p = workbook_with(
+        tmp_path,
+        [item_row("X")],
+        history=weekly_history(GOOD),
+        extra_history_rows=[["X", dt.datetime(2024, 1, 1), 5]],
+    )
     # the span runs over the sheet's 60 weeks, so X has 60 periods: make a 1-period sheet
     wb = load_workbook(p)
     wb.remove(wb["History"])
@@ -317,10 +349,11 @@ def test_demand_figures_without_sd_assume_poisson_spread(tmp_path):
     assert (prob.severity, prob.cell) == (Severity.WARNING, "H5")  # no sd column: the demand
     r = xlpolicy.analyse(p).results.set_index("item")
     # 520 a year over 52 weeks = 10 a week; Poisson sd = sqrt(10) (common practice)
-    assert r.at["X", "demand_sd_per_period"] == pytest.approx(10 ** 0.5)
+    assert r.at["X", "demand_sd_per_period"] == pytest.approx(10**0.5)
 
 
 # --- Settings -----------------------------------------------------------------------------
+
 
 def test_unknown_setting(tmp_path):
     p = workbook_with(tmp_path, [], settings={"Colour": "blue"})
@@ -328,12 +361,15 @@ def test_unknown_setting(tmp_path):
     assert (prob.severity, prob.sheet, prob.cell) == (Severity.WARNING, "Settings", "A2")
 
 
-@pytest.mark.parametrize("name, value, code", [
-    ("Service target", 3, "setting-service_target"),
-    ("Service measure", "best", "setting-service_measure"),
-    ("Period", "fortnight", "setting-period"),
-    ("Holding rate", "lots", "setting-holding_rate"),
-])
+@pytest.mark.parametrize(
+    "name, value, code",
+    [
+        ("Service target", 3, "setting-service_target"),
+        ("Service measure", "best", "setting-service_measure"),
+        ("Period", "fortnight", "setting-period"),
+        ("Holding rate", "lots", "setting-holding_rate"),
+    ],
+)
 def test_bad_setting_value_falls_back_to_default(tmp_path, name, value, code):
     p = workbook_with(tmp_path, [], settings={name: value})
     prob = only(problems_of(p), code)
@@ -348,12 +384,14 @@ def test_settings_period_contradicting_dates(tmp_path):
 
 # --- model doubts from the core ------------------------------------------------------------
 
+
 def test_normal_model_forced_on_a_slow_mover_gets_a_warning(tmp_path):
     # Left to choose, a slow mover gets a count model; forced to normal, it gets a warning
     # that the normal shape is doubtful (sd/mean >= 0.5 or mean < 10: common practice).
     hist = weekly_history(GOOD) | {"S": [0, 1, 0, 0, 2, 0, 1, 0, 0, 1] * 6}
-    p = workbook_with(tmp_path, [item_row("S", lead=7)], history=hist,
-                      settings={"Demand model": "normal"})
+    p = workbook_with(
+        tmp_path, [item_row("S", lead=7)], history=hist, settings={"Demand model": "normal"}
+    )
     prob = only(problems_of(p), "normal-doubtful")
     assert (prob.severity, prob.item, prob.cell) == (Severity.WARNING, "S", "A5")
     r = xlpolicy.analyse(p).results.set_index("item")
@@ -366,8 +404,9 @@ def test_shortage_cost_too_low_for_any_safety_stock(tmp_path):
     # Hadley-Whitin: no solution when Q H / (p D) >= 1 (field notes); here p is tiny.
     headers = BASE_HEADERS + ["Shortage cost"]
     rows = [item_row(c) + [50] for c in GOOD] + [item_row("X", cost=100, rate=0.3) + [0.01]]
-    p = write_workbook(tmp_path / "w.xlsx", rows, headers=headers,
-                       history=weekly_history(list(GOOD) + ["X"]))
+    p = write_workbook(
+        tmp_path / "w.xlsx", rows, headers=headers, history=weekly_history(list(GOOD) + ["X"])
+    )
     prob = only(problems_of(p, service_measure="shortage cost"), "no-safety-stock-pays")
     assert prob.item == "X" and "no safety stock" in prob.message
 

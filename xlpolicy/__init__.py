@@ -20,6 +20,16 @@ from .api import (
 from .problems import Problem, Severity, UnusableWorkbook
 
 __all__ = [
-    "PlanResult", "Problem", "Severity", "UnusableWorkbook", "UsageError", "__version__",
-    "analyse", "check", "default_output_path", "demo", "plan", "template",
+    "PlanResult",
+    "Problem",
+    "Severity",
+    "UnusableWorkbook",
+    "UsageError",
+    "__version__",
+    "analyse",
+    "check",
+    "default_output_path",
+    "demo",
+    "plan",
+    "template",
 ]

@@ -75,10 +75,14 @@ def default_output_path(path: str | Path) -> Path:
     return p.with_name(f"{p.stem}-policy{ext}")
 
 
-def _overrides(service_measure: str | None, service_target: float | str | None,
-               holding_rate: float | str | None,
-               order_cost: float | str | None,
-               history: str | Path | None = None, **caps: Any) -> dict[str, Any]:
+def _overrides(
+    service_measure: str | None,
+    service_target: float | str | None,
+    holding_rate: float | str | None,
+    order_cost: float | str | None,
+    history: str | Path | None = None,
+    **caps: Any,
+) -> dict[str, Any]:
     """Check command-line overrides of the Settings; raise UsageError if one is bad."""
     out: dict[str, Any] = _cap_overrides(**caps)
     if history is not None:
@@ -89,14 +93,14 @@ def _overrides(service_measure: str | None, service_target: float | str | None,
     if service_measure is not None:
         m = parse_measure(service_measure)
         if m is None:
-            raise UsageError(f"service measure {service_measure!r} is not one of "
-                             + ", ".join(SERVICE_MEASURES))
+            raise UsageError(
+                f"service measure {service_measure!r} is not one of " + ", ".join(SERVICE_MEASURES)
+            )
         out["service_measure"] = m
     if service_target is not None:
         t = _number(service_target, "service target", rate=True)
         if not 0 < t < 1:
-            raise UsageError("service target must lie strictly between 0 and 1 (e.g. 0.95 "
-                             "or 95%)")
+            raise UsageError("service target must lie strictly between 0 and 1 (e.g. 0.95 or 95%)")
         out["service_target"] = t
     if holding_rate is not None:
         h = _number(holding_rate, "holding rate", rate=True)
@@ -111,13 +115,17 @@ def _overrides(service_measure: str | None, service_target: float | str | None,
     return out
 
 
-def _cap_overrides(stock_budget: float | str | None = None,
-                   orders_cap: float | str | None = None,
-                   exchange_curve: bool | None = None) -> dict[str, Any]:
+def _cap_overrides(
+    stock_budget: float | str | None = None,
+    orders_cap: float | str | None = None,
+    exchange_curve: bool | None = None,
+) -> dict[str, Any]:
     """The portfolio overrides (issue 4, parts 6 and 7): a cap, and the exchange curve."""
     out: dict[str, Any] = {}
-    for key, value, what in (("stock_budget", stock_budget, "stock budget"),
-                             ("orders_cap", orders_cap, "orders cap")):
+    for key, value, what in (
+        ("stock_budget", stock_budget, "stock budget"),
+        ("orders_cap", orders_cap, "orders cap"),
+    ):
         if value is None:
             continue
         x = _number(value, what)
@@ -140,8 +148,9 @@ def _named_settings(values: dict[str, Any] | None) -> dict[str, Any]:
     for name, raw in values.items():
         key = setting_key(name)
         if key is None:
-            raise UsageError(f"unknown setting {name!r}; known settings: "
-                             + ", ".join(s.title for s in SETTINGS))
+            raise UsageError(
+                f"unknown setting {name!r}; known settings: " + ", ".join(s.title for s in SETTINGS)
+            )
         found[key] = (raw, "")
     log = ProblemLog()
     resolved = resolve_settings(found, {}, log)
@@ -150,8 +159,9 @@ def _named_settings(values: dict[str, Any] | None) -> dict[str, Any]:
     return {key: resolved[key] for key in found}
 
 
-def _simulation_overrides(simulate: bool | None, replications: int | str | None,
-                          lost_sales: bool) -> dict[str, Any]:
+def _simulation_overrides(
+    simulate: bool | None, replications: int | str | None, lost_sales: bool
+) -> dict[str, Any]:
     """The back-test settings given on the command line or to the API, checked."""
     from .backtest import MAX_RUNS
 
@@ -172,16 +182,25 @@ def _number(value: float | str, what: str, rate: bool = False) -> float:
     return x
 
 
-def analyse(path: str | Path, *, service_measure: str | None = None,
-            service_target: float | str | None = None,
-            holding_rate: float | str | None = None, order_cost: float | str | None = None,
-            run_date: _dt.date | None = None, progress: Progress = silent,
-            allow_large: bool = False, stock_budget: float | str | None = None,
-            orders_cap: float | str | None = None,
-            exchange_curve: bool | None = None,
-            history: str | Path | None = None,
-            settings: dict[str, Any] | None = None, simulate: bool | None = None,
-            replications: int | None = None, lost_sales: bool = False) -> Report:
+def analyse(
+    path: str | Path,
+    *,
+    service_measure: str | None = None,
+    service_target: float | str | None = None,
+    holding_rate: float | str | None = None,
+    order_cost: float | str | None = None,
+    run_date: _dt.date | None = None,
+    progress: Progress = silent,
+    allow_large: bool = False,
+    stock_budget: float | str | None = None,
+    orders_cap: float | str | None = None,
+    exchange_curve: bool | None = None,
+    history: str | Path | None = None,
+    settings: dict[str, Any] | None = None,
+    simulate: bool | None = None,
+    replications: int | None = None,
+    lost_sales: bool = False,
+) -> Report:
     """Read, check and plan a workbook without writing anything.
 
     Raises UnusableWorkbook when the workbook cannot be used at all. ``progress`` is called
@@ -199,10 +218,19 @@ def analyse(path: str | Path, *, service_measure: str | None = None,
     xlpolicy.backtest).
     """
     log = ProblemLog()
-    overrides = {**_named_settings(settings),
-                 **_overrides(service_measure, service_target, holding_rate, order_cost,
-                              stock_budget=stock_budget, orders_cap=orders_cap,
-                              exchange_curve=exchange_curve, history=history)}
+    overrides = {
+        **_named_settings(settings),
+        **_overrides(
+            service_measure,
+            service_target,
+            holding_rate,
+            order_cost,
+            stock_budget=stock_budget,
+            orders_cap=orders_cap,
+            exchange_curve=exchange_curve,
+            history=history,
+        ),
+    }
     overrides.update(_simulation_overrides(simulate, replications, lost_sales))
     with guard.allow_large(allow_large):
         data = read_input(Path(path), overrides, log, progress, while_waiting=_warm_up)
@@ -210,13 +238,21 @@ def analyse(path: str | Path, *, service_measure: str | None = None,
         raise UnusableWorkbook([p for p in log.problems if p.severity is Severity.FATAL])
     progress("Planning", 0, None)
     from .planner import build_report
+
     report = build_report(data, log, Path(path).name, run_date)
     if report.input_summary["items_planned"] == 0:
         reasons = [p for p in log.sorted() if p.severity in (Severity.ERROR, Severity.WARNING)]
-        fatal = Problem(Severity.FATAL, data.items.sheet, "", "", None,
-                        f"No item in '{data.items.sheet}' could be planned "
-                        f"({report.input_summary['items_read']} read). Fix the problems listed "
-                        "and run again.", "no-usable-item")
+        fatal = Problem(
+            Severity.FATAL,
+            data.items.sheet,
+            "",
+            "",
+            None,
+            f"No item in '{data.items.sheet}' could be planned "
+            f"({report.input_summary['items_read']} read). Fix the problems listed "
+            "and run again.",
+            "no-usable-item",
+        )
         raise UnusableWorkbook([fatal, *reasons[:20]])
     return report
 
@@ -232,17 +268,29 @@ def check(path: str | Path, **overrides: Any) -> list[Problem]:
         return exc.problems
 
 
-def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path | None = None,
-         json: str | Path | None = None, service_measure: str | None = None,
-         service_target: float | str | None = None, holding_rate: float | str | None = None,
-         order_cost: float | str | None = None, write_workbook: bool = True,
-         run_date: _dt.date | None = None, progress: Progress = silent,
-         allow_large: bool = False, stock_budget: float | str | None = None,
-         orders_cap: float | str | None = None,
-         exchange_curve: bool | None = None,
-         history: str | Path | None = None,
-         settings: dict[str, Any] | None = None, simulate: bool | None = None,
-         replications: int | None = None, lost_sales: bool = False) -> PlanResult:
+def plan(
+    path: str | Path,
+    output: str | Path | None = None,
+    *,
+    csv: str | Path | None = None,
+    json: str | Path | None = None,
+    service_measure: str | None = None,
+    service_target: float | str | None = None,
+    holding_rate: float | str | None = None,
+    order_cost: float | str | None = None,
+    write_workbook: bool = True,
+    run_date: _dt.date | None = None,
+    progress: Progress = silent,
+    allow_large: bool = False,
+    stock_budget: float | str | None = None,
+    orders_cap: float | str | None = None,
+    exchange_curve: bool | None = None,
+    history: str | Path | None = None,
+    settings: dict[str, Any] | None = None,
+    simulate: bool | None = None,
+    replications: int | None = None,
+    lost_sales: bool = False,
+) -> PlanResult:
     """Plan every item in the workbook at ``path`` and write the results.
 
     The input file is never changed. By default the output is ``<name>-policy.xlsx`` beside
@@ -253,21 +301,35 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
     out = Path(output) if output is not None else default_output_path(src)
     if write_workbook:
         _check_output_path(src, out)
-    report = analyse(src, service_measure=service_measure, service_target=service_target,
-                     holding_rate=holding_rate, order_cost=order_cost, run_date=run_date,
-                     progress=progress, allow_large=allow_large, stock_budget=stock_budget,
-                     orders_cap=orders_cap, exchange_curve=exchange_curve,
-                     history=history, settings=settings, simulate=simulate,
-                     replications=replications, lost_sales=lost_sales)
+    report = analyse(
+        src,
+        service_measure=service_measure,
+        service_target=service_target,
+        holding_rate=holding_rate,
+        order_cost=order_cost,
+        run_date=run_date,
+        progress=progress,
+        allow_large=allow_large,
+        stock_budget=stock_budget,
+        orders_cap=orders_cap,
+        exchange_curve=exchange_curve,
+        history=history,
+        settings=settings,
+        simulate=simulate,
+        replications=replications,
+        lost_sales=lost_sales,
+    )
     result = PlanResult(report)
     if write_workbook:
         progress(f"Writing {out.name}", 0, None)
         try:
             result.output, result.standalone, result.sheets = write_policy_workbook(
-                src, out, report)
+                src, out, report
+            )
         except _output_too_large() as exc:
-            raise UnusableWorkbook([Problem(Severity.FATAL, "", "", "", None, str(exc),
-                                            "output-too-large")]) from None
+            raise UnusableWorkbook(
+                [Problem(Severity.FATAL, "", "", "", None, str(exc), "output-too-large")]
+            ) from None
     if csv is not None:
         write_csv(Path(csv), report)
         result.csv = Path(csv)
@@ -279,33 +341,44 @@ def plan(path: str | Path, output: str | Path | None = None, *, csv: str | Path 
 
 def _check_output_path(src: Path, out: Path) -> None:
     if out.resolve() == src.resolve():
-        raise UsageError(f"the output {out} is the input itself; xlpolicy never writes over "
-                         "your workbook. Choose another name with -o.")
+        raise UsageError(
+            f"the output {out} is the input itself; xlpolicy never writes over "
+            "your workbook. Choose another name with -o."
+        )
     if out.suffix.lower() not in (".xlsx", ".xlsm"):
-        raise UsageError(f"the output {out.name} must end in .xlsx (or .xlsm for a workbook "
-                         "with macros)")
+        raise UsageError(
+            f"the output {out.name} must end in .xlsx (or .xlsm for a workbook with macros)"
+        )
     if source_kind(src) != "xlsx" and out.suffix.lower() != ".xlsx":
-        raise UsageError(f"the output {out.name} must end in .xlsx: the results of "
-                         f"{KIND_NAMES[source_kind(src)]} go to an .xlsx workbook of their own")
+        raise UsageError(
+            f"the output {out.name} must end in .xlsx: the results of "
+            f"{KIND_NAMES[source_kind(src)]} go to an .xlsx workbook of their own"
+        )
     if src.is_file() and src.suffix.lower() == ".xlsm" and out.suffix.lower() != ".xlsm":
-        raise UsageError(f"{src.name} holds macros; its output must end in .xlsm to keep them "
-                         f"(e.g. {default_output_path(src).name})")
+        raise UsageError(
+            f"{src.name} holds macros; its output must end in .xlsm to keep them "
+            f"(e.g. {default_output_path(src).name})"
+        )
     if out.suffix.lower() == ".xlsm" and not (src.is_file() and src.suffix.lower() == ".xlsm"):
-        raise UsageError(f"the output {out.name} ends in .xlsm, but {src.name} holds no macros "
-                         "to keep; name it .xlsx (Excel refuses an .xlsm without macros "
-                         "inside)")
+        raise UsageError(
+            f"the output {out.name} ends in .xlsm, but {src.name} holds no macros "
+            "to keep; name it .xlsx (Excel refuses an .xlsm without macros "
+            "inside)"
+        )
     if not out.parent.exists():
         raise UsageError(f"the folder {out.parent} does not exist")
 
 
 def _output_too_large() -> type[Exception]:
     from .writing.sheets import OutputTooLarge
+
     return OutputTooLarge
 
 
 def _sheet_names(taken: list[str]) -> dict[str, str]:
     """Generated sheet names that do not clash with the user's own sheets."""
     from .writing.sheets import DEFAULT_SHEET_NAMES
+
     lower = {t.lower() for t in taken}
     names = {}
     for role, name in DEFAULT_SHEET_NAMES.items():
@@ -324,6 +397,7 @@ def write_policy_workbook(src: Path, out: Path, report: Report) -> tuple[Path, b
     Returns (path written, whether standalone, generated sheet names).
     """
     from .writing.sheets import DEFAULT_SHEET_NAMES, write_generated_workbook
+
     standalone_reason = None
     kind = source_kind(src)
     taken: list[str] = []
@@ -346,18 +420,24 @@ def write_policy_workbook(src: Path, out: Path, report: Report) -> tuple[Path, b
             except CannotMerge as exc:
                 standalone_reason = str(exc)
         if kind != "xlsx":
-            message = (f"Your input is {KIND_NAMES[kind]}, so the results were written to an "
-                       ".xlsx workbook of their own, without your sheets; your "
-                       + ("files are" if kind == "csv" else "workbook is") + " unchanged.")
+            message = (
+                f"Your input is {KIND_NAMES[kind]}, so the results were written to an "
+                ".xlsx workbook of their own, without your sheets; your "
+                + ("files are" if kind == "csv" else "workbook is")
+                + " unchanged."
+            )
         else:
-            message = (f"Your sheets could not be carried over intact ({standalone_reason}), so "
-                       "the results were written to a workbook of their own; your workbook is "
-                       "unchanged.")
+            message = (
+                f"Your sheets could not be carried over intact ({standalone_reason}), so "
+                "the results were written to a workbook of their own; your workbook is "
+                "unchanged."
+            )
         note = Problem(Severity.WARNING, "", "", "", None, message, "output-standalone")
         report.problems.insert(0, note)
         out = out.with_suffix(".xlsx")
-        sheets = write_generated_workbook(gen, report, dict(DEFAULT_SHEET_NAMES),
-                                          link_to_input=False)
+        sheets = write_generated_workbook(
+            gen, report, dict(DEFAULT_SHEET_NAMES), link_to_input=False
+        )
         with atomic_output(out) as tmp_out:
             shutil.copyfile(gen, tmp_out)
         return out, True, sheets

@@ -69,11 +69,15 @@ def simulation_runs(settings: dict[str, Any], log: ProblemLog, n_items: int = 0)
         if n_items <= AUTO_MAX_ITEMS:
             settings["simulation_runs"] = DEFAULT_RUNS
             settings.setdefault("sources", {})["simulation_runs"] = (
-                f"default (up to {AUTO_MAX_ITEMS:,} items)")
+                f"default (up to {AUTO_MAX_ITEMS:,} items)"
+            )
             return DEFAULT_RUNS
-        log.info(f"The back-test was left out: for {n_items:,} items it would add about "
-                 f"{n_items * 5 / 10_000:.0f} s. Use --simulate, or set 'Simulation runs' in "
-                 "Settings (100 is a good start), to have it.", code="backtest-skipped")
+        log.info(
+            f"The back-test was left out: for {n_items:,} items it would add about "
+            f"{n_items * 5 / 10_000:.0f} s. Use --simulate, or set 'Simulation runs' in "
+            "Settings (100 is a good start), to have it.",
+            code="backtest-skipped",
+        )
         return 0
     runs = 0
     if raw is not None:
@@ -86,10 +90,15 @@ def simulation_runs(settings: dict[str, Any], log: ProblemLog, n_items: int = 0)
         else:
             source = str((settings.get("sources") or {}).get("simulation_runs", ""))
             cell = source.split(" ", 1)[1] if source.startswith("Settings ") else ""
-            log.warning(f"Simulation runs must be a whole number from 0 to {MAX_RUNS} (100 is "
-                        "a good start); the back-test was left out. Write a number such as "
-                        "100, or 0 for none.", sheet="Settings" if cell else "", cell=cell,
-                        value=raw, code="setting-simulation_runs")
+            log.warning(
+                f"Simulation runs must be a whole number from 0 to {MAX_RUNS} (100 is "
+                "a good start); the back-test was left out. Write a number such as "
+                "100, or 0 for none.",
+                sheet="Settings" if cell else "",
+                cell=cell,
+                value=raw,
+                code="setting-simulation_runs",
+            )
             settings["simulation_runs"] = None
             return 0
     if simulate is False:
@@ -101,9 +110,14 @@ def simulation_runs(settings: dict[str, Any], log: ProblemLog, n_items: int = 0)
     return runs
 
 
-def run_backtest(results: pd.DataFrame, data: Any, idx: np.ndarray,
-                 demand: dict[str, np.ndarray], log: ProblemLog,
-                 seed: int = SEED) -> dict[str, Any] | None:
+def run_backtest(
+    results: pd.DataFrame,
+    data: Any,
+    idx: np.ndarray,
+    demand: dict[str, np.ndarray],
+    log: ProblemLog,
+    seed: int = SEED,
+) -> dict[str, Any] | None:
     """Simulate the planned items (rows idx of results) if the settings ask for it.
 
     Fills the SIMULATION_RESULT_KEYS columns of those rows and logs a warning for each item
@@ -146,30 +160,57 @@ def run_backtest(results: pd.DataFrame, data: Any, idx: np.ndarray,
         start = demand["span_start"][idx][h]
         span = n_cols - start
         m = hist.matrix[rows[h]]
-        groups.append((h, BlockBootstrap(m, start, block_length(lt[h], span), horizon),
-                       SOURCE_BOOTSTRAP))
+        groups.append(
+            (h, BlockBootstrap(m, start, block_length(lt[h], span), horizon), SOURCE_BOOTSTRAP)
+        )
     f = np.flatnonzero(~from_hist)
     if f.size:
-        groups.append((f, ModelDraws(results.loc[idx, "model"].to_numpy(object)[f],
-                                     num("demand_per_period")[f],
-                                     num("demand_sd_per_period")[f], horizon), SOURCE_MODEL))
+        groups.append(
+            (
+                f,
+                ModelDraws(
+                    results.loc[idx, "model"].to_numpy(object)[f],
+                    num("demand_per_period")[f],
+                    num("demand_sd_per_period")[f],
+                    horizon,
+                ),
+                SOURCE_MODEL,
+            )
+        )
     rng = np.random.default_rng(seed)
     for k, src, label in groups:
-        res = simulate_policy(q[k], r[k], lt[k], lsd[k], src, seed=rng, order_cost=S[k],
-                              holding_cost=H[k], shortage_cost=p[k], **common)
+        res = simulate_policy(
+            q[k],
+            r[k],
+            lt[k],
+            lsd[k],
+            src,
+            seed=rng,
+            order_cost=S[k],
+            holding_cost=H[k],
+            shortage_cost=p[k],
+            **common,
+        )
         c = dict(res.columns)
         if label == SOURCE_BOOTSTRAP:  # allow for the history's own length (see core)
             c.update(history_band(c, span, lt[k]))
-        for key in ("cycle_service", "cycle_service_low", "cycle_service_high", "fill_rate",
-                    "fill_rate_low", "fill_rate_high"):
+        for key in (
+            "cycle_service",
+            "cycle_service_low",
+            "cycle_service_high",
+            "fill_rate",
+            "fill_rate_low",
+            "fill_rate_high",
+        ):
             out[f"simulated_{key}"][k] = c[key]
         out["simulated_average_on_hand"][k] = c["average_on_hand"]
         out["simulated_orders_per_year"][k] = c["orders_per_year"]
         out["simulated_annual_total_cost"][k] = c["annual_total_cost"]
         source[k] = np.where(np.isfinite(c["cycle_service"]), label, "")
         if label == SOURCE_BOOTSTRAP:
-            rep = simulate_policy(q[k], r[k], lt[k], lsd[k],
-                                  HistoryReplay(src.matrix, src.start), seed=rng, **common)
+            rep = simulate_policy(
+                q[k], r[k], lt[k], lsd[k], HistoryReplay(src.matrix, src.start), seed=rng, **common
+            )
             out["replayed_cycle_service"][k] = rep.columns["cycle_service"]
 
     measure = str(settings.get("service_measure"))
@@ -186,8 +227,13 @@ def run_backtest(results: pd.DataFrame, data: Any, idx: np.ndarray,
     _warn(results, data, idx, check, promised, fill, runs, log)
 
     # the stock trace: the items whose simulated service falls furthest below the promise
-    gap = np.where(done, np.nan_to_num(promised - out["simulated_cycle_service" if not fill
-                                                    else "simulated_fill_rate"]), -np.inf)
+    gap = np.where(
+        done,
+        np.nan_to_num(
+            promised - out["simulated_cycle_service" if not fill else "simulated_fill_rate"]
+        ),
+        -np.inf,
+    )
     cost = np.where(done, np.nan_to_num(num("annual_total_cost")), -np.inf)
     order = np.lexsort((-cost, -gap))
     pick = [int(j) for j in order if done[j]][:TRACE_ITEMS]
@@ -197,8 +243,10 @@ def run_backtest(results: pd.DataFrame, data: Any, idx: np.ndarray,
     hist_pick = pick_a[from_hist[pick_a]]
     model_pick = pick_a[~from_hist[pick_a]]
     rows_out: list[dict[str, Any]] = []
-    labels = [str(x.isoformat() if hasattr(x, "isoformat") else x) for x in
-              (hist.labels if hist is not None else [])]
+    labels = [
+        str(x.isoformat() if hasattr(x, "isoformat") else x)
+        for x in (hist.labels if hist is not None else [])
+    ]
     for sel, is_hist in ((hist_pick, True), (model_pick, False)):
         if not sel.size:
             continue
@@ -207,32 +255,61 @@ def run_backtest(results: pd.DataFrame, data: Any, idx: np.ndarray,
             first = demand["span_start"][idx][sel]
             what = "its own history, as it was"
         else:
-            src = ModelDraws(results.loc[idx, "model"].to_numpy(object)[sel],
-                             num("demand_per_period")[sel], num("demand_sd_per_period")[sel],
-                             horizon)
+            src = ModelDraws(
+                results.loc[idx, "model"].to_numpy(object)[sel],
+                num("demand_per_period")[sel],
+                num("demand_sd_per_period")[sel],
+                horizon,
+            )
             first = np.zeros(sel.size, dtype=np.int64)
             what = "draws from its demand model (the first run)"
-        tr = simulate_policy(q[sel], r[sel], lt[sel], lsd[sel], src, replications=1,
-                             seed=np.random.default_rng(seed + 1), lost_sales=lost,
-                             periods_per_year=ppy, trace_items=np.arange(sel.size)).trace
+        tr = simulate_policy(
+            q[sel],
+            r[sel],
+            lt[sel],
+            lsd[sel],
+            src,
+            replications=1,
+            seed=np.random.default_rng(seed + 1),
+            lost_sales=lost,
+            periods_per_year=ppy,
+            trace_items=np.arange(sel.size),
+        ).trace
         for j, loc in enumerate(sel):
             i = idx[loc]
             t0 = int(first[j])
             n_t = tr["net_stock"].shape[1]
-            lab = labels[t0:n_t] if is_hist and len(labels) >= n_t else [
-                str(k + 1) for k in range(t0, n_t)]
-            rows_out.append({
-                "row": int(i), "item": results.at[i, "item"],
-                "description": results.at[i, "description"], "order_qty": float(q[loc]),
-                "reorder_point": float(r[loc]), "source": what, "labels": lab,
-                **{k: tr[k][j, t0:] for k in ("demand", "net_stock", "position", "ordered")},
-            })
+            lab = (
+                labels[t0:n_t]
+                if is_hist and len(labels) >= n_t
+                else [str(k + 1) for k in range(t0, n_t)]
+            )
+            rows_out.append(
+                {
+                    "row": int(i),
+                    "item": results.at[i, "item"],
+                    "description": results.at[i, "description"],
+                    "order_qty": float(q[loc]),
+                    "reorder_point": float(r[loc]),
+                    "source": what,
+                    "labels": lab,
+                    **{k: tr[k][j, t0:] for k in ("demand", "net_stock", "position", "ordered")},
+                }
+            )
     rows_out.sort(key=lambda d: pick.index(int(np.flatnonzero(idx == d["row"])[0])))
     return {"items": rows_out, "unmet": "lost" if lost else "backordered"}
 
 
-def _warn(results: pd.DataFrame, data: Any, idx: np.ndarray, check: np.ndarray,
-          promised: np.ndarray, fill: bool, runs: int, log: ProblemLog) -> None:
+def _warn(
+    results: pd.DataFrame,
+    data: Any,
+    idx: np.ndarray,
+    check: np.ndarray,
+    promised: np.ndarray,
+    fill: bool,
+    runs: int,
+    log: ProblemLog,
+) -> None:
     """A warning per item short of its promise; a note per item clearly above it."""
     what = "fill rate" if fill else "cycle service"
     key = "simulated_fill_rate" if fill else "simulated_cycle_service"
@@ -244,22 +321,35 @@ def _warn(results: pd.DataFrame, data: Any, idx: np.ndarray, check: np.ndarray,
         lo, hi = float(results.at[i, f"{key}_low"]), float(results.at[i, f"{key}_high"])
         src = str(results.at[i, "simulation_source"])
         model = str(results.at[i, "model"])
-        how = ("resamples of its own history" if src == SOURCE_BOOTSTRAP
-               else f"draws from its {model} model")
+        how = (
+            "resamples of its own history"
+            if src == SOURCE_BOOTSTRAP
+            else f"draws from its {model} model"
+        )
         band = f"{sim:.1%} (95 % band {lo:.1%} to {hi:.1%}, {runs} runs on {how})"
-        where = dict(sheet=items.sheet, cell=items.cell("item", int(rows[j])),
-                     item=results.at[i, "item"], value=round(sim, 4))
+        where = dict(
+            sheet=items.sheet,
+            cell=items.cell("item", int(rows[j])),
+            item=results.at[i, "item"],
+            value=round(sim, 4),
+        )
         if check[j] < 0:
-            log.warning(f"Back-test: simulated {what} {band} falls short of the "
-                        f"{promised[j]:.1%} the {model} model promises, so the model misreads "
-                        "this item's demand. Raise the reorder point (or try another Demand "
-                        "model) until the simulated figure reaches the target.",
-                        code="simulated-service-short", **where)
+            log.warning(
+                f"Back-test: simulated {what} {band} falls short of the "
+                f"{promised[j]:.1%} the {model} model promises, so the model misreads "
+                "this item's demand. Raise the reorder point (or try another Demand "
+                "model) until the simulated figure reaches the target.",
+                code="simulated-service-short",
+                **where,
+            )
         else:
-            log.info(f"Back-test: simulated {what} {band} is above the {promised[j]:.1%} the "
-                     f"{model} model promises; the reorder point may hold more safety stock "
-                     "than the target needs. Check it before lowering it.",
-                     code="simulated-service-above", **where)
+            log.info(
+                f"Back-test: simulated {what} {band} is above the {promised[j]:.1%} the "
+                f"{model} model promises; the reorder point may hold more safety stock "
+                "than the target needs. Check it before lowering it.",
+                code="simulated-service-above",
+                **where,
+            )
 
 
 def backtest_totals(results: pd.DataFrame, totals: dict[str, float]) -> pd.DataFrame:
@@ -276,11 +366,14 @@ def backtest_totals(results: pd.DataFrame, totals: dict[str, float]) -> pd.DataF
     done = done & planned
     target = pd.to_numeric(results["service_target"], errors="coerce").to_numpy(float)
     measure = results["service_measure"].astype(str).to_numpy()
-    hi_key = np.where(measure == FILL_RATE, "simulated_fill_rate_high",
-                      "simulated_cycle_service_high")
-    hi = np.where(hi_key == "simulated_fill_rate_high",
-                  results["simulated_fill_rate_high"].to_numpy(float),
-                  results["simulated_cycle_service_high"].to_numpy(float))
+    hi_key = np.where(
+        measure == FILL_RATE, "simulated_fill_rate_high", "simulated_cycle_service_high"
+    )
+    hi = np.where(
+        hi_key == "simulated_fill_rate_high",
+        results["simulated_fill_rate_high"].to_numpy(float),
+        results["simulated_cycle_service_high"].to_numpy(float),
+    )
     with_target = done & np.isfinite(target) & (measure != SHORTAGE_COST)
     with np.errstate(invalid="ignore"):
         meets = with_target & (hi + 1e-12 >= target - MARGIN)
@@ -288,5 +381,6 @@ def backtest_totals(results: pd.DataFrame, totals: dict[str, float]) -> pd.DataF
     totals["items_with_target_simulated"] = float(with_target.sum())
     totals["items_meeting_target_in_simulation"] = float(meets.sum())
     totals["items_short_in_simulation"] = float(
-        (done & (results["simulation_check"].astype(str) == CHECK_TEXT[-1]).to_numpy()).sum())
+        (done & (results["simulation_check"].astype(str) == CHECK_TEXT[-1]).to_numpy()).sum()
+    )
     return results

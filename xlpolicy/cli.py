@@ -62,51 +62,95 @@ class _Bar:
 
 def _override_options(f: Any) -> Any:
     """Options that override the workbook's Settings sheet, shared by plan and check."""
-    f = click.option("--history", "history", type=click.Path(path_type=Path, exists=True,
-                                                            dir_okay=False),
-                     default=None, metavar="FILE",
-                     help="Read the sales history from this CSV or Parquet file (columns Item, "
-                          "Period, Quantity) instead of the History sheet: for a history "
-                          "longer than a sheet holds.")(f)
-    f = click.option("--order-cost", type=str, default=None, metavar="MONEY",
-                     help="Cost of one order, for items that leave it blank.")(f)
-    f = click.option("--holding-rate", type=str, default=None, metavar="RATE",
-                     help="Yearly holding cost as a fraction of unit cost, e.g. 0.25 or 25%, for "
-                          "items that leave it blank.")(f)
-    f = click.option("--target", "service_target", type=str, default=None, metavar="RATE",
-                     help="Service target for items that leave it blank, e.g. 0.95 or 95%.")(f)
-    f = click.option("--measure", "service_measure", default=None, metavar="MEASURE",
-                     help="How the reorder point is set: "
-                          + ", ".join(f"'{m}'" for m in SERVICE_MEASURES)
-                          + " (or cycle-service, fill-rate, shortage-cost). Default: the "
-                          "Settings sheet, else 'cycle service'.")(f)
+    f = click.option(
+        "--history",
+        "history",
+        type=click.Path(path_type=Path, exists=True, dir_okay=False),
+        default=None,
+        metavar="FILE",
+        help="Read the sales history from this CSV or Parquet file (columns Item, "
+        "Period, Quantity) instead of the History sheet: for a history "
+        "longer than a sheet holds.",
+    )(f)
+    f = click.option(
+        "--order-cost",
+        type=str,
+        default=None,
+        metavar="MONEY",
+        help="Cost of one order, for items that leave it blank.",
+    )(f)
+    f = click.option(
+        "--holding-rate",
+        type=str,
+        default=None,
+        metavar="RATE",
+        help="Yearly holding cost as a fraction of unit cost, e.g. 0.25 or 25%, for "
+        "items that leave it blank.",
+    )(f)
+    f = click.option(
+        "--target",
+        "service_target",
+        type=str,
+        default=None,
+        metavar="RATE",
+        help="Service target for items that leave it blank, e.g. 0.95 or 95%.",
+    )(f)
+    f = click.option(
+        "--measure",
+        "service_measure",
+        default=None,
+        metavar="MEASURE",
+        help="How the reorder point is set: "
+        + ", ".join(f"'{m}'" for m in SERVICE_MEASURES)
+        + " (or cycle-service, fill-rate, shortage-cost). Default: the "
+        "Settings sheet, else 'cycle service'.",
+    )(f)
     return f
 
 
 def _portfolio_options(f: Any) -> Any:
     """--budget, --orders-cap, --curve/--no-curve: decisions across all items (over Settings)."""
-    f = click.option("--curve/--no-curve", "curve", default=None,
-                     help="Trace the exchange curve on the Summary, or leave it out (a faster "
-                          "run). Default: the Settings row, else only up to 20,000 items.")(f)
-    f = click.option("--orders-cap", type=str, default=None, metavar="N",
-                     help="Cap on the orders a year, all items together; order quantities "
-                          "are raised at least cost to meet it.")(f)
-    f = click.option("--budget", "stock_budget", type=str, default=None, metavar="MONEY",
-                     help="Cap on the average value of all stock held; order quantities "
-                          "are lowered at least cost to meet it.")(f)
+    f = click.option(
+        "--curve/--no-curve",
+        "curve",
+        default=None,
+        help="Trace the exchange curve on the Summary, or leave it out (a faster "
+        "run). Default: the Settings row, else only up to 20,000 items.",
+    )(f)
+    f = click.option(
+        "--orders-cap",
+        type=str,
+        default=None,
+        metavar="N",
+        help="Cap on the orders a year, all items together; order quantities "
+        "are raised at least cost to meet it.",
+    )(f)
+    f = click.option(
+        "--budget",
+        "stock_budget",
+        type=str,
+        default=None,
+        metavar="MONEY",
+        help="Cap on the average value of all stock held; order quantities "
+        "are lowered at least cost to meet it.",
+    )(f)
     return f
 
 
-def _caps(stock_budget: str | None, orders_cap: str | None,
-          curve: bool | None) -> dict[str, Any]:
+def _caps(stock_budget: str | None, orders_cap: str | None, curve: bool | None) -> dict[str, Any]:
     return {"stock_budget": stock_budget, "orders_cap": orders_cap, "exchange_curve": curve}
 
 
 def _set_option(f: Any) -> Any:
     """--set NAME=VALUE: any Settings row from the command line (repeatable)."""
-    return click.option("--set", "named", multiple=True, metavar="NAME=VALUE",
-                        help="Any setting of the Settings sheet, by name, e.g. "
-                             "--set 'Service target A=99%'. Repeatable; overrides the sheet.")(f)
+    return click.option(
+        "--set",
+        "named",
+        multiple=True,
+        metavar="NAME=VALUE",
+        help="Any setting of the Settings sheet, by name, e.g. "
+        "--set 'Service target A=99%'. Repeatable; overrides the sheet.",
+    )(f)
 
 
 def _named(pairs: tuple[str, ...]) -> dict[str, str]:
@@ -115,18 +159,20 @@ def _named(pairs: tuple[str, ...]) -> dict[str, str]:
     for pair in pairs:
         name, eq, value = pair.partition("=")
         if not eq or not name.strip():
-            raise click.UsageError(f"--set {pair!r}: write NAME=VALUE, e.g. "
-                                   "'Service target A=99%'")
+            raise click.UsageError(f"--set {pair!r}: write NAME=VALUE, e.g. 'Service target A=99%'")
         out[name.strip()] = value.strip()
     return out
 
 
 def _allow_large_option(f: Any) -> Any:
     """--allow-large: raise the limits that keep zip bombs out (for a trusted, huge file)."""
-    return click.option("--allow-large", is_flag=True,
-                        help="Read a trusted workbook that unpacks to more than the safety "
-                             "limits allow (they keep out files made to exhaust memory); "
-                             "raises them tenfold. Same as XLPOLICY_ALLOW_LARGE=1.")(f)
+    return click.option(
+        "--allow-large",
+        is_flag=True,
+        help="Read a trusted workbook that unpacks to more than the safety "
+        "limits allow (they keep out files made to exhaust memory); "
+        "raises them tenfold. Same as XLPOLICY_ALLOW_LARGE=1.",
+    )(f)
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
@@ -141,34 +187,73 @@ def main() -> None:
 
 @main.command()
 @click.argument("workbook", type=click.Path(path_type=Path))
-@click.option("-o", "--output", type=click.Path(path_type=Path), default=None,
-              help="Where to write the policy workbook (default: <name>-policy.xlsx beside "
-                   "the input).")
-@click.option("--csv", "csv_path", type=click.Path(path_type=Path), default=None,
-              help="Also write the per-item table as CSV.")
-@click.option("--json", "json_path", type=click.Path(path_type=Path), default=None,
-              help="Also write the per-item table, problems and totals as JSON.")
+@click.option(
+    "-o",
+    "--output",
+    type=click.Path(path_type=Path),
+    default=None,
+    help="Where to write the policy workbook (default: <name>-policy.xlsx beside the input).",
+)
+@click.option(
+    "--csv",
+    "csv_path",
+    type=click.Path(path_type=Path),
+    default=None,
+    help="Also write the per-item table as CSV.",
+)
+@click.option(
+    "--json",
+    "json_path",
+    type=click.Path(path_type=Path),
+    default=None,
+    help="Also write the per-item table, problems and totals as JSON.",
+)
 @_override_options
 @_portfolio_options
 @_set_option
 @_allow_large_option
-@click.option("--simulate/--no-simulate", "simulate", default=None,
-              help="Back-test each policy by simulating it on resamples of the item's own "
-                   "demand, and warn where it falls short of what it promises. Default: as "
-                   "the Settings sheet's 'Simulation runs' says (off when blank).")
-@click.option("--replications", type=str, default=None, metavar="N",
-              help="Simulation runs per item for --simulate (default: the Settings value, "
-                   "else 100); giving it turns the back-test on.")
-@click.option("--lost-sales", is_flag=True,
-              help="In the back-test, demand that finds no stock is lost rather than "
-                   "backordered.")
+@click.option(
+    "--simulate/--no-simulate",
+    "simulate",
+    default=None,
+    help="Back-test each policy by simulating it on resamples of the item's own "
+    "demand, and warn where it falls short of what it promises. Default: as "
+    "the Settings sheet's 'Simulation runs' says (off when blank).",
+)
+@click.option(
+    "--replications",
+    type=str,
+    default=None,
+    metavar="N",
+    help="Simulation runs per item for --simulate (default: the Settings value, "
+    "else 100); giving it turns the back-test on.",
+)
+@click.option(
+    "--lost-sales",
+    is_flag=True,
+    help="In the back-test, demand that finds no stock is lost rather than backordered.",
+)
 @click.option("-q", "--quiet", is_flag=True, help="Print only the path written and errors.")
-def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: Path | None,
-         service_measure: str | None, service_target: str | None, holding_rate: str | None,
-         order_cost: str | None, history: Path | None, stock_budget: str | None,
-         orders_cap: str | None, curve: bool | None, named: tuple[str, ...], allow_large: bool,
-         simulate: bool | None, replications: str | None, lost_sales: bool,
-         quiet: bool) -> None:
+def plan(
+    workbook: Path,
+    output: Path | None,
+    csv_path: Path | None,
+    json_path: Path | None,
+    service_measure: str | None,
+    service_target: str | None,
+    holding_rate: str | None,
+    order_cost: str | None,
+    history: Path | None,
+    stock_budget: str | None,
+    orders_cap: str | None,
+    curve: bool | None,
+    named: tuple[str, ...],
+    allow_large: bool,
+    simulate: bool | None,
+    replications: str | None,
+    lost_sales: bool,
+    quiet: bool,
+) -> None:
     """Compute the policy for every item and write the policy workbook.
 
     Your WORKBOOK is never changed. The output holds your own sheets plus Policy, Summary,
@@ -176,12 +261,27 @@ def plan(workbook: Path, output: Path | None, csv_path: Path | None, json_path: 
     """
     bar = _Bar(quiet)
     given = _named(named)
-    result = _run(lambda: api.plan(
-        workbook, output, csv=csv_path, json=json_path, service_measure=service_measure,
-        service_target=service_target, holding_rate=holding_rate, order_cost=order_cost,
-        progress=bar, allow_large=allow_large, history=history, settings=given,
-        simulate=simulate, replications=replications, lost_sales=lost_sales,
-        **_caps(stock_budget, orders_cap, curve)), bar)
+    result = _run(
+        lambda: api.plan(
+            workbook,
+            output,
+            csv=csv_path,
+            json=json_path,
+            service_measure=service_measure,
+            service_target=service_target,
+            holding_rate=holding_rate,
+            order_cost=order_cost,
+            progress=bar,
+            allow_large=allow_large,
+            history=history,
+            settings=given,
+            simulate=simulate,
+            replications=replications,
+            lost_sales=lost_sales,
+            **_caps(stock_budget, orders_cap, curve),
+        ),
+        bar,
+    )
     _print_run(result, quiet)
 
 
@@ -221,22 +321,40 @@ def _print_run(result: api.PlanResult, quiet: bool) -> None:
 @_portfolio_options
 @_set_option
 @_allow_large_option
-def check(workbook: Path, service_measure: str | None, service_target: str | None,
-          holding_rate: str | None, order_cost: str | None, history: Path | None,
-          stock_budget: str | None, orders_cap: str | None, curve: bool | None,
-          named: tuple[str, ...],
-          allow_large: bool) -> None:
+def check(
+    workbook: Path,
+    service_measure: str | None,
+    service_target: str | None,
+    holding_rate: str | None,
+    order_cost: str | None,
+    history: Path | None,
+    stock_budget: str | None,
+    orders_cap: str | None,
+    curve: bool | None,
+    named: tuple[str, ...],
+    allow_large: bool,
+) -> None:
     """Report every problem in WORKBOOK without writing anything.
 
     Exit status 0 if it can be planned (possibly with warnings), 1 if it cannot.
     """
     bar = _Bar()
     given = _named(named)
-    report = _run(lambda: api.analyse(
-        workbook, service_measure=service_measure, service_target=service_target,
-        holding_rate=holding_rate, order_cost=order_cost, progress=bar,
-        allow_large=allow_large, history=history, settings=given,
-        **_caps(stock_budget, orders_cap, curve)), bar)
+    report = _run(
+        lambda: api.analyse(
+            workbook,
+            service_measure=service_measure,
+            service_target=service_target,
+            holding_rate=holding_rate,
+            order_cost=order_cost,
+            progress=bar,
+            allow_large=allow_large,
+            history=history,
+            settings=given,
+            **_caps(stock_budget, orders_cap, curve),
+        ),
+        bar,
+    )
     _print_read(report)
     _print_problems(report.problems, limit=None)
     if not report.problems:
@@ -274,10 +392,14 @@ def _run(fn: Any, bar: _Bar | None = None) -> Any:
     try:
         return call()
     except KeyboardInterrupt:
-        click.echo(click.style(
-            "Stopped before the end. Nothing half-written was left behind: an output file is "
-            "only put in place once complete, and your workbook is unchanged.", fg="red"),
-            err=True)
+        click.echo(
+            click.style(
+                "Stopped before the end. Nothing half-written was left behind: an output file is "
+                "only put in place once complete, and your workbook is unchanged.",
+                fg="red",
+            ),
+            err=True,
+        )
         sys.exit(130)
     except api.UsageError as exc:
         raise click.UsageError(str(exc)) from None
@@ -289,16 +411,22 @@ def _run(fn: Any, bar: _Bar | None = None) -> Any:
         name = getattr(exc, "filename", None) or ""
         msg = getattr(exc, "user_message", None) or (
             f"{name}: {exc.strerror or exc}. If the file is open in another program, close it "
-            "and try again.")
+            "and try again."
+        )
         click.echo(click.style(f"Could not write: {msg}", fg="red"), err=True)
         sys.exit(1)
     except Exception as exc:  # a bug of ours: say so plainly; traceback on request
         if os.environ.get("XLPOLICY_DEBUG"):
             raise
-        click.echo(click.style(
-            f"xlpolicy hit an internal error ({type(exc).__name__}: {exc}). Your workbook was "
-            "not changed. Please report this with the workbook if you can; set "
-            "XLPOLICY_DEBUG=1 for details.", fg="red"), err=True)
+        click.echo(
+            click.style(
+                f"xlpolicy hit an internal error ({type(exc).__name__}: {exc}). Your workbook was "
+                "not changed. Please report this with the workbook if you can; set "
+                "XLPOLICY_DEBUG=1 for details.",
+                fg="red",
+            ),
+            err=True,
+        )
         sys.exit(1)
     finally:
         _restore_sigterm(previous)
@@ -306,6 +434,7 @@ def _run(fn: Any, bar: _Bar | None = None) -> Any:
 
 def _stop_on_sigterm() -> Any:
     """Let a termination signal stop the run like Ctrl-C, so temporary files are removed."""
+
     def stop(signum: int, frame: Any) -> None:
         raise KeyboardInterrupt
 
@@ -324,12 +453,19 @@ def _restore_sigterm(previous: Any) -> None:
 def _print_read(report: Report) -> None:
     s = report.input_summary
     layout = s.get("history_layout")
-    hist = (f"History: {s.get('history_items', 0)} items x {s.get('periods', 0)} "
-            f"{s.get('period', 'period')}s ({layout} layout)") if layout != "none" else (
-        "no History sheet")
+    hist = (
+        (
+            f"History: {s.get('history_items', 0)} items x {s.get('periods', 0)} "
+            f"{s.get('period', 'period')}s ({layout} layout)"
+        )
+        if layout != "none"
+        else ("no History sheet")
+    )
     click.echo(f"Read {s.get('file')}: {s.get('items_read')} items; {hist}.")
-    click.echo(f"Planned {s.get('items_planned')} items, skipped {s.get('items_skipped')}; "
-               f"service measure: {report.settings['service_measure']}.")
+    click.echo(
+        f"Planned {s.get('items_planned')} items, skipped {s.get('items_skipped')}; "
+        f"service measure: {report.settings['service_measure']}."
+    )
 
 
 def _print_problems(problems: list[Problem], limit: int | None = 10, err: bool = False) -> None:
@@ -342,8 +478,12 @@ def _print_problems(problems: list[Problem], limit: int | None = 10, err: bool =
     for p in shown:
         where = p.where()
         item = f" [{p.item}]" if p.item else ""
-        click.echo("  " + click.style(f"{p.severity.value:<7}", **_SEVERITY_STYLE[p.severity])
-                   + f" {where}{item}: {p.message}", err=err)
+        click.echo(
+            "  "
+            + click.style(f"{p.severity.value:<7}", **_SEVERITY_STYLE[p.severity])
+            + f" {where}{item}: {p.message}",
+            err=err,
+        )
     if limit is not None and len(problems) > limit:
         click.echo(f"  ... and {len(problems) - limit} more: see the Warnings sheet.", err=err)
 
@@ -357,21 +497,26 @@ def _print_totals(report: Report) -> None:
 
     rows = [
         ("Annual ordering cost", money(t["annual_ordering_cost"])),
-        ("Annual holding cost (cycle + safety)",
-         money(t["annual_cycle_holding_cost"] + t["annual_safety_holding_cost"])),
+        (
+            "Annual holding cost (cycle + safety)",
+            money(t["annual_cycle_holding_cost"] + t["annual_safety_holding_cost"]),
+        ),
         ("Annual shortage cost", money(t["annual_shortage_cost"])),
         ("Annual total cost", money(t["annual_total_cost"])),
         ("Average inventory value", money(t["average_inventory_value"])),
-        ("Items to reorder now", f"{int(t['items_to_reorder'])} "
-                                 f"({money(t['reorder_value'])})"),
+        ("Items to reorder now", f"{int(t['items_to_reorder'])} ({money(t['reorder_value'])})"),
     ]
     cap = (report.portfolio or {}).get("cap")
     if cap is not None and cap.binding:
         rows.append(("Yearly cost of keeping to the cap", money(cap.cost_of_cap)))
     if t.get("items_simulated"):
-        rows.append(("Meet their target in simulation",
-                     f"{int(t['items_meeting_target_in_simulation'])} of "
-                     f"{int(t['items_with_target_simulated'])}"))
+        rows.append(
+            (
+                "Meet their target in simulation",
+                f"{int(t['items_meeting_target_in_simulation'])} of "
+                f"{int(t['items_with_target_simulated'])}",
+            )
+        )
     width = max(len(k) for k, _ in rows)
     for k, v in rows:
         click.echo(f"  {k:<{width}}  {v:>16}")

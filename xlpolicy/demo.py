@@ -118,7 +118,8 @@ ITEMS: tuple[Spec, ...] = (
 ) + tuple(
     # The rest of the catalogue: (code, description, category, supplier, cost, pattern,
     # units a week, pack). Invented, like everything here.
-    Spec(*row) for row in (
+    Spec(*row)
+    for row in (
         ("000431", "Inner tube 27.5x2.1-2.4, presta", TT, "NCW", 5.40, "medium", 9, 10),
         ("000432", "Inner tube 700x18-25c, presta 60 mm", TT, "NCW", 4.90, "medium", 6, 10),
         ("000433", "Inner tube 16x1.75, schrader (kids)", TT, "NCW", 3.60, "slow", 1.1, 10),
@@ -204,24 +205,47 @@ ITEMS: tuple[Spec, ...] = (
 # Items whose stock is deliberately low (below any sensible reorder point, nothing on order).
 LOW_STOCK = {"000415", "BR-101", "DT-220", "LT-301", "LT-302", "AC-221", "000501", "DT-202"}
 # Items whose Holding rate cell is filled in (others use the Settings default of 25%).
-HOLDING = {"LT-301": 0.30, "LT-302": 0.30, "LT-305": 0.30, "LT-310": 0.30,
-           "000501": 0.20, "000502": 0.20, "000505": 0.20}
+HOLDING = {
+    "LT-301": 0.30,
+    "LT-302": 0.30,
+    "LT-305": 0.30,
+    "LT-310": 0.30,
+    "000501": 0.20,
+    "000502": 0.20,
+    "000505": 0.20,
+}
 HOLDING_AS_TEXT = {"000503": "20%"}  # typed as text: the contract accepts it
-SERVICE = {"000411": 0.98, "000415": 0.98, "DT-220": 0.98, "000501": 0.98,
-           "DT-211": 0.90, "000424": 0.90}
+SERVICE = {
+    "000411": 0.98,
+    "000415": 0.98,
+    "DT-220": 0.98,
+    "000501": 0.98,
+    "DT-211": 0.90,
+    "000424": 0.90,
+}
 SHORTAGE = {"000411": 6.0, "DT-201": 10.0, "BR-101": 8.0, "000501": 4.0}
 ANNUAL_SD = {"DT-225": 1.1, "TL-405": 0.7}  # demand sd per week for the "annual" items
 
 # The deliberate mistakes (documented in examples/README.md).
-MISTAKE_TEXT_COST = "BR-130"      # unit cost typed as "n/a"
-MISTAKE_TARGET = "DT-203"         # service target 1.5
-MISTAKE_LEAD = "AC-231"           # lead time -10 days
-DUPLICATE = Spec("000421", "Tyre 700x35c hybrid, reflective sidewall", TT, "NCW", 22.50,
-                 "medium", 0)     # a second row with the same code as "000421"
-UNKNOWN_CODE = "000422"           # sold in History, but not listed in Items
+MISTAKE_TEXT_COST = "BR-130"  # unit cost typed as "n/a"
+MISTAKE_TARGET = "DT-203"  # service target 1.5
+MISTAKE_LEAD = "AC-231"  # lead time -10 days
+DUPLICATE = Spec(
+    "000421", "Tyre 700x35c hybrid, reflective sidewall", TT, "NCW", 22.50, "medium", 0
+)  # a second row with the same code as "000421"
+UNKNOWN_CODE = "000422"  # sold in History, but not listed in Items
 
-WIDE_ITEMS = ("000411", "000415", "000420", "BR-101", "DT-201", "DT-220", "LT-301",
-              "AC-220", "000501")
+WIDE_ITEMS = (
+    "000411",
+    "000415",
+    "000420",
+    "BR-101",
+    "DT-201",
+    "DT-220",
+    "LT-301",
+    "AC-220",
+    "000501",
+)
 
 TITLE_FONT = Font(bold=True, size=14)
 HEADER_FONT = Font(bold=True)
@@ -324,11 +348,27 @@ def _fix_dates(wb: Workbook) -> None:
 
 
 ITEM_HEADERS = [
-    "Item code", "Description", "Category", "Supplier", "Unit cost ($)", "Order cost ($)",
-    "Holding rate (%)", "Lead time (days)", "Lead time SD (days)", "Service target",
-    "Shortage cost ($/unit)", "Pack size", "Min order", "On hand", "On order",
-    "Current order qty", "Current reorder point", "Annual demand", "Demand SD (per week)",
-    "Shelf life (days)", "Review every (days)",
+    "Item code",
+    "Description",
+    "Category",
+    "Supplier",
+    "Unit cost ($)",
+    "Order cost ($)",
+    "Holding rate (%)",
+    "Lead time (days)",
+    "Lead time SD (days)",
+    "Service target",
+    "Shortage cost ($/unit)",
+    "Pack size",
+    "Min order",
+    "On hand",
+    "On order",
+    "Current order qty",
+    "Current reorder point",
+    "Annual demand",
+    "Demand SD (per week)",
+    "Shelf life (days)",
+    "Review every (days)",
 ]
 
 #: Invented buyer's details: a shelf life, periodic review for one supplier's workshop
@@ -336,16 +376,31 @@ ITEM_HEADERS = [
 SHELF_LIFE = {"000429": 60}
 REVIEW_DAYS = {"000502": 14, "000503": 14, "000505": 14}
 PRICE_BREAKS = (
-    ("000411", 500, 3.95), ("000411", 1000, 3.80),
+    ("000411", 500, 3.95),
+    ("000411", 1000, 3.80),
     ("000501", 288, 3.60),
     ("DT-220", 1000, 0.85),
 )
 
 # The wide demo spells its headers with everyday aliases, to show that they are recognised.
 WIDE_ITEM_HEADERS = [
-    "SKU", "Item name", "Category", "Vendor", "Cost per unit", "Cost per order",
-    "Carrying rate", "Lead time", "Lead time std dev", "Service level", "Stockout cost",
-    "Case size", "MOQ", "Stock on hand", "Qty on order", "Current order quantity", "Current ROP",
+    "SKU",
+    "Item name",
+    "Category",
+    "Vendor",
+    "Cost per unit",
+    "Cost per order",
+    "Carrying rate",
+    "Lead time",
+    "Lead time std dev",
+    "Service level",
+    "Stockout cost",
+    "Case size",
+    "MOQ",
+    "Stock on hand",
+    "Qty on order",
+    "Current order quantity",
+    "Current ROP",
 ]
 
 
@@ -355,12 +410,26 @@ def _item_row(spec: Spec, rng: np.random.Generator, stock: dict) -> list:
     holding = HOLDING_AS_TEXT.get(spec.code, HOLDING.get(spec.code))
     annual = spec.rate if spec.pattern == "annual" else None
     return [
-        spec.code, spec.description, spec.category, sup.name, spec.unit_cost,
-        sup.order_cost, holding, lead, lead_sd, SERVICE.get(spec.code),
-        SHORTAGE.get(spec.code), spec.pack, sup.minimum_order,
-        stock.get("on_hand"), stock.get("on_order"),
-        stock.get("current_order_qty"), stock.get("current_reorder_point"),
-        annual, ANNUAL_SD.get(spec.code), SHELF_LIFE.get(spec.code),
+        spec.code,
+        spec.description,
+        spec.category,
+        sup.name,
+        spec.unit_cost,
+        sup.order_cost,
+        holding,
+        lead,
+        lead_sd,
+        SERVICE.get(spec.code),
+        SHORTAGE.get(spec.code),
+        spec.pack,
+        sup.minimum_order,
+        stock.get("on_hand"),
+        stock.get("on_order"),
+        stock.get("current_order_qty"),
+        stock.get("current_reorder_point"),
+        annual,
+        ANNUAL_SD.get(spec.code),
+        SHELF_LIFE.get(spec.code),
         REVIEW_DAYS.get(spec.code),
     ]
 
@@ -438,9 +507,17 @@ def build_shop(path: Path) -> None:
             hist.cell(row=r, column=3, value=extra[w])
             r += 1
 
-    _settings(wb, [("Period", "week"), ("Service measure", "cycle service"),
-                   ("Service target", 0.95), ("Holding rate", 0.25), ("Currency", "$"),
-                   ("Service target A", 0.97)])
+    _settings(
+        wb,
+        [
+            ("Period", "week"),
+            ("Service measure", "cycle service"),
+            ("Service target", 0.95),
+            ("Holding rate", 0.25),
+            ("Currency", "$"),
+            ("Service target A", 0.97),
+        ],
+    )
     breaks = wb.create_sheet("Price breaks")
     _header(breaks, 1, ["Item code", "From quantity", "Unit price ($)"], {1: 11, 2: 14, 3: 14})
     for r, (code, qty, price) in enumerate(PRICE_BREAKS, start=2):
@@ -484,8 +561,16 @@ def build_wide(path: Path) -> None:
             if qty > 0:
                 hist.cell(row=r, column=c, value=int(qty))  # an empty cell is a zero week
 
-    _settings(wb, [("Period", "week"), ("Service measure", "fill rate"),
-                   ("Service target", 0.98), ("Holding rate", 0.25), ("Currency", "$")])
+    _settings(
+        wb,
+        [
+            ("Period", "week"),
+            ("Service measure", "fill rate"),
+            ("Service target", 0.98),
+            ("Holding rate", 0.25),
+            ("Currency", "$"),
+        ],
+    )
     path.parent.mkdir(parents=True, exist_ok=True)
     wb.save(path)
 

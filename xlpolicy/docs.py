@@ -25,11 +25,14 @@ def _aliases(col: Column, n: int = 3) -> str:
 
 def items_table() -> str:
     """Markdown table of the Items columns: header as the template writes it, rule, aliases."""
-    rows = ["| column | required | what goes in it | also recognised as |",
-            "| --- | --- | --- | --- |"]
+    rows = [
+        "| column | required | what goes in it | also recognised as |",
+        "| --- | --- | --- | --- |",
+    ]
     for col in ITEM_COLUMNS:
-        rows.append(f"| {col.title} | {col.required} | {_cell(col.meaning)} | "
-                    f"{_cell(_aliases(col))} |")
+        rows.append(
+            f"| {col.title} | {col.required} | {_cell(col.meaning)} | {_cell(_aliases(col))} |"
+        )
     return "\n".join(rows)
 
 
@@ -53,17 +56,18 @@ def price_breaks_table() -> str:
     return "\n".join(rows)
 
 
-BLOCKS = {"items-columns": items_table, "settings": settings_table,
-          "price-break-columns": price_breaks_table}
+BLOCKS = {
+    "items-columns": items_table,
+    "settings": settings_table,
+    "price-break-columns": price_breaks_table,
+}
 
 
 def render(text: str) -> str:
     """``text`` with every generated block replaced by its current content."""
     for name, make in BLOCKS.items():
-        pattern = re.compile(rf"(<!-- generated:{name} -->\n).*?(<!-- end:{name} -->)",
-                             re.DOTALL)
-        text, n = pattern.subn(lambda m, make=make: m.group(1) + make() + "\n" + m.group(2),
-                               text)
+        pattern = re.compile(rf"(<!-- generated:{name} -->\n).*?(<!-- end:{name} -->)", re.DOTALL)
+        text, n = pattern.subn(lambda m, make=make: m.group(1) + make() + "\n" + m.group(2), text)
         if n != 1:
             raise ValueError(f"block {name!r} found {n} times")
     return text

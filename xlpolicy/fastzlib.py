@@ -21,8 +21,7 @@ except ImportError:  # not installed: zlib does it all
 #: Whether ISA-L is in use.
 FAST = _fast is not None
 #: What a damaged deflate stream raises, under either library.
-ERRORS: tuple[type[Exception], ...] = (zlib.error,) if _fast is None else (zlib.error,
-                                                                          _fast.error)
+ERRORS: tuple[type[Exception], ...] = (zlib.error,) if _fast is None else (zlib.error, _fast.error)
 Z_SYNC_FLUSH = zlib.Z_SYNC_FLUSH
 
 

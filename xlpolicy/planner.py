@@ -46,8 +46,9 @@ from .report import REORDER_KEYS, Report
 MIN_NONZERO_PERIODS = 8
 
 
-def build_report(data: InputData, log: ProblemLog, source_name: str,
-                 run_date: _dt.date | None = None) -> Report:
+def build_report(
+    data: InputData, log: ProblemLog, source_name: str, run_date: _dt.date | None = None
+) -> Report:
     """Plan every usable item and assemble the report (no writing)."""
     settings = data.settings
     items = data.items
@@ -66,16 +67,38 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
 
     # The table is made once from its first columns: numbers in float columns from the start
     # (as _typed leaves them), text in object ones (pandas makes text columns str).
-    first: dict[str, Any] = {key: np.full(n, np.nan, dtype=object if key in TEXT_RESULT_KEYS
-                                          else float) for key in ALL_RESULT_KEYS}
-    for key in ("item", "description", "category", "supplier", "unit_cost", "order_cost",
-                "holding_rate", "shortage_cost", "pack_size", "minimum_order",
-                "shelf_life_days"):
+    first: dict[str, Any] = {
+        key: np.full(n, np.nan, dtype=object if key in TEXT_RESULT_KEYS else float)
+        for key in ALL_RESULT_KEYS
+    }
+    for key in (
+        "item",
+        "description",
+        "category",
+        "supplier",
+        "unit_cost",
+        "order_cost",
+        "holding_rate",
+        "shortage_cost",
+        "pack_size",
+        "minimum_order",
+        "shelf_life_days",
+    ):
         first[key] = df[key].to_numpy()
-    for key in ("demand_source", "history_periods", "model", "model_reason", "demand_class",
-                "rate_method", "adi", "cv2", "history_start"):
-        first[key] = demand["source" if key == "demand_source" else
-                            "periods" if key == "history_periods" else key]
+    for key in (
+        "demand_source",
+        "history_periods",
+        "model",
+        "model_reason",
+        "demand_class",
+        "rate_method",
+        "adi",
+        "cv2",
+        "history_start",
+    ):
+        first[key] = demand[
+            "source" if key == "demand_source" else "periods" if key == "history_periods" else key
+        ]
     first["service_measure"] = np.full(n, settings["service_measure"], dtype=object)
     first["abc_class"] = abc
     first["service_target_source"] = target_source
@@ -104,8 +127,7 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
             days_per_period=float(settings["days_per_period"]),
             model=demand["model"][idx],
             break_qty=data.price_breaks.qty[idx] if data.price_breaks is not None else None,
-            break_price=(data.price_breaks.price[idx] if data.price_breaks is not None
-                         else None),
+            break_price=(data.price_breaks.price[idx] if data.price_breaks is not None else None),
             shelf_life_days=sub["shelf_life_days"].to_numpy(float),
         )
         pol = compute_policy(inp)
@@ -115,18 +137,21 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
         if len(cont) == len(idx):
             pol, portfolio = _portfolio(inp, pol, settings, log)
         elif len(cont):
-            part, portfolio = _portfolio(take_inputs(inp, cont),
-                                         pol.iloc[cont].reset_index(drop=True), settings, log)
+            part, portfolio = _portfolio(
+                take_inputs(inp, cont), pol.iloc[cont].reset_index(drop=True), settings, log
+            )
             pol = pol.copy()
             for key in part.columns:
                 if key not in pol.columns:
                     pol[key] = np.nan
                 pol.loc[cont, key] = part[key].to_numpy()
             if portfolio or settings.get("stock_budget") or settings.get("orders_cap"):
-                log.info(f"The {len(idx) - len(cont):,} item(s) on periodic review are outside "
-                         "the stock budget, the orders cap and the exchange curve, which are "
-                         "worked out for the items on continuous review.",
-                         code="portfolio-periodic-left-out")
+                log.info(
+                    f"The {len(idx) - len(cont):,} item(s) on periodic review are outside "
+                    "the stock budget, the orders cap and the exchange curve, which are "
+                    "worked out for the items on continuous review.",
+                    code="portfolio-periodic-left-out",
+                )
         for key in pol.columns:
             if key in results.columns:
                 _put(results, idx, key, pol[key].to_numpy())
@@ -161,20 +186,38 @@ def build_report(data: InputData, log: ProblemLog, source_name: str,
         "last_period": history.labels[-1] if history and history.labels else None,
         "period": settings["period"],
     }
-    return Report(results=results, reorder=reorder, problems=log.sorted(), settings=settings,
-                  totals=totals, input_summary=summary, source_name=source_name,
-                  run_date=run_date or _dt.date.today(), portfolio=portfolio,
-                  trace=trace)
+    return Report(
+        results=results,
+        reorder=reorder,
+        problems=log.sorted(),
+        settings=settings,
+        totals=totals,
+        input_summary=summary,
+        source_name=source_name,
+        run_date=run_date or _dt.date.today(),
+        portfolio=portfolio,
+        trace=trace,
+    )
 
 
 #: The Items columns the policy reads.
-_PLAN_INPUTS = ("lead_time_days", "lead_time_sd_days", "unit_cost", "order_cost",
-                "holding_rate", "shortage_cost", "pack_size", "minimum_order",
-                "shelf_life_days", "review_period_days")
+_PLAN_INPUTS = (
+    "lead_time_days",
+    "lead_time_sd_days",
+    "unit_cost",
+    "order_cost",
+    "holding_rate",
+    "shortage_cost",
+    "pack_size",
+    "minimum_order",
+    "shelf_life_days",
+    "review_period_days",
+)
 
 
-def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
-            log: ProblemLog) -> dict[str, np.ndarray]:
+def _demand(
+    data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float, log: ProblemLog
+) -> dict[str, np.ndarray]:
     """Demand per period (rate, sd), per year, and the lead-time demand model, per item.
 
     From History: each item's own span (from its first sale, or its History start), its
@@ -189,8 +232,10 @@ def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
     periods = np.zeros(n, dtype=float)
     nonzero = np.zeros(n, dtype=float)
     source = np.full(n, "", dtype=object)
-    out_text = {k: np.full(n, "", dtype=object) for k in
-                ("model", "model_reason", "demand_class", "rate_method", "history_start")}
+    out_text = {
+        k: np.full(n, "", dtype=object)
+        for k in ("model", "model_reason", "demand_class", "rate_method", "history_start")
+    }
     adi = np.full(n, np.nan)
     cv2 = np.full(n, np.nan)
     hist = data.history
@@ -211,14 +256,22 @@ def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
         w = where[has_hist]
         start = _history_starts(data, df, where, log)
         dormant = settings.get("dormant_after")
-        an = analyse_history(hist.matrix, ppy, start=start,
-                             dormant_periods=int(dormant) if dormant else None,
-                             cap_outliers=settings.get("cap_outliers") == "yes")
+        an = analyse_history(
+            hist.matrix,
+            ppy,
+            start=start,
+            dormant_periods=int(dormant) if dormant else None,
+            cap_outliers=settings.get("cap_outliers") == "yes",
+        )
         back = np.full(len(hist.items), -1, dtype=np.int64)  # history row -> item row
         back[w] = np.flatnonzero(has_hist)
         models, reasons = choose_model(an, lead[back], lead_sd[back], forced[back])
-        for key, arr in (("model", models), ("model_reason", reasons),
-                         ("demand_class", an.demand_class), ("rate_method", an.rate_method)):
+        for key, arr in (
+            ("model", models),
+            ("model_reason", reasons),
+            ("demand_class", an.demand_class),
+            ("rate_method", an.rate_method),
+        ):
             out_text[key][has_hist] = arr[w]
         mean[has_hist] = an.rate[w]
         sd[has_hist] = an.sd[w]
@@ -245,8 +298,13 @@ def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
     both = usable & has_hist & ~np.isnan(annual_fig)
     too_short = usable & has_hist & (periods < 2)
     zero_hist = usable & has_hist & ~too_short & ~(mean > 0)
-    short = (usable & has_hist & ~too_short & ~zero_hist
-             & ((periods < ppy) | (nonzero < MIN_NONZERO_PERIODS)))
+    short = (
+        usable
+        & has_hist
+        & ~too_short
+        & ~zero_hist
+        & ((periods < ppy) | (nonzero < MIN_NONZERO_PERIODS))
+    )
     zero_fig = usable & fig & (mean == 0)
     sd_assumed = usable & fig & ~zero_fig & np.isnan(sd)
     missing = usable & ~has_hist & ~fig
@@ -254,56 +312,104 @@ def _demand(data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float,
 
     figs = fig & ~zero_fig
     if figs.any():
-        models, reasons = choose_model(analysis_from_figures(mean[figs], sd[figs]), lead[figs],
-                                       lead_sd[figs], forced[figs])
+        models, reasons = choose_model(
+            analysis_from_figures(mean[figs], sd[figs]), lead[figs], lead_sd[figs], forced[figs]
+        )
         out_text["model"][figs] = models
-        out_text["model_reason"][figs] = np.where(models == "", "", np.char.add(
-            "from the annual figures: ", reasons.astype(str)))
+        out_text["model_reason"][figs] = np.where(
+            models == "", "", np.char.add("from the annual figures: ", reasons.astype(str))
+        )
 
     for i in np.flatnonzero(both):
-        log.info("This item has History as well as an annual demand figure; the History was "
-                 "used.", sheet=sheet, cell=data.items.cell("annual_demand", rows[i]),
-                 item=codes[i], value=annual_fig[i], code="demand-both")
+        log.info(
+            "This item has History as well as an annual demand figure; the History was used.",
+            sheet=sheet,
+            cell=data.items.cell("annual_demand", rows[i]),
+            item=codes[i],
+            value=annual_fig[i],
+            code="demand-both",
+        )
     for i in np.flatnonzero(too_short):
-        log.error(f"Only {int(periods[i])} readable History period(s): at least 2 are needed to "
-                  "estimate how demand varies. Fix the History cells or give annual demand and "
-                  "demand sd in Items. The item was skipped.", sheet=hsheet,
-                  cell=first.get(codes[i], ""), item=codes[i], code="history-too-short")
+        log.error(
+            f"Only {int(periods[i])} readable History period(s): at least 2 are needed to "
+            "estimate how demand varies. Fix the History cells or give annual demand and "
+            "demand sd in Items. The item was skipped.",
+            sheet=hsheet,
+            cell=first.get(codes[i], ""),
+            item=codes[i],
+            code="history-too-short",
+        )
     for i in np.flatnonzero(zero_hist):
-        log.warning(f"No demand in {int(periods[i])} {period}s of History, so no stock policy "
-                    "was computed. Decide by hand whether to keep stocking it.", sheet=hsheet,
-                    cell=first.get(codes[i], ""), item=codes[i], value=0, code="demand-zero")
+        log.warning(
+            f"No demand in {int(periods[i])} {period}s of History, so no stock policy "
+            "was computed. Decide by hand whether to keep stocking it.",
+            sheet=hsheet,
+            cell=first.get(codes[i], ""),
+            item=codes[i],
+            value=0,
+            code="demand-zero",
+        )
     for i in np.flatnonzero(short):
         few = nonzero[i] < MIN_NONZERO_PERIODS
-        why = (f"only {int(nonzero[i])} {period}s with sales, too few for a reliable estimate "
-               "of how demand varies" if few else
-               "less than a year, so seasonal swings cannot be seen yet and the spread is "
-               "a rough estimate")
-        log.warning(f"Short history: {int(periods[i])} {period}s, {why}. Review the safety "
-                    "stock by hand, and re-run as history builds up.", sheet=hsheet,
-                    cell=first.get(codes[i], ""), item=codes[i], code="history-short")
+        why = (
+            f"only {int(nonzero[i])} {period}s with sales, too few for a reliable estimate "
+            "of how demand varies"
+            if few
+            else "less than a year, so seasonal swings cannot be seen yet and the spread is "
+            "a rough estimate"
+        )
+        log.warning(
+            f"Short history: {int(periods[i])} {period}s, {why}. Review the safety "
+            "stock by hand, and re-run as history builds up.",
+            sheet=hsheet,
+            cell=first.get(codes[i], ""),
+            item=codes[i],
+            code="history-short",
+        )
     for i in np.flatnonzero(zero_fig):
-        log.warning("Annual demand is 0, so no stock policy was computed.", sheet=sheet,
-                    cell=data.items.cell("annual_demand", rows[i]), item=codes[i], value=0,
-                    code="demand-zero")
+        log.warning(
+            "Annual demand is 0, so no stock policy was computed.",
+            sheet=sheet,
+            cell=data.items.cell("annual_demand", rows[i]),
+            item=codes[i],
+            value=0,
+            code="demand-zero",
+        )
     for i in np.flatnonzero(sd_assumed):
-        log.warning(f"Demand sd is blank; {sd[i]:.3g} per {period} was assumed (the spread of "
-                    "purely random sales, Poisson). Enter the sd if you know it.", sheet=sheet,
-                    cell=data.items.cell("demand_sd", rows[i])
-                    or data.items.cell("annual_demand", rows[i]), item=codes[i],
-                    code="demand-sd-assumed")
+        log.warning(
+            f"Demand sd is blank; {sd[i]:.3g} per {period} was assumed (the spread of "
+            "purely random sales, Poisson). Enter the sd if you know it.",
+            sheet=sheet,
+            cell=data.items.cell("demand_sd", rows[i]) or data.items.cell("annual_demand", rows[i]),
+            item=codes[i],
+            code="demand-sd-assumed",
+        )
     where_txt = f"no rows in {hist.sheet}" if hist is not None else "no History sheet"
     for i in np.flatnonzero(missing):
-        log.error(f"No demand data: {where_txt}, and no annual demand in Items. Add the item's "
-                  "sales history, or its annual demand and demand sd. The item was skipped.",
-                  sheet=sheet, cell=data.items.cell("item", rows[i]), item=codes[i],
-                  code="demand-missing")
+        log.error(
+            f"No demand data: {where_txt}, and no annual demand in Items. Add the item's "
+            "sales history, or its annual demand and demand sd. The item was skipped.",
+            sheet=sheet,
+            cell=data.items.cell("item", rows[i]),
+            item=codes[i],
+            code="demand-missing",
+        )
     ok = ~(too_short | zero_hist | zero_fig | missing)
     if an is not None:
         _pattern_notes(an, hist, where, usable & ok & has_hist, codes, period, settings, log)
-    return {"mean": mean, "sd": sd, "annual": mean * ppy, "periods": periods, "ok": ok,
-            "source": source, "adi": adi, "cv2": cv2, "hist_row": hist_row,
-            "span_start": span_start, **out_text}
+    return {
+        "mean": mean,
+        "sd": sd,
+        "annual": mean * ppy,
+        "periods": periods,
+        "ok": ok,
+        "source": source,
+        "adi": adi,
+        "cv2": cv2,
+        "hist_row": hist_row,
+        "span_start": span_start,
+        **out_text,
+    }
 
 
 def _history_rows(history_items: list[str], codes: np.ndarray) -> np.ndarray:
@@ -329,8 +435,9 @@ def _forced_models(df: pd.DataFrame, settings: dict[str, Any]) -> np.ndarray:
     return out
 
 
-def _history_starts(data: InputData, df: pd.DataFrame, where: np.ndarray,
-                    log: ProblemLog) -> np.ndarray:
+def _history_starts(
+    data: InputData, df: pd.DataFrame, where: np.ndarray, log: ProblemLog
+) -> np.ndarray:
     """Per History row, the period index of the item's History start (-1: its first sale)."""
     hist = data.history
     assert hist is not None
@@ -352,18 +459,31 @@ def _history_starts(data: InputData, df: pd.DataFrame, where: np.ndarray,
         else:
             k = text_labels.get(_label(v).strip(), -1)
         if k < 0:
-            log.warning(f"History start {v!r} is not a period in {hist.sheet}; the item's "
-                        "history was counted from its first sale. Write a date within the "
-                        "History's span, or one of its period labels.", sheet=data.items.sheet,
-                        cell=data.items.cell("history_start", int(df['row'].iat[i])),
-                        item=df["item"].iat[i], value=v, code="history_start-unknown")
+            log.warning(
+                f"History start {v!r} is not a period in {hist.sheet}; the item's "
+                "history was counted from its first sale. Write a date within the "
+                "History's span, or one of its period labels.",
+                sheet=data.items.sheet,
+                cell=data.items.cell("history_start", int(df["row"].iat[i])),
+                item=df["item"].iat[i],
+                value=v,
+                code="history_start-unknown",
+            )
             continue
         start[where[i]] = k
     return start
 
 
-def _pattern_notes(an: Any, hist: Any, where: np.ndarray, sel: np.ndarray, codes: np.ndarray,
-                   period: str, settings: dict[str, Any], log: ProblemLog) -> None:
+def _pattern_notes(
+    an: Any,
+    hist: Any,
+    where: np.ndarray,
+    sel: np.ndarray,
+    codes: np.ndarray,
+    period: str,
+    settings: dict[str, Any],
+    log: ProblemLog,
+) -> None:
     """A planner's notes on each item's history: new, shifting, seasonal, spiky, dormant."""
     n_cols = hist.matrix.shape[1]
     items_idx = np.flatnonzero(sel)
@@ -372,60 +492,101 @@ def _pattern_notes(an: Any, hist: Any, where: np.ndarray, sel: np.ndarray, codes
 
     def note(mask: np.ndarray, code: str, severity: str, text: Any) -> None:
         for i, j in zip(items_idx[mask], h[mask], strict=True):
-            getattr(log, severity)(text(j), sheet=hist.sheet,
-                                   cell=hist.first_cell.get(codes[i], ""), item=codes[i],
-                                   code=code)
+            getattr(log, severity)(
+                text(j),
+                sheet=hist.sheet,
+                cell=hist.first_cell.get(codes[i], ""),
+                item=codes[i],
+                code=code,
+            )
 
     new = (an.start[h] >= 4) & (an.start[h] >= 0.25 * n_cols)
-    note(new, "history-new-item", "info", lambda j: (
-        f"History counted from the first sale ({_label(hist.labels[an.start[j]])}, {period} "
-        f"{an.start[j] + 1} of {n_cols}), as for a new item: the {period}s before it are not "
-        "counted as zero demand."))
+    note(
+        new,
+        "history-new-item",
+        "info",
+        lambda j: (
+            f"History counted from the first sale ({_label(hist.labels[an.start[j]])}, {period} "
+            f"{an.start[j] + 1} of {n_cols}), as for a new item: the {period}s before it are not "
+            "counted as zero demand."
+        ),
+    )
     # A seasonal swing or a stop in sales also shifts the recent third: say the cause only.
     trend = an.trend[h] & ~an.seasonal[h] & ~an.dormant[h]
-    note(trend, "demand-trend", "warning", lambda j: (
-        f"Demand has {'risen' if an.trend_ratio[j] > 1 else 'fallen'}: the recent third of "
-        f"the history runs at {an.trend_ratio[j]:.2f} times the earlier level. The policy uses "
-        "the average over the whole history; if the change will last, set a later History "
-        "start for this item or adjust the order quantity and reorder point by hand."))
-    note(an.seasonal[h], "demand-seasonal", "warning", lambda j: (
-        f"Demand is seasonal: the busiest part of the year runs at about "
-        f"{min(an.seasonal_strength[j], 99):.1f} times the quietest. A year-round average "
-        "leaves too little stock before the peak and too much after it: raise the reorder "
-        "point ahead of the busy season and lower it after."))
-    note(an.outlier[h], "demand-outlier", "warning", lambda j: (
-        f"One {period} ({_label(hist.labels[an.outlier_index[j]])}: "
-        f"{an.outlier_value[j]:g} units) stands far above the rest and drives much of the "
-        f"demand spread (sd {an.sd[j] if not capped else an.sd_without_outlier[j]:.3g} with it,"
-        f" {an.sd_without_outlier[j]:.3g} without). "
-        + (f"It was capped at {an.outlier_threshold[j]:g} as Settings asks."
-           if capped else "Check it was a real sale, not a one-off bulk order or a typo; "
-           "set 'Cap outliers' to yes in Settings to cap such periods.")))
-    note(an.dormant[h], "demand-dormant", "warning", lambda j: (
-        f"No sales in the last {int(an.periods_since_sale[j])} {period}s, though it sold "
-        "before: possibly discontinued or replaced. Confirm before reordering."))
+    note(
+        trend,
+        "demand-trend",
+        "warning",
+        lambda j: (
+            f"Demand has {'risen' if an.trend_ratio[j] > 1 else 'fallen'}: the recent third of "
+            f"the history runs at {an.trend_ratio[j]:.2f} times the earlier level. The policy uses "
+            "the average over the whole history; if the change will last, set a later History "
+            "start for this item or adjust the order quantity and reorder point by hand."
+        ),
+    )
+    note(
+        an.seasonal[h],
+        "demand-seasonal",
+        "warning",
+        lambda j: (
+            f"Demand is seasonal: the busiest part of the year runs at about "
+            f"{min(an.seasonal_strength[j], 99):.1f} times the quietest. A year-round average "
+            "leaves too little stock before the peak and too much after it: raise the reorder "
+            "point ahead of the busy season and lower it after."
+        ),
+    )
+    note(
+        an.outlier[h],
+        "demand-outlier",
+        "warning",
+        lambda j: (
+            f"One {period} ({_label(hist.labels[an.outlier_index[j]])}: "
+            f"{an.outlier_value[j]:g} units) stands far above the rest and drives much of the "
+            f"demand spread (sd {an.sd[j] if not capped else an.sd_without_outlier[j]:.3g} with it,"
+            f" {an.sd_without_outlier[j]:.3g} without). "
+            + (
+                f"It was capped at {an.outlier_threshold[j]:g} as Settings asks."
+                if capped
+                else "Check it was a real sale, not a one-off bulk order or a typo; "
+                "set 'Cap outliers' to yes in Settings to cap such periods."
+            )
+        ),
+    )
+    note(
+        an.dormant[h],
+        "demand-dormant",
+        "warning",
+        lambda j: (
+            f"No sales in the last {int(an.periods_since_sale[j])} {period}s, though it sold "
+            "before: possibly discontinued or replaced. Confirm before reordering."
+        ),
+    )
 
 
 _FLAG_TEXT = {
     "flag_normal_doubtful": (
         "normal-doubtful",
         "Demand over the lead time is small or erratic (mean {mu:.3g}, sd {sd:.3g}); a normal "
-        "model can misstate the reorder point for such items. Check the reorder point by hand."),
+        "model can misstate the reorder point for such items. Check the reorder point by hand.",
+    ),
     "flag_no_safety_stock_pays": (
         "no-safety-stock-pays",
         "With this shortage cost, holding extra stock costs more than the shortages it avoids, "
         "so no safety stock was planned (reorder point = expected lead-time demand). Check the "
-        "shortage cost."),
+        "shortage cost.",
+    ),
     "flag_shelf_life_below_minimum": (
         "shelf-life-below-minimum",
         "Less sells within the shelf life than the smallest order the supplier accepts (one "
         "pack, or the minimum order): the order quantity was set to that smallest order, so "
         "part of each order will likely expire unsold. Ask for a smaller pack or minimum, or "
-        "check the Shelf life days."),
+        "check the Shelf life days.",
+    ),
     "flag_reorder_point_floored": (
         "reorder-point-floored",
         "The service target is met even with a negative reorder point; the reorder point was "
-        "raised to 0."),
+        "raised to 0.",
+    ),
 }
 
 
@@ -438,13 +599,19 @@ def _flag_problems(pol: pd.DataFrame, sub: pd.DataFrame, items: Any, log: Proble
             mu = float(pol["lead_time_demand_mean"].iat[k])
             sd = float(pol["lead_time_demand_sd"].iat[k])
             row = int(sub["row"].iat[k])
-            log.warning(text.format(mu=mu, sd=sd), sheet=items.sheet,
-                        cell=items.cell("item", row), item=sub["item"].iat[k], code=code)
+            log.warning(
+                text.format(mu=mu, sd=sd),
+                sheet=items.sheet,
+                cell=items.cell("item", row),
+                item=sub["item"].iat[k],
+                code=code,
+            )
 
 
 def _statuses(codes: pd.Series, planned: np.ndarray, log: ProblemLog) -> np.ndarray:
-    flagged = {p.item for p in log.problems
-               if p.item and p.severity in (Severity.WARNING, Severity.ERROR)}
+    flagged = {
+        p.item for p in log.problems if p.item and p.severity in (Severity.WARNING, Severity.ERROR)
+    }
     out = np.where(planned, STATUS_OK, STATUS_SKIPPED).astype(object)
     warn = planned & codes.isin(flagged).to_numpy()
     out[warn] = STATUS_WARNING
@@ -458,9 +625,16 @@ def _review_days(df: pd.DataFrame, settings: dict[str, Any]) -> np.ndarray:
     return np.where(np.isnan(T), float(default) if default is not None else 0.0, T)
 
 
-def _periodic(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray,
-              demand: dict[str, np.ndarray], target: np.ndarray, settings: dict[str, Any],
-              data: InputData, log: ProblemLog) -> None:
+def _periodic(
+    results: pd.DataFrame,
+    df: pd.DataFrame,
+    planned: np.ndarray,
+    demand: dict[str, np.ndarray],
+    target: np.ndarray,
+    settings: dict[str, Any],
+    data: InputData,
+    log: ProblemLog,
+) -> None:
     """Periodic review (T, S) for items with a review period; the others stay continuous.
 
     The item's Review period days wins, else the setting; 0 or none: continuous review.
@@ -476,40 +650,67 @@ def _periodic(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray,
         return
     sub = df.iloc[k]
     pol = periodic_policy(
-        T[k], demand["mean"][k], demand["sd"][k], sub["lead_time_days"].to_numpy(float),
+        T[k],
+        demand["mean"][k],
+        demand["sd"][k],
+        sub["lead_time_days"].to_numpy(float),
         np.nan_to_num(sub["lead_time_sd_days"].to_numpy(float)),
-        float(settings["days_per_period"]), float(settings["periods_per_year"]),
-        sub["order_cost"].to_numpy(float), sub["holding_rate"].to_numpy(float),
-        sub["unit_cost"].to_numpy(float), settings["service_measure"], target[k],
-        sub["shortage_cost"].to_numpy(float), model=results["model"].to_numpy(object)[k])
+        float(settings["days_per_period"]),
+        float(settings["periods_per_year"]),
+        sub["order_cost"].to_numpy(float),
+        sub["holding_rate"].to_numpy(float),
+        sub["unit_cost"].to_numpy(float),
+        settings["service_measure"],
+        target[k],
+        sub["shortage_cost"].to_numpy(float),
+        model=results["model"].to_numpy(object)[k],
+    )
     for key in pol.columns:
         if key in results.columns:
             _put(results, k, key, pol[key].to_numpy())
     # what belongs to continuous review only
-    results.loc[k, ["reorder_point", "eoq", "rounding_penalty", "rounding_cost_ratio",
-                    "price_break_qty", "plain_eoq_qty", "discount_saving",
-                    "shelf_life_max_qty", "shelf_life_cost"]] = np.nan
+    results.loc[
+        k,
+        [
+            "reorder_point",
+            "eoq",
+            "rounding_penalty",
+            "rounding_cost_ratio",
+            "price_break_qty",
+            "plain_eoq_qty",
+            "discount_saving",
+            "shelf_life_max_qty",
+            "shelf_life_cost",
+        ],
+    ] = np.nan
     results.loc[k, "unit_price"] = sub["unit_cost"].to_numpy(float)
     breaks = data.price_breaks
     has_breaks = (breaks.count()[k] > 0) if breaks is not None else np.zeros(len(k), bool)
     has_life = np.isfinite(sub["shelf_life_days"].to_numpy(float))
     rows = sub["row"].to_numpy(int)
     for j in np.flatnonzero(has_breaks | has_life):
-        what = " and ".join(w for w, on in (("price breaks", has_breaks[j]),
-                                            ("a shelf life", has_life[j])) if on)
-        log.warning(f"This item is reviewed every {T[k][j]:g} days (periodic review), so its "
-                    f"{what} were not applied: they shape the order quantity of continuous "
-                    "review only. Set Review period days to 0 to use them.",
-                    sheet=data.items.sheet, cell=data.items.cell("review_period_days", rows[j])
-                    or data.items.cell("item", rows[j]), item=sub["item"].iat[j],
-                    code="periodic-ignores-breaks")
+        what = " and ".join(
+            w for w, on in (("price breaks", has_breaks[j]), ("a shelf life", has_life[j])) if on
+        )
+        log.warning(
+            f"This item is reviewed every {T[k][j]:g} days (periodic review), so its "
+            f"{what} were not applied: they shape the order quantity of continuous "
+            "review only. Set Review period days to 0 to use them.",
+            sheet=data.items.sheet,
+            cell=data.items.cell("review_period_days", rows[j]) or data.items.cell("item", rows[j]),
+            item=sub["item"].iat[j],
+            code="periodic-ignores-breaks",
+        )
 
 
 def _reorder_columns(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray) -> None:
     """Inventory position and the quantity to order now, where stock figures are given."""
     on_hand = df["on_hand"].to_numpy(float)
-    position = on_hand + np.nan_to_num(df["on_order"].to_numpy(float)) - np.nan_to_num(
-        df["backordered"].to_numpy(float))
+    position = (
+        on_hand
+        + np.nan_to_num(df["on_order"].to_numpy(float))
+        - np.nan_to_num(df["backordered"].to_numpy(float))
+    )
     r = pd.to_numeric(results["reorder_point"], errors="coerce").to_numpy(float)
     q = pd.to_numeric(results["order_qty"], errors="coerce").to_numpy(float)
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -530,16 +731,18 @@ def _reorder_columns(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarra
     results["order_now_qty"] = qty
 
 
-def _abc(df: pd.DataFrame, annual_demand: np.ndarray, planned: np.ndarray,
-         settings: dict[str, Any]) -> np.ndarray:
+def _abc(
+    df: pd.DataFrame, annual_demand: np.ndarray, planned: np.ndarray, settings: dict[str, Any]
+) -> np.ndarray:
     """ABC class per item by annual spend D x unit cost ("" for items not planned)."""
     spend = annual_demand * df["unit_cost"].to_numpy(float)
     cutoffs = settings.setdefault("abc_cutoffs", DEFAULT_CUTOFFS)
     return abc_classes(np.where(planned, spend, np.nan), cutoffs)
 
 
-def _class_targets(df: pd.DataFrame, own: np.ndarray | None, abc: np.ndarray,
-                   settings: dict[str, Any]) -> tuple[np.ndarray, np.ndarray]:
+def _class_targets(
+    df: pd.DataFrame, own: np.ndarray | None, abc: np.ndarray, settings: dict[str, Any]
+) -> tuple[np.ndarray, np.ndarray]:
     """Each item's service target and where it came from.
 
     The item's own Service target wins; else its class's target (Service target A, B or C)
@@ -558,8 +761,13 @@ def _class_targets(df: pd.DataFrame, own: np.ndarray | None, abc: np.ndarray,
     return target, source
 
 
-def _abc_and_today(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray,
-                   settings: dict[str, Any], breaks: Any = None) -> None:
+def _abc_and_today(
+    results: pd.DataFrame,
+    df: pd.DataFrame,
+    planned: np.ndarray,
+    settings: dict[str, Any],
+    breaks: Any = None,
+) -> None:
     """Today's policy (where given) evaluated like ours (the ABC class is set before).
 
     With price breaks, today's order quantity is held at the price it earns.
@@ -579,23 +787,31 @@ def _abc_and_today(results: pd.DataFrame, df: pd.DataFrame, planned: np.ndarray,
     price_now = col("unit_cost")
     if breaks is not None:
         price_now = price_at(q_now[k], price_now, breaks.qty[k], breaks.price[k])
-    ev = evaluate_policy(q_now[k], r_now[k], col("lead_time_demand_mean"),
-                         col("lead_time_demand_sd"), results["model"].to_numpy(object)[k],
-                         col("annual_demand"), col("order_cost"),
-                         col("holding_rate") * price_now, price_now,
-                         col("shortage_cost"))
-    for key, src in (("current_safety_stock", "safety_stock"),
-                     ("current_cycle_service", "cycle_service"),
-                     ("current_fill_rate", "fill_rate"),
-                     ("current_units_short_per_cycle", "units_short_per_cycle"),
-                     ("current_annual_ordering_cost", "annual_ordering_cost"),
-                     ("current_annual_cycle_holding_cost", "annual_cycle_holding_cost"),
-                     ("current_annual_safety_holding_cost", "annual_safety_holding_cost"),
-                     ("current_annual_shortage_cost", "annual_shortage_cost"),
-                     ("current_annual_total_cost", "annual_total_cost")):
+    ev = evaluate_policy(
+        q_now[k],
+        r_now[k],
+        col("lead_time_demand_mean"),
+        col("lead_time_demand_sd"),
+        results["model"].to_numpy(object)[k],
+        col("annual_demand"),
+        col("order_cost"),
+        col("holding_rate") * price_now,
+        price_now,
+        col("shortage_cost"),
+    )
+    for key, src in (
+        ("current_safety_stock", "safety_stock"),
+        ("current_cycle_service", "cycle_service"),
+        ("current_fill_rate", "fill_rate"),
+        ("current_units_short_per_cycle", "units_short_per_cycle"),
+        ("current_annual_ordering_cost", "annual_ordering_cost"),
+        ("current_annual_cycle_holding_cost", "annual_cycle_holding_cost"),
+        ("current_annual_safety_holding_cost", "annual_safety_holding_cost"),
+        ("current_annual_shortage_cost", "annual_shortage_cost"),
+        ("current_annual_total_cost", "annual_total_cost"),
+    ):
         _put(results, k, key, ev[src].to_numpy())
-    _put(results, k, "annual_saving", ev["annual_total_cost"].to_numpy() - col(
-        "annual_total_cost"))
+    _put(results, k, "annual_saving", ev["annual_total_cost"].to_numpy() - col("annual_total_cost"))
 
 
 def _put(results: pd.DataFrame, rows: np.ndarray, key: str, values: np.ndarray) -> None:
@@ -604,8 +820,11 @@ def _put(results: pd.DataFrame, rows: np.ndarray, key: str, values: np.ndarray) 
         results.loc[rows, key] = values
         return
     col = results[key].to_numpy(dtype=float, copy=True)
-    col[rows] = pd.to_numeric(pd.Series(values, dtype=object), errors="coerce").to_numpy(float) \
-        if np.asarray(values).dtype == object else values
+    col[rows] = (
+        pd.to_numeric(pd.Series(values, dtype=object), errors="coerce").to_numpy(float)
+        if np.asarray(values).dtype == object
+        else values
+    )
     results[key] = col
 
 
@@ -670,16 +889,17 @@ def _totals(results: pd.DataFrame, reorder: pd.DataFrame) -> dict[str, float]:
         "items_to_reorder": float(len(reorder)),
         "reorder_value": float(np.nansum(reorder["order_now_value"].to_numpy(float))),
         "items_compared": float(compared.sum()),
-        "current_annual_total_cost": float(np.nansum(
-            col("current_annual_total_cost")[compared])),
-        "compared_recommended_annual_total_cost": float(np.nansum(
-            col("annual_total_cost")[compared])),
+        "current_annual_total_cost": float(np.nansum(col("current_annual_total_cost")[compared])),
+        "compared_recommended_annual_total_cost": float(
+            np.nansum(col("annual_total_cost")[compared])
+        ),
         "annual_saving": float(np.nansum(col("annual_saving")[compared])),
     }
 
 
-def _portfolio(inp: PolicyInputs, pol: pd.DataFrame, settings: dict[str, Any],
-               log: ProblemLog) -> tuple[pd.DataFrame, dict[str, Any]]:
+def _portfolio(
+    inp: PolicyInputs, pol: pd.DataFrame, settings: dict[str, Any], log: ProblemLog
+) -> tuple[pd.DataFrame, dict[str, Any]]:
     """Decisions across all items (issue 4, parts 6 and 7): a cap, then the exchange curve.
 
     A stock budget or an orders cap from Settings (or the command line) replaces the policy
@@ -694,39 +914,57 @@ def _portfolio(inp: PolicyInputs, pol: pd.DataFrame, settings: dict[str, Any],
 
     def where(key: str) -> dict[str, str]:
         src = str(sources.get(key, ""))
-        return ({"sheet": "Settings", "cell": src.split(" ", 1)[1]}
-                if src.startswith("Settings ") else {"sheet": "", "cell": ""})
+        return (
+            {"sheet": "Settings", "cell": src.split(" ", 1)[1]}
+            if src.startswith("Settings ")
+            else {"sheet": "", "cell": ""}
+        )
 
     if budget is not None and orders is not None:
-        log.warning("Both a stock budget and an orders cap are set; only the stock budget was "
-                    "applied (one cap at a time). Leave one of them blank.",
-                    **where("orders_cap"), value=orders, code="cap-both")
+        log.warning(
+            "Both a stock budget and an orders cap are set; only the stock budget was "
+            "applied (one cap at a time). Leave one of them blank.",
+            **where("orders_cap"),
+            value=orders,
+            code="cap-both",
+        )
         orders = None
-    cap = (BUDGET, float(budget)) if budget is not None else (
-        (ORDERS, float(orders)) if orders is not None else None)
+    cap = (
+        (BUDGET, float(budget))
+        if budget is not None
+        else ((ORDERS, float(orders)) if orders is not None else None)
+    )
     curve = settings.get("exchange_curve", "auto")
     n_items = len(np.asarray(inp.annual_demand).reshape(-1))
     if curve == "yes" or (curve == "auto" and n_items <= CURVE_AUTO_MAX):
-        out["exchange_curve"] = exchange_curve(inp, float(settings["service_target"]),
-                                               str(settings["service_measure"]))
+        out["exchange_curve"] = exchange_curve(
+            inp, float(settings["service_target"]), str(settings["service_measure"])
+        )
     elif curve == "auto":
-        log.info(f"The exchange curve was left out of the Summary: for {n_items:,} items each "
-                 "of its points is a whole policy calculation, which would about double the "
-                 "run. Set 'Exchange curve' to yes in Settings (or use --curve) to have it.",
-                 sheet="Settings", code="exchange-curve-skipped")
+        log.info(
+            f"The exchange curve was left out of the Summary: for {n_items:,} items each "
+            "of its points is a whole policy calculation, which would about double the "
+            "run. Set 'Exchange curve' to yes in Settings (or use --curve) to have it.",
+            sheet="Settings",
+            code="exchange-curve-skipped",
+        )
     if cap is None:
         return pol, out
     res = apply_cap(inp, pol, *cap)
     out["cap"] = res
     key = "stock_budget" if cap[0] == BUDGET else "orders_cap"
     if res.binding and not res.feasible:
-        what = ("average stock value" if cap[0] == BUDGET else "orders a year")
-        log.warning(f"The {key.replace('_', ' ')} of {cap[1]:,.2f} cannot be met: even the "
-                    f"smallest orders the packs and minimums allow"
-                    + (" and the reorder points the service targets need" if cap[0] == BUDGET
-                       else "") + f" give {res.least:,.2f} {what}. The policy with the least "
-                    "was used; raise the cap or lower the service targets.",
-                    **where(key), value=cap[1], code="cap-infeasible")
+        what = "average stock value" if cap[0] == BUDGET else "orders a year"
+        log.warning(
+            f"The {key.replace('_', ' ')} of {cap[1]:,.2f} cannot be met: even the "
+            f"smallest orders the packs and minimums allow"
+            + (" and the reorder points the service targets need" if cap[0] == BUDGET else "")
+            + f" give {res.least:,.2f} {what}. The policy with the least "
+            "was used; raise the cap or lower the service targets.",
+            **where(key),
+            value=cap[1],
+            code="cap-infeasible",
+        )
     capped = res.policy.copy()
     capped["uncapped_order_qty"] = pol["order_qty"].to_numpy(float)
     capped["uncapped_reorder_point"] = pol["reorder_point"].to_numpy(float)

@@ -59,8 +59,12 @@ _ITEM_VALIDATION: dict[str, dict[str, Any]] = {
     "holding_rate": {"validate": "decimal", "criteria": "between", "minimum": 0, "maximum": 5},
     "lead_time_days": {"validate": "decimal", "criteria": ">", "value": 0},
     "lead_time_sd_days": {"validate": "decimal", "criteria": ">=", "value": 0},
-    "service_target": {"validate": "decimal", "criteria": "between",
-                       "minimum": 0.0001, "maximum": 0.9999},
+    "service_target": {
+        "validate": "decimal",
+        "criteria": "between",
+        "minimum": 0.0001,
+        "maximum": 0.9999,
+    },
     "shortage_cost": {"validate": "decimal", "criteria": ">=", "value": 0},
     "pack_size": {"validate": "decimal", "criteria": ">", "value": 0},
     "minimum_order": {"validate": "decimal", "criteria": ">=", "value": 0},
@@ -79,20 +83,54 @@ _ITEM_WIDTHS: dict[str, float] = {"item": 12, "description": 40, "category": 16,
 
 #: The three example items. EX003 carries annual demand and demand sd instead of history.
 EXAMPLE_ITEMS: tuple[dict[str, Any], ...] = (
-    {"item": "EX001", "description": f"{EXAMPLE_PREFIX} Copier paper A4, box of 5 reams",
-     "category": "Office", "supplier": "Example supplier A", "unit_cost": 21.5,
-     "order_cost": 12.0, "holding_rate": 0.22, "lead_time_days": 5, "lead_time_sd_days": 1,
-     "service_target": 0.95, "pack_size": 1, "on_hand": 18, "on_order": 0,
-     "current_order_qty": 20, "current_reorder_point": 8},
-    {"item": "EX002", "description": f"{EXAMPLE_PREFIX} Hand soap refill 1 L",
-     "category": "Cleaning", "supplier": "Example supplier A", "unit_cost": 4.8,
-     "order_cost": 12.0, "holding_rate": 0.22, "lead_time_days": 7,
-     "service_target": 0.9, "pack_size": 6, "minimum_order": 12, "on_hand": 9, "on_order": 12},
-    {"item": "EX003", "description": f"{EXAMPLE_PREFIX} Printer toner, black",
-     "category": "Office", "supplier": "Example supplier B", "unit_cost": 68.0,
-     "order_cost": 15.0, "holding_rate": 0.25, "lead_time_days": 10, "lead_time_sd_days": 2,
-     "service_target": 0.98, "on_hand": 3, "on_order": 0,
-     "annual_demand": 30, "demand_sd": 0.9},
+    {
+        "item": "EX001",
+        "description": f"{EXAMPLE_PREFIX} Copier paper A4, box of 5 reams",
+        "category": "Office",
+        "supplier": "Example supplier A",
+        "unit_cost": 21.5,
+        "order_cost": 12.0,
+        "holding_rate": 0.22,
+        "lead_time_days": 5,
+        "lead_time_sd_days": 1,
+        "service_target": 0.95,
+        "pack_size": 1,
+        "on_hand": 18,
+        "on_order": 0,
+        "current_order_qty": 20,
+        "current_reorder_point": 8,
+    },
+    {
+        "item": "EX002",
+        "description": f"{EXAMPLE_PREFIX} Hand soap refill 1 L",
+        "category": "Cleaning",
+        "supplier": "Example supplier A",
+        "unit_cost": 4.8,
+        "order_cost": 12.0,
+        "holding_rate": 0.22,
+        "lead_time_days": 7,
+        "service_target": 0.9,
+        "pack_size": 6,
+        "minimum_order": 12,
+        "on_hand": 9,
+        "on_order": 12,
+    },
+    {
+        "item": "EX003",
+        "description": f"{EXAMPLE_PREFIX} Printer toner, black",
+        "category": "Office",
+        "supplier": "Example supplier B",
+        "unit_cost": 68.0,
+        "order_cost": 15.0,
+        "holding_rate": 0.25,
+        "lead_time_days": 10,
+        "lead_time_sd_days": 2,
+        "service_target": 0.98,
+        "on_hand": 3,
+        "on_order": 0,
+        "annual_demand": 30,
+        "demand_sd": 0.9,
+    },
 )
 
 #: Weekly example history (Mondays) for the example items that have one.
@@ -122,8 +160,7 @@ _READ_ME: tuple[str, ...] = (
     "Percentages may be typed as 0.25 or 25%. Item codes are kept as text: 000123 stays 000123.",
     "Headers and sheet names match loosely: case, spaces and a unit in brackets do not matter.",
     "To plan, save this file and run:  xlpolicy plan <file>.xlsx",
-    "The results go to a new workbook beside yours (<file>-policy.xlsx); "
-    "your file is not changed.",
+    "The results go to a new workbook beside yours (<file>-policy.xlsx); your file is not changed.",
     "Caution: where stock is medicine, food or anything safety-critical, the numbers support "
     "and do not replace the judgement of licensed staff and local rules.",
 )
@@ -144,12 +181,14 @@ def _required_note(column: Column) -> str:
 
 def _add_validation(ws: Any, col: int, options: dict[str, Any], what: str) -> None:
     opts = dict(options)
-    opts.update({
-        "error_type": "stop",
-        "error_title": "Check this number",
-        "error_message": what[:255],
-        "ignore_blank": True,
-    })
+    opts.update(
+        {
+            "error_type": "stop",
+            "error_title": "Check this number",
+            "error_message": what[:255],
+            "ignore_blank": True,
+        }
+    )
     ws.data_validation(1, col, _VALIDATED_ROWS, col, opts)
 
 
@@ -169,8 +208,9 @@ def _write_items(wb: Any, fmt: dict[str, Any]) -> None:
         header = item_header(column)
         style = {"yes": "req", "unless set in Settings": "cond"}.get(column.required, "opt")
         ws.write_string(0, col, header, fmt[style])
-        ws.write_comment(0, col, f"{column.meaning}\n{_required_note(column)}",
-                         {"x_scale": 1.6, "y_scale": 1.2})
+        ws.write_comment(
+            0, col, f"{column.meaning}\n{_required_note(column)}", {"x_scale": 1.6, "y_scale": 1.2}
+        )
         width = _ITEM_WIDTHS.get(column.key, max(12.0, len(header) + 2.0))
         if column.key == "item":
             ws.set_column(col, col, width, fmt["text"])
@@ -204,11 +244,21 @@ def _write_history(wb: Any, fmt: dict[str, Any]) -> None:
     ws.set_column(0, 0, 12, fmt["text"])
     ws.set_column(1, 1, 14, fmt["date"])
     ws.set_column(2, 2, 12)
-    ws.data_validation(1, 2, _VALIDATED_ROWS, 2, {
-        "validate": "decimal", "criteria": ">=", "value": 0, "ignore_blank": True,
-        "error_type": "stop", "error_title": "Check this number",
-        "error_message": "Units sold in the period: a number, 0 or more.",
-    })
+    ws.data_validation(
+        1,
+        2,
+        _VALIDATED_ROWS,
+        2,
+        {
+            "validate": "decimal",
+            "criteria": ">=",
+            "value": 0,
+            "ignore_blank": True,
+            "error_type": "stop",
+            "error_title": "Check this number",
+            "error_message": "Units sold in the period: a number, 0 or more.",
+        },
+    )
     row = 1
     for code, quantities in _EXAMPLE_HISTORY.items():
         for week, qty in enumerate(quantities):
@@ -236,11 +286,21 @@ def _write_price_breaks(wb: Any, fmt: dict[str, Any]) -> None:
     ws.set_column(0, 0, 12, fmt["text"])
     ws.set_column(1, 2, 18)
     for col in (1, 2):
-        ws.data_validation(1, col, _VALIDATED_ROWS, col, {
-            "validate": "decimal", "criteria": ">", "value": 0, "ignore_blank": True,
-            "error_type": "stop", "error_title": "Check this number",
-            "error_message": contract.PRICE_BREAK_COLUMNS[col].meaning[:255],
-        })
+        ws.data_validation(
+            1,
+            col,
+            _VALIDATED_ROWS,
+            col,
+            {
+                "validate": "decimal",
+                "criteria": ">",
+                "value": 0,
+                "ignore_blank": True,
+                "error_type": "stop",
+                "error_title": "Check this number",
+                "error_message": contract.PRICE_BREAK_COLUMNS[col].meaning[:255],
+            },
+        )
     for row, (code, qty, price) in enumerate(EXAMPLE_PRICE_BREAKS, start=1):
         ws.write_string(row, 0, code, fmt["ex_text"])
         ws.write_number(row, 1, qty, fmt["ex_num"])
@@ -264,8 +324,10 @@ def _write_settings(wb: Any, fmt: dict[str, Any]) -> None:
         "review_period_days": _ITEM_VALIDATION["review_period_days"],
         "abc_share_a": _ITEM_VALIDATION["service_target"],
         "abc_share_b": _ITEM_VALIDATION["service_target"],
-        **{key: _ITEM_VALIDATION["service_target"]
-           for key in contract.CLASS_TARGET_SETTINGS.values()},
+        **{
+            key: _ITEM_VALIDATION["service_target"]
+            for key in contract.CLASS_TARGET_SETTINGS.values()
+        },
     }
     for row, setting in enumerate(SETTINGS, start=1):
         ws.write_string(row, 0, setting.title)
@@ -279,15 +341,29 @@ def _write_settings(wb: Any, fmt: dict[str, Any]) -> None:
             ws.write_string(row, 1, str(value))
         ws.write_string(row, 2, setting.meaning, fmt["wrap"])
         if setting.key in lists:
-            ws.data_validation(row, 1, row, 1, {
-                "validate": "list", "source": lists[setting.key],
-                "error_type": "stop", "error_title": "Choose from the list",
-                "error_message": "One of: " + ", ".join(lists[setting.key]),
-            })
+            ws.data_validation(
+                row,
+                1,
+                row,
+                1,
+                {
+                    "validate": "list",
+                    "source": lists[setting.key],
+                    "error_type": "stop",
+                    "error_title": "Choose from the list",
+                    "error_message": "One of: " + ", ".join(lists[setting.key]),
+                },
+            )
         elif setting.key in numbers:
             opts = dict(numbers[setting.key])
-            opts.update({"error_type": "stop", "error_title": "Check this number",
-                         "error_message": setting.meaning[:255], "ignore_blank": True})
+            opts.update(
+                {
+                    "error_type": "stop",
+                    "error_title": "Check this number",
+                    "error_message": setting.meaning[:255],
+                    "ignore_blank": True,
+                }
+            )
             ws.data_validation(row, 1, row, 1, opts)
 
 
@@ -295,36 +371,46 @@ def write_template(path: Path) -> None:
     """Write an empty input workbook with the contract's sheets and headers."""
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    wb = xlsxwriter.Workbook(str(path), {
-        "strings_to_formulas": False,
-        "strings_to_urls": False,
-        "strings_to_numbers": False,
-    })
-    wb.set_properties({
-        "title": "xlpolicy input workbook",
-        "subject": "Items, sales history and settings for xlpolicy",
-        "author": "xlpolicy",
-        "created": _CREATED,
-    })
+    wb = xlsxwriter.Workbook(
+        str(path),
+        {
+            "strings_to_formulas": False,
+            "strings_to_urls": False,
+            "strings_to_numbers": False,
+        },
+    )
+    wb.set_properties(
+        {
+            "title": "xlpolicy input workbook",
+            "subject": "Items, sales history and settings for xlpolicy",
+            "author": "xlpolicy",
+            "created": _CREATED,
+        }
+    )
     base = {"font_size": 10, "valign": "top"}
     fmt = {
         "title": wb.add_format({**base, "bold": True, "font_size": 13}),
         "wrap": wb.add_format({**base, "text_wrap": True}),
-        "req": wb.add_format({**base, "bold": True, "bg_color": _FILL_REQUIRED,
-                              "bottom": 1, "text_wrap": True}),
-        "cond": wb.add_format({**base, "bold": True, "bg_color": _FILL_CONDITIONAL,
-                               "bottom": 1, "text_wrap": True}),
+        "req": wb.add_format(
+            {**base, "bold": True, "bg_color": _FILL_REQUIRED, "bottom": 1, "text_wrap": True}
+        ),
+        "cond": wb.add_format(
+            {**base, "bold": True, "bg_color": _FILL_CONDITIONAL, "bottom": 1, "text_wrap": True}
+        ),
         "opt": wb.add_format({**base, "bottom": 1, "text_wrap": True}),
         "text": wb.add_format({**base, "num_format": "@"}),
         "pct": wb.add_format({**base, "num_format": "0.0%"}),
         "date": wb.add_format({**base, "num_format": "yyyy-mm-dd"}),
-        "ex_text": wb.add_format({**base, "italic": True, "font_color": _EXAMPLE_FONT,
-                                  "num_format": "@"}),
+        "ex_text": wb.add_format(
+            {**base, "italic": True, "font_color": _EXAMPLE_FONT, "num_format": "@"}
+        ),
         "ex_num": wb.add_format({**base, "italic": True, "font_color": _EXAMPLE_FONT}),
-        "ex_pct": wb.add_format({**base, "italic": True, "font_color": _EXAMPLE_FONT,
-                                 "num_format": "0.0%"}),
-        "ex_date": wb.add_format({**base, "italic": True, "font_color": _EXAMPLE_FONT,
-                                  "num_format": "yyyy-mm-dd"}),
+        "ex_pct": wb.add_format(
+            {**base, "italic": True, "font_color": _EXAMPLE_FONT, "num_format": "0.0%"}
+        ),
+        "ex_date": wb.add_format(
+            {**base, "italic": True, "font_color": _EXAMPLE_FONT, "num_format": "yyyy-mm-dd"}
+        ),
     }
     _write_read_me(wb, fmt)
     _write_items(wb, fmt)

@@ -14,7 +14,7 @@ DEFAULT_CUTOFFS: tuple[float, float] = (0.80, 0.95)
 
 
 def abc_classes(spend: ArrayLike, cutoffs: tuple[float, float] = DEFAULT_CUTOFFS) -> np.ndarray:
-    """"A", "B" or "C" per item ("" where spend is NaN or negative).
+    """ "A", "B" or "C" per item ("" where spend is NaN or negative).
 
     An item is in A when the spend of the items ranked above it is below the first cut-off
     share, so the item that crosses 80 % is still A; likewise for B. Ties keep input order.
@@ -29,6 +29,7 @@ def abc_classes(spend: ArrayLike, cutoffs: tuple[float, float] = DEFAULT_CUTOFFS
     order = idx[np.argsort(-x[idx], kind="stable")]
     before = np.concatenate(([0.0], np.cumsum(x[order])[:-1]))
     share_before = before / total if total > 0 else np.zeros_like(before)
-    out[order] = np.where(share_before < cutoffs[0], "A",
-                          np.where(share_before < cutoffs[1], "B", "C"))
+    out[order] = np.where(
+        share_before < cutoffs[0], "A", np.where(share_before < cutoffs[1], "B", "C")
+    )
     return out

@@ -24,8 +24,13 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike
 
-__all__ = ["DiscountChoice", "all_units_order_qty", "price_at", "sorted_breaks",
-           "total_annual_cost"]
+__all__ = [
+    "DiscountChoice",
+    "all_units_order_qty",
+    "price_at",
+    "sorted_breaks",
+    "total_annual_cost",
+]
 
 _WHOLE_TOL = 1e-9
 
@@ -44,17 +49,16 @@ def sorted_breaks(qty: ArrayLike, price: ArrayLike) -> tuple[np.ndarray, np.ndar
     return np.take_along_axis(q, order, axis=1), np.take_along_axis(p, order, axis=1)
 
 
-def _levels(base_price: ArrayLike, qty: np.ndarray, price: np.ndarray
-            ) -> tuple[np.ndarray, np.ndarray]:
+def _levels(
+    base_price: ArrayLike, qty: np.ndarray, price: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
     """Price levels per item: the base price from 0 units, then the sorted breaks."""
     n = qty.shape[0]
     base = np.broadcast_to(np.asarray(base_price, dtype=float).reshape(-1, 1), (n, 1))
-    return (np.concatenate([np.zeros((n, 1)), qty], axis=1),
-            np.concatenate([base, price], axis=1))
+    return (np.concatenate([np.zeros((n, 1)), qty], axis=1), np.concatenate([base, price], axis=1))
 
 
-def price_at(q: ArrayLike, base_price: ArrayLike, qty: ArrayLike, price: ArrayLike
-             ) -> np.ndarray:
+def price_at(q: ArrayLike, base_price: ArrayLike, qty: ArrayLike, price: ArrayLike) -> np.ndarray:
     """The unit price an order of q units pays: that of the largest break quantity <= q.
 
     q has one value per item (n,) or several (n, m); the base price applies below every
@@ -72,18 +76,21 @@ def price_at(q: ArrayLike, base_price: ArrayLike, qty: ArrayLike, price: ArrayLi
     return out.reshape(q_a.shape)
 
 
-def total_annual_cost(q: ArrayLike, D: ArrayLike, S: ArrayLike, i: ArrayLike,
-                      unit_price: ArrayLike) -> np.ndarray:
+def total_annual_cost(
+    q: ArrayLike, D: ArrayLike, S: ArrayLike, i: ArrayLike, unit_price: ArrayLike
+) -> np.ndarray:
     """D S / Q + i c Q / 2 + D c: ordering, cycle-stock holding and purchase a year."""
     q_a = np.asarray(q, dtype=float)
     c = np.asarray(unit_price, dtype=float)
     with np.errstate(all="ignore"):
-        return np.asarray(D) * np.asarray(S) / q_a + np.asarray(i) * c * q_a / 2.0 + \
-            np.asarray(D) * c
+        return (
+            np.asarray(D) * np.asarray(S) / q_a + np.asarray(i) * c * q_a / 2.0 + np.asarray(D) * c
+        )
 
 
-def _allowed_around(x: np.ndarray, pack: np.ndarray, moq: np.ndarray
-                    ) -> tuple[np.ndarray, np.ndarray]:
+def _allowed_around(
+    x: np.ndarray, pack: np.ndarray, moq: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
     """Allowed quantities just below and just above x: whole packs, at least the minimum.
 
     The same rule as core.policy.round_order_qty: multiples of the pack size, at least one
@@ -121,9 +128,17 @@ class DiscountChoice:
     saving: np.ndarray
 
 
-def all_units_order_qty(D: ArrayLike, S: ArrayLike, i: ArrayLike, base_price: ArrayLike,
-                        break_qty: ArrayLike, break_price: ArrayLike, pack: ArrayLike,
-                        moq: ArrayLike, max_qty: ArrayLike | None = None) -> DiscountChoice:
+def all_units_order_qty(
+    D: ArrayLike,
+    S: ArrayLike,
+    i: ArrayLike,
+    base_price: ArrayLike,
+    break_qty: ArrayLike,
+    break_price: ArrayLike,
+    pack: ArrayLike,
+    moq: ArrayLike,
+    max_qty: ArrayLike | None = None,
+) -> DiscountChoice:
     """The allowed order quantity with the lowest D S/Q + i c(Q) Q/2 + D c(Q), per item.
 
     ``break_qty`` and ``break_price`` are (n, k), padded with NaN (or inf quantities) where
@@ -140,15 +155,18 @@ def all_units_order_qty(D: ArrayLike, S: ArrayLike, i: ArrayLike, base_price: Ar
         return np.broadcast_to(np.asarray(x, dtype=float).reshape(-1, 1), (n, 1))
 
     S_a, i_a, c0, pk, m = (col(x) for x in (S, i, base_price, pack, moq))
-    bq, bp = sorted_breaks(np.asarray(break_qty, dtype=float).reshape(n, -1),
-                           np.asarray(break_price, dtype=float).reshape(n, -1))
+    bq, bp = sorted_breaks(
+        np.asarray(break_qty, dtype=float).reshape(n, -1),
+        np.asarray(break_price, dtype=float).reshape(n, -1),
+    )
     lq, lp = _levels(c0, bq, bp)  # (n, L)
     with np.errstate(all="ignore"):
         eoq = np.sqrt(2.0 * D_a * S_a / (i_a * lp))  # EOQ at each price
         nxt = np.concatenate([lq[:, 1:], np.full((n, 1), np.inf)], axis=1)
         # largest whole quantity below the next break (orders are whole units)
-        upper = np.where(np.isfinite(nxt), np.ceil(nxt - _WHOLE_TOL * np.maximum(1.0, nxt))
-                         - 1.0, np.inf)
+        upper = np.where(
+            np.isfinite(nxt), np.ceil(nxt - _WHOLE_TOL * np.maximum(1.0, nxt)) - 1.0, np.inf
+        )
         x = np.minimum(np.maximum(eoq, lq), upper)
         x = np.where(np.isfinite(lp), x, np.nan)
         lo, hi = _allowed_around(x, pk, m)
@@ -178,10 +196,10 @@ def all_units_order_qty(D: ArrayLike, S: ArrayLike, i: ArrayLike, base_price: Ar
         cost_lo = D_a * S_a / p_lo + h0 * p_lo / 2.0
         cost_hi = D_a * S_a / p_hi + h0 * p_hi / 2.0
         plain = np.minimum(np.where(cost_hi < cost_lo, p_hi, p_lo), cap)[:, 0]
-        plain_cost = total_annual_cost(plain, D_a[:, 0], S_a[:, 0], i_a[:, 0],
-                                       price_at(plain, c0[:, 0], bq, bp))
-        valid = (np.isfinite(q_best) & np.isfinite(total) & (D_a[:, 0] > 0)
-                 & np.isfinite(plain_cost))
+        plain_cost = total_annual_cost(
+            plain, D_a[:, 0], S_a[:, 0], i_a[:, 0], price_at(plain, c0[:, 0], bq, bp)
+        )
+        valid = np.isfinite(q_best) & np.isfinite(total) & (D_a[:, 0] > 0) & np.isfinite(plain_cost)
     nan = np.full(n, np.nan)
     return DiscountChoice(
         order_qty=np.where(valid, q_best, nan),

@@ -107,6 +107,7 @@ class HistoryAnalysis:
 # Small vectorised helpers (masked row statistics)
 # ---------------------------------------------------------------------------------------
 
+
 def _row_stats(x: np.ndarray, mask: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Count, mean and sample sd (ddof=1) of x over mask, per row; NaN where undefined."""
     n = np.count_nonzero(mask, axis=1)
@@ -200,6 +201,7 @@ def _seasons(n_cols: int, periods_per_year: float) -> tuple[np.ndarray, int] | N
 # The analysis
 # ---------------------------------------------------------------------------------------
 
+
 def analyse_history(
     matrix: ArrayLike,
     periods_per_year: float,
@@ -234,18 +236,29 @@ def analyse_history(
     if m.ndim == 1:
         m = m.reshape(1, -1)
     if m.shape[0] <= ANALYSIS_BLOCK:
-        return _analyse_block(m, periods_per_year, start, dormant_periods, cap_outliers,
-                              smoothing)
+        return _analyse_block(m, periods_per_year, start, dormant_periods, cap_outliers, smoothing)
     # Every statistic is per item (row), so blocks of items give the same answer with the
     # temporaries (a few dozen items x periods arrays) bounded by the block, not the sheet.
-    starts = (None if start is None
-              else np.broadcast_to(np.asarray(start, dtype=float), (m.shape[0],)))
-    parts = [_analyse_block(m[a:a + ANALYSIS_BLOCK], periods_per_year,
-                            None if starts is None else starts[a:a + ANALYSIS_BLOCK],
-                            dormant_periods, cap_outliers, smoothing)
-             for a in range(0, m.shape[0], ANALYSIS_BLOCK)]
-    return HistoryAnalysis(**{f.name: np.concatenate([getattr(p, f.name) for p in parts])
-                              for f in fields(HistoryAnalysis)})
+    starts = (
+        None if start is None else np.broadcast_to(np.asarray(start, dtype=float), (m.shape[0],))
+    )
+    parts = [
+        _analyse_block(
+            m[a : a + ANALYSIS_BLOCK],
+            periods_per_year,
+            None if starts is None else starts[a : a + ANALYSIS_BLOCK],
+            dormant_periods,
+            cap_outliers,
+            smoothing,
+        )
+        for a in range(0, m.shape[0], ANALYSIS_BLOCK)
+    ]
+    return HistoryAnalysis(
+        **{
+            f.name: np.concatenate([getattr(p, f.name) for p in parts])
+            for f in fields(HistoryAnalysis)
+        }
+    )
 
 
 #: Items analysed at a time (see analyse_history): 2,048 x 104 weekly periods is 1.7 MB a
@@ -255,9 +268,14 @@ def analyse_history(
 ANALYSIS_BLOCK = 2_048
 
 
-def _analyse_block(m: np.ndarray, periods_per_year: float, start: ArrayLike | None,
-                   dormant_periods: int | None, cap_outliers: bool,
-                   smoothing: float) -> HistoryAnalysis:
+def _analyse_block(
+    m: np.ndarray,
+    periods_per_year: float,
+    start: ArrayLike | None,
+    dormant_periods: int | None,
+    cap_outliers: bool,
+    smoothing: float,
+) -> HistoryAnalysis:
     """analyse_history for one block of items (rows of ``m``)."""
     n_items, n_cols = m.shape
     cols = np.arange(n_cols)
@@ -364,14 +382,11 @@ def _analyse_block(m: np.ndarray, periods_per_year: float, start: ArrayLike | No
         disp_ok = (n >= 2) & (mean > 0) & np.isfinite(vmr)
         dfree = np.maximum(n - 1, 1)
         dispersion_p = np.where(
-            disp_ok, _upper_tail(special.chdtrc, np.where(disp_ok, dfree * vmr, 0.0), dfree),
-            np.nan
+            disp_ok, _upper_tail(special.chdtrc, np.where(disp_ok, dfree * vmr, 0.0), dfree), np.nan
         )
 
         trend_ratio, trend = _trend(work, span, n)
-        seasonal, seasonal_strength = _seasonality(
-            work, span, begin, n, mean, periods_per_year
-        )
+        seasonal, seasonal_strength = _seasonality(work, span, begin, n, mean, periods_per_year)
 
         # --- recency -------------------------------------------------------------------
         last_sale = _last_true(sale)
@@ -448,9 +463,7 @@ def _croston(
     return croston, (1.0 - alpha / 2.0) * croston
 
 
-def _trend(
-    x: np.ndarray, span: np.ndarray, n: np.ndarray
-) -> tuple[np.ndarray, np.ndarray]:
+def _trend(x: np.ndarray, span: np.ndarray, n: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Recent third vs the earlier part: ratio of means and a trend flag (our rule).
 
     The recent part is the last n // 3 readable periods of the span and must hold at least
@@ -470,11 +483,7 @@ def _trend(
     t = np.where(se > 0, diff / np.where(se > 0, se, 1.0), np.where(diff == 0, 0.0, np.inf))
     ratio = np.where(m1 > 0, m2 / np.where(m1 > 0, m1, 1.0), np.where(m2 > 0, np.inf, np.nan))
     ratio = np.where(tested, ratio, np.nan)
-    flag = (
-        tested
-        & (np.abs(t) > TREND_T)
-        & ((ratio < TREND_RATIO_LOW) | (ratio > TREND_RATIO_HIGH))
-    )
+    flag = tested & (np.abs(t) > TREND_T) & ((ratio < TREND_RATIO_LOW) | (ratio > TREND_RATIO_HIGH))
     return ratio, flag
 
 
@@ -553,11 +562,16 @@ def _seasonality(
     tested = (n >= ppy) & (seen == g) & (df2 > 0) & np.isfinite(mean)
     df1s = np.maximum(df1, 1)
     df2s = np.maximum(df2, 1)
-    fstat = np.where(ssw > 0, (ssb / df1s) / np.where(ssw > 0, ssw / df2s, 1.0),
-                     np.where(ssb > 0, np.inf, np.nan))
-    pval = np.where(tested & ~np.isnan(fstat),
-                    _upper_tail(special.fdtrc, np.where(np.isnan(fstat), 0.0, fstat), df1s,
-                                df2s), np.nan)
+    fstat = np.where(
+        ssw > 0,
+        (ssb / df1s) / np.where(ssw > 0, ssw / df2s, 1.0),
+        np.where(ssb > 0, np.inf, np.nan),
+    )
+    pval = np.where(
+        tested & ~np.isnan(fstat),
+        _upper_tail(special.fdtrc, np.where(np.isnan(fstat), 0.0, fstat), df1s, df2s),
+        np.nan,
+    )
 
     level = np.where(cnt > 0, gmean + mean[:, None], np.nan)
     hi = np.where(cnt > 0, level, -np.inf).max(axis=1)
@@ -585,6 +599,7 @@ def _seasonality(
 # ---------------------------------------------------------------------------------------
 # Model choice
 # ---------------------------------------------------------------------------------------
+
 
 def _num(x: np.ndarray) -> np.ndarray:
     """Short number text: whole units from 10 up, two significant digits below."""
@@ -679,12 +694,14 @@ def choose_model(
     def count_reason(sel: np.ndarray, why: str, value: np.ndarray) -> np.ndarray:
         return np.char.add(
             np.char.add(head(sel, "count-like demand, ", " units over the lead time"), why),
-            np.char.add(_num(value[sel]), ")"))
+            np.char.add(_num(value[sel]), ")"),
+        )
 
     if normal.any():
         reason[normal] = np.char.add(
             head(normal, "steady demand: ", " units over the lead time, sd/mean "),
-            np.char.mod("%.2f", cv_text[normal]))
+            np.char.mod("%.2f", cv_text[normal]),
+        )
     pois_test = poisson & poisson_like
     pois_under = poisson & ~poisson_like
     model[poisson] = "poisson"
@@ -692,24 +709,28 @@ def choose_model(
         reason[pois_test] = count_reason(pois_test, ": variance close to the mean (ratio ", a.vmr)
     if pois_under.any():
         reason[pois_under] = count_reason(
-            pois_under, ": variance over the lead time not above the mean (ratio ", lt_ratio)
+            pois_under, ": variance over the lead time not above the mean (ratio ", lt_ratio
+        )
     nb_disp = negbin & (a.dispersion_p < DISPERSION_ALPHA)
     nb_lt = negbin & ~nb_disp
     model[negbin] = "negative binomial"
     if nb_disp.any():
-        reason[nb_disp] = count_reason(
-            nb_disp, ": variance clearly above the mean (ratio ", a.vmr)
+        reason[nb_disp] = count_reason(nb_disp, ": variance clearly above the mean (ratio ", a.vmr)
     if nb_lt.any():
         reason[nb_lt] = count_reason(
-            nb_lt, ": the lead time varies, which widens demand over it (variance/mean ",
-            lt_ratio)
+            nb_lt, ": the lead time varies, which widens demand over it (variance/mean ", lt_ratio
+        )
     model[normal] = "normal"
     model[gamma] = "gamma"
     if gamma.any():
         reason[gamma] = np.char.add(
-            head(gamma, "skewed or small demand in fractional quantities: ",
-                 " units over the lead time, sd/mean "),
-            np.char.mod("%.2f", cv_text[gamma]))
+            head(
+                gamma,
+                "skewed or small demand in fractional quantities: ",
+                " units over the lead time, sd/mean ",
+            ),
+            np.char.mod("%.2f", cv_text[gamma]),
+        )
     reason[no_sales] = "no sales in the history"
 
     if forced is not None:
@@ -739,11 +760,29 @@ def analysis_from_figures(mean: ArrayLike, sd: ArrayLike) -> HistoryAnalysis:
     no = np.zeros(k, dtype=bool)
     minus = np.full(k, -1, dtype=np.int64)
     return HistoryAnalysis(
-        start=np.zeros(k, dtype=np.int64), periods=np.full(k, 2.0),
-        nonzero_periods=np.where(m > 0, 2.0, 0.0), mean=m, sd=s, adi=nan, cv2=nan,
-        demand_class=np.full(k, "smooth", dtype=object), rate=m,
-        rate_method=np.full(k, "mean", dtype=object), croston=nan, vmr=vmr,
+        start=np.zeros(k, dtype=np.int64),
+        periods=np.full(k, 2.0),
+        nonzero_periods=np.where(m > 0, 2.0, 0.0),
+        mean=m,
+        sd=s,
+        adi=nan,
+        cv2=nan,
+        demand_class=np.full(k, "smooth", dtype=object),
+        rate=m,
+        rate_method=np.full(k, "mean", dtype=object),
+        croston=nan,
+        vmr=vmr,
         whole_numbers=np.ones(k, dtype=bool),
-        dispersion_p=np.where(vmr > 1.1, 0.0, 1.0), trend_ratio=nan, trend=no, seasonal=no,
-        seasonal_strength=nan, outlier=no, outlier_index=minus, outlier_value=nan,
-        sd_without_outlier=nan, periods_since_sale=minus, dormant=no, outlier_threshold=nan)
+        dispersion_p=np.where(vmr > 1.1, 0.0, 1.0),
+        trend_ratio=nan,
+        trend=no,
+        seasonal=no,
+        seasonal_strength=nan,
+        outlier=no,
+        outlier_index=minus,
+        outlier_value=nan,
+        sd_without_outlier=nan,
+        periods_since_sale=minus,
+        dormant=no,
+        outlier_threshold=nan,
+    )

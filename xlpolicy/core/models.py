@@ -260,8 +260,9 @@ def _first_whole(pred: Callable[[np.ndarray], np.ndarray], guess: np.ndarray) ->
     return np.where(np.isfinite(lo), hi, np.inf)
 
 
-def _first_whole_at(pred: Callable[[np.ndarray, np.ndarray], np.ndarray],
-                    guess: np.ndarray) -> np.ndarray:
+def _first_whole_at(
+    pred: Callable[[np.ndarray, np.ndarray], np.ndarray], guess: np.ndarray
+) -> np.ndarray:
     """:func:`_first_whole` for 1-D items, asking ``pred(k, j)`` only for the items j
     still searching (each round of the full version asks every item).
 
@@ -331,8 +332,9 @@ class _NonNormalModel(LeadTimeDemandModel):
     def _sf_raw(self, x: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray: ...
 
     @abstractmethod
-    def _es_raw(self, x: np.ndarray, mean: np.ndarray,
-                prm: tuple[np.ndarray, ...]) -> np.ndarray: ...
+    def _es_raw(
+        self, x: np.ndarray, mean: np.ndarray, prm: tuple[np.ndarray, ...]
+    ) -> np.ndarray: ...
 
     @abstractmethod
     def _ppf_raw(self, p: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray: ...
@@ -341,23 +343,30 @@ class _NonNormalModel(LeadTimeDemandModel):
     def _isf_raw(self, t: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray: ...
 
     @abstractmethod
-    def _min_r_raw(self, t: np.ndarray, inner: np.ndarray,
-                   prm: tuple[np.ndarray, ...]) -> np.ndarray:
+    def _min_r_raw(
+        self, t: np.ndarray, inner: np.ndarray, prm: tuple[np.ndarray, ...]
+    ) -> np.ndarray:
         """The search for 0 < t < mean (``inner``); other items get any finite value."""
 
     # helpers ---------------------------------------------------------------------------
-    def _b(self, x: ArrayLike) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray,
-                                        np.ndarray, tuple[np.ndarray, ...]]:
+    def _b(
+        self, x: ArrayLike
+    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, tuple[np.ndarray, ...]]:
         """Broadcast x with the item arrays: (x, mean, sd, bad, point, params)."""
         arrays = np.broadcast_arrays(
-            np.asarray(x, dtype=float), self.mean, self.sd, self._bad, self._point,
+            np.asarray(x, dtype=float),
+            self.mean,
+            self.sd,
+            self._bad,
+            self._point,
             *self._params,
         )
         x_b, mean, sd, bad, point = arrays[:5]
         return x_b, mean, sd, bad, point, tuple(arrays[5:])
 
-    def _finish(self, out: np.ndarray, point_value: np.ndarray, point: np.ndarray,
-                nan_mask: np.ndarray) -> np.ndarray:
+    def _finish(
+        self, out: np.ndarray, point_value: np.ndarray, point: np.ndarray, nan_mask: np.ndarray
+    ) -> np.ndarray:
         out = np.where(point, point_value, out)
         return np.where(nan_mask, np.nan, out)
 
@@ -457,7 +466,8 @@ class _CountModel(_NonNormalModel):
             skew = (2.0 * v - m) / (m * sd)  # (2 - p) / sqrt(n (1 - p)) for nbinom(n, p)
             guess = np.floor(m + sd * (z + skew * (z * z - 1.0) / 6.0))
         k = _first_whole_at(
-            lambda kk, j: self._cdf_raw(kk, tuple(a[j] for a in prm)) >= p[j], guess)
+            lambda kk, j: self._cdf_raw(kk, tuple(a[j] for a in prm)) >= p[j], guess
+        )
         return np.where(p == 0, -np.inf, np.where(p == 1, np.inf, k))
 
     def _ppf_scipy_checked(self, p: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
@@ -471,8 +481,9 @@ class _CountModel(_NonNormalModel):
     @abstractmethod
     def _scipy_ppf(self, p: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray: ...
 
-    def _min_r_raw(self, t: np.ndarray, inner: np.ndarray,
-                   prm: tuple[np.ndarray, ...]) -> np.ndarray:
+    def _min_r_raw(
+        self, t: np.ndarray, inner: np.ndarray, prm: tuple[np.ndarray, ...]
+    ) -> np.ndarray:
         m, v = self._guess(prm)
         t = np.where(inner, t, 0.5 * m)  # a harmless target where the search is not needed
         s = np.sqrt(v)
@@ -488,6 +499,7 @@ class _CountModel(_NonNormalModel):
 # ---------------------------------------------------------------------------------------
 # Poisson
 # ---------------------------------------------------------------------------------------
+
 
 class PoissonLeadTimeDemand(_CountModel):
     """Poisson lead-time demand with the given mean; the sd argument is ignored.
@@ -518,8 +530,7 @@ class PoissonLeadTimeDemand(_CountModel):
     def _sf_raw(self, x: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
         return stats.poisson.sf(x, prm[0])
 
-    def _es_raw(self, x: np.ndarray, mean: np.ndarray,
-                prm: tuple[np.ndarray, ...]) -> np.ndarray:
+    def _es_raw(self, x: np.ndarray, mean: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
         mu = prm[0]
         k = np.floor(x)
         return mu * stats.poisson.sf(k - 1.0, mu) - x * stats.poisson.sf(k, mu)
@@ -531,6 +542,7 @@ class PoissonLeadTimeDemand(_CountModel):
 # ---------------------------------------------------------------------------------------
 # Negative binomial
 # ---------------------------------------------------------------------------------------
+
 
 class NegativeBinomialLeadTimeDemand(_CountModel):
     """Negative binomial lead-time demand with matched mean and variance (over-dispersed counts).
@@ -561,15 +573,16 @@ class NegativeBinomialLeadTimeDemand(_CountModel):
         n = mean_s * mean_s / (var_s - mean_s)
         p = mean_s / var_s
         self._params = (
-            n, p, pois,
+            n,
+            p,
+            pois,
             np.where(pois, mean, 1.0),  # the Poisson mean for fallback items
             np.where(nb, mean, np.where(pois, mean, 1.0)),  # the mean used in formulas
         )
 
     def item_model_names(self) -> np.ndarray:
-        """"negative binomial", or "poisson" where the variance did not exceed the mean."""
-        return np.where(self.poisson_fallback, PoissonLeadTimeDemand.name, self.name).astype(
-            object)
+        """ "negative binomial", or "poisson" where the variance did not exceed the mean."""
+        return np.where(self.poisson_fallback, PoissonLeadTimeDemand.name, self.name).astype(object)
 
     def _guess(self, prm: tuple[np.ndarray, ...]) -> tuple[np.ndarray, np.ndarray]:
         n, p, pois, mu_p, mu = prm
@@ -579,40 +592,56 @@ class NegativeBinomialLeadTimeDemand(_CountModel):
     # evaluates each distribution on its own items only (_per_item), not both on all.
     def _cdf_raw(self, x: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
         n, p, pois, mu_p, _ = prm
-        return _per_item(pois, lambda x_, m_: stats.poisson.cdf(x_, m_),
-                         lambda x_, n_, p_: stats.nbinom.cdf(x_, n_, p_),
-                         (x, mu_p), (x, n, p))
+        return _per_item(
+            pois,
+            lambda x_, m_: stats.poisson.cdf(x_, m_),
+            lambda x_, n_, p_: stats.nbinom.cdf(x_, n_, p_),
+            (x, mu_p),
+            (x, n, p),
+        )
 
     def _sf_raw(self, x: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
         n, p, pois, mu_p, _ = prm
-        return _per_item(pois, lambda x_, m_: stats.poisson.sf(x_, m_),
-                         lambda x_, n_, p_: stats.nbinom.sf(x_, n_, p_),
-                         (x, mu_p), (x, n, p))
+        return _per_item(
+            pois,
+            lambda x_, m_: stats.poisson.sf(x_, m_),
+            lambda x_, n_, p_: stats.nbinom.sf(x_, n_, p_),
+            (x, mu_p),
+            (x, n, p),
+        )
 
-    def _es_raw(self, x: np.ndarray, mean: np.ndarray,
-                prm: tuple[np.ndarray, ...]) -> np.ndarray:
+    def _es_raw(self, x: np.ndarray, mean: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
         n, p, pois, mu_p, mu = prm
         k = np.floor(x)
 
         def po(x_: np.ndarray, k_: np.ndarray, m_: np.ndarray) -> np.ndarray:
             return m_ * stats.poisson.sf(k_ - 1.0, m_) - x_ * stats.poisson.sf(k_, m_)
 
-        def nb(x_: np.ndarray, k_: np.ndarray, mu_: np.ndarray, n_: np.ndarray,
-               p_: np.ndarray) -> np.ndarray:
+        def nb(
+            x_: np.ndarray, k_: np.ndarray, mu_: np.ndarray, n_: np.ndarray, p_: np.ndarray
+        ) -> np.ndarray:
             return mu_ * stats.nbinom.sf(k_ - 1.0, n_ + 1.0, p_) - x_ * stats.nbinom.sf(k_, n_, p_)
 
         return _per_item(pois, po, nb, (x, k, mu_p), (x, k, mu, n, p))
 
     def _scipy_ppf(self, p_: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
         n, p, pois, mu_p, _ = prm
-        return _per_item(pois, lambda q_, m_: stats.poisson.ppf(q_, m_),
-                         lambda q_, n_, pp_: stats.nbinom.ppf(q_, n_, pp_),
-                         (p_, mu_p), (p_, n, p))
+        return _per_item(
+            pois,
+            lambda q_, m_: stats.poisson.ppf(q_, m_),
+            lambda q_, n_, pp_: stats.nbinom.ppf(q_, n_, pp_),
+            (p_, mu_p),
+            (p_, n, p),
+        )
 
 
-def _per_item(mask: np.ndarray, f_true: Callable[..., np.ndarray],
-              f_false: Callable[..., np.ndarray], args_true: tuple[np.ndarray, ...],
-              args_false: tuple[np.ndarray, ...]) -> np.ndarray:
+def _per_item(
+    mask: np.ndarray,
+    f_true: Callable[..., np.ndarray],
+    f_false: Callable[..., np.ndarray],
+    args_true: tuple[np.ndarray, ...],
+    args_false: tuple[np.ndarray, ...],
+) -> np.ndarray:
     """np.where(mask, f_true(*args_true), f_false(*args_false)), each side evaluated only
     on its own elements (the functions are elementwise, so the numbers are the same).
 
@@ -631,6 +660,7 @@ def _per_item(mask: np.ndarray, f_true: Callable[..., np.ndarray],
 # ---------------------------------------------------------------------------------------
 # Gamma
 # ---------------------------------------------------------------------------------------
+
 
 class GammaLeadTimeDemand(_NonNormalModel):
     """Gamma lead-time demand with matched mean and variance (skewed, continuous).
@@ -658,8 +688,7 @@ class GammaLeadTimeDemand(_NonNormalModel):
     def _sf_raw(self, x: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
         return stats.gamma.sf(x, prm[0], scale=prm[1])
 
-    def _es_raw(self, x: np.ndarray, mean: np.ndarray,
-                prm: tuple[np.ndarray, ...]) -> np.ndarray:
+    def _es_raw(self, x: np.ndarray, mean: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
         a, scale, mu = prm
         return mu * stats.gamma.sf(x, a + 1.0, scale=scale) - x * stats.gamma.sf(x, a, scale=scale)
 
@@ -669,8 +698,9 @@ class GammaLeadTimeDemand(_NonNormalModel):
     def _isf_raw(self, t: np.ndarray, prm: tuple[np.ndarray, ...]) -> np.ndarray:
         return stats.gamma.isf(t, prm[0], scale=prm[1])
 
-    def _min_r_raw(self, t: np.ndarray, inner: np.ndarray,
-                   prm: tuple[np.ndarray, ...]) -> np.ndarray:
+    def _min_r_raw(
+        self, t: np.ndarray, inner: np.ndarray, prm: tuple[np.ndarray, ...]
+    ) -> np.ndarray:
         # E[(X - r)^+] falls strictly from mean at r = 0: bracket [0, hi] and bisect
         a, scale, mu = prm
         t = np.where(inner, t, 0.5 * mu)

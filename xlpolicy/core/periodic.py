@@ -33,11 +33,23 @@ __all__ = ["PERIODIC_COLUMNS", "periodic_policy"]
 
 #: Columns of :func:`periodic_policy`, in order.
 PERIODIC_COLUMNS: tuple[str, ...] = (
-    "protection_demand_mean", "protection_demand_sd", "order_up_to_level", "safety_stock",
-    "order_qty", "cycle_service", "fill_rate", "expected_units_short_per_cycle",
-    "orders_per_year", "annual_ordering_cost", "annual_cycle_holding_cost",
-    "annual_safety_holding_cost", "annual_shortage_cost", "annual_total_cost",
-    "annual_purchase_cost", "average_inventory_value", "flag_no_safety_stock_pays",
+    "protection_demand_mean",
+    "protection_demand_sd",
+    "order_up_to_level",
+    "safety_stock",
+    "order_qty",
+    "cycle_service",
+    "fill_rate",
+    "expected_units_short_per_cycle",
+    "orders_per_year",
+    "annual_ordering_cost",
+    "annual_cycle_holding_cost",
+    "annual_safety_holding_cost",
+    "annual_shortage_cost",
+    "annual_total_cost",
+    "annual_purchase_cost",
+    "average_inventory_value",
+    "flag_no_safety_stock_pays",
 )
 
 
@@ -45,24 +57,38 @@ def _col(x: ArrayLike, n: int) -> np.ndarray:
     return np.broadcast_to(np.asarray(x, dtype=float), (n,)).copy()
 
 
-def periodic_policy(review_days: ArrayLike, demand_per_period: ArrayLike,
-                    demand_sd_per_period: ArrayLike, lead_time_days: ArrayLike,
-                    lead_time_sd_days: ArrayLike, days_per_period: float,
-                    periods_per_year: float, order_cost: ArrayLike, holding_rate: ArrayLike,
-                    unit_cost: ArrayLike, measure: ArrayLike, service_target: ArrayLike,
-                    shortage_cost: ArrayLike, model: ArrayLike | None = None) -> pd.DataFrame:
+def periodic_policy(
+    review_days: ArrayLike,
+    demand_per_period: ArrayLike,
+    demand_sd_per_period: ArrayLike,
+    lead_time_days: ArrayLike,
+    lead_time_sd_days: ArrayLike,
+    days_per_period: float,
+    periods_per_year: float,
+    order_cost: ArrayLike,
+    holding_rate: ArrayLike,
+    unit_cost: ArrayLike,
+    measure: ArrayLike,
+    service_target: ArrayLike,
+    shortage_cost: ArrayLike,
+    model: ArrayLike | None = None,
+) -> pd.DataFrame:
     """The (T, S) policy and its yearly costs per item (NaN where it cannot be computed).
 
     ``model`` names each item's demand model (MODEL_NAMES; "" or None: normal).
     """
     T = np.asarray(review_days, dtype=float).reshape(-1)
     n = T.shape[0]
-    d, sd_d, L, sL = (_col(x, n) for x in (demand_per_period, demand_sd_per_period,
-                                           lead_time_days, lead_time_sd_days))
-    S_o, i, c, target, p = (_col(x, n) for x in (order_cost, holding_rate, unit_cost,
-                                                 service_target, shortage_cost))
-    meas = np.char.lower(np.char.strip(
-        np.broadcast_to(np.asarray(measure, dtype=object), (n,)).astype(str)))
+    d, sd_d, L, sL = (
+        _col(x, n)
+        for x in (demand_per_period, demand_sd_per_period, lead_time_days, lead_time_sd_days)
+    )
+    S_o, i, c, target, p = (
+        _col(x, n) for x in (order_cost, holding_rate, unit_cost, service_target, shortage_cost)
+    )
+    meas = np.char.lower(
+        np.char.strip(np.broadcast_to(np.asarray(measure, dtype=object), (n,)).astype(str))
+    )
     names = item_model_names(model, n)
     names[names == ""] = NormalLeadTimeDemand.name
     dpp = float(days_per_period)
@@ -73,10 +99,23 @@ def periodic_policy(review_days: ArrayLike, demand_per_period: ArrayLike,
         D = d * periods_per_year
         q_bar = d * T / dpp  # the average order: demand over one review period
         t_years = q_bar / D  # the review period in years (periods per year / T orders)
-        ok = (np.isfinite(T) & (T > 0) & np.isfinite(mu) & np.isfinite(sig) & (d > 0)
-              & np.isfinite(H) & (H > 0) & np.isfinite(S_o) & (S_o >= 0))
-        svc = np.isin(meas, (CYCLE_SERVICE, FILL_RATE)) & np.isfinite(target) & \
-            (target > 0) & (target < 1)
+        ok = (
+            np.isfinite(T)
+            & (T > 0)
+            & np.isfinite(mu)
+            & np.isfinite(sig)
+            & (d > 0)
+            & np.isfinite(H)
+            & (H > 0)
+            & np.isfinite(S_o)
+            & (S_o >= 0)
+        )
+        svc = (
+            np.isin(meas, (CYCLE_SERVICE, FILL_RATE))
+            & np.isfinite(target)
+            & (target > 0)
+            & (target < 1)
+        )
         sc = (meas == SHORTAGE_COST) & np.isfinite(p) & (p > 0)
         ok &= svc | sc
     out["protection_demand_mean"] = mu
@@ -89,12 +128,13 @@ def periodic_policy(review_days: ArrayLike, demand_per_period: ArrayLike,
         tw = np.where(svc[k], target[k], 0.5)
         qb = q_bar[k]
         with np.errstate(all="ignore"):
-            s_cs = _smallest_whole(_ceil_tol(m.quantile(tw)),
-                                   lambda s, m=m, tw=tw: m.cdf(s) >= tw - PROB_TOL)
+            s_cs = _smallest_whole(
+                _ceil_tol(m.quantile(tw)), lambda s, m=m, tw=tw: m.cdf(s) >= tw - PROB_TOL
+            )
             s_fr = _smallest_whole(
                 _ceil_tol(m.min_r_for_shortage((1.0 - tw) * qb)),
-                lambda s, m=m, tw=tw, qb=qb: 1.0 - m.expected_shortage(s) / qb
-                >= tw - PROB_TOL)
+                lambda s, m=m, tw=tw, qb=qb: 1.0 - m.expected_shortage(s) / qb >= tw - PROB_TOL,
+            )
             pk = np.where(sc[k], p[k], 1.0)
             ratio = H[k] * t_years[k] / pk
             nopay = sc[k] & (ratio >= 1.0)
@@ -105,8 +145,9 @@ def periodic_policy(review_days: ArrayLike, demand_per_period: ArrayLike,
                 return H[k] * (s - mu[k]) + pk * m.expected_shortage(s) / t_years[k]
 
             s_sc = np.where(cost(hi) < cost(lo), hi, lo)
-            level = np.where(meas[k] == CYCLE_SERVICE, s_cs,
-                             np.where(meas[k] == FILL_RATE, s_fr, s_sc))
+            level = np.where(
+                meas[k] == CYCLE_SERVICE, s_cs, np.where(meas[k] == FILL_RATE, s_fr, s_sc)
+            )
             level = np.maximum(level, 0.0)
             short = m.expected_shortage(level)
             orders = 1.0 / t_years[k]

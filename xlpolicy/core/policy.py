@@ -70,16 +70,44 @@ _WHOLE_TOL = 1e-9
 
 #: Columns of the frame returned by :func:`compute_policy`, in order.
 POLICY_COLUMNS: tuple[str, ...] = (
-    "annual_demand", "demand_per_period", "demand_sd_per_period", "lead_time_days",
-    "lead_time_demand_mean", "lead_time_demand_sd", "service_measure", "service_target",
-    "model", "eoq", "order_qty", "reorder_point", "safety_stock", "cycle_service",
-    "fill_rate", "expected_units_short_per_cycle", "orders_per_year", "annual_ordering_cost",
-    "annual_cycle_holding_cost", "annual_safety_holding_cost", "annual_shortage_cost",
-    "annual_total_cost", "annual_purchase_cost", "average_inventory_value",
-    "rounding_cost_ratio", "rounding_penalty", "flag_no_safety_stock_pays", "flag_normal_doubtful",
-    "flag_reorder_point_floored", "flag_shortage_cost_missing",
-    "unit_price", "price_break_qty", "discount_saving", "plain_eoq_qty",
-    "shelf_life_days", "shelf_life_max_qty", "shelf_life_cost", "flag_shelf_life_below_minimum",
+    "annual_demand",
+    "demand_per_period",
+    "demand_sd_per_period",
+    "lead_time_days",
+    "lead_time_demand_mean",
+    "lead_time_demand_sd",
+    "service_measure",
+    "service_target",
+    "model",
+    "eoq",
+    "order_qty",
+    "reorder_point",
+    "safety_stock",
+    "cycle_service",
+    "fill_rate",
+    "expected_units_short_per_cycle",
+    "orders_per_year",
+    "annual_ordering_cost",
+    "annual_cycle_holding_cost",
+    "annual_safety_holding_cost",
+    "annual_shortage_cost",
+    "annual_total_cost",
+    "annual_purchase_cost",
+    "average_inventory_value",
+    "rounding_cost_ratio",
+    "rounding_penalty",
+    "flag_no_safety_stock_pays",
+    "flag_normal_doubtful",
+    "flag_reorder_point_floored",
+    "flag_shortage_cost_missing",
+    "unit_price",
+    "price_break_qty",
+    "discount_saving",
+    "plain_eoq_qty",
+    "shelf_life_days",
+    "shelf_life_max_qty",
+    "shelf_life_cost",
+    "flag_shelf_life_below_minimum",
 )
 
 
@@ -118,17 +146,21 @@ class PolicyInputs:
     shelf_life_days: np.ndarray | None = None
 
 
-def order_cost_terms(q: ArrayLike, annual_demand: ArrayLike, order_cost: ArrayLike,
-                     holding_cost: ArrayLike) -> np.ndarray:
+def order_cost_terms(
+    q: ArrayLike, annual_demand: ArrayLike, order_cost: ArrayLike, holding_cost: ArrayLike
+) -> np.ndarray:
     """Annual ordering plus cycle-stock holding cost, D S / Q + H Q / 2 (EOQ cost curve)."""
     q_a = np.asarray(q, dtype=float)
     with np.errstate(all="ignore"):
-        return (np.asarray(annual_demand, dtype=float) * np.asarray(order_cost, dtype=float)
-                / q_a + np.asarray(holding_cost, dtype=float) * q_a / 2.0)
+        return (
+            np.asarray(annual_demand, dtype=float) * np.asarray(order_cost, dtype=float) / q_a
+            + np.asarray(holding_cost, dtype=float) * q_a / 2.0
+        )
 
 
-def _order_candidates(q: ArrayLike, pack: ArrayLike, moq: ArrayLike
-                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _order_candidates(
+    q: ArrayLike, pack: ArrayLike, moq: ArrayLike
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """The allowed order quantities just below and just above q, and where they exist.
 
     Allowed: whole multiples of the pack size, at least one pack and at least the minimum
@@ -138,9 +170,13 @@ def _order_candidates(q: ArrayLike, pack: ArrayLike, moq: ArrayLike
     with np.errstate(all="ignore"):
         pk_whole = np.round(pk)
         ok = (
-            np.isfinite(q_a) & (q_a >= 0)
-            & np.isfinite(pk) & (pk_whole >= 1) & (np.abs(pk - pk_whole) <= _WHOLE_TOL * pk)
-            & np.isfinite(m) & (m >= 0)
+            np.isfinite(q_a)
+            & (q_a >= 0)
+            & np.isfinite(pk)
+            & (pk_whole >= 1)
+            & (np.abs(pk - pk_whole) <= _WHOLE_TOL * pk)
+            & np.isfinite(m)
+            & (m >= 0)
         )
         pk_s = np.where(ok, pk_whole, 1.0)
         q_s = np.where(ok, q_a, 1.0)
@@ -153,8 +189,9 @@ def _order_candidates(q: ArrayLike, pack: ArrayLike, moq: ArrayLike
     return lo, hi, ok
 
 
-def round_order_qty(q: ArrayLike, pack: ArrayLike, moq: ArrayLike, D: ArrayLike,
-                    S: ArrayLike, H: ArrayLike) -> np.ndarray:
+def round_order_qty(
+    q: ArrayLike, pack: ArrayLike, moq: ArrayLike, D: ArrayLike, S: ArrayLike, H: ArrayLike
+) -> np.ndarray:
     """Round a continuous order quantity to what a supplier accepts, choosing the cheaper side.
 
     The result is a whole multiple of the pack size, at least one pack and at least the
@@ -185,11 +222,12 @@ def _smallest_whole(start: np.ndarray, meets: Callable[[np.ndarray], np.ndarray]
 
 
 #: Whole numbers up to this size are exact in float, so r - 1 + 1 == r (see below).
-_EXACT_WHOLE = 2.0 ** 52
+_EXACT_WHOLE = 2.0**52
 
 
-def _smallest_whole_at(start: np.ndarray,
-                       meets: Callable[[np.ndarray, np.ndarray], np.ndarray]) -> np.ndarray:
+def _smallest_whole_at(
+    start: np.ndarray, meets: Callable[[np.ndarray, np.ndarray], np.ndarray]
+) -> np.ndarray:
     """:func:`_smallest_whole`, asking ``meets`` each point of each item only once.
 
     ``meets(r, k)`` is the condition for the items k (indices into start) at points r.
@@ -232,8 +270,13 @@ def _column(x: ArrayLike, n: int) -> np.ndarray:
 
 def _shortage_optimum(
     model_factory: ModelFactory,
-    mu: np.ndarray, sd: np.ndarray, D: np.ndarray, S: np.ndarray, H: np.ndarray,
-    p: np.ndarray, eoq: np.ndarray,
+    mu: np.ndarray,
+    sd: np.ndarray,
+    D: np.ndarray,
+    S: np.ndarray,
+    H: np.ndarray,
+    p: np.ndarray,
+    eoq: np.ndarray,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Continuous (Q, R) optimum with backorder cost p per unit short, for arrays of items.
 
@@ -284,7 +327,11 @@ def _shortage_optimum(
 
 
 def _whole_r_descent(
-    model: LeadTimeDemandModel, D: np.ndarray, S: np.ndarray, H: np.ndarray, p: np.ndarray,
+    model: LeadTimeDemandModel,
+    D: np.ndarray,
+    S: np.ndarray,
+    H: np.ndarray,
+    p: np.ndarray,
     q: np.ndarray,
 ) -> tuple[np.ndarray, np.ndarray]:
     """For whole-unit demand, the whole R >= 0 nearest the iterate that minimises the cost.
@@ -313,7 +360,11 @@ def _whole_r_descent(
 
 
 def _shortage_bracketed(
-    model: LeadTimeDemandModel, D: np.ndarray, S: np.ndarray, H: np.ndarray, p: np.ndarray,
+    model: LeadTimeDemandModel,
+    D: np.ndarray,
+    S: np.ndarray,
+    H: np.ndarray,
+    p: np.ndarray,
     r_right: np.ndarray,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """The same optimum by bracketing, for items where the iteration is slow.
@@ -427,17 +478,24 @@ def compute_policy(
     full = _broadcast_inputs(inp, n)
     parts = []
     for idx, fac in groups:
-        sub = replace(full, **{f.name: getattr(full, f.name)[idx] for f in fields(full)
-                               if f.name != "days_per_period"
-                               and getattr(full, f.name) is not None})
+        sub = replace(
+            full,
+            **{
+                f.name: getattr(full, f.name)[idx]
+                for f in fields(full)
+                if f.name != "days_per_period" and getattr(full, f.name) is not None
+            },
+        )
         parts.append((idx, _policy_group_columns(sub, fac, usable=known[idx])))
     # each group's columns put back at its items' rows (what concatenating the groups'
     # frames and sorting by row gave, without the frames; a whole-column scalar is an
     # object column in such a frame, so it is one here too)
     cols: dict[str, np.ndarray] = {}
     for key in POLICY_COLUMNS:
-        values = [np.asarray(part[key], dtype=object if np.ndim(part[key]) == 0 else None)
-                  for _, part in parts]
+        values = [
+            np.asarray(part[key], dtype=object if np.ndim(part[key]) == 0 else None)
+            for _, part in parts
+        ]
         col = np.empty(n, dtype=np.result_type(*values))
         for (idx, _), v in zip(parts, values, strict=True):
             col[idx] = v
@@ -450,9 +508,17 @@ def compute_policy(
     return out
 
 
-def _achieved(model: LeadTimeDemandModel, Q: np.ndarray, R: np.ndarray, mu: np.ndarray,
-              D: np.ndarray, S: np.ndarray, H: np.ndarray, c: np.ndarray,
-              p: np.ndarray) -> dict[str, np.ndarray]:
+def _achieved(
+    model: LeadTimeDemandModel,
+    Q: np.ndarray,
+    R: np.ndarray,
+    mu: np.ndarray,
+    D: np.ndarray,
+    S: np.ndarray,
+    H: np.ndarray,
+    c: np.ndarray,
+    p: np.ndarray,
+) -> dict[str, np.ndarray]:
     """Service and yearly costs of whole-unit (Q, R) under a lead-time demand model.
 
     Field notes: cycle service F(R); units short per cycle n(R) = E[(X - R)^+]; fill rate
@@ -469,27 +535,47 @@ def _achieved(model: LeadTimeDemandModel, Q: np.ndarray, R: np.ndarray, mu: np.n
         ss_hold = H * ss
         shortage = np.where(np.isfinite(p), np.nan_to_num(p) * orders * short, 0.0)
         return {
-            "cycle_service": model.cdf(R), "short": short,
-            "fill_rate": np.clip(1.0 - short / Q, 0.0, 1.0), "safety_stock": ss,
-            "orders": orders, "ordering": ordering, "cycle_hold": cycle_hold,
-            "ss_hold": ss_hold, "shortage": shortage,
-            "total": ordering + cycle_hold + ss_hold + shortage, "purchase": D * c,
+            "cycle_service": model.cdf(R),
+            "short": short,
+            "fill_rate": np.clip(1.0 - short / Q, 0.0, 1.0),
+            "safety_stock": ss,
+            "orders": orders,
+            "ordering": ordering,
+            "cycle_hold": cycle_hold,
+            "ss_hold": ss_hold,
+            "shortage": shortage,
+            "total": ordering + cycle_hold + ss_hold + shortage,
+            "purchase": D * c,
             "avg_value": c * (Q / 2.0 + np.maximum(ss, 0.0)),
         }
 
 
 #: Columns of :func:`evaluate_policy`.
 EVALUATION_COLUMNS: tuple[str, ...] = (
-    "safety_stock", "cycle_service", "fill_rate", "units_short_per_cycle",
-    "annual_ordering_cost", "annual_cycle_holding_cost", "annual_safety_holding_cost",
-    "annual_shortage_cost", "annual_total_cost",
+    "safety_stock",
+    "cycle_service",
+    "fill_rate",
+    "units_short_per_cycle",
+    "annual_ordering_cost",
+    "annual_cycle_holding_cost",
+    "annual_safety_holding_cost",
+    "annual_shortage_cost",
+    "annual_total_cost",
 )
 
 
-def evaluate_policy(order_qty: ArrayLike, reorder_point: ArrayLike, mean: ArrayLike,
-                    sd: ArrayLike, model: ArrayLike, annual_demand: ArrayLike,
-                    order_cost: ArrayLike, holding_cost: ArrayLike, unit_cost: ArrayLike,
-                    shortage_cost: ArrayLike) -> pd.DataFrame:
+def evaluate_policy(
+    order_qty: ArrayLike,
+    reorder_point: ArrayLike,
+    mean: ArrayLike,
+    sd: ArrayLike,
+    model: ArrayLike,
+    annual_demand: ArrayLike,
+    order_cost: ArrayLike,
+    holding_cost: ArrayLike,
+    unit_cost: ArrayLike,
+    shortage_cost: ArrayLike,
+) -> pd.DataFrame:
     """Service and yearly costs of given (Q, R) policies, e.g. the ones a shop uses today.
 
     Each item is evaluated under its own lead-time demand model (a name from MODEL_NAMES;
@@ -499,8 +585,19 @@ def evaluate_policy(order_qty: ArrayLike, reorder_point: ArrayLike, mean: ArrayL
     """
     q = np.asarray(order_qty, dtype=float).reshape(-1)
     n = q.shape[0]
-    cols = [_column(x, n) for x in (reorder_point, mean, sd, annual_demand, order_cost,
-                                    holding_cost, unit_cost, shortage_cost)]
+    cols = [
+        _column(x, n)
+        for x in (
+            reorder_point,
+            mean,
+            sd,
+            annual_demand,
+            order_cost,
+            holding_cost,
+            unit_cost,
+            shortage_cost,
+        )
+    ]
     r, mu, sd_a, D, S, H, c, p = cols
     names = item_model_names(model, n)
     names[names == ""] = NormalLeadTimeDemand.name
@@ -510,11 +607,24 @@ def evaluate_policy(order_qty: ArrayLike, reorder_point: ArrayLike, mean: ArrayL
         k = np.flatnonzero(ok & (names == name))
         if not len(k):
             continue
-        ach = _achieved(named_model(name)(mu[k], sd_a[k]), q[k], r[k], mu[k], D[k], S[k],
-                        H[k], c[k], p[k])
-        for col, key in zip(EVALUATION_COLUMNS, (
-                "safety_stock", "cycle_service", "fill_rate", "short", "ordering",
-                "cycle_hold", "ss_hold", "shortage", "total"), strict=True):
+        ach = _achieved(
+            named_model(name)(mu[k], sd_a[k]), q[k], r[k], mu[k], D[k], S[k], H[k], c[k], p[k]
+        )
+        for col, key in zip(
+            EVALUATION_COLUMNS,
+            (
+                "safety_stock",
+                "cycle_service",
+                "fill_rate",
+                "short",
+                "ordering",
+                "cycle_hold",
+                "ss_hold",
+                "shortage",
+                "total",
+            ),
+            strict=True,
+        ):
             out[col][k] = ach[key]
     return pd.DataFrame(out, index=pd.RangeIndex(n), columns=list(EVALUATION_COLUMNS))
 
@@ -545,8 +655,7 @@ def _per_distinct(values: np.ndarray, f: Callable[[np.ndarray], np.ndarray]) -> 
     items. Only for text (and missing) values: numbers such as 1, 1.0 and True would be
     one value to the hashing but three texts to f, so anything else takes f whole.
     """
-    if len(values) < 64 or pd.api.types.infer_dtype(values, skipna=True) not in (
-            "string", "empty"):
+    if len(values) < 64 or pd.api.types.infer_dtype(values, skipna=True) not in ("string", "empty"):
         return f(values)
     codes, uniques = pd.factorize(values, use_na_sentinel=True)
     if (codes < 0).any():  # missing values: f says what they become
@@ -563,8 +672,10 @@ def _broadcast_inputs(inp: PolicyInputs, n: int) -> PolicyInputs:
             cols[f.name] = val
         elif f.name in ("break_qty", "break_price"):
             arr = np.asarray(val, dtype=float)
-            cols[f.name] = np.broadcast_to(arr.reshape(arr.shape[0] if arr.ndim else 1, -1),
-                                           (n, arr.shape[-1] if arr.ndim else 1)).copy()
+            cols[f.name] = np.broadcast_to(
+                arr.reshape(arr.shape[0] if arr.ndim else 1, -1),
+                (n, arr.shape[-1] if arr.ndim else 1),
+            ).copy()
         elif f.name in ("measure", "model"):
             cols[f.name] = np.broadcast_to(np.asarray(val, dtype=object), (n,)).copy()
         else:
@@ -572,15 +683,18 @@ def _broadcast_inputs(inp: PolicyInputs, n: int) -> PolicyInputs:
     return PolicyInputs(**cols)  # type: ignore[arg-type]
 
 
-def _policy_group(inp: PolicyInputs, model_factory: ModelFactory,
-                  usable: np.ndarray | None = None) -> pd.DataFrame:
+def _policy_group(
+    inp: PolicyInputs, model_factory: ModelFactory, usable: np.ndarray | None = None
+) -> pd.DataFrame:
     """compute_policy for items sharing one model factory; usable=False forces NaN numbers."""
-    return pd.DataFrame(_policy_group_columns(inp, model_factory, usable),
-                        columns=list(POLICY_COLUMNS))
+    return pd.DataFrame(
+        _policy_group_columns(inp, model_factory, usable), columns=list(POLICY_COLUMNS)
+    )
 
 
-def _policy_group_columns(inp: PolicyInputs, model_factory: ModelFactory,
-                          usable: np.ndarray | None = None) -> dict[str, object]:
+def _policy_group_columns(
+    inp: PolicyInputs, model_factory: ModelFactory, usable: np.ndarray | None = None
+) -> dict[str, object]:
     """The columns of :func:`_policy_group` (arrays, or a scalar for a whole column)."""
     D = np.asarray(inp.annual_demand, dtype=float).reshape(-1)
     n = D.shape[0]
@@ -608,13 +722,17 @@ def _policy_group_columns(inp: PolicyInputs, model_factory: ModelFactory,
         # every cost after that at the price that Q pays (core.discounts).
         # Shelf life: Q at most the demand over the usable life, in whole packs; where that
         # is below the smallest allowed order, the smallest allowed order (flagged).
-        life = _column(inp.shelf_life_days, n) if inp.shelf_life_days is not None else \
-            np.full(n, np.nan)
+        life = (
+            _column(inp.shelf_life_days, n)
+            if inp.shelf_life_days is not None
+            else np.full(n, np.nan)
+        )
         has_life = np.isfinite(life) & (life > 0)
         life_cont = d * life / dpp  # expected demand over the shelf life, units
         pk1 = np.where(np.isfinite(pack) & (pack >= 1), np.round(pack), 1.0)
-        floor_q = pk1 * np.maximum(1.0, np.ceil(np.where(np.isfinite(moq), moq, 0.0) / pk1
-                                                - _WHOLE_TOL))
+        floor_q = pk1 * np.maximum(
+            1.0, np.ceil(np.where(np.isfinite(moq), moq, 0.0) / pk1 - _WHOLE_TOL)
+        )
         cap_packs = np.floor(life_cont / pk1 + _WHOLE_TOL) * pk1
         life_short = has_life & (cap_packs < floor_q)
         cap_q = np.where(has_life, np.where(life_short, floor_q, cap_packs), np.inf)
@@ -629,14 +747,32 @@ def _policy_group_columns(inp: PolicyInputs, model_factory: ModelFactory,
 
         p_given = np.isfinite(p)
         base_ok = (
-            np.isfinite(D) & (D > 0) & np.isfinite(d) & (d >= 0)
-            & np.isfinite(sd_d) & (sd_d >= 0) & np.isfinite(lt) & (lt >= 0)
-            & np.isfinite(slt) & (slt >= 0) & np.isfinite(c) & (c > 0)
-            & np.isfinite(S) & (S >= 0) & np.isfinite(i) & (i > 0) & np.isfinite(H) & (H > 0)
-            & np.isfinite(mu_l) & np.isfinite(sig_l) & np.isfinite(eoq_raw)
-            & np.isfinite(pack) & (pack >= 1)
+            np.isfinite(D)
+            & (D > 0)
+            & np.isfinite(d)
+            & (d >= 0)
+            & np.isfinite(sd_d)
+            & (sd_d >= 0)
+            & np.isfinite(lt)
+            & (lt >= 0)
+            & np.isfinite(slt)
+            & (slt >= 0)
+            & np.isfinite(c)
+            & (c > 0)
+            & np.isfinite(S)
+            & (S >= 0)
+            & np.isfinite(i)
+            & (i > 0)
+            & np.isfinite(H)
+            & (H > 0)
+            & np.isfinite(mu_l)
+            & np.isfinite(sig_l)
+            & np.isfinite(eoq_raw)
+            & np.isfinite(pack)
+            & (pack >= 1)
             & (np.abs(pack - np.round(pack)) <= _WHOLE_TOL * pack)
-            & np.isfinite(moq) & (moq >= 0)
+            & np.isfinite(moq)
+            & (moq >= 0)
             & bool(np.isfinite(dpp) and dpp > 0)
         )
         target_ok = np.isfinite(target) & (target > 0) & (target < 1)
@@ -694,8 +830,11 @@ def _policy_group_columns(inp: PolicyInputs, model_factory: ModelFactory,
         def sc_cost(q: np.ndarray, r: np.ndarray) -> np.ndarray:
             """Expected annual cost with backorders (Hadley & Whitin 1963), R floored at 0."""
             r0 = np.maximum(r, 0.0)
-            return (Dw[k_sc] * Sw[k_sc] / q + H_k * (q / 2.0 + r0 - mu_k)
-                    + pD_k / q * model_sc.expected_shortage(r0))
+            return (
+                Dw[k_sc] * Sw[k_sc] / q
+                + H_k * (q / 2.0 + r0 - mu_k)
+                + pD_k / q * model_sc.expected_shortage(r0)
+            )
 
         # Service measures: the cheaper pack multiple on the EOQ cost curve. Shortage cost:
         # the pack multiple below or above the optimum whose whole (Q, R) costs less in full.
@@ -736,8 +875,7 @@ def _policy_group_columns(inp: PolicyInputs, model_factory: ModelFactory,
             Q = np.where(plain_cap, cap_q, Q)
             # rounding is measured from the capped continuous quantity, so the rounding
             # penalty does not count the cap's cost a second time
-            q_cont = np.where(capped, np.minimum(q_cont, np.maximum(life_cont, floor_q)),
-                              q_cont)
+            q_cont = np.where(capped, np.minimum(q_cont, np.maximum(life_cont, floor_q)), q_cont)
             sc_again(capped)
         # What the cap costs a year, on ordering + cycle holding + purchase at the price
         # each quantity pays (the EOQ cost curve; purchase only differs with price breaks).
@@ -748,7 +886,8 @@ def _policy_group_columns(inp: PolicyInputs, model_factory: ModelFactory,
             has_life,
             (Dw * s_eff / Q + i * c * Q / 2.0 + Dw * c)
             - (Dw * s_eff / q_free + i * price_free * q_free / 2.0 + Dw * price_free),
-            np.nan)
+            np.nan,
+        )
 
         # -- reorder points, each measure on its own items (0 for items not planned) ------
         r_raw = r_sc
@@ -758,33 +897,47 @@ def _policy_group_columns(inp: PolicyInputs, model_factory: ModelFactory,
             mu_cs, sd_cs = muw[k_cs], sgw[k_cs]
             r_raw[k_cs] = _smallest_whole_at(
                 _ceil_tol(m_cs.quantile(t_cs)),
-                lambda r, j: (_subset_model(m_cs, model_factory, mu_cs, sd_cs, j).cdf(r)
-                              >= t_cs[j] - PROB_TOL))
+                lambda r, j: (
+                    _subset_model(m_cs, model_factory, mu_cs, sd_cs, j).cdf(r) >= t_cs[j] - PROB_TOL
+                ),
+            )
         k_fr = np.flatnonzero(is_fr & ok)
         if k_fr.size:
-            m_fr, t_fr, q_fr = (_subset_model(model, model_factory, muw, sgw, k_fr), tw[k_fr],
-                                Q[k_fr])
+            m_fr, t_fr, q_fr = (
+                _subset_model(model, model_factory, muw, sgw, k_fr),
+                tw[k_fr],
+                Q[k_fr],
+            )
             mu_fr, sd_fr = muw[k_fr], sgw[k_fr]
             r_raw[k_fr] = _smallest_whole_at(
                 _ceil_tol(m_fr.min_r_for_shortage((1.0 - t_fr) * q_fr)),
-                lambda r, j: (1.0 - _subset_model(m_fr, model_factory, mu_fr, sd_fr,
-                                                  j).expected_shortage(r) / q_fr[j]
-                              >= t_fr[j] - PROB_TOL))
+                lambda r, j: (
+                    1.0
+                    - _subset_model(m_fr, model_factory, mu_fr, sd_fr, j).expected_shortage(r)
+                    / q_fr[j]
+                    >= t_fr[j] - PROB_TOL
+                ),
+            )
         floored = ok & (r_raw < 0)
         R = np.maximum(r_raw, 0.0)
 
         # -- what the whole-unit policy achieves, and what it costs --------------------
         ach = _achieved(model, Q, R, muw, Dw, Sw, Hw, cw, np.where(p_given, pw, np.nan))
-        cycle_service, short, fill, ss = (ach["cycle_service"], ach["short"], ach["fill_rate"],
-                                          ach["safety_stock"])
+        cycle_service, short, fill, ss = (
+            ach["cycle_service"],
+            ach["short"],
+            ach["fill_rate"],
+            ach["safety_stock"],
+        )
         orders, ordering, cycle_hold = ach["orders"], ach["ordering"], ach["cycle_hold"]
         ss_hold, shortage, total = ach["ss_hold"], ach["shortage"], ach["total"]
         purchase, avg_value = ach["purchase"], ach["avg_value"]
         # What whole packs and minimum orders cost a year over the continuous optimum, on
         # the curve D S'/Q + H Q/2 (S' = S, plus the expected shortage cost per order for
         # the shortage-cost measure): the price of ordering in what the supplier sells.
-        rounding_penalty = (order_cost_terms(Q, Dw, s_eff, Hw)
-                            - order_cost_terms(q_cont, Dw, s_eff, Hw))
+        rounding_penalty = order_cost_terms(Q, Dw, s_eff, Hw) - order_cost_terms(
+            q_cont, Dw, s_eff, Hw
+        )
         rounding_ratio = np.where(
             s_eff > 0,
             order_cost_terms(Q, Dw, s_eff, Hw) / order_cost_terms(q_cont, Dw, s_eff, Hw),
@@ -792,7 +945,9 @@ def _policy_group_columns(inp: PolicyInputs, model_factory: ModelFactory,
         )
         used = np.where(ok, model.item_model_names(), model.name).astype(object)
         doubtful = (
-            np.isfinite(mu_l) & np.isfinite(sig_l) & ((sig_l >= 0.5 * mu_l) | (mu_l < 10.0))
+            np.isfinite(mu_l)
+            & np.isfinite(sig_l)
+            & ((sig_l >= 0.5 * mu_l) | (mu_l < 10.0))
             & (used == NormalLeadTimeDemand.name)
         )
         if usable is not None:
@@ -838,15 +993,22 @@ def _policy_group_columns(inp: PolicyInputs, model_factory: ModelFactory,
         "shelf_life_cost": out(np.maximum(life_cost, 0.0)),
         "flag_shelf_life_below_minimum": ok & life_short,
         "price_break_qty": out(disc.break_qty) if disc is not None else np.nan,
-        "discount_saving": (out(np.where(has_breaks, disc.saving, np.nan))
-                            if disc is not None else np.nan),
-        "plain_eoq_qty": (out(np.where(has_breaks, disc.plain_qty, np.nan))
-                          if disc is not None else np.nan),
+        "discount_saving": (
+            out(np.where(has_breaks, disc.saving, np.nan)) if disc is not None else np.nan
+        ),
+        "plain_eoq_qty": (
+            out(np.where(has_breaks, disc.plain_qty, np.nan)) if disc is not None else np.nan
+        ),
     }
 
 
-def _subset_model(model: LeadTimeDemandModel, model_factory: ModelFactory, mean: np.ndarray,
-                  sd: np.ndarray, k: np.ndarray) -> LeadTimeDemandModel:
+def _subset_model(
+    model: LeadTimeDemandModel,
+    model_factory: ModelFactory,
+    mean: np.ndarray,
+    sd: np.ndarray,
+    k: np.ndarray,
+) -> LeadTimeDemandModel:
     """The model of items k (the whole model when k is every item, in order).
 
     Every model method works item by item, so a model of some items gives those items'
@@ -857,10 +1019,17 @@ def _subset_model(model: LeadTimeDemandModel, model_factory: ModelFactory, mean:
     return model_factory(mean[k], sd[k])
 
 
-def _discounts(inp: PolicyInputs, n: int, D: np.ndarray, S: np.ndarray, i: np.ndarray,
-               c: np.ndarray, pack: np.ndarray, moq: np.ndarray,
-               max_qty: np.ndarray | None = None
-               ) -> tuple[DiscountChoice | None, np.ndarray]:
+def _discounts(
+    inp: PolicyInputs,
+    n: int,
+    D: np.ndarray,
+    S: np.ndarray,
+    i: np.ndarray,
+    c: np.ndarray,
+    pack: np.ndarray,
+    moq: np.ndarray,
+    max_qty: np.ndarray | None = None,
+) -> tuple[DiscountChoice | None, np.ndarray]:
     """The all-units price-break choice for items with breaks (None when no item has any)."""
     none = np.zeros(n, dtype=bool)
     if inp.break_qty is None or inp.break_price is None:

@@ -69,15 +69,34 @@ __all__ = [
 #: Service targets (for the items on the Settings default) at which the curve is traced;
 #: today's default target is always added.
 DEFAULT_CURVE_TARGETS: tuple[float, ...] = (
-    0.5, 0.75, 0.8, 0.85, 0.9, 0.925, 0.95, 0.97, 0.98, 0.99, 0.995, 0.999)
+    0.5,
+    0.75,
+    0.8,
+    0.85,
+    0.9,
+    0.925,
+    0.95,
+    0.97,
+    0.98,
+    0.99,
+    0.995,
+    0.999,
+)
 #: Multipliers on every shortage cost (shortage-cost measure); 1 (today) is among them.
 DEFAULT_CURVE_MULTIPLIERS: tuple[float, ...] = (0.1, 0.2, 0.5, 1.0, 2.0, 5.0, 10.0, 20.0, 50.0)
 
 #: Columns of :func:`exchange_curve`, one row per point, lowest investment first.
 EXCHANGE_COLUMNS: tuple[str, ...] = (
-    "default_target", "shortage_cost_multiplier", "shortage_odds_factor",
-    "safety_stock_investment", "units_short_per_year", "stockout_occasions_per_year",
-    "fill_rate_overall", "annual_safety_holding_cost", "items", "current",
+    "default_target",
+    "shortage_cost_multiplier",
+    "shortage_odds_factor",
+    "safety_stock_investment",
+    "units_short_per_year",
+    "stockout_occasions_per_year",
+    "fill_rate_overall",
+    "annual_safety_holding_cost",
+    "items",
+    "current",
 )
 
 BUDGET = "budget"
@@ -148,8 +167,12 @@ def scaled_inputs(inp: PolicyInputs, factors: np.ndarray) -> PolicyInputs:
         t_new = np.where(f == 1.0, t, t / (t + f * (1.0 - t)))
         p_new = np.where(f == 1.0, p, p / f)
     tiled = tile_inputs(inp, k)
-    return replace(tiled, service_target=t_new, shortage_cost=p_new,
-                   measure=np.tile(_item_column(inp, "measure", n, object), k))
+    return replace(
+        tiled,
+        service_target=t_new,
+        shortage_cost=p_new,
+        measure=np.tile(_item_column(inp, "measure", n, object), k),
+    )
 
 
 def _odds(t: float) -> float:
@@ -164,9 +187,13 @@ CURVE_ROWS = 250_000
 CURVE_AUTO_MAX = 20_000
 
 
-def exchange_curve(inp: PolicyInputs, default_target: float, measure: str,
-                   targets: tuple[float, ...] = DEFAULT_CURVE_TARGETS,
-                   multipliers: tuple[float, ...] = DEFAULT_CURVE_MULTIPLIERS) -> pd.DataFrame:
+def exchange_curve(
+    inp: PolicyInputs,
+    default_target: float,
+    measure: str,
+    targets: tuple[float, ...] = DEFAULT_CURVE_TARGETS,
+    multipliers: tuple[float, ...] = DEFAULT_CURVE_MULTIPLIERS,
+) -> pd.DataFrame:
     """Safety-stock investment against shortages per year, across all items, per point.
 
     ``measure`` (the Settings service measure) picks the parameter: the default service
@@ -196,15 +223,26 @@ def exchange_curve(inp: PolicyInputs, default_target: float, measure: str,
     # every point's whole policy frame (2.4 GB at 100,000 items); groups of points of about
     # CURVE_ROWS rows keep the memory of one group, each call still vectorised.
     per_call = max(1, CURVE_ROWS // max(n, 1))
-    wanted = ("order_qty", "orders_per_year", "safety_stock", "expected_units_short_per_cycle",
-              "cycle_service", "annual_demand", "annual_safety_holding_cost", "unit_price")
+    wanted = (
+        "order_qty",
+        "orders_per_year",
+        "safety_stock",
+        "expected_units_short_per_cycle",
+        "cycle_service",
+        "annual_demand",
+        "annual_safety_holding_cost",
+        "unit_price",
+    )
     parts: dict[str, list[np.ndarray]] = {key: [] for key in wanted}
     for a in range(0, k, per_call):
-        pol = compute_policy(scaled_inputs(inp, factors[a:a + per_call]))
+        pol = compute_policy(scaled_inputs(inp, factors[a : a + per_call]))
         for key in wanted:
             # Stock is valued at the price paid (the price break's, where there are breaks).
-            col = (pol[key] if key in pol.columns else
-                   np.tile(_item_column(inp, "unit_cost", n), len(factors[a:a + per_call])))
+            col = (
+                pol[key]
+                if key in pol.columns
+                else np.tile(_item_column(inp, "unit_cost", n), len(factors[a : a + per_call]))
+            )
             parts[key].append(np.asarray(col, dtype=float))
 
     def per_point(key: str) -> np.ndarray:
@@ -221,23 +259,29 @@ def exchange_curve(inp: PolicyInputs, default_target: float, measure: str,
     with np.errstate(all="ignore"):
         units_short = np.nansum(orders * short, axis=1)
         total_demand = np.nansum(np.where(planned, demand, np.nan), axis=1)
-        frame = pd.DataFrame({
-            "default_target": shown_t,
-            "shortage_cost_multiplier": shown_m,
-            "shortage_odds_factor": factors,
-            "safety_stock_investment": np.nansum(np.maximum(ss, 0.0) * c, axis=1),
-            "units_short_per_year": units_short,
-            "stockout_occasions_per_year": np.nansum(orders * (1.0 - csl), axis=1),
-            "fill_rate_overall": np.where(total_demand > 0, 1.0 - units_short / total_demand,
-                                          np.nan),
-            "annual_safety_holding_cost": np.nansum(per_point("annual_safety_holding_cost"),
-                                                    axis=1),
-            "items": planned.sum(axis=1).astype(float),
-            "current": factors == 1.0,
-        }, columns=list(EXCHANGE_COLUMNS))
+        frame = pd.DataFrame(
+            {
+                "default_target": shown_t,
+                "shortage_cost_multiplier": shown_m,
+                "shortage_odds_factor": factors,
+                "safety_stock_investment": np.nansum(np.maximum(ss, 0.0) * c, axis=1),
+                "units_short_per_year": units_short,
+                "stockout_occasions_per_year": np.nansum(orders * (1.0 - csl), axis=1),
+                "fill_rate_overall": np.where(
+                    total_demand > 0, 1.0 - units_short / total_demand, np.nan
+                ),
+                "annual_safety_holding_cost": np.nansum(
+                    per_point("annual_safety_holding_cost"), axis=1
+                ),
+                "items": planned.sum(axis=1).astype(float),
+                "current": factors == 1.0,
+            },
+            columns=list(EXCHANGE_COLUMNS),
+        )
     # lower f = fewer shortages = more stock: order by falling factor
-    return frame.sort_values("shortage_odds_factor", ascending=False,
-                             kind="stable").reset_index(drop=True)
+    return frame.sort_values("shortage_odds_factor", ascending=False, kind="stable").reset_index(
+        drop=True
+    )
 
 
 # ---------------------------------------------------------------------------------------
@@ -331,7 +375,8 @@ class _Costing:
             with np.errstate(all="ignore"):
                 start = np.ceil(model.min_r_for_shortage((1.0 - t) * qk) - 1e-9)
                 meets = lambda x, m=model, t=t, qk=qk: (  # noqa: E731
-                    1.0 - m.expected_shortage(x) / qk >= t - PROB_TOL)
+                    1.0 - m.expected_shortage(x) / qk >= t - PROB_TOL
+                )
                 r = start
                 for _ in range(2):
                     r = np.where(meets(r - 1.0), r - 1.0, r)
@@ -341,16 +386,37 @@ class _Costing:
 
     def evaluate(self, q: np.ndarray, r: np.ndarray, reps: int = 1) -> pd.DataFrame:
         """evaluate_policy at the true costs; q and r hold ``reps`` stacked copies."""
+
         def t(x: np.ndarray) -> np.ndarray:
             return np.tile(x, reps)
 
-        return evaluate_policy(q, r, t(self.mu), t(self.sd), t(self.model), t(self.D),
-                               t(self.S), t(self.H), t(self.c), t(self.p))
+        return evaluate_policy(
+            q,
+            r,
+            t(self.mu),
+            t(self.sd),
+            t(self.model),
+            t(self.D),
+            t(self.S),
+            t(self.H),
+            t(self.c),
+            t(self.p),
+        )
 
     def evaluate_at(self, k: np.ndarray, q: np.ndarray, r: np.ndarray) -> pd.DataFrame:
         """evaluate for the items k (indices, repeats allowed) at their (q, r)."""
-        return evaluate_policy(q, r, self.mu[k], self.sd[k], self.model[k], self.D[k],
-                               self.S[k], self.H[k], self.c[k], self.p[k])
+        return evaluate_policy(
+            q,
+            r,
+            self.mu[k],
+            self.sd[k],
+            self.model[k],
+            self.D[k],
+            self.S[k],
+            self.H[k],
+            self.c[k],
+            self.p[k],
+        )
 
     def usage_at(self, k: np.ndarray, q: np.ndarray, r: np.ndarray) -> np.ndarray:
         """usage for the items k at their (q, r)."""
@@ -359,12 +425,16 @@ class _Costing:
                 return self.c[k] * (q / 2.0 + np.maximum(r - self.mu[k], 0.0))
             return self.D[k] / q
 
-    def allowed_at(self, k: np.ndarray, q: np.ndarray, r: np.ndarray, ev: pd.DataFrame
-                   ) -> np.ndarray:
+    def allowed_at(
+        self, k: np.ndarray, q: np.ndarray, r: np.ndarray, ev: pd.DataFrame
+    ) -> np.ndarray:
         """allowed for the items k at their (q, r), ev = evaluate_at(k, q, r)."""
         t, cs, fr = self.target[k], self.is_cs[k], self.is_fr[k]
-        ok = (q >= self.q_min[k] - 1e-9) & (r >= 0) & np.isfinite(
-            ev["annual_total_cost"].to_numpy(float))
+        ok = (
+            (q >= self.q_min[k] - 1e-9)
+            & (r >= 0)
+            & np.isfinite(ev["annual_total_cost"].to_numpy(float))
+        )
         ok &= ~cs | (ev["cycle_service"].to_numpy(float) >= t - PROB_TOL)
         ok &= ~fr | (ev["fill_rate"].to_numpy(float) >= t - PROB_TOL)
         return ok
@@ -376,13 +446,15 @@ class _Costing:
                 return c * (q / 2.0 + np.maximum(r - mu, 0.0))
             return np.tile(self.D, reps) / q
 
-    def allowed(self, q: np.ndarray, r: np.ndarray, ev: pd.DataFrame, reps: int = 1
-                ) -> np.ndarray:
+    def allowed(self, q: np.ndarray, r: np.ndarray, ev: pd.DataFrame, reps: int = 1) -> np.ndarray:
         """Whether (q, r) is a policy the item's rules accept (packs, minimum, target)."""
         t = np.tile(self.target, reps)
         cs, fr = np.tile(self.is_cs, reps), np.tile(self.is_fr, reps)
-        ok = (q >= np.tile(self.q_min, reps) - 1e-9) & (r >= 0) & np.isfinite(
-            ev["annual_total_cost"].to_numpy(float))
+        ok = (
+            (q >= np.tile(self.q_min, reps) - 1e-9)
+            & (r >= 0)
+            & np.isfinite(ev["annual_total_cost"].to_numpy(float))
+        )
         ok &= ~cs | (ev["cycle_service"].to_numpy(float) >= t - PROB_TOL)
         ok &= ~fr | (ev["fill_rate"].to_numpy(float) >= t - PROB_TOL)
         return ok
@@ -402,16 +474,31 @@ def apply_cap(inp: PolicyInputs, base: pd.DataFrame, kind: str, cap: float) -> C
     use0 = cap_usage(base, kind)
     n = len(base)
     if use0 <= cap or n == 0:
-        return CapResult(kind, cap, False, True, 0.0, use0, use0, cost0, cost0, float("nan"),
-                         base, np.zeros(n, dtype=bool))
+        return CapResult(
+            kind,
+            cap,
+            False,
+            True,
+            0.0,
+            use0,
+            use0,
+            cost0,
+            cost0,
+            float("nan"),
+            base,
+            np.zeros(n, dtype=bool),
+        )
 
     def usage_at(lam: float) -> tuple[float, pd.DataFrame]:
         pol = compute_policy(_relaxed(inp, kind, lam))
         return cap_usage(pol, kind), pol
 
     # bracket: double the multiplier until the cap is met (or it clearly cannot be)
-    scale = 0.05 if kind == BUDGET else max(float(np.nanmedian(
-        _item_column(inp, "order_cost", n))), 1.0)
+    scale = (
+        0.05
+        if kind == BUDGET
+        else max(float(np.nanmedian(_item_column(inp, "order_cost", n))), 1.0)
+    )
     lo, hi = 0.0, scale
     use_hi, pol_hi = usage_at(hi)
     for _ in range(_BRACKET_MAX):
@@ -442,16 +529,30 @@ def apply_cap(inp: PolicyInputs, base: pd.DataFrame, kind: str, cap: float) -> C
         q, r, steps = _polish(cost, q, r, ok, cap, base["order_qty"].to_numpy(float))
     policy = _restate(base, cost, q, r, ok)
     use = cap_usage(policy, kind)
-    changed = ok & ((policy["order_qty"].to_numpy(float) != base["order_qty"].to_numpy(float))
-                    | (policy["reorder_point"].to_numpy(float)
-                       != base["reorder_point"].to_numpy(float)))
-    return CapResult(kind, cap, True, feasible, hi if feasible else float("nan"), use, use0,
-                     float(np.nansum(policy["annual_total_cost"].to_numpy(float))), cost0,
-                     use if not feasible else float("nan"), policy, changed, steps)
+    changed = ok & (
+        (policy["order_qty"].to_numpy(float) != base["order_qty"].to_numpy(float))
+        | (policy["reorder_point"].to_numpy(float) != base["reorder_point"].to_numpy(float))
+    )
+    return CapResult(
+        kind,
+        cap,
+        True,
+        feasible,
+        hi if feasible else float("nan"),
+        use,
+        use0,
+        float(np.nansum(policy["annual_total_cost"].to_numpy(float))),
+        cost0,
+        use if not feasible else float("nan"),
+        policy,
+        changed,
+        steps,
+    )
 
 
-def _polish(cost: _Costing, q: np.ndarray, r: np.ndarray, ok: np.ndarray, cap: float,
-            q_free: np.ndarray) -> tuple[np.ndarray, np.ndarray, int]:
+def _polish(
+    cost: _Costing, q: np.ndarray, r: np.ndarray, ok: np.ndarray, cap: float, q_free: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, int]:
     """Spend the slack the whole-pack rounding left on single-item steps that save cost.
 
     Each round, every item's neighbours are costed at the true costs: Q one pack down, the
@@ -493,8 +594,7 @@ def _polish(cost: _Costing, q: np.ndarray, r: np.ndarray, ok: np.ndarray, cap: f
                     q_f = q + a * cost.pack
                     inside = mine & fr & (q_f >= lo_free - 1e-9) & (q_f <= hi_free + 1e-9)
                     q_all[j, f] = np.where(inside, q_f, np.nan)[f]
-                    r_all[j, f] = np.where(inside, cost.fill_rate_reorder(q_f, inside),
-                                           np.nan)[f]
+                    r_all[j, f] = np.where(inside, cost.fill_rate_reorder(q_f, inside), np.nan)[f]
             k = np.tile(f, m)
             q_c, r_c = q_all[:, f].ravel(), r_all[:, f].ravel()
             ev = cost.evaluate_at(k, q_c, r_c)
@@ -532,15 +632,17 @@ def _polish(cost: _Costing, q: np.ndarray, r: np.ndarray, ok: np.ndarray, cap: f
     return q, r, steps
 
 
-def _restate(base: pd.DataFrame, cost: _Costing, q: np.ndarray, r: np.ndarray,
-             ok: np.ndarray) -> pd.DataFrame:
+def _restate(
+    base: pd.DataFrame, cost: _Costing, q: np.ndarray, r: np.ndarray, ok: np.ndarray
+) -> pd.DataFrame:
     """The unconstrained frame with the capped Q and R and their true service and costs."""
     out = base.copy()
     k = np.flatnonzero(ok)
     ev = cost.evaluate(q, r)
     with np.errstate(all="ignore"):
         values = {
-            "order_qty": q, "reorder_point": r,
+            "order_qty": q,
+            "reorder_point": r,
             "safety_stock": ev["safety_stock"].to_numpy(float),
             "cycle_service": ev["cycle_service"].to_numpy(float),
             "fill_rate": ev["fill_rate"].to_numpy(float),

@@ -83,10 +83,21 @@ _LEAD_SD_CAP = 6.0
 
 #: Per-item output columns of :meth:`SimulationResult.frame`.
 SIMULATION_COLUMNS: tuple[str, ...] = (
-    "cycle_service", "cycle_service_low", "cycle_service_high", "fill_rate",
-    "fill_rate_low", "fill_rate_high", "cycles", "average_on_hand", "orders_per_year",
-    "units_short_per_year", "units_lost_per_year", "annual_ordering_cost",
-    "annual_holding_cost", "annual_shortage_cost", "annual_total_cost",
+    "cycle_service",
+    "cycle_service_low",
+    "cycle_service_high",
+    "fill_rate",
+    "fill_rate_low",
+    "fill_rate_high",
+    "cycles",
+    "average_on_hand",
+    "orders_per_year",
+    "units_short_per_year",
+    "units_lost_per_year",
+    "annual_ordering_cost",
+    "annual_holding_cost",
+    "annual_shortage_cost",
+    "annual_total_cost",
 )
 
 # A demand sampler gives, for period t, the two parts (before / after the arrival point)
@@ -94,8 +105,9 @@ SIMULATION_COLUMNS: tuple[str, ...] = (
 _Sampler = Callable[[int], tuple[np.ndarray, np.ndarray]]
 
 
-def service_check(promised: ArrayLike, low: ArrayLike, high: ArrayLike,
-                  margin: float = 0.0) -> np.ndarray:
+def service_check(
+    promised: ArrayLike, low: ArrayLike, high: ArrayLike, margin: float = 0.0
+) -> np.ndarray:
     """-1 where the simulated band lies below the promise, +1 above it, 0 where it holds it.
 
     The promise must fall outside the band by more than ``margin`` as well (a floor on
@@ -108,8 +120,9 @@ def service_check(promised: ArrayLike, low: ArrayLike, high: ArrayLike,
     return np.where(below, -1, np.where(above, 1, 0)).astype(np.int64)
 
 
-def history_band(columns: dict[str, np.ndarray], span: ArrayLike,
-                 lead_time_periods: ArrayLike) -> dict[str, np.ndarray]:
+def history_band(
+    columns: dict[str, np.ndarray], span: ArrayLike, lead_time_periods: ArrayLike
+) -> dict[str, np.ndarray]:
     """The bands of a simulation on resamples, widened for the length of the history.
 
     Resampling cannot know more than the history holds: about n = span / lead time separate
@@ -124,7 +137,8 @@ def history_band(columns: dict[str, np.ndarray], span: ArrayLike,
     """
     c = columns
     n_w = np.maximum(np.asarray(span, dtype=float), 1.0) / np.maximum(
-        np.asarray(lead_time_periods, dtype=float), 1.0)
+        np.asarray(lead_time_periods, dtype=float), 1.0
+    )
     out: dict[str, np.ndarray] = {}
     with np.errstate(all="ignore"):
         cs = c["cycle_service"]
@@ -137,8 +151,7 @@ def history_band(columns: dict[str, np.ndarray], span: ArrayLike,
             est = c[key]
             half = (c[f"{key}_high"] - c[f"{key}_low"]) / 2.0 * grow
             low = est - half
-            low = np.where(none_short | (est >= 1.0 - 1e-12),
-                           np.minimum(low, 1.0 - 3.0 / n_w), low)
+            low = np.where(none_short | (est >= 1.0 - 1e-12), np.minimum(low, 1.0 - 3.0 / n_w), low)
             out[f"{key}_low"] = np.clip(low, 0.0, 1.0)
             out[f"{key}_high"] = np.clip(est + half, 0.0, 1.0)
     return out
@@ -154,7 +167,7 @@ def _rounding_variance(v: np.ndarray) -> np.ndarray:
     """
     k = np.arange(1, 201, dtype=float)
     v = np.asarray(v, dtype=float)[..., None]
-    terms = np.exp(-2.0 * np.pi ** 2 * k * k * v) / (np.pi * k) ** 2
+    terms = np.exp(-2.0 * np.pi**2 * k * k * v) / (np.pi * k) ** 2
     return np.clip(1.0 / 6.0 - terms.sum(axis=-1), 0.0, 1.0 / 6.0)
 
 
@@ -201,8 +214,9 @@ class HistoryReplay:
     replay = True
 
     def take(self, idx: np.ndarray) -> HistoryReplay:
-        return HistoryReplay(np.asarray(self.matrix, float)[idx],
-                             np.asarray(self.start, np.int64)[idx])
+        return HistoryReplay(
+            np.asarray(self.matrix, float)[idx], np.asarray(self.start, np.int64)[idx]
+        )
 
     def periods(self) -> int:
         return int(np.asarray(self.matrix).shape[1])
@@ -237,9 +251,12 @@ class BlockBootstrap:
     replay = False
 
     def take(self, idx: np.ndarray) -> BlockBootstrap:
-        return BlockBootstrap(np.asarray(self.matrix, float)[idx],
-                              np.asarray(self.start, np.int64)[idx],
-                              np.asarray(self.block, np.int64)[idx], self.length)
+        return BlockBootstrap(
+            np.asarray(self.matrix, float)[idx],
+            np.asarray(self.start, np.int64)[idx],
+            np.asarray(self.block, np.int64)[idx],
+            self.length,
+        )
 
     def periods(self) -> int:
         return int(self.length)
@@ -250,8 +267,7 @@ class BlockBootstrap:
         flat = m.ravel()
         st = np.asarray(self.start, np.int64)
         span = np.maximum(n_cols - st, 1)
-        base = (np.arange(n_items, dtype=np.int64) * n_cols + np.minimum(st, n_cols - 1)
-                )[:, None]
+        base = (np.arange(n_items, dtype=np.int64) * n_cols + np.minimum(st, n_cols - 1))[:, None]
         ell = np.maximum(np.asarray(self.block, np.int64), 1)
         fr = frac[:, None]
         pos = np.zeros((n_items, reps), dtype=np.int64)  # place in the span, per cell
@@ -289,8 +305,12 @@ class ModelDraws:
     replay = False
 
     def take(self, idx: np.ndarray) -> ModelDraws:
-        return ModelDraws(np.asarray(self.model, object)[idx], np.asarray(self.mean, float)[idx],
-                          np.asarray(self.sd, float)[idx], self.length)
+        return ModelDraws(
+            np.asarray(self.model, object)[idx],
+            np.asarray(self.mean, float)[idx],
+            np.asarray(self.sd, float)[idx],
+            self.length,
+        )
 
     def periods(self) -> int:
         return int(self.length)
@@ -319,14 +339,16 @@ class ModelDraws:
             k_n, k_p, k_nb, k_g, k_gp = groups
             if k_n.size:
                 sh = share[k_n][:, None]
-                out[k_n] = rng.normal(d[k_n][:, None] * sh, s[k_n][:, None] * np.sqrt(sh),
-                                      (k_n.size, reps))
+                out[k_n] = rng.normal(
+                    d[k_n][:, None] * sh, s[k_n][:, None] * np.sqrt(sh), (k_n.size, reps)
+                )
             if k_p.size:
                 out[k_p] = rng.poisson((d[k_p] * share[k_p])[:, None], (k_p.size, reps))
             if k_nb.size:
                 sh = np.where(on[k_nb], share[k_nb], 1.0)[:, None]
-                x = rng.negative_binomial(nb_r[k_nb][:, None] * sh, nb_p[k_nb][:, None],
-                                          (k_nb.size, reps))
+                x = rng.negative_binomial(
+                    nb_r[k_nb][:, None] * sh, nb_p[k_nb][:, None], (k_nb.size, reps)
+                )
                 out[k_nb] = np.where(on[k_nb][:, None], x, 0.0)
             if k_g.size:
                 sh = np.where(on[k_g], share[k_g], 1.0)[:, None]
@@ -386,8 +408,9 @@ def _ratio_band(num: np.ndarray, den: np.ndarray) -> tuple[np.ndarray, np.ndarra
         else:
             z2 = Z_BAND * Z_BAND
             centre = (p + z2 / (2 * s_den)) / (1 + z2 / s_den)
-            half = Z_BAND * np.sqrt(p * (1 - p) / s_den + z2 / (4 * s_den * s_den)) / (
-                1 + z2 / s_den)
+            half = (
+                Z_BAND * np.sqrt(p * (1 - p) / s_den + z2 / (4 * s_den * s_den)) / (1 + z2 / s_den)
+            )
             lo, hi = centre - half, centre + half
     return p, lo, hi
 
@@ -430,21 +453,38 @@ def simulate_policy(
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
 
     out = {k: np.full(n, np.nan) for k in SIMULATION_COLUMNS}
-    totals = {k: np.full(n, np.nan) for k in ("start", "demand", "ordered", "received",
-                                              "end_net", "end_pipeline", "lost")}
+    totals = {
+        k: np.full(n, np.nan)
+        for k in ("start", "demand", "ordered", "received", "end_net", "end_pipeline", "lost")
+    }
     trace_idx = np.asarray([] if trace_items is None else trace_items, dtype=np.int64)
     trace: dict[str, np.ndarray] = {}
     T = demand.periods()
     if trace_idx.size:
-        trace = {"item": trace_idx, **{k: np.full((trace_idx.size, T), np.nan)
-                                       for k in ("net_stock", "position", "ordered", "demand")}}
+        trace = {
+            "item": trace_idx,
+            **{
+                k: np.full((trace_idx.size, T), np.nan)
+                for k in ("net_stock", "position", "ordered", "demand")
+            },
+        }
     good = np.flatnonzero(ok)
     chunk = max(1, _CHUNK_CELLS // reps)
     for c0 in range(0, good.size, chunk):
-        idx = good[c0:c0 + chunk]
+        idx = good[c0 : c0 + chunk]
         tr_local = np.flatnonzero(np.isin(idx, trace_idx))
-        res, tot, tr = _run(q[idx], r[idx], lt[idx], lsd[idx], demand.take(idx), reps, rng,
-                            lost_sales, periods_per_year, tr_local)
+        res, tot, tr = _run(
+            q[idx],
+            r[idx],
+            lt[idx],
+            lsd[idx],
+            demand.take(idx),
+            reps,
+            rng,
+            lost_sales,
+            periods_per_year,
+            tr_local,
+        )
         for k, v in res.items():
             out[k][idx] = v
         for k, v in tot.items():
@@ -460,16 +500,28 @@ def simulate_policy(
         out["annual_shortage_cost"] = np.where(
             np.isfinite(out["units_short_per_year"]),
             (out["units_short_per_year"] + np.nan_to_num(out["units_lost_per_year"])) * pen
-            if lost_sales else out["units_short_per_year"] * pen, np.nan)
-        out["annual_total_cost"] = (out["annual_ordering_cost"] + out["annual_holding_cost"]
-                                    + out["annual_shortage_cost"])
+            if lost_sales
+            else out["units_short_per_year"] * pen,
+            np.nan,
+        )
+        out["annual_total_cost"] = (
+            out["annual_ordering_cost"] + out["annual_holding_cost"] + out["annual_shortage_cost"]
+        )
     return SimulationResult(out, totals, trace)
 
 
-def _run(Q: np.ndarray, R: np.ndarray, L: np.ndarray, Lsd: np.ndarray, src: DemandSource,
-         reps: int, rng: np.random.Generator, lost: bool, ppy: float,
-         trace_rows: np.ndarray) -> tuple[dict[str, np.ndarray], dict[str, np.ndarray],
-                                           dict[str, np.ndarray]]:
+def _run(
+    Q: np.ndarray,
+    R: np.ndarray,
+    L: np.ndarray,
+    Lsd: np.ndarray,
+    src: DemandSource,
+    reps: int,
+    rng: np.random.Generator,
+    lost: bool,
+    ppy: float,
+    trace_rows: np.ndarray,
+) -> tuple[dict[str, np.ndarray], dict[str, np.ndarray], dict[str, np.ndarray]]:
     """The time loop for one chunk of items, all replications at once.
 
     State is kept per cell (item x replication, flattened); orders and arrivals touch only
@@ -512,14 +564,29 @@ def _run(Q: np.ndarray, R: np.ndarray, L: np.ndarray, Lsd: np.ndarray, src: Dema
     pc = np.zeros((W, C), dtype=bool)  # an order is due
     pflag = np.zeros((W, C), dtype=bool)  # ... placed after the warm-up
     cum = np.zeros(C)
-    acc = {k: np.zeros(C) for k in ("cycles", "stockouts", "short", "qty_in", "on_hand",
-                                    "orders", "lost", "lost_all", "demand", "ordered",
-                                    "received")}
+    acc = {
+        k: np.zeros(C)
+        for k in (
+            "cycles",
+            "stockouts",
+            "short",
+            "qty_in",
+            "on_hand",
+            "orders",
+            "lost",
+            "lost_all",
+            "demand",
+            "ordered",
+            "received",
+        )
+    }
     periods_counted = np.zeros(n)
     sample = src.sampler(reps, frac, rng)
     trace_cells = trace_rows * reps
-    tr = {k: np.full((trace_rows.size, T), np.nan) for k in
-          ("net_stock", "position", "ordered", "demand")}
+    tr = {
+        k: np.full((trace_rows.size, T), np.nan)
+        for k in ("net_stock", "position", "ordered", "demand")
+    }
 
     for t in range(T):
         a2, b2 = sample(t)
@@ -593,7 +660,7 @@ def _run(Q: np.ndarray, R: np.ndarray, L: np.ndarray, Lsd: np.ndarray, src: Dema
             acc["on_hand"] += np.where(counting, avg_oh, 0.0)
             if lost:
                 acc["lost"] += np.where(counting, lost_t, 0.0)
-        periods_counted += (t >= begin + warm)
+        periods_counted += t >= begin + warm
         # -- review at the end of the period ----------------------------------------------
         ip = stock + pipe
         order = ip <= Rc
@@ -642,7 +709,8 @@ def _run(Q: np.ndarray, R: np.ndarray, L: np.ndarray, Lsd: np.ndarray, src: Dema
     with np.errstate(all="ignore"):
         years = per / ppy
         res = {
-            "cycle_service": cs, "cycle_service_low": np.clip(cs_lo, 0, 1),
+            "cycle_service": cs,
+            "cycle_service_low": np.clip(cs_lo, 0, 1),
             "cycle_service_high": np.clip(cs_hi, 0, 1),
             "fill_rate": np.clip(1.0 - sh, 0.0, 1.0),
             "fill_rate_low": np.clip(1.0 - sh_hi, 0.0, 1.0),
@@ -651,15 +719,24 @@ def _run(Q: np.ndarray, R: np.ndarray, L: np.ndarray, Lsd: np.ndarray, src: Dema
             "average_on_hand": np.where(per > 0, g["on_hand"].sum(axis=1) / per, np.nan),
             "orders_per_year": np.where(per > 0, g["orders"].sum(axis=1) / years, np.nan),
             "units_short_per_year": np.where(per > 0, g["short"].sum(axis=1) / years, np.nan),
-            "units_lost_per_year": (np.where(per > 0, g["lost"].sum(axis=1) / years, np.nan)
-                                    if lost else np.zeros(n)),
+            "units_lost_per_year": (
+                np.where(per > 0, g["lost"].sum(axis=1) / years, np.nan) if lost else np.zeros(n)
+            ),
         }
-    for k in ("annual_ordering_cost", "annual_holding_cost", "annual_shortage_cost",
-              "annual_total_cost"):
+    for k in (
+        "annual_ordering_cost",
+        "annual_holding_cost",
+        "annual_shortage_cost",
+        "annual_total_cost",
+    ):
         res[k] = np.full(n, np.nan)
-    tot = {"start": start_stock.reshape(n, reps).sum(axis=1), "demand": g["demand"].sum(axis=1),
-           "ordered": g["ordered"].sum(axis=1), "received": g["received"].sum(axis=1),
-           "end_net": stock.reshape(n, reps).sum(axis=1),
-           "end_pipeline": pipe.reshape(n, reps).sum(axis=1),
-           "lost": g["lost_all"].sum(axis=1)}
+    tot = {
+        "start": start_stock.reshape(n, reps).sum(axis=1),
+        "demand": g["demand"].sum(axis=1),
+        "ordered": g["ordered"].sum(axis=1),
+        "received": g["received"].sum(axis=1),
+        "end_net": stock.reshape(n, reps).sum(axis=1),
+        "end_pipeline": pipe.reshape(n, reps).sum(axis=1),
+        "lost": g["lost_all"].sum(axis=1),
+    }
     return res, tot, tr

@@ -35,9 +35,13 @@ class InputData:
     price_breaks: PriceBreaks | None = None
 
 
-def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
-               progress: Progress = silent,
-               while_waiting: Callable[[], None] | None = None) -> InputData | None:
+def read_input(
+    path: Path,
+    overrides: dict[str, Any],
+    log: ProblemLog,
+    progress: Progress = silent,
+    while_waiting: Callable[[], None] | None = None,
+) -> InputData | None:
     """Read Settings, Items and History; None when the workbook cannot be used (fatal logged).
 
     ``path`` may be an .xlsx/.xlsm, .ods or .xls workbook or a folder of CSV files.
@@ -81,18 +85,23 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
                 f"{Path(path).name} has no 'Items' sheet (sheets found: "
                 + ", ".join(repr(n) for n in wb.sheet_names)
                 + "). Add a sheet named Items with one row per item, or rename yours "
-                "(run 'xlpolicy template' for an example).", code="items-sheet-missing")
+                "(run 'xlpolicy template' for an example).",
+                code="items-sheet-missing",
+            )
             return None
         settings_name = wb.find_sheet("Settings")
         settings_sheet = read(settings_name) if settings_name else None
-        settings = resolve_settings(read_settings(settings_sheet, log), overrides, log,
-                                    settings_name or "Settings")
+        settings = resolve_settings(
+            read_settings(settings_sheet, log), overrides, log, settings_name or "Settings"
+        )
         history_name = wb.find_sheet("History")
         history = None
         history_file = _history_file(Path(path), settings)
-        early = (ahead.submit(typed_cells, wb, history_name)
-                 if history_file is None and history_name is not None and _typed_possible(wb)
-                 else None)
+        early = (
+            ahead.submit(typed_cells, wb, history_name)
+            if history_file is None and history_name is not None and _typed_possible(wb)
+            else None
+        )
         # Blank targets stay NaN while reading, so an item's own target can be told from a
         # default: a class target (Service target A/B/C) may apply to it instead.
         items = read_items(read(items_name), {**settings, "service_target": float("nan")}, log)
@@ -101,9 +110,12 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
         _default_targets(items, settings)
         if history_file is not None:
             if history_name is not None:
-                log.info(f"The history was read from {history_file.name}, as the 'History file' "
-                         f"setting says; the sheet '{history_name}' was not used.",
-                         sheet=history_name, code="history-from-file")
+                log.info(
+                    f"The history was read from {history_file.name}, as the 'History file' "
+                    f"setting says; the sheet '{history_name}' was not used.",
+                    sheet=history_name,
+                    code="history-from-file",
+                )
             progress(f"Reading {history_file.name}", 0, None)
             history = read_history_file(history_file, set(items.df["item"]), settings, log)
             if history is None:
@@ -115,13 +127,18 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
             if history_name is not None:
                 if early is not None and not early.done() and while_waiting is not None:
                     while_waiting()
-                history = _typed_history(wb, history_name, set(items.df["item"]), settings,
-                                         log, progress, early)
+                history = _typed_history(
+                    wb, history_name, set(items.df["item"]), settings, log, progress, early
+                )
                 if history is None:
                     history_sheet = read(history_name)
         if history_sheet is not None and not history_sheet.rows:
-            log.info(f"The sheet '{history_name}' is empty; demand comes from the Items sheet's "
-                     "annual figures.", sheet=history_name, code="history-empty")
+            log.info(
+                f"The sheet '{history_name}' is empty; demand comes from the Items sheet's "
+                "annual figures.",
+                sheet=history_name,
+                code="history-empty",
+            )
             history_sheet = None
         if history_sheet is not None:
             history = read_history(history_sheet, set(items.df["item"]), settings, log)
@@ -130,14 +147,15 @@ def read_input(path: Path, overrides: dict[str, Any], log: ProblemLog,
         if history is not None:
             history = _steadier_period(history, items, settings, log)
             if history.period is not None and (
-                    history.period != settings["period"]
-                    or settings["sources"]["period"] == "default"):
+                history.period != settings["period"] or settings["sources"]["period"] == "default"
+            ):
                 settings["period"] = history.period
                 settings["sources"]["period"] = f"inferred from {history_name} dates"
                 finish_period(settings)
         breaks_name = wb.find_sheet("Price breaks")
-        breaks = (read_price_breaks(read(breaks_name), items, log)
-                  if breaks_name is not None else None)
+        breaks = (
+            read_price_breaks(read(breaks_name), items, log) if breaks_name is not None else None
+        )
         return InputData(Path(path), items, history, settings, list(wb.sheet_names), breaks)
     except _AlreadyReported:
         return None
@@ -159,12 +177,23 @@ TYPED_HISTORY = True
 
 
 def _typed_possible(wb: Any) -> bool:
-    return (TYPED_HISTORY and isinstance(wb, WorkbookFile) and wb._fast is not None
-            and typed.available())
+    return (
+        TYPED_HISTORY
+        and isinstance(wb, WorkbookFile)
+        and wb._fast is not None
+        and typed.available()
+    )
 
 
-def _typed_history(wb: Any, name: str, known: set[str], settings: dict[str, Any],
-                   log: ProblemLog, progress: Progress, early: Any = None) -> History | None:
+def _typed_history(
+    wb: Any,
+    name: str,
+    known: set[str],
+    settings: dict[str, Any],
+    log: ProblemLog,
+    progress: Progress,
+    early: Any = None,
+) -> History | None:
     """A wide History read the typed way, or None to read it the general way.
 
     ``early``: the future of :func:`typed_cells` started while Items was read, if any.
@@ -179,8 +208,12 @@ def _typed_history(wb: Any, name: str, known: set[str], settings: dict[str, Any]
     # Into a log of its own first: the typed reader may still step aside (NotTyped), and
     # the general path then reports everything itself.
     own = ProblemLog()
-    layout_notes(wb, name, RawSheet(name, row_numbers=[*head.row_numbers[:hidx + 1],
-                                                       *cells.row_numbers.tolist()]), own)
+    layout_notes(
+        wb,
+        name,
+        RawSheet(name, row_numbers=[*head.row_numbers[: hidx + 1], *cells.row_numbers.tolist()]),
+        own,
+    )
     try:
         history = read_wide_typed(head, cells, known, settings, own)
     except typed.NotTyped:
@@ -198,7 +231,7 @@ def typed_cells(wb: WorkbookFile, name: str) -> tuple[RawSheet, int, typed.WideC
         where = wide_header(head) if head is not None else None
         if head is None or where is None:
             return None
-        texts = sum(isinstance(v, str) for row in head.rows[:where[0] + 1] for v in row)
+        texts = sum(isinstance(v, str) for row in head.rows[: where[0] + 1] for v in row)
         cells = typed.read_wide_cells(wb, name, head.row_numbers[where[0]], where[1], texts)
     except Exception:  # never worse than the general path, which reports a damaged sheet
         return None
@@ -221,8 +254,9 @@ def _default_targets(items: ItemTable, settings: dict[str, Any]) -> None:
     """Mark which items gave their own service target, and fill the others' from Settings."""
     target = items.df["service_target"].to_numpy(float)
     items.own_target = np.isfinite(target)
-    items.df["service_target"] = np.where(items.own_target, target,
-                                          float(settings["service_target"]))
+    items.df["service_target"] = np.where(
+        items.own_target, target, float(settings["service_target"])
+    )
 
 
 class _AlreadyReported(Exception):
@@ -238,8 +272,9 @@ class _SheetUnreadable(Exception):
         self.cause = cause
 
 
-def _steadier_period(history: History, items: ItemTable, settings: dict[str, Any],
-                     log: ProblemLog) -> History:
+def _steadier_period(
+    history: History, items: ItemTable, settings: dict[str, Any], log: ProblemLog
+) -> History:
     """Daily history becomes weekly when most lead times are a week or more.
 
     Only when the user has not set the period themselves and at least 8 whole weeks exist.
@@ -253,9 +288,16 @@ def _steadier_period(history: History, items: ItemTable, settings: dict[str, Any
         return history
     weekly = aggregate_daily_to_weeks(history)
     dropped = history.matrix.shape[1] - 7 * weekly.matrix.shape[1]
-    log.info(f"Daily History was added up into {weekly.matrix.shape[1]} weeks, since most lead "
-             "times are a week or more: weekly totals give a steadier estimate of the spread"
-             + (f" ({dropped} day(s) at the end, short of a full week, were left out)"
-                if dropped else "") + ". Set 'Period' to day in Settings to keep days.",
-             sheet=history.sheet, code="history-aggregated")
+    log.info(
+        f"Daily History was added up into {weekly.matrix.shape[1]} weeks, since most lead "
+        "times are a week or more: weekly totals give a steadier estimate of the spread"
+        + (
+            f" ({dropped} day(s) at the end, short of a full week, were left out)"
+            if dropped
+            else ""
+        )
+        + ". Set 'Period' to day in Settings to keep days.",
+        sheet=history.sheet,
+        code="history-aggregated",
+    )
     return weekly

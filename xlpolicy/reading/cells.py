@@ -73,14 +73,20 @@ def item_codes(values: list[Any], formats: list[str]) -> list[str | None]:
     code: at 100,000 items this one match saves the general function's several passes.
     """
     plain = _PLAIN_CODE.fullmatch
-    return [v if type(v) is str and "_x" not in v and plain(v) else item_code(v, f)
-            for v, f in zip(values, formats, strict=True)]
+    return [
+        v if type(v) is str and "_x" not in v and plain(v) else item_code(v, f)
+        for v, f in zip(values, formats, strict=True)
+    ]
 
 
 def texts(values: list[Any]) -> list[str | None]:
     """:func:`text` of each value, with a quick pass for text that needs no change."""
-    return [v if type(v) is str and v and not v[0].isspace() and not v[-1].isspace()
-            and "_x" not in v else text(v) for v in values]
+    return [
+        v
+        if type(v) is str and v and not v[0].isspace() and not v[-1].isspace() and "_x" not in v
+        else text(v)
+        for v in values
+    ]
 
 
 def text(value: Any) -> str | None:
@@ -132,8 +138,10 @@ def parse_number(
 
 
 _CURRENCY_SIGNS = "$€£¥₹₽¢₩₺₪฿₫"
-_CURRENCY = re.compile(r"^(?:[A-Z]{3}|[A-Z]{1,2}\$|[" + _CURRENCY_SIGNS + r"])|"
-                       r"(?:[A-Z]{3}|[" + _CURRENCY_SIGNS + r"]|kr|zł|,-|\.-)$")
+_CURRENCY = re.compile(
+    r"^(?:[A-Z]{3}|[A-Z]{1,2}\$|[" + _CURRENCY_SIGNS + r"])|"
+    r"(?:[A-Z]{3}|[" + _CURRENCY_SIGNS + r"]|kr|zł|,-|\.-)$"
+)
 _COMMA_GROUPS = re.compile(r"^\d{1,3}(,\d{3})+$")
 _DOT_GROUPS = re.compile(r"^\d{1,3}(\.\d{3})+$")
 _QUOTE_GROUPS = re.compile(r"^\d{1,3}(['’]\d{3})+$")
@@ -187,17 +195,20 @@ def _separators(s: str) -> str | None:
         mark = "," if comma > dot else "."
         whole, frac = s.rsplit(mark, 1)
         groups = _DOT_GROUPS if mark == "," else _COMMA_GROUPS
-        if not frac.isdigit() or not (groups.match(whole) or _QUOTE_GROUPS.match(whole)
-                                      or whole.isdigit()):
+        if not frac.isdigit() or not (
+            groups.match(whole) or _QUOTE_GROUPS.match(whole) or whole.isdigit()
+        ):
             return None
-        return whole.replace(",", "").replace(".", "").replace("'", "").replace("’", "") \
-            + "." + frac
+        return (
+            whole.replace(",", "").replace(".", "").replace("'", "").replace("’", "") + "." + frac
+        )
     if comma >= 0:
         if _COMMA_GROUPS.match(s):
             return s.replace(",", "")
         whole, frac = s.rsplit(",", 1)
-        if (whole.isdigit() or _DOT_GROUPS.match(whole) or _QUOTE_GROUPS.match(whole)) \
-                and frac.isdigit():
+        if (
+            whole.isdigit() or _DOT_GROUPS.match(whole) or _QUOTE_GROUPS.match(whole)
+        ) and frac.isdigit():
             return whole.replace("'", "").replace("’", "") + "." + frac
         return None
     if _DOT_GROUPS.match(s) and s.count(".") > 1:
@@ -212,16 +223,24 @@ def describe(value: Any) -> str:
     """The raw value as a user would recognise it in a message."""
     if isinstance(value, str):
         return repr(value)
-    if isinstance(value, float) and math.isfinite(value) and value == int(value) \
-            and abs(value) < 1e15:
+    if (
+        isinstance(value, float)
+        and math.isfinite(value)
+        and value == int(value)
+        and abs(value) < 1e15
+    ):
         return str(int(value))
     return str(value)
 
 
 # --- dates typed as text, or stored as plain numbers ---------------------------------------
 
-_MONTHS = {m: k + 1 for k, m in enumerate(
-    ("jan", "feb", "mar", "apr", "may", "jun", "jul", "aug", "sep", "oct", "nov", "dec"))}
+_MONTHS = {
+    m: k + 1
+    for k, m in enumerate(
+        ("jan", "feb", "mar", "apr", "may", "jun", "jul", "aug", "sep", "oct", "nov", "dec")
+    )
+}
 _NUMERIC_DATE = re.compile(r"^(\d{1,2})([/.-])(\d{1,2})\2(\d{4})$")
 _DAY_MONTH_YEAR = re.compile(r"^(\d{1,2})[\s./-]*([A-Za-z]{3,9})\.?[\s./,-]*(\d{4})$")
 _MONTH_DAY_YEAR = re.compile(r"^([A-Za-z]{3,9})\.?\s*(\d{1,2})(?:st|nd|rd|th)?,?\s+(\d{4})$")
@@ -233,8 +252,20 @@ _EXCEL_DAY0 = _dt.datetime(1899, 12, 30)  # day 0 of the 1900 date system (after
 def _month(word: str) -> int | None:
     w = word.lower()
     k = _MONTHS.get(w[:3])
-    full = ("january", "february", "march", "april", "may", "june", "july", "august",
-            "september", "october", "november", "december")
+    full = (
+        "january",
+        "february",
+        "march",
+        "april",
+        "may",
+        "june",
+        "july",
+        "august",
+        "september",
+        "october",
+        "november",
+        "december",
+    )
     if k is None or not (w == w[:3] or w == "sept" or full[k - 1].startswith(w)):
         return None
     return k
@@ -255,14 +286,21 @@ def typed_periods(raw: list[Any]) -> tuple[list[Any], str | None, str]:
         return raw, None, "info"
     nums = [v for v in values if isinstance(v, (int, float)) and not isinstance(v, bool)]
     if len(nums) == len(values) and all(
-            float(v).is_integer() and SERIAL_RANGE[0] <= v <= SERIAL_RANGE[1] for v in nums):
+        float(v).is_integer() and SERIAL_RANGE[0] <= v <= SERIAL_RANGE[1] for v in nums
+    ):
         out = [_EXCEL_DAY0 + _dt.timedelta(days=int(v)) if not is_blank(v) else v for v in raw]
         first = min(nums)
-        return out, (f"The periods are plain numbers such as {int(first)}, which is how a "
-                     "spreadsheet stores a date whose cell lost its date format, so they were "
-                     f"read as dates ({int(first)} = "
-                     f"{(_EXCEL_DAY0 + _dt.timedelta(days=int(first))).date().isoformat()}). "
-                     "Format the column as dates to see them as such."), "info"
+        return (
+            out,
+            (
+                f"The periods are plain numbers such as {int(first)}, which is how a "
+                "spreadsheet stores a date whose cell lost its date format, so they were "
+                f"read as dates ({int(first)} = "
+                f"{(_EXCEL_DAY0 + _dt.timedelta(days=int(first))).date().isoformat()}). "
+                "Format the column as dates to see them as such."
+            ),
+            "info",
+        )
     texts = [str(v).strip() for v in values if isinstance(v, str)]
     if not texts:
         return raw, None, "info"
@@ -276,19 +314,31 @@ def typed_periods(raw: list[Any]) -> tuple[list[Any], str | None, str]:
             example = (v.strip(), d)
         out.append(d if d is not None else v)
     if ambiguous is not None:
-        return raw, (f"Periods are written like '{ambiguous}', which could be day/month or "
-                     "month/day, and no date in the column settles it (no day above 12), so "
-                     "they were read as labels, not dates. Write them as 2024-04-03 "
-                     "(year-month-day) or make the cells real dates."), "warning"
+        return (
+            raw,
+            (
+                f"Periods are written like '{ambiguous}', which could be day/month or "
+                "month/day, and no date in the column settles it (no day above 12), so "
+                "they were read as labels, not dates. Write them as 2024-04-03 "
+                "(year-month-day) or make the cells real dates."
+            ),
+            "warning",
+        )
     if example is None:
         return raw, None, "info"
     shown, d = example
-    return out, (f"Periods typed as text, such as '{shown}', were read as dates "
-                 f"('{shown}' = {d.date().isoformat()})."), "info"
+    return (
+        out,
+        (
+            f"Periods typed as text, such as '{shown}', were read as dates "
+            f"('{shown}' = {d.date().isoformat()})."
+        ),
+        "info",
+    )
 
 
 def _day_month_order(texts: list[str]) -> str | None:
-    """"dmy" or "mdy" for numeric dates like 03/04/2024, when the column settles it."""
+    """ "dmy" or "mdy" for numeric dates like 03/04/2024, when the column settles it."""
     day_first = month_first = False
     for t in texts:
         m = _NUMERIC_DATE.match(t)

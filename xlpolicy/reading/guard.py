@@ -35,9 +35,19 @@ from collections.abc import Iterator
 from dataclasses import dataclass, replace
 from pathlib import Path
 
-__all__ = ["ALLOW_LARGE_ENV", "DEFAULT_LIMITS", "LARGE_FACTOR", "Limits", "Refused",
-           "allow_large", "current_limits", "inspect_file", "refusal", "too_many_cells",
-           "unreadable_message"]
+__all__ = [
+    "ALLOW_LARGE_ENV",
+    "DEFAULT_LIMITS",
+    "LARGE_FACTOR",
+    "Limits",
+    "Refused",
+    "allow_large",
+    "current_limits",
+    "inspect_file",
+    "refusal",
+    "too_many_cells",
+    "unreadable_message",
+]
 
 ALLOW_LARGE_ENV = "XLPOLICY_ALLOW_LARGE"
 LARGE_FACTOR = 10
@@ -59,18 +69,22 @@ class Limits:
 
     def scaled(self, factor: float) -> Limits:
         """Every limit times ``factor`` (the prolog scan stays as it is)."""
-        return replace(self, max_entries=int(self.max_entries * factor),
-                       max_part=int(self.max_part * factor),
-                       max_total=int(self.max_total * factor),
-                       max_ratio=self.max_ratio * factor,
-                       ratio_floor=int(self.ratio_floor * factor),
-                       max_tree_part=int(self.max_tree_part * factor),
-                       max_cells=int(self.max_cells * factor))
+        return replace(
+            self,
+            max_entries=int(self.max_entries * factor),
+            max_part=int(self.max_part * factor),
+            max_total=int(self.max_total * factor),
+            max_ratio=self.max_ratio * factor,
+            ratio_floor=int(self.ratio_floor * factor),
+            max_tree_part=int(self.max_tree_part * factor),
+            max_cells=int(self.max_cells * factor),
+        )
 
 
 DEFAULT_LIMITS = Limits()
-_allow_large: contextvars.ContextVar[bool] = contextvars.ContextVar("xlpolicy_allow_large",
-                                                                   default=False)
+_allow_large: contextvars.ContextVar[bool] = contextvars.ContextVar(
+    "xlpolicy_allow_large", default=False
+)
 
 
 def current_limits() -> Limits:
@@ -100,8 +114,10 @@ class Refused(Exception):
         self.code = code
 
 
-_RAISE = (f"If you trust the file, run again with --allow-large (or set {ALLOW_LARGE_ENV}=1)"
-          " to raise the limits tenfold.")
+_RAISE = (
+    f"If you trust the file, run again with --allow-large (or set {ALLOW_LARGE_ENV}=1)"
+    " to raise the limits tenfold."
+)
 _OLE2_MAGIC = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"
 _ENCRYPTED_STREAM = "EncryptedPackage".encode("utf-16-le")
 _XLS_STREAM = "Workbook".encode("utf-16-le")
@@ -134,12 +150,18 @@ def inspect_file(path: Path, kind: str = "xlsx", limits: Limits | None = None) -
         with open(p, "rb") as f:
             head = f.read(4096)
     except OSError as exc:
-        raise Refused(f"{p.name} could not be opened ({exc.strerror or exc}). If it is open in "
-                      "another program, close it and try again.", "file-unreadable") from exc
+        raise Refused(
+            f"{p.name} could not be opened ({exc.strerror or exc}). If it is open in "
+            "another program, close it and try again.",
+            "file-unreadable",
+        ) from exc
     if size == 0:
-        raise Refused(f"{p.name} is empty (0 bytes): it was probably not saved completely, or "
-                      "a copy or download was cut off. Open the original in your spreadsheet "
-                      "program, save it again and use that file.", "file-empty")
+        raise Refused(
+            f"{p.name} is empty (0 bytes): it was probably not saved completely, or "
+            "a copy or download was cut off. Open the original in your spreadsheet "
+            "program, save it again and use that file.",
+            "file-empty",
+        )
     if not head.startswith(b"PK"):
         raise Refused(_not_a_package(p, head, kind), "file-not-zip")
     try:
@@ -150,7 +172,9 @@ def inspect_file(path: Path, kind: str = "xlsx", limits: Limits | None = None) -
             f"{p.name} is not a readable {ext} workbook: it starts like one but its end is "
             f"missing or broken ({exc}), which is what a copy, download or e-mail attachment "
             "that was cut off looks like. Get the file again, or open it in your spreadsheet "
-            "program (it may offer to repair it) and save it again.", "file-truncated") from exc
+            "program (it may offer to repair it) and save it again.",
+            "file-truncated",
+        ) from exc
     with zf:
         _check_entries(p, zf, limits, kind)
         _check_kind(p, zf, kind)
@@ -168,14 +192,16 @@ def refusal(path: Path, kind: str = "xlsx") -> Refused | None:
 
 def too_many_cells(file: str, sheet: str, limit: int) -> Refused:
     """The refusal for a sheet that expands into more cells than any stock list holds."""
-    return Refused(f"The sheet '{sheet}' in {file} holds more cells than {limit:,}, far more "
-                   "than a stock list needs (a row or cell repeated down the whole sheet, or a "
-                   "damaged file), so it was not read. Delete the unused rows and columns and "
-                   f"save again. {_RAISE}", "file-too-large")
+    return Refused(
+        f"The sheet '{sheet}' in {file} holds more cells than {limit:,}, far more "
+        "than a stock list needs (a row or cell repeated down the whole sheet, or a "
+        "damaged file), so it was not read. Delete the unused rows and columns and "
+        f"save again. {_RAISE}",
+        "file-too-large",
+    )
 
 
-def unreadable_message(file: str, exc: BaseException, sheet: str | None = None
-                       ) -> tuple[str, str]:
+def unreadable_message(file: str, exc: BaseException, sheet: str | None = None) -> tuple[str, str]:
     """(message, problem code) for a parser's failure on a file that passed the checks above.
 
     Entities found by the parser (a DTD the first check did not see) are refused as unsafe;
@@ -194,28 +220,37 @@ def unreadable_message(file: str, exc: BaseException, sheet: str | None = None
     why = why if len(why) <= 160 else why[:160] + "..."
     where = f"The sheet '{sheet}' in {file}" if sheet else file
     if isinstance(exc, DefusedXmlException):
-        return (f"{where} declares XML entities, which spreadsheet programs never write and "
-                "which can make a file expand without end or reach other files, so it was not "
-                f"read ({type(exc).__name__}). Check where the file came from; if you trust "
-                "it, open it in your spreadsheet program and save it again as .xlsx.",
-                "file-unsafe-xml")
-    return (f"{where} could not be read: the file is damaged ({why}). Open it in your "
-            "spreadsheet program (it may offer to repair it) and save it again as .xlsx, or "
-            "get a fresh copy, and run again.", "file-unreadable")
+        return (
+            f"{where} declares XML entities, which spreadsheet programs never write and "
+            "which can make a file expand without end or reach other files, so it was not "
+            f"read ({type(exc).__name__}). Check where the file came from; if you trust "
+            "it, open it in your spreadsheet program and save it again as .xlsx.",
+            "file-unsafe-xml",
+        )
+    return (
+        f"{where} could not be read: the file is damaged ({why}). Open it in your "
+        "spreadsheet program (it may offer to repair it) and save it again as .xlsx, or "
+        "get a fresh copy, and run again.",
+        "file-unreadable",
+    )
 
 
 def _lock_file_message(p: Path) -> str | None:
     name = p.name
     if name.startswith("~$"):
         real = name[2:]
-        return (f"{name} is not a workbook but the lock file a spreadsheet program leaves "
-                f"beside a workbook while it is open (the workbook is probably {real} or a "
-                f"name ending in '{real}'). Give xlpolicy the workbook itself; close it "
-                "first if it is open.")
+        return (
+            f"{name} is not a workbook but the lock file a spreadsheet program leaves "
+            f"beside a workbook while it is open (the workbook is probably {real} or a "
+            f"name ending in '{real}'). Give xlpolicy the workbook itself; close it "
+            "first if it is open."
+        )
     m = re.match(r"^\.~lock\.(.+)#$", name)
     if m:
-        return (f"{name} is not a workbook but the lock file LibreOffice leaves beside "
-                f"{m.group(1)} while it is open. Give xlpolicy {m.group(1)} itself.")
+        return (
+            f"{name} is not a workbook but the lock file LibreOffice leaves beside "
+            f"{m.group(1)} while it is open. Give xlpolicy {m.group(1)} itself."
+        )
     return None
 
 
@@ -225,32 +260,44 @@ def _not_a_package(p: Path, head: bytes, kind: str) -> str:
 
     name = p.name
     ext = ".ods" if kind == "ods" else ".xlsx"
-    resave = ("Open it in your spreadsheet program and save it as "
-              + ("'OpenDocument Spreadsheet (.ods)' or " if kind == "ods" else "")
-              + "'Excel Workbook (.xlsx)'.")
+    resave = (
+        "Open it in your spreadsheet program and save it as "
+        + ("'OpenDocument Spreadsheet (.ods)' or " if kind == "ods" else "")
+        + "'Excel Workbook (.xlsx)'."
+    )
     found = sniff(head)
     if found == "ole2":
         stream = _ole2_kind(p)
         if stream == "encrypted":
-            return (f"{name} is protected by a password (it is saved encrypted), so it cannot "
-                    "be read. Open it, remove the password (in Excel: File > Info > Protect "
-                    "Workbook > Encrypt with Password, clear it) and save it, or save an "
-                    "unprotected copy, and run again on that.")
+            return (
+                f"{name} is protected by a password (it is saved encrypted), so it cannot "
+                "be read. Open it, remove the password (in Excel: File > Info > Protect "
+                "Workbook > Encrypt with Password, clear it) and save it, or save an "
+                "unprotected copy, and run again on that."
+            )
         if stream == "xls":
-            return (f"{name} is really an old-style Excel file (.xls) saved with an {ext} name. "
-                    "Rename it to end in .xls and run again, or open it and save it as "
-                    "'Excel Workbook (.xlsx)'.")
-        return (f"{name} is an old Office file (a compound file), not an {ext} workbook; it may "
-                f"be password-protected or another kind of document renamed. {resave}")
+            return (
+                f"{name} is really an old-style Excel file (.xls) saved with an {ext} name. "
+                "Rename it to end in .xls and run again, or open it and save it as "
+                "'Excel Workbook (.xlsx)'."
+            )
+        return (
+            f"{name} is an old Office file (a compound file), not an {ext} workbook; it may "
+            f"be password-protected or another kind of document renamed. {resave}"
+        )
     if found == "biff":
-        return (f"{name} is a very old Excel file (Excel 4 or earlier) with an {ext} name, which "
-                f"xlpolicy has no reader for. {resave}")
+        return (
+            f"{name} is a very old Excel file (Excel 4 or earlier) with an {ext} name, which "
+            f"xlpolicy has no reader for. {resave}"
+        )
     foreign = foreign_file_message(name, f"an {ext}", found, resave)
     if foreign is not None:
         return foreign
-    return (f"{name} is not a readable {ext} workbook: it is neither a workbook nor a kind of "
-            "file xlpolicy recognises (it may be damaged, or another kind of file renamed). "
-            f"{resave}")
+    return (
+        f"{name} is not a readable {ext} workbook: it is neither a workbook nor a kind of "
+        "file xlpolicy recognises (it may be damaged, or another kind of file renamed). "
+        f"{resave}"
+    )
 
 
 def foreign_file_message(name: str, kind: str, found: str, resave: str) -> str | None:
@@ -260,20 +307,26 @@ def foreign_file_message(name: str, kind: str, found: str, resave: str) -> str |
     ``found`` is none of those three. Shared by every reader, so they speak alike.
     """
     if found == "html":
-        return (f"{name} is a web page (HTML) with {kind} name, not a real spreadsheet file; "
-                f"some programs and websites export tables this way. {resave}")
+        return (
+            f"{name} is a web page (HTML) with {kind} name, not a real spreadsheet file; "
+            f"some programs and websites export tables this way. {resave}"
+        )
     if found == "xml":
-        return (f"{name} is an XML file with {kind} name (perhaps an 'XML Spreadsheet 2003'), "
-                f"not a real spreadsheet file. {resave}")
+        return (
+            f"{name} is an XML file with {kind} name (perhaps an 'XML Spreadsheet 2003'), "
+            f"not a real spreadsheet file. {resave}"
+        )
     if found == "text":
-        return (f"{name} is a text (CSV) file with {kind} name, not a real spreadsheet file. "
-                f"{resave} Or name it Items.csv, put it in a folder of its own with "
-                "History.csv, and give xlpolicy the folder.")
+        return (
+            f"{name} is a text (CSV) file with {kind} name, not a real spreadsheet file. "
+            f"{resave} Or name it Items.csv, put it in a folder of its own with "
+            "History.csv, and give xlpolicy the folder."
+        )
     return None
 
 
 def _ole2_kind(p: Path, max_scan: int = 64 * _MB) -> str:
-    """"encrypted" (an encrypted OOXML package), "xls" (a legacy workbook) or "other".
+    """ "encrypted" (an encrypted OOXML package), "xls" (a legacy workbook) or "other".
 
     The compound file's directory names its streams in UTF-16; the names are searched for in
     the first ``max_scan`` bytes, read in chunks.
@@ -298,43 +351,61 @@ def _ole2_kind(p: Path, max_scan: int = 64 * _MB) -> str:
 def _check_entries(p: Path, zf: zipfile.ZipFile, limits: Limits, kind: str) -> None:
     """Refuse a package whose directory promises more than any workbook needs."""
     infos = zf.infolist()
-    bomb = (f"{p.name} would unpack to far more than any workbook needs, so it was not "
-            "opened: it is either damaged or made to exhaust memory (a 'zip bomb'). Check "
-            "where it came from. ")
+    bomb = (
+        f"{p.name} would unpack to far more than any workbook needs, so it was not "
+        "opened: it is either damaged or made to exhaust memory (a 'zip bomb'). Check "
+        "where it came from. "
+    )
     if len(infos) > limits.max_entries:
-        raise Refused(bomb + f"It holds {len(infos):,} parts (the limit is "
-                      f"{limits.max_entries:,}). {_RAISE}", "file-too-large")
+        raise Refused(
+            bomb + f"It holds {len(infos):,} parts (the limit is {limits.max_entries:,}). {_RAISE}",
+            "file-too-large",
+        )
     total = 0
     for info in infos:
         if info.flag_bits & 0x1:
-            raise Refused(f"{p.name} holds encrypted parts ({info.filename}), so it cannot be "
-                          "read. Save an unprotected copy from your spreadsheet program and run "
-                          "again on that.", "file-encrypted")
+            raise Refused(
+                f"{p.name} holds encrypted parts ({info.filename}), so it cannot be "
+                "read. Save an unprotected copy from your spreadsheet program and run "
+                "again on that.",
+                "file-encrypted",
+            )
         usize, csize = info.file_size, info.compress_size
         total += usize
         if usize > limits.max_part:
-            raise Refused(bomb + f"Its part {info.filename} would unpack to {_size(usize)} "
-                          f"(the limit is {_size(limits.max_part)}). {_RAISE}",
-                          "file-too-large")
+            raise Refused(
+                bomb + f"Its part {info.filename} would unpack to {_size(usize)} "
+                f"(the limit is {_size(limits.max_part)}). {_RAISE}",
+                "file-too-large",
+            )
         if usize > limits.ratio_floor and usize > limits.max_ratio * max(csize, 1):
             ratio = usize / max(csize, 1)
-            raise Refused(bomb + f"Its part {info.filename} is compressed {ratio:,.0f} "
-                          f"to 1 ({_size(csize)} unpacking to {_size(usize)}; ordinary "
-                          f"workbooks stay below {limits.max_ratio:,.0f} to 1). {_RAISE}",
-                          "file-too-large")
+            raise Refused(
+                bomb + f"Its part {info.filename} is compressed {ratio:,.0f} "
+                f"to 1 ({_size(csize)} unpacking to {_size(usize)}; ordinary "
+                f"workbooks stay below {limits.max_ratio:,.0f} to 1). {_RAISE}",
+                "file-too-large",
+            )
         if kind == "ods" and info.filename == "content.xml" and usize > limits.max_tree_part:
-            raise Refused(f"{p.name} holds {_size(usize)} of cells, more than xlpolicy reads "
-                          f"from an .ods file (the limit is {_size(limits.max_tree_part)}). Save "
-                          f"it as .xlsx, which is read row by row, and run again. {_RAISE}",
-                          "file-too-large")
+            raise Refused(
+                f"{p.name} holds {_size(usize)} of cells, more than xlpolicy reads "
+                f"from an .ods file (the limit is {_size(limits.max_tree_part)}). Save "
+                f"it as .xlsx, which is read row by row, and run again. {_RAISE}",
+                "file-too-large",
+            )
     if total > limits.max_total:
-        raise Refused(bomb + f"Its parts would unpack to {_size(total)} in all (the limit is "
-                      f"{_size(limits.max_total)}). {_RAISE}", "file-too-large")
+        raise Refused(
+            bomb + f"Its parts would unpack to {_size(total)} in all (the limit is "
+            f"{_size(limits.max_total)}). {_RAISE}",
+            "file-too-large",
+        )
 
 
-_OTHER_DOCUMENTS = (("word/document.xml", "a Word document (.docx)"),
-                    ("ppt/presentation.xml", "a PowerPoint presentation (.pptx)"),
-                    ("xl/workbook.bin", "an Excel binary workbook (.xlsb)"))
+_OTHER_DOCUMENTS = (
+    ("word/document.xml", "a Word document (.docx)"),
+    ("ppt/presentation.xml", "a PowerPoint presentation (.pptx)"),
+    ("xl/workbook.bin", "an Excel binary workbook (.xlsb)"),
+)
 
 
 def _check_kind(p: Path, zf: zipfile.ZipFile, kind: str) -> None:
@@ -343,18 +414,30 @@ def _check_kind(p: Path, zf: zipfile.ZipFile, kind: str) -> None:
     ext = ".ods" if kind == "ods" else ".xlsx"
     for part, what in _OTHER_DOCUMENTS:
         if part in names:
-            raise Refused(f"{p.name} is {what} with an {ext} name, not a workbook. Give xlpolicy "
-                          "the workbook with your items, or open the file and save it as "
-                          "'Excel Workbook (.xlsx)'.", "file-not-workbook")
+            raise Refused(
+                f"{p.name} is {what} with an {ext} name, not a workbook. Give xlpolicy "
+                "the workbook with your items, or open the file and save it as "
+                "'Excel Workbook (.xlsx)'.",
+                "file-not-workbook",
+            )
     if kind == "xlsx" and "content.xml" in names and "[Content_Types].xml" not in names:
-        raise Refused(f"{p.name} is an OpenDocument file (.ods) with an .xlsx name. Rename it "
-                      "to end in .ods and run again.", "file-not-workbook")
-    if kind == "xlsx" and "[Content_Types].xml" not in names and not any(
-            n.startswith("xl/") for n in names):
+        raise Refused(
+            f"{p.name} is an OpenDocument file (.ods) with an .xlsx name. Rename it "
+            "to end in .ods and run again.",
+            "file-not-workbook",
+        )
+    if (
+        kind == "xlsx"
+        and "[Content_Types].xml" not in names
+        and not any(n.startswith("xl/") for n in names)
+    ):
         shown = ", ".join(sorted(names)[:3]) + (", ..." if len(names) > 3 else "")
-        raise Refused(f"{p.name} is a zip archive of other files ({shown}), not a workbook. "
-                      "If the workbook is inside it, unpack it first and give xlpolicy the "
-                      ".xlsx file.", "file-not-workbook")
+        raise Refused(
+            f"{p.name} is a zip archive of other files ({shown}), not a workbook. "
+            "If the workbook is inside it, unpack it first and give xlpolicy the "
+            ".xlsx file.",
+            "file-not-workbook",
+        )
 
 
 _DTD = re.compile(rb"<!DOCTYPE|<!ENTITY", re.IGNORECASE)
@@ -385,14 +468,18 @@ def _check_prologs(p: Path, zf: zipfile.ZipFile, limits: Limits) -> None:
                 f"{p.name} has an XML part ({info.filename}) whose content does not begin "
                 f"within its first {limits.max_prolog // 1024} KB; that padding can hide a "
                 "document type declaration, so the workbook was not read. Open it in your "
-                "spreadsheet program and save it again as .xlsx.", "file-unsafe-xml")
+                "spreadsheet program and save it again as .xlsx.",
+                "file-unsafe-xml",
+            )
         if _DTD.search(prolog):
             raise Refused(
                 f"{p.name} contains a document type declaration (in its part "
                 f"{info.filename}). Spreadsheet programs never write one; it is how files are "
                 "made to expand into huge amounts of text or to reach other files, so the "
                 "workbook was not read. Check where it came from; if you trust it, open it in "
-                "your spreadsheet program and save it again as .xlsx.", "file-unsafe-xml")
+                "your spreadsheet program and save it again as .xlsx.",
+                "file-unsafe-xml",
+            )
 
 
 def _before_root(head: bytes) -> bytes:

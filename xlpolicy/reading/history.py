@@ -102,8 +102,9 @@ def _bucket(dates: list[_dt.date], period: str) -> tuple[np.ndarray, list[_dt.da
     return idx, labels
 
 
-def choose_period(dates: list[_dt.date], settings: dict[str, Any], sheet: str,
-                  log: ProblemLog) -> str:
+def choose_period(
+    dates: list[_dt.date], settings: dict[str, Any], sheet: str, log: ProblemLog
+) -> str:
     """The period to bucket dated history into, reconciling the dates with Settings."""
     inferred = infer_period(dates)
     explicit = not str(settings["sources"].get("period", "default")).startswith("default")
@@ -113,27 +114,37 @@ def choose_period(dates: list[_dt.date], settings: dict[str, Any], sheet: str,
             log.warning(
                 "The History dates are not evenly spaced by day, week or month, so the period "
                 f"could not be inferred; '{wanted}' was used. Set 'Period' in Settings if that "
-                "is wrong.", sheet=sheet, code="history-period-unclear")
+                "is wrong.",
+                sheet=sheet,
+                code="history-period-unclear",
+            )
         return wanted
     if explicit and _PERIOD_ORDER[wanted] > _PERIOD_ORDER[inferred]:
-        log.info(f"History dates are {inferred}ly; they were added up into {wanted}s as "
-                 "Settings asks.", sheet=sheet, code="history-aggregated")
+        log.info(
+            f"History dates are {inferred}ly; they were added up into {wanted}s as Settings asks.",
+            sheet=sheet,
+            code="history-aggregated",
+        )
         return wanted
     if explicit and wanted != inferred:
         log.warning(
             f"Settings says the period is '{wanted}' but the History dates are {inferred}ly; "
             f"'{inferred}' was used. Correct the Settings period or the dates.",
-            sheet=sheet, code="history-period-mismatch")
+            sheet=sheet,
+            code="history-period-mismatch",
+        )
     return inferred
 
 
-def read_history(sheet: RawSheet, known_items: set[str], settings: dict[str, Any],
-                 log: ProblemLog) -> History | None:
+def read_history(
+    sheet: RawSheet, known_items: set[str], settings: dict[str, Any], log: ProblemLog
+) -> History | None:
     """Read History in whichever layout its header shows; None (fatal) if neither."""
     long_header = find_header(sheet, HISTORY_LONG_COLUMNS, min_matches=3)
     if long_header is not None:
-        return _read_long(sheet, long_header.columns, long_header.row_index, known_items,
-                          settings, log)
+        return _read_long(
+            sheet, long_header.columns, long_header.row_index, known_items, settings, log
+        )
     wide = _find_wide_header(sheet)
     if wide is not None:
         return _read_wide(sheet, *wide, known_items, settings, log)
@@ -141,7 +152,10 @@ def read_history(sheet: RawSheet, known_items: set[str], settings: dict[str, Any
         f"The sheet '{sheet.name}' has no header row that I can read. Use either columns "
         "Item, Period, Quantity (one row per item and period), or Item followed by one "
         "column per period with dates or labels as headers.",
-        sheet=sheet.name, cell="A1", code="history-no-header")
+        sheet=sheet.name,
+        cell="A1",
+        code="history-no-header",
+    )
     return None
 
 
@@ -150,19 +164,27 @@ def _find_wide_header(sheet: RawSheet, scan_rows: int = 30) -> tuple[int, int, l
     item_names = next(c for c in ITEM_COLUMNS if c.key == "item").names()
     text_names = set().union(*(c.names() for c in ITEM_COLUMNS if c.key != "item"))
     for idx, row in enumerate(sheet.rows[:scan_rows]):
-        item_col = next((j for j, v in enumerate(row) if isinstance(v, str)
-                         and normalise(v) in item_names), None)
+        item_col = next(
+            (j for j, v in enumerate(row) if isinstance(v, str) and normalise(v) in item_names),
+            None,
+        )
         if item_col is None:
             continue
-        periods = [j for j, v in enumerate(row) if j > item_col and not is_blank(v)
-                   and not (isinstance(v, str) and normalise(v) in text_names)]
+        periods = [
+            j
+            for j, v in enumerate(row)
+            if j > item_col
+            and not is_blank(v)
+            and not (isinstance(v, str) and normalise(v) in text_names)
+        ]
         if len(periods) >= 2:
             return idx, item_col, periods
     return None
 
 
-def _period_axis(raw_periods: list[Any], settings: dict[str, Any], sheet: str,
-                 log: ProblemLog) -> tuple[np.ndarray, list[Any], str | None, list[int]]:
+def _period_axis(
+    raw_periods: list[Any], settings: dict[str, Any], sheet: str, log: ProblemLog
+) -> tuple[np.ndarray, list[Any], str | None, list[int]]:
     """Map raw period values to column indices of the matrix.
 
     Returns (index per value, -1 where unusable), the labels of the axis, the period if
@@ -205,8 +227,14 @@ def _period_axis(raw_periods: list[Any], settings: dict[str, Any], sheet: str,
     return idx, list(order), None, bad
 
 
-def _read_long(sheet: RawSheet, cols: dict[str, int], hidx: int, known: set[str],
-               settings: dict[str, Any], log: ProblemLog) -> History:
+def _read_long(
+    sheet: RawSheet,
+    cols: dict[str, int],
+    hidx: int,
+    known: set[str],
+    settings: dict[str, Any],
+    log: ProblemLog,
+) -> History:
     ji, jp, jq = cols["item"], cols["period"], cols["quantity"]
     codes: list[str] = []
     periods: list[Any] = []
@@ -222,8 +250,7 @@ def _read_long(sheet: RawSheet, cols: dict[str, int], hidx: int, known: set[str]
     qv = np.zeros(len(at), dtype=float)
     if num.any():
         qv[num] = blk[num, 2].astype(float)
-    slow = (~num & np.not_equal(kinds[:, 2], type(None))) | (
-        num & ~(np.isfinite(qv) & (qv >= 0)))
+    slow = (~num & np.not_equal(kinds[:, 2], type(None))) | (num & ~(np.isfinite(qv) & (qv >= 0)))
     raw_codes, raw_periods, raw_qty = (blk[:, q].tolist() for q in range(3))
     qv_list, slow_list = qv.tolist(), slow.tolist()
     code_of: dict[tuple[Any, ...], str | None] = {}  # codes repeat: each is worked out once
@@ -235,9 +262,13 @@ def _read_long(sheet: RawSheet, cols: dict[str, int], hidx: int, known: set[str]
         if code is None:
             if all(is_blank(x) for x in sheet.rows[k]):
                 continue
-            log.warning("A History row has no item code; it was ignored. Fill in the item code "
-                        "or delete the row.", sheet=sheet.name, cell=cell_ref(ji, rownum),
-                        code="history-item-missing")
+            log.warning(
+                "A History row has no item code; it was ignored. Fill in the item code "
+                "or delete the row.",
+                sheet=sheet.name,
+                cell=cell_ref(ji, rownum),
+                code="history-item-missing",
+            )
             continue
         if code not in known:
             if code not in unknown_seen:
@@ -245,15 +276,20 @@ def _read_long(sheet: RawSheet, cols: dict[str, int], hidx: int, known: set[str]
                 log.warning(
                     f"History has item {code!r}, which is not in the Items sheet; its rows were "
                     "ignored. Add the item to Items or correct the code.",
-                    sheet=sheet.name, cell=cell_ref(ji, rownum), item=code, value=v,
-                    code="history-unknown-item")
+                    sheet=sheet.name,
+                    cell=cell_ref(ji, rownum),
+                    item=code,
+                    value=v,
+                    code="history-unknown-item",
+                )
             continue
         if code not in first_cell:
             first_cell[code] = cell_ref(ji, rownum)
         if slow_list[pos] or sheet.uncalculated:
             ref = cell_ref(jq, rownum)
-            x = _quantity(raw_qty[pos], ref, sheet.name, code, log,
-                          uncalculated=ref in sheet.uncalculated)
+            x = _quantity(
+                raw_qty[pos], ref, sheet.name, code, log, uncalculated=ref in sheet.uncalculated
+            )
         else:
             x = qv_list[pos]
         codes.append(code)
@@ -265,8 +301,12 @@ def _read_long(sheet: RawSheet, cols: dict[str, int], hidx: int, known: set[str]
         log.warning(
             f"Period {describe(periods[pos])} is not a date like the others (or is blank); "
             "the row was ignored. Write the period as a date.",
-            sheet=sheet.name, cell=cell_ref(jp, rows[pos]), item=codes[pos],
-            value=periods[pos], code="history-period-bad")
+            sheet=sheet.name,
+            cell=cell_ref(jp, rows[pos]),
+            item=codes[pos],
+            value=periods[pos],
+            code="history-period-bad",
+        )
     items = list(dict.fromkeys(codes))
     pos_of = {c: i for i, c in enumerate(items)}
     matrix = np.zeros((len(items), len(labels)), dtype=float)
@@ -279,18 +319,32 @@ def _read_long(sheet: RawSheet, cols: dict[str, int], hidx: int, known: set[str]
     return History(sheet.name, "long", items, matrix, labels, period, first_cell)
 
 
-def _read_wide(sheet: RawSheet, hidx: int, ji: int, pcols: list[int], known: set[str],
-               settings: dict[str, Any], log: ProblemLog) -> History:
+def _read_wide(
+    sheet: RawSheet,
+    hidx: int,
+    ji: int,
+    pcols: list[int],
+    known: set[str],
+    settings: dict[str, Any],
+    log: ProblemLog,
+) -> History:
     header = sheet.rows[hidx]
-    pidx, labels, period, used = _wide_axis([header[j] for j in pcols], pcols,
-                                            sheet.row_numbers[hidx], sheet.name, settings, log)
+    pidx, labels, period, used = _wide_axis(
+        [header[j] for j in pcols], pcols, sheet.row_numbers[hidx], sheet.name, settings, log
+    )
     below = range(hidx + 1, len(sheet.rows))
     codes = [sheet.rows[k][ji] if ji < len(sheet.rows[k]) else None for k in below]
     formats = [sheet.formats[k][ji] if ji < len(sheet.formats[k]) else "" for k in below]
-    rownums = sheet.row_numbers[hidx + 1:]
+    rownums = sheet.row_numbers[hidx + 1 :]
     items, first_cell, picked, row_problems = _wide_items(
-        sheet.name, ji, codes, formats, rownums,
-        lambda pos: all(is_blank(v) for v in sheet.rows[hidx + 1 + pos]), known)
+        sheet.name,
+        ji,
+        codes,
+        formats,
+        rownums,
+        lambda pos: all(is_blank(v) for v in sheet.rows[hidx + 1 + pos]),
+        known,
+    )
     # The quantities as one block: plain numbers are taken as they are, all at once; only
     # the cells that are not (text, dates, negatives, formulas without a result) go one by
     # one through the same check as always, which reports each by its cell.
@@ -303,13 +357,29 @@ def _read_wide(sheet: RawSheet, hidx: int, ji: int, pcols: list[int], known: set
     slow = ~num & np.not_equal(kinds, type(None))
     slow |= num & ~(np.isfinite(vals) & (vals >= 0))
     picked_rows = [rownums[pos] for pos in picked]
-    return _wide_finish(sheet.name, items, first_cell, picked, picked_rows, row_problems,
-                        cols, vals, slow, lambda i, q: blk[i, q], sheet.uncalculated,
-                        pidx, used, labels, period, log)
+    return _wide_finish(
+        sheet.name,
+        items,
+        first_cell,
+        picked,
+        picked_rows,
+        row_problems,
+        cols,
+        vals,
+        slow,
+        lambda i, q: blk[i, q],
+        sheet.uncalculated,
+        pidx,
+        used,
+        labels,
+        period,
+        log,
+    )
 
 
-def read_wide_typed(head: RawSheet, cells: WideCells, known: set[str],
-                    settings: dict[str, Any], log: ProblemLog) -> History:
+def read_wide_typed(
+    head: RawSheet, cells: WideCells, known: set[str], settings: dict[str, Any], log: ProblemLog
+) -> History:
     """A wide History read as typed columns (see xlpolicy.reading.typed): the same History
     and the same problems as the general path, from arrays instead of a cell grid."""
     hidx, ji, pcols = _find_wide_header(head)  # type: ignore[misc]
@@ -319,17 +389,21 @@ def read_wide_typed(head: RawSheet, cells: WideCells, known: set[str],
 
     def blank(pos: int) -> bool:
         return pos not in holds and not any(
-            cells.present[k, pos] for k in range(cells.present.shape[0]))
+            cells.present[k, pos] for k in range(cells.present.shape[0])
+        )
 
     items, first_cell, picked, row_problems = _wide_items(
-        head.name, ji, cells.codes, formats, rownums, blank, known)
+        head.name, ji, cells.codes, formats, rownums, blank, known
+    )
     if not cells.codes_exact and any(
-            isinstance(kw.get("value"), str) and NUMBER_TEXT.match(kw["value"])
-            for _pos, kw in row_problems):
+        isinstance(kw.get("value"), str) and NUMBER_TEXT.match(kw["value"])
+        for _pos, kw in row_problems
+    ):
         raise NotTyped  # the problem would quote a number as text: the general path can tell
     header = head.rows[hidx]
-    pidx, labels, period, used = _wide_axis([header[j] for j in pcols], pcols,
-                                            head.row_numbers[hidx], head.name, settings, log)
+    pidx, labels, period, used = _wide_axis(
+        [header[j] for j in pcols], pcols, head.row_numbers[hidx], head.name, settings, log
+    )
     cols = [pcols[p] for p in used]
     at = np.asarray(picked, dtype=np.int64)
     # Columns x rows, as the typed reader keeps them; ``vals`` and ``num`` below are their
@@ -341,7 +415,8 @@ def read_wide_typed(head: RawSheet, cells: WideCells, known: set[str],
     if have:
         src = np.asarray([ks[q] for q in have], dtype=np.int64)
         everything = at.size == cells.numbers.shape[1] and bool(
-            np.array_equal(at, np.arange(at.size)))
+            np.array_equal(at, np.arange(at.size))
+        )
         rows_t[have] = cells.numbers[src] if everything else cells.numbers[src][:, at]
         num_t[have] = cells.present[src] if everything else cells.present[src][:, at]
     rows_t[~num_t] = 0.0
@@ -350,7 +425,7 @@ def read_wide_typed(head: RawSheet, cells: WideCells, known: set[str],
     if cells.cells:
         row_at = {int(p): i for i, p in enumerate(picked)}
         col_at = {c: q for q, c in enumerate(cols)}
-        for (pos, c) in cells.cells:
+        for pos, c in cells.cells:
             if pos in row_at and c in col_at:
                 other[row_at[pos], col_at[c]] = True
     num &= ~other
@@ -364,27 +439,57 @@ def read_wide_typed(head: RawSheet, cells: WideCells, known: set[str],
         return int(x) if np.isfinite(x) and x.is_integer() and abs(x) < 1e15 else x
 
     picked_rows = [rownums[pos] for pos in picked]
-    return _wide_finish(head.name, items, first_cell, picked, picked_rows, row_problems, cols,
-                        vals, slow, value_at, cells.uncalculated, pidx, used, labels, period,
-                        log)
+    return _wide_finish(
+        head.name,
+        items,
+        first_cell,
+        picked,
+        picked_rows,
+        row_problems,
+        cols,
+        vals,
+        slow,
+        value_at,
+        cells.uncalculated,
+        pidx,
+        used,
+        labels,
+        period,
+        log,
+    )
 
 
-def _wide_axis(raw_periods: list[Any], pcols: list[int], hrow: int, sheet: str,
-               settings: dict[str, Any], log: ProblemLog
-               ) -> tuple[np.ndarray, list[Any], str | None, np.ndarray]:
+def _wide_axis(
+    raw_periods: list[Any],
+    pcols: list[int],
+    hrow: int,
+    sheet: str,
+    settings: dict[str, Any],
+    log: ProblemLog,
+) -> tuple[np.ndarray, list[Any], str | None, np.ndarray]:
     """The period axis of a wide header: (index per column, labels, period, usable ones)."""
     pidx, labels, period, bad = _period_axis(raw_periods, settings, sheet, log)
     for pos in bad:
-        log.warning(f"Column header {describe(raw_periods[pos])} is not a date like the others; "
-                    "the column was ignored.", sheet=sheet,
-                    cell=cell_ref(pcols[pos], hrow), value=raw_periods[pos],
-                    code="history-period-bad")
+        log.warning(
+            f"Column header {describe(raw_periods[pos])} is not a date like the others; "
+            "the column was ignored.",
+            sheet=sheet,
+            cell=cell_ref(pcols[pos], hrow),
+            value=raw_periods[pos],
+            code="history-period-bad",
+        )
     return pidx, labels, period, np.flatnonzero(pidx >= 0)
 
 
-def _wide_items(sheet: str, ji: int, codes: list[Any], formats: list[str], rownums: list[int],
-                blank_row: Any, known: set[str]
-                ) -> tuple[list[str], dict[str, str], list[int], list[tuple[int, dict]]]:
+def _wide_items(
+    sheet: str,
+    ji: int,
+    codes: list[Any],
+    formats: list[str],
+    rownums: list[int],
+    blank_row: Any,
+    known: set[str],
+) -> tuple[list[str], dict[str, str], list[int], list[tuple[int, dict]]]:
     """Which rows below a wide header are items: (items, first cell of each, their
     positions, the other rows' problems with their positions), in sheet order."""
     items: list[str] = []
@@ -392,26 +497,55 @@ def _wide_items(sheet: str, ji: int, codes: list[Any], formats: list[str], rownu
     picked: list[int] = []
     row_problems: list[tuple[int, dict[str, Any]]] = []
     letter = cell_ref(ji, 1)[:-1]
-    for pos, (v, code, rownum) in enumerate(zip(codes, item_codes(codes, formats), rownums,
-                                                strict=True)):
+    for pos, (v, code, rownum) in enumerate(
+        zip(codes, item_codes(codes, formats), rownums, strict=True)
+    ):
         ref = f"{letter}{rownum}"
         if code is None:
             if not blank_row(pos):
-                row_problems.append((pos, dict(
-                    message="A History row has no item code; it was ignored.",
-                    sheet=sheet, cell=ref, code="history-item-missing")))
+                row_problems.append(
+                    (
+                        pos,
+                        dict(
+                            message="A History row has no item code; it was ignored.",
+                            sheet=sheet,
+                            cell=ref,
+                            code="history-item-missing",
+                        ),
+                    )
+                )
             continue
         if code not in known:
-            row_problems.append((pos, dict(
-                message=f"History has item {code!r}, which is not in the Items sheet; its row "
-                "was ignored. Add the item to Items or correct the code.",
-                sheet=sheet, cell=ref, item=code, value=v, code="history-unknown-item")))
+            row_problems.append(
+                (
+                    pos,
+                    dict(
+                        message=f"History has item {code!r}, which is not in the Items sheet; its row "
+                        "was ignored. Add the item to Items or correct the code.",
+                        sheet=sheet,
+                        cell=ref,
+                        item=code,
+                        value=v,
+                        code="history-unknown-item",
+                    ),
+                )
+            )
             continue
         if code in first_cell:
-            row_problems.append((pos, dict(
-                message=f"Item {code!r} has a second History row (first at {first_cell[code]}); "
-                "the second was ignored. Keep one row per item.", sheet=sheet,
-                cell=ref, item=code, value=v, code="history-duplicate-item")))
+            row_problems.append(
+                (
+                    pos,
+                    dict(
+                        message=f"Item {code!r} has a second History row (first at {first_cell[code]}); "
+                        "the second was ignored. Keep one row per item.",
+                        sheet=sheet,
+                        cell=ref,
+                        item=code,
+                        value=v,
+                        code="history-duplicate-item",
+                    ),
+                )
+            )
             continue
         first_cell[code] = ref
         items.append(code)
@@ -419,11 +553,24 @@ def _wide_items(sheet: str, ji: int, codes: list[Any], formats: list[str], rownu
     return items, first_cell, picked, row_problems
 
 
-def _wide_finish(sheet: str, items: list[str], first_cell: dict[str, str], picked: list[int],
-                 picked_rows: list[int], row_problems: list[tuple[int, dict]], cols: list[int],
-                 vals: np.ndarray, slow: np.ndarray, value_at: Any, uncalculated: set[str],
-                 pidx: np.ndarray, used: np.ndarray, labels: list[Any], period: str | None,
-                 log: ProblemLog) -> History:
+def _wide_finish(
+    sheet: str,
+    items: list[str],
+    first_cell: dict[str, str],
+    picked: list[int],
+    picked_rows: list[int],
+    row_problems: list[tuple[int, dict]],
+    cols: list[int],
+    vals: np.ndarray,
+    slow: np.ndarray,
+    value_at: Any,
+    uncalculated: set[str],
+    pidx: np.ndarray,
+    used: np.ndarray,
+    labels: list[Any],
+    period: str | None,
+    log: ProblemLog,
+) -> History:
     """Check the cells marked ``slow`` one by one, log every problem in sheet order, and
     add the columns up into the History's matrix."""
     if uncalculated:
@@ -434,16 +581,19 @@ def _wide_finish(sheet: str, items: list[str], first_cell: dict[str, str], picke
             if r in at_row and c in at_col:
                 slow[at_row[r], at_col[c]] = True
     cell_problems = np.nonzero(slow)  # row-major: sheet order
-    events = sorted([(pos, -1, i) for i, (pos, _) in enumerate(row_problems)]
-                    + [(picked[i], q, i) for i, q in zip(*cell_problems, strict=True)])
+    events = sorted(
+        [(pos, -1, i) for i, (pos, _) in enumerate(row_problems)]
+        + [(picked[i], q, i) for i, q in zip(*cell_problems, strict=True)]
+    )
     for _pos, q, i in events:
         if q < 0:
             kw = row_problems[i][1]
             log.warning(kw.pop("message"), **kw)
             continue
         ref = cell_ref(cols[q], picked_rows[i])
-        vals[i, q] = _quantity(value_at(i, q), ref, sheet, items[i], log,
-                               uncalculated=ref in uncalculated)
+        vals[i, q] = _quantity(
+            value_at(i, q), ref, sheet, items[i], log, uncalculated=ref in uncalculated
+        )
     matrix = np.zeros((len(items), len(labels)), dtype=float)
     target = pidx[used]
     if np.unique(target).size == target.size:  # a column per period: placed in one step
@@ -477,28 +627,44 @@ def _split_ref(ref: str) -> tuple[int, int]:
     return int(m.group(2)), col - 1
 
 
-def _quantity(value: Any, ref: str, sheet: str, code: str, log: ProblemLog,
-              uncalculated: bool = False) -> float:
+def _quantity(
+    value: Any, ref: str, sheet: str, code: str, log: ProblemLog, uncalculated: bool = False
+) -> float:
     """One demand cell: a number >= 0, 0 for blank, NaN (reported) if unreadable."""
     if uncalculated:
-        log.warning("This quantity is a formula with no saved result; the period was left out "
-                    "of the item's statistics. Open the workbook, let it calculate, save it.",
-                    sheet=sheet, cell=ref, item=code, code="cell-uncalculated")
+        log.warning(
+            "This quantity is a formula with no saved result; the period was left out "
+            "of the item's statistics. Open the workbook, let it calculate, save it.",
+            sheet=sheet,
+            cell=ref,
+            item=code,
+            code="cell-uncalculated",
+        )
         return float("nan")
     x, why = parse_number(value)
     if why:
-        log.warning(f"Quantity {describe(value)} is {why}; this period was left out of the "
-                    "item's statistics. Enter the units sold as a number (0 if none).",
-                    sheet=sheet, cell=ref, item=code, value=value,
-                    code="history-quantity-not-number")
+        log.warning(
+            f"Quantity {describe(value)} is {why}; this period was left out of the "
+            "item's statistics. Enter the units sold as a number (0 if none).",
+            sheet=sheet,
+            cell=ref,
+            item=code,
+            value=value,
+            code="history-quantity-not-number",
+        )
         return float("nan")
     if x is None:
         return 0.0
     if x < 0:
-        log.warning(f"Quantity {describe(value)} is negative (a return?); it was counted as 0. "
-                    "Record returns elsewhere so they don't lower the demand estimate.",
-                    sheet=sheet, cell=ref, item=code, value=value,
-                    code="history-quantity-negative")
+        log.warning(
+            f"Quantity {describe(value)} is negative (a return?); it was counted as 0. "
+            "Record returns elsewhere so they don't lower the demand estimate.",
+            sheet=sheet,
+            cell=ref,
+            item=code,
+            value=value,
+            code="history-quantity-negative",
+        )
         return 0.0
     return x
 
@@ -518,5 +684,6 @@ def aggregate_daily_to_weeks(history: History) -> History:
     weeks = n_days // 7
     m = history.matrix[:, : weeks * 7].reshape(n_items, weeks, 7).sum(axis=2)
     labels = history.labels[: weeks * 7 : 7]
-    return History(history.sheet, history.layout, history.items, m, labels, "week",
-                   history.first_cell)
+    return History(
+        history.sheet, history.layout, history.items, m, labels, "week", history.first_cell
+    )

@@ -43,39 +43,61 @@ HISTORY_FILE_TYPES = (".csv", ".txt", ".parquet", ".pq")
 LISTED = 20
 
 
-def read_history_file(path: Path, known_items: set[str], settings: dict[str, Any],
-                      log: ProblemLog) -> History | None:
+def read_history_file(
+    path: Path, known_items: set[str], settings: dict[str, Any], log: ProblemLog
+) -> History | None:
     """The long-layout history in ``path``; None (a fatal problem logged) if unusable."""
     name = path.name
     if not path.is_file():
-        log.fatal(f"The history file {path} does not exist. Check the 'History file' setting "
-                  "(a path relative to the workbook's folder) or the --history option.",
-                  sheet=name, value=str(path), code="history-file-missing")
+        log.fatal(
+            f"The history file {path} does not exist. Check the 'History file' setting "
+            "(a path relative to the workbook's folder) or the --history option.",
+            sheet=name,
+            value=str(path),
+            code="history-file-missing",
+        )
         return None
     if path.suffix.lower() not in HISTORY_FILE_TYPES:
-        log.fatal(f"The history file {name} is neither CSV nor Parquet. Save the history as "
-                  ".csv (Item, Period, Quantity columns) or .parquet.",
-                  sheet=name, value=str(path), code="history-file-type")
+        log.fatal(
+            f"The history file {name} is neither CSV nor Parquet. Save the history as "
+            ".csv (Item, Period, Quantity columns) or .parquet.",
+            sheet=name,
+            value=str(path),
+            code="history-file-type",
+        )
         return None
     try:
         headers, columns = _load(path)
     except _NeedsPyarrow:
-        log.fatal(f"Reading the Parquet file {name} needs the pyarrow package: install it with "
-                  "pip install 'xlpolicy[large]' (or save the history as CSV).",
-                  sheet=name, value=str(path), code="history-file-pyarrow")
+        log.fatal(
+            f"Reading the Parquet file {name} needs the pyarrow package: install it with "
+            "pip install 'xlpolicy[large]' (or save the history as CSV).",
+            sheet=name,
+            value=str(path),
+            code="history-file-pyarrow",
+        )
         return None
     except Exception as exc:  # a damaged or foreign file: a message, never a traceback
-        log.fatal(f"The history file {name} cannot be read ({type(exc).__name__}: "
-                  f"{str(exc)[:200]}). Save it again as CSV (comma or semicolon separated, "
-                  "UTF-8) or Parquet.", sheet=name, value=str(path), code="history-file-unreadable")
+        log.fatal(
+            f"The history file {name} cannot be read ({type(exc).__name__}: "
+            f"{str(exc)[:200]}). Save it again as CSV (comma or semicolon separated, "
+            "UTF-8) or Parquet.",
+            sheet=name,
+            value=str(path),
+            code="history-file-unreadable",
+        )
         return None
     cols = _columns(headers)
     missing = [c.title for c in HISTORY_LONG_COLUMNS if c.key not in cols]
     if missing:
-        log.fatal(f"The history file {name} has no column {', '.join(missing)} (columns found: "
-                  + ", ".join(repr(str(c)) for c in headers[:12])
-                  + "). Its first line must name the columns Item, Period and Quantity.",
-                  sheet=name, cell="A1", code="history-file-columns")
+        log.fatal(
+            f"The history file {name} has no column {', '.join(missing)} (columns found: "
+            + ", ".join(repr(str(c)) for c in headers[:12])
+            + "). Its first line must name the columns Item, Period and Quantity.",
+            sheet=name,
+            cell="A1",
+            code="history-file-columns",
+        )
         return None
     picked = {key: columns(headers.index(col)) for key, col in cols.items()}
     letters = {key: _letter(headers.index(col)) for key, col in cols.items()}
@@ -95,8 +117,9 @@ class _Column:
     file stores as numbers.
     """
 
-    def __init__(self, codes: np.ndarray | None, values: list[Any],
-                 numbers: np.ndarray | None = None) -> None:
+    def __init__(
+        self, codes: np.ndarray | None, values: list[Any], numbers: np.ndarray | None = None
+    ) -> None:
         self.codes = codes
         self.values = values
         self.numbers = numbers
@@ -123,7 +146,8 @@ def _load(path: Path) -> tuple[list[str], Any]:
         names = list(pf.schema_arrow.names)
         # One column at a time, each made compact (codes) before the next is read.
         return [str(n) for n in names], lambda j: _arrow_column(
-            pf.read(columns=[names[j]]).column(0))
+            pf.read(columns=[names[j]]).column(0)
+        )
     with open(path, encoding="utf-8-sig", newline="") as fh:
         head = fh.read(64 * 1024)
     sep = sniff_delimiter(head)
@@ -132,15 +156,18 @@ def _load(path: Path) -> tuple[list[str], Any]:
         import pyarrow as pa
         import pyarrow.csv as pacsv
     except ImportError:
-        frame = pd.read_csv(path, sep=sep, dtype=str, keep_default_na=False,
-                            encoding="utf-8-sig")
+        frame = pd.read_csv(path, sep=sep, dtype=str, keep_default_na=False, encoding="utf-8-sig")
         return [str(c) for c in frame.columns], lambda j: _pandas_column(frame.iloc[:, j])
     # Every column as text: codes keep their zeros and a stray word stays visible.
     table = pacsv.read_csv(
-        path, parse_options=pacsv.ParseOptions(delimiter=sep),
+        path,
+        parse_options=pacsv.ParseOptions(delimiter=sep),
         convert_options=pacsv.ConvertOptions(
-            column_types={c: pa.string() for c in first}, strings_can_be_null=False,
-            quoted_strings_can_be_null=False))
+            column_types={c: pa.string() for c in first},
+            strings_can_be_null=False,
+            quoted_strings_can_be_null=False,
+        ),
+    )
     return [str(n) for n in table.column_names], lambda j: _arrow_column(table.column(j))
 
 
@@ -172,8 +199,14 @@ def _columns(headers: list[str]) -> dict[str, str]:
     return out
 
 
-def _history(cols: dict[str, _Column], letters: dict[str, str], name: str, known: set[str],
-             settings: dict[str, Any], log: ProblemLog) -> History:
+def _history(
+    cols: dict[str, _Column],
+    letters: dict[str, str],
+    name: str,
+    known: set[str],
+    settings: dict[str, Any],
+    log: ProblemLog,
+) -> History:
     def cell(key: str, k: int) -> str:
         return f"{letters[key]}{k + 2}"  # the header is line 1
 
@@ -188,9 +221,17 @@ def _history(cols: dict[str, _Column], letters: dict[str, str], name: str, known
     def code_of(k: int) -> str:
         return code_values[int(item_codes[k])]
 
-    _report(log, blank, "A History row has no item code; it was ignored. Fill in the item code "
-            "or delete the row.", name, lambda k: cell("item", k), lambda k: "",
-            item_col.raw, "history-item-missing", with_value=False)
+    _report(
+        log,
+        blank,
+        "A History row has no item code; it was ignored. Fill in the item code or delete the row.",
+        name,
+        lambda k: cell("item", k),
+        lambda k: "",
+        item_col.raw,
+        "history-item-missing",
+        with_value=False,
+    )
     if unknown.any():
         where = np.flatnonzero(unknown)
         u, first = np.unique(item_codes[where], return_index=True)
@@ -198,38 +239,71 @@ def _history(cols: dict[str, _Column], letters: dict[str, str], name: str, known
         for j in order[:LISTED].tolist():
             k = int(where[first[j]])
             code = code_values[int(u[j])]
-            log.warning(f"History has item {code!r}, which is not in the Items sheet; its rows "
-                        "were ignored. Add the item to Items or correct the code.", sheet=name,
-                        cell=cell("item", k), item=code, value=item_col.raw(k),
-                        code="history-unknown-item")
+            log.warning(
+                f"History has item {code!r}, which is not in the Items sheet; its rows "
+                "were ignored. Add the item to Items or correct the code.",
+                sheet=name,
+                cell=cell("item", k),
+                item=code,
+                value=item_col.raw(k),
+                code="history-unknown-item",
+            )
         if len(u) > LISTED:
-            log.warning(f"... and {len(u) - LISTED:,} more item codes in {name} that are not in "
-                        "the Items sheet; their rows were ignored.", sheet=name,
-                        code="history-unknown-item")
+            log.warning(
+                f"... and {len(u) - LISTED:,} more item codes in {name} that are not in "
+                "the Items sheet; their rows were ignored.",
+                sheet=name,
+                code="history-unknown-item",
+            )
     keep = ~blank & ~unknown
 
     q_col = cols["quantity"]
     qty, bad_qty, negative = _quantities(q_col)
-    _report(log, keep & bad_qty, "Quantity {value} is not a number; this period was left out "
-            "of the item's statistics. Enter the units sold as a number (0 if none).", name,
-            lambda k: cell("quantity", k), code_of, q_col.raw, "history-quantity-not-number")
-    _report(log, keep & negative, "Quantity {value} is negative (a return?); it was counted as "
-            "0. Record returns elsewhere so they don't lower the demand estimate.", name,
-            lambda k: cell("quantity", k), code_of, q_col.raw, "history-quantity-negative")
+    _report(
+        log,
+        keep & bad_qty,
+        "Quantity {value} is not a number; this period was left out "
+        "of the item's statistics. Enter the units sold as a number (0 if none).",
+        name,
+        lambda k: cell("quantity", k),
+        code_of,
+        q_col.raw,
+        "history-quantity-not-number",
+    )
+    _report(
+        log,
+        keep & negative,
+        "Quantity {value} is negative (a return?); it was counted as "
+        "0. Record returns elsewhere so they don't lower the demand estimate.",
+        name,
+        lambda k: cell("quantity", k),
+        code_of,
+        q_col.raw,
+        "history-quantity-negative",
+    )
 
     # Periods: the distinct values of the kept rows go through the History sheet's rules.
     p_col = cols["period"]
     p_codes, p_values = _period_codes(p_col)
     used = np.unique(p_codes[keep & (p_codes >= 0)])
     # (values _period_axis cannot use come back as -1 and are reported below, by row)
-    idx_u, labels, period, _ = _period_axis([p_values[j] for j in used.tolist()], settings,
-                                            name, log)
+    idx_u, labels, period, _ = _period_axis(
+        [p_values[j] for j in used.tolist()], settings, name, log
+    )
     axis = np.full(len(p_values) + 1, -1, dtype=np.int64)  # the last slot: a missing period
     axis[used] = idx_u
     pidx = axis[np.where(p_codes >= 0, p_codes, len(p_values))]
-    _report(log, keep & (pidx < 0), "Period {value} is not a date like the others (or is "
-            "blank); the row was ignored. Write the period as a date.", name,
-            lambda k: cell("period", k), code_of, p_col.raw, "history-period-bad")
+    _report(
+        log,
+        keep & (pidx < 0),
+        "Period {value} is not a date like the others (or is "
+        "blank); the row was ignored. Write the period as a date.",
+        name,
+        lambda k: cell("period", k),
+        code_of,
+        p_col.raw,
+        "history-period-bad",
+    )
 
     use = np.flatnonzero(keep & (pidx >= 0))
     order_items, first_at = np.unique(item_codes[use], return_index=True)
@@ -246,13 +320,16 @@ def _history(cols: dict[str, _Column], letters: dict[str, str], name: str, known
         # unreadable quantity) makes its bucket NaN, left out of the statistics.
         q = qty[use]
         nan_at = np.isnan(q)
-        matrix = np.bincount(flat, weights=np.where(nan_at, 0.0, q),
-                             minlength=matrix.size).reshape(matrix.shape)
+        matrix = np.bincount(flat, weights=np.where(nan_at, 0.0, q), minlength=matrix.size).reshape(
+            matrix.shape
+        )
         if nan_at.any():
             matrix.reshape(-1)[flat[nan_at]] = np.nan
     items = [code_values[int(c)] for c in items_u.tolist()]
-    first_cell = {code: cell("item", int(use[first_at[j]]))
-                  for code, j in zip(items, rank.tolist(), strict=True)}
+    first_cell = {
+        code: cell("item", int(use[first_at[j]]))
+        for code, j in zip(items, rank.tolist(), strict=True)
+    }
     return History(name, "long", items, matrix, labels, period, first_cell)
 
 
@@ -284,8 +361,7 @@ def _period_codes(col: _Column) -> tuple[np.ndarray, list[Any]]:
         vals = [v if np.isfinite(v) else None for v in values.tolist()]
         codes = np.where(np.isnan(x), -1, codes)
         return codes.astype(np.int64), [_period_value(v) for v in vals]
-    codes = np.where(np.array([v is None for v in col.values] + [False])[col.codes], -1,
-                     col.codes)
+    codes = np.where(np.array([v is None for v in col.values] + [False])[col.codes], -1, col.codes)
     return codes.astype(np.int64), [_period_value(v) for v in col.values]
 
 
@@ -329,17 +405,36 @@ def _period_value(v: Any) -> Any:
     return v
 
 
-def _report(log: ProblemLog, mask: np.ndarray, message: str, sheet: str, where: Any,
-            item: Any, raw: Any, code: str, with_value: bool = True) -> None:
+def _report(
+    log: ProblemLog,
+    mask: np.ndarray,
+    message: str,
+    sheet: str,
+    where: Any,
+    item: Any,
+    raw: Any,
+    code: str,
+    with_value: bool = True,
+) -> None:
     """A warning for each of the first rows in ``mask``, then one counting the rest."""
     rows = np.flatnonzero(mask)
     for k in rows[:LISTED].tolist():
         value = raw(k)
-        log.warning(message.format(value=describe(value)), sheet=sheet, cell=where(k),
-                    item=item(k), value=value if with_value else None, code=code)
+        log.warning(
+            message.format(value=describe(value)),
+            sheet=sheet,
+            cell=where(k),
+            item=item(k),
+            value=value if with_value else None,
+            code=code,
+        )
     if len(rows) > LISTED:
-        log.warning(f"... and {len(rows) - LISTED:,} more rows like {where(int(rows[LISTED - 1]))} "
-                    f"in {sheet}.", sheet=sheet, code=code)
+        log.warning(
+            f"... and {len(rows) - LISTED:,} more rows like {where(int(rows[LISTED - 1]))} "
+            f"in {sheet}.",
+            sheet=sheet,
+            code=code,
+        )
 
 
 def _letter(index: int) -> str:

@@ -44,40 +44,76 @@ SIDE_KEYS = ("on_hand", "on_order", "backordered", "current_order_qty", "current
 # (test, what is wrong, how to fix) per numeric column; the test gets a float or a whole
 # column of them (numpy), so it is written with & rather than "and" or chained comparisons.
 _RULES: dict[str, tuple[Any, str, str]] = {
-    "unit_cost": (lambda x: x > 0, "must be more than 0",
-                  "Enter what one unit costs to buy, e.g. 4.75"),
-    "order_cost": (lambda x: x >= 0, "cannot be negative",
-                   "Enter the cost of placing one order, 0 or more"),
-    "holding_rate": (lambda x: (x > 0) & (x <= 1),
-                     "must be more than 0 and at most 1 (100% a year)",
-                     "Write the yearly holding cost as a fraction or percent, e.g. 0.25 or 25%"),
-    "lead_time_days": (lambda x: x > 0, "must be more than 0 days",
-                       "Enter the days from ordering to having the goods, e.g. 10"),
-    "lead_time_sd_days": (lambda x: x >= 0, "cannot be negative",
-                          "Enter the lead time's standard deviation in days, or leave it blank"),
-    "service_target": (lambda x: (x > 0) & (x < 1), "must lie strictly between 0 and 1",
-                       "Write e.g. 0.95 or 95%, or leave it blank for the Settings default"),
-    "shortage_cost": (lambda x: x > 0, "must be more than 0",
-                      "Enter the cost of each unit short, or leave it blank"),
-    "pack_size": (lambda x: (x > 0) & (np.floor(x) == x),
-                  "must be a whole number of units, 1 or more",
-                  "Enter how many units come in one pack, e.g. 12, or leave it blank"),
-    "minimum_order": (lambda x: x >= 0, "cannot be negative",
-                      "Enter the smallest quantity the supplier accepts, or leave it blank"),
+    "unit_cost": (
+        lambda x: x > 0,
+        "must be more than 0",
+        "Enter what one unit costs to buy, e.g. 4.75",
+    ),
+    "order_cost": (
+        lambda x: x >= 0,
+        "cannot be negative",
+        "Enter the cost of placing one order, 0 or more",
+    ),
+    "holding_rate": (
+        lambda x: (x > 0) & (x <= 1),
+        "must be more than 0 and at most 1 (100% a year)",
+        "Write the yearly holding cost as a fraction or percent, e.g. 0.25 or 25%",
+    ),
+    "lead_time_days": (
+        lambda x: x > 0,
+        "must be more than 0 days",
+        "Enter the days from ordering to having the goods, e.g. 10",
+    ),
+    "lead_time_sd_days": (
+        lambda x: x >= 0,
+        "cannot be negative",
+        "Enter the lead time's standard deviation in days, or leave it blank",
+    ),
+    "service_target": (
+        lambda x: (x > 0) & (x < 1),
+        "must lie strictly between 0 and 1",
+        "Write e.g. 0.95 or 95%, or leave it blank for the Settings default",
+    ),
+    "shortage_cost": (
+        lambda x: x > 0,
+        "must be more than 0",
+        "Enter the cost of each unit short, or leave it blank",
+    ),
+    "pack_size": (
+        lambda x: (x > 0) & (np.floor(x) == x),
+        "must be a whole number of units, 1 or more",
+        "Enter how many units come in one pack, e.g. 12, or leave it blank",
+    ),
+    "minimum_order": (
+        lambda x: x >= 0,
+        "cannot be negative",
+        "Enter the smallest quantity the supplier accepts, or leave it blank",
+    ),
     "on_hand": (lambda x: x == x, "", ""),  # (any number: NaN is not one)
     "on_order": (lambda x: x >= 0, "cannot be negative", "Enter units on order, 0 or more"),
-    "backordered": (lambda x: x >= 0, "cannot be negative",
-                    "Enter units owed to customers, 0 or more"),
+    "backordered": (
+        lambda x: x >= 0,
+        "cannot be negative",
+        "Enter units owed to customers, 0 or more",
+    ),
     "current_order_qty": (lambda x: x > 0, "must be more than 0", "Enter today's order quantity"),
     "current_reorder_point": (lambda x: x == x, "", ""),
     "annual_demand": (lambda x: x >= 0, "cannot be negative", "Enter units sold per year"),
-    "demand_sd": (lambda x: x >= 0, "cannot be negative",
-                  "Enter the standard deviation of demand per period"),
-    "shelf_life_days": (lambda x: x > 0, "must be more than 0 days",
-                        "Enter the days a unit stays usable, e.g. 30, or leave it blank"),
-    "review_period_days": (lambda x: x >= 0, "cannot be negative",
-                           "Enter the days between reviews, e.g. 7, or 0 for continuous "
-                           "review"),
+    "demand_sd": (
+        lambda x: x >= 0,
+        "cannot be negative",
+        "Enter the standard deviation of demand per period",
+    ),
+    "shelf_life_days": (
+        lambda x: x > 0,
+        "must be more than 0 days",
+        "Enter the days a unit stays usable, e.g. 30, or leave it blank",
+    ),
+    "review_period_days": (
+        lambda x: x >= 0,
+        "cannot be negative",
+        "Enter the days between reviews, e.g. 7, or 0 for continuous review",
+    ),
 }
 
 
@@ -112,7 +148,10 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
             f"The sheet '{sheet.name}' has no header row naming the item columns. Put a row "
             "with headers such as Item, Unit cost, Lead time days at the top of the table "
             "(run 'xlpolicy template' for an example).",
-            sheet=sheet.name, cell="A1", code="items-no-header")
+            sheet=sheet.name,
+            cell="A1",
+            code="items-no-header",
+        )
         return None
     hrow = sheet.row_numbers[header.row_index]
     cols = header.columns
@@ -128,15 +167,22 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
         log.fatal(
             f"The sheet '{sheet.name}' has no column {names}{extra}. Add the column to the "
             f"header row (row {hrow}); headers match loosely, e.g. 'Lead time (days)'.",
-            sheet=sheet.name, cell=cell_ref(0, hrow), value=None, code="items-missing-column")
+            sheet=sheet.name,
+            cell=cell_ref(0, hrow),
+            value=None,
+            code="items-missing-column",
+        )
         return None
     for key, idxs in header.duplicates.items():
         for j in idxs[1:]:
             log.warning(
                 f"Two columns mean '{ITEM_COLUMN_BY_KEY[key].title}'; the first "
                 f"({cell_ref(idxs[0], hrow)}) was used. Rename or delete the other.",
-                sheet=sheet.name, cell=cell_ref(j, hrow), value=sheet.rows[header.row_index][j],
-                code="items-duplicate-column")
+                sheet=sheet.name,
+                cell=cell_ref(j, hrow),
+                value=sheet.rows[header.row_index][j],
+                code="items-duplicate-column",
+            )
 
     measure = settings.get("service_measure")
     first = header.row_index + 1
@@ -153,8 +199,9 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
         else:
             if all(is_blank(v) for v in values):
                 continue
-            rec, ok = _read_row(values, sheet.formats[k], rownum, header, sheet, settings,
-                                measure, log)
+            rec, ok = _read_row(
+                values, sheet.formats[k], rownum, header, sheet, settings, measure, log
+            )
             if rec is None:
                 continue
             code = rec["item"]
@@ -162,8 +209,12 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
             log.error(
                 f"Item code {code!r} appears again (first in row {first_row_of[code]}); this "
                 "row was skipped. Give each item one row and its own code.",
-                sheet=sheet.name, cell=cell_ref(cols["item"], rownum), item=code, value=code,
-                code="item-duplicate")
+                sheet=sheet.name,
+                cell=cell_ref(cols["item"], rownum),
+                item=code,
+                value=code,
+                code="item-duplicate",
+            )
             continue
         first_row_of[code] = rownum
         records.append(rec)
@@ -175,8 +226,11 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
     data: dict[str, Any] = {}
     for key in keys + ["row"]:
         column = clean.columns[key]
-        out = column[at] if isinstance(column, np.ndarray) else np.asarray(
-            [column[p] for p in kept], dtype=object)
+        out = (
+            column[at]
+            if isinstance(column, np.ndarray)
+            else np.asarray([column[p] for p in kept], dtype=object)
+        )
         for n, rec in enumerate(records):
             if rec is not None:
                 out[n] = rec.get(key)
@@ -187,8 +241,9 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
     for k in ("item",) + TEXT_KEYS + OTHER_KEYS:
         df[k] = df[k].astype(object)
     df["row"] = df["row"].astype(int)
-    return ItemTable(sheet.name, df, dict(cols), hrow, np.asarray(usable, dtype=bool),
-                     dict(header.units))
+    return ItemTable(
+        sheet.name, df, dict(cols), hrow, np.asarray(usable, dtype=bool), dict(header.units)
+    )
 
 
 @dataclass
@@ -205,8 +260,9 @@ class _CleanRows:
     columns: dict[str, Any]
 
 
-def _clean_rows(sheet: RawSheet, header: Header, settings: dict[str, Any],
-                measure: str | None) -> _CleanRows:
+def _clean_rows(
+    sheet: RawSheet, header: Header, settings: dict[str, Any], measure: str | None
+) -> _CleanRows:
     cols, units = header.columns, header.units
     first = header.row_index + 1
     rows = list(range(first, len(sheet.rows)))
@@ -233,11 +289,15 @@ def _clean_rows(sheet: RawSheet, header: Header, settings: dict[str, Any],
     columns["row"] = np.asarray(sheet.row_numbers[first:], dtype=np.int64)
     for key in TEXT_KEYS:
         columns[key] = np.asarray(texts(raw(key).tolist()), dtype=object)
-    ok &= np.fromiter((not (d or "").startswith(EXAMPLE_PREFIX) for d in columns["description"]),
-                      dtype=bool, count=n)
+    ok &= np.fromiter(
+        (not (d or "").startswith(EXAMPLE_PREFIX) for d in columns["description"]),
+        dtype=bool,
+        count=n,
+    )
     columns["history_start"] = np.asarray(
         [None if v is None or is_blank(v) else v for v in raw("history_start").tolist()],
-        dtype=object)
+        dtype=object,
+    )
     models: dict[Any, Any] = {}
     model_raw = raw("demand_model").tolist()
     for v in model_raw:
@@ -306,9 +366,16 @@ def _cells_by_column(sheet: RawSheet, cols: dict[str, int]) -> dict[int, list[in
 _A1 = re.compile(r"^\$?([A-Z]{1,3})\$?(\d+)$")
 
 
-def _read_row(values: list[Any], fmts: list[str], rownum: int, header: Header,
-              sheet: RawSheet, settings: dict[str, Any], measure: str | None,
-              log: ProblemLog) -> tuple[dict[str, Any] | None, bool]:
+def _read_row(
+    values: list[Any],
+    fmts: list[str],
+    rownum: int,
+    header: Header,
+    sheet: RawSheet,
+    settings: dict[str, Any],
+    measure: str | None,
+    log: ProblemLog,
+) -> tuple[dict[str, Any] | None, bool]:
     """One Items row: (record, usable) or (None, False) when it names no item."""
     cols, units = header.columns, header.units
 
@@ -332,7 +399,11 @@ def _read_row(values: list[Any], fmts: list[str], rownum: int, header: Header,
         log.error(
             "This row has data but no item code, so it was skipped. Enter the item's code in "
             f"the '{ITEM_COLUMN_BY_KEY['item'].title}' column.",
-            sheet=sheet.name, cell=ref("item"), value=None, code="item-code-missing")
+            sheet=sheet.name,
+            cell=ref("item"),
+            value=None,
+            code="item-code-missing",
+        )
         return None, False
 
     rec: dict[str, Any] = {"item": code, "row": rownum}
@@ -341,10 +412,15 @@ def _read_row(values: list[Any], fmts: list[str], rownum: int, header: Header,
     for key in TEXT_KEYS:
         rec[key] = text(raw(key)[0])
     if (rec["description"] or "").startswith(EXAMPLE_PREFIX):
-        log.warning("This is one of the template's example rows. It was planned like any "
-                    "other; delete it (and its History rows) once your own items are in.",
-                    sheet=sheet.name, cell=ref("description"), item=code,
-                    value=rec["description"], code="template-example-row")
+        log.warning(
+            "This is one of the template's example rows. It was planned like any "
+            "other; delete it (and its History rows) once your own items are in.",
+            sheet=sheet.name,
+            cell=ref("description"),
+            item=code,
+            value=rec["description"],
+            code="template-example-row",
+        )
     rec["history_start"] = None if is_blank(raw("history_start")[0]) else raw("history_start")[0]
     model_raw = raw("demand_model")[0]
     rec["demand_model"] = parse_model(model_raw)
@@ -352,8 +428,13 @@ def _read_row(values: list[Any], fmts: list[str], rownum: int, header: Header,
         log.warning(
             f"{title('demand_model')} {describe(model_raw)} is not a model I know; the model "
             "was chosen from the history. Write normal, poisson, negative binomial, gamma or "
-            "auto.", sheet=sheet.name, cell=ref("demand_model"), item=code, value=model_raw,
-            code="demand_model-unknown")
+            "auto.",
+            sheet=sheet.name,
+            cell=ref("demand_model"),
+            item=code,
+            value=model_raw,
+            code="demand_model-unknown",
+        )
     for key in NUMERIC_KEYS:
         value, fmt = raw(key)
         col = ITEM_COLUMN_BY_KEY[key]
@@ -368,17 +449,28 @@ def _read_row(values: list[Any], fmts: list[str], rownum: int, header: Header,
                 _sev(policy_col),
                 f"{name} is a formula with no saved result. Open the workbook in your "
                 "spreadsheet program, let it calculate, save it, and run again. " + consequence,
-                sheet=sheet.name, cell=cell, item=code, value=None, code="cell-uncalculated")
+                sheet=sheet.name,
+                cell=cell,
+                item=code,
+                value=None,
+                code="cell-uncalculated",
+            )
             ok = ok and not policy_col
             continue
-        x, why = parse_number(value, rate=col.kind == RATE, percent_unit=units.get(key) == "%",
-                              number_format=fmt)
+        x, why = parse_number(
+            value, rate=col.kind == RATE, percent_unit=units.get(key) == "%", number_format=fmt
+        )
         if why:
             fix = _RULES[key][2]
             log.add(
                 _sev(policy_col),
                 f"{name} {describe(value)} is {why}. {fix}. {consequence}",
-                sheet=sheet.name, cell=cell, item=code, value=value, code=f"{key}-not-number")
+                sheet=sheet.name,
+                cell=cell,
+                item=code,
+                value=value,
+                code=f"{key}-not-number",
+            )
             ok = ok and not policy_col
             continue
         if x is None:
@@ -389,7 +481,12 @@ def _read_row(values: list[Any], fmts: list[str], rownum: int, header: Header,
             log.add(
                 _sev(policy_col),
                 f"{name} {describe(value)} {wrong}. {fix}. {consequence}",
-                sheet=sheet.name, cell=cell, item=code, value=value, code=f"{key}-out-of-range")
+                sheet=sheet.name,
+                cell=cell,
+                item=code,
+                value=value,
+                code=f"{key}-out-of-range",
+            )
             ok = ok and not policy_col
             continue
         rec[key] = x
@@ -398,9 +495,14 @@ def _read_row(values: list[Any], fmts: list[str], rownum: int, header: Header,
     # Required per item, with Settings defaults where the contract allows them.
     for key in REQUIRED_ALWAYS[1:]:
         if math.isnan(rec[key]) and ok and key not in reported:
-            log.error(f"{title(key)} is blank. {_RULES[key][2]}. The item was skipped.",
-                      sheet=sheet.name, cell=ref(key), item=code, value=None,
-                      code=f"{key}-missing")
+            log.error(
+                f"{title(key)} is blank. {_RULES[key][2]}. The item was skipped.",
+                sheet=sheet.name,
+                cell=ref(key),
+                item=code,
+                value=None,
+                code=f"{key}-missing",
+            )
             ok = False
     for key in ("order_cost", "holding_rate", "service_target"):
         if math.isnan(rec[key]) and key not in reported:
@@ -412,16 +514,28 @@ def _read_row(values: list[Any], fmts: list[str], rownum: int, header: Header,
                     f"{title(key)} is blank and Settings gives no default. Fill the cell, or "
                     f"set '{ITEM_COLUMN_BY_KEY[key].title}' once in the Settings sheet for all "
                     "items. The item was skipped.",
-                    sheet=sheet.name, cell=ref(key) or cell_ref(0, rownum), item=code,
-                    value=None, code=f"{key}-missing")
+                    sheet=sheet.name,
+                    cell=ref(key) or cell_ref(0, rownum),
+                    item=code,
+                    value=None,
+                    code=f"{key}-missing",
+                )
                 ok = False
-    if measure == SHORTAGE_COST and ok and math.isnan(rec["shortage_cost"]) and (
-            "shortage_cost" not in reported):
+    if (
+        measure == SHORTAGE_COST
+        and ok
+        and math.isnan(rec["shortage_cost"])
+        and ("shortage_cost" not in reported)
+    ):
         log.error(
             "The service measure is 'shortage cost' but this item has no shortage cost. Enter "
             "the cost of each unit short, or choose another service measure. The item was skipped.",
-            sheet=sheet.name, cell=ref("shortage_cost") or cell_ref(0, rownum), item=code,
-            value=None, code="shortage_cost-missing")
+            sheet=sheet.name,
+            cell=ref("shortage_cost") or cell_ref(0, rownum),
+            item=code,
+            value=None,
+            code="shortage_cost-missing",
+        )
         ok = False
     return rec, ok
 

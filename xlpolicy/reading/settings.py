@@ -23,29 +23,43 @@ from .cells import describe, is_blank, parse_number
 from .workbook import RawSheet, cell_ref
 
 _SETTING_LOOKUP = {name: s.key for s in SETTINGS for name in s.names()}
+
+
 def _words(table: dict[str, tuple[str, ...]]) -> dict[str, str]:
     """Normalised spelling -> canonical word, for each canonical word and its other names."""
     return {normalise(w): name for name, others in table.items() for w in (name, *others)}
 
 
-_MEASURE_LOOKUP = _words({
-    "cycle service": ("cycle service level", "csl", "type 1", "probability of no stockout",
-                      "alpha", "cycle"),
-    "fill rate": ("fill", "type 2", "beta", "fill rate service", "unit fill rate"),
-    "shortage cost": ("cost", "backorder cost", "stockout cost", "shortage", "penalty cost"),
-})
-_PERIOD_LOOKUP = _words({
-    "day": ("days", "daily", "d"),
-    "week": ("weeks", "weekly", "w", "wk"),
-    "month": ("months", "monthly", "m", "mo"),
-})
-_MODEL_LOOKUP = _words({
-    "auto": ("automatic", "choose", "best"),
-    "normal": ("gaussian", "norm"),
-    "poisson": ("pois",),
-    "negative binomial": ("negbin", "nb", "neg binomial", "nbinom"),
-    "gamma": (),
-})
+_MEASURE_LOOKUP = _words(
+    {
+        "cycle service": (
+            "cycle service level",
+            "csl",
+            "type 1",
+            "probability of no stockout",
+            "alpha",
+            "cycle",
+        ),
+        "fill rate": ("fill", "type 2", "beta", "fill rate service", "unit fill rate"),
+        "shortage cost": ("cost", "backorder cost", "stockout cost", "shortage", "penalty cost"),
+    }
+)
+_PERIOD_LOOKUP = _words(
+    {
+        "day": ("days", "daily", "d"),
+        "week": ("weeks", "weekly", "w", "wk"),
+        "month": ("months", "monthly", "m", "mo"),
+    }
+)
+_MODEL_LOOKUP = _words(
+    {
+        "auto": ("automatic", "choose", "best"),
+        "normal": ("gaussian", "norm"),
+        "poisson": ("pois",),
+        "negative binomial": ("negbin", "nb", "neg binomial", "nbinom"),
+        "gamma": (),
+    }
+)
 _YES = {"yes", "y", "true", "1", "on"}
 _NO = {"no", "n", "false", "0", "off"}
 
@@ -99,14 +113,23 @@ def read_settings(sheet: RawSheet | None, log: ProblemLog) -> dict[str, tuple[An
                 continue
             log.warning(
                 f"Unknown setting {describe(name)}; it was ignored. Known settings: "
-                + ", ".join(s.title for s in SETTINGS) + ".",
-                sheet=sheet.name, cell=cell_ref(j, rownum), value=name, code="setting-unknown")
+                + ", ".join(s.title for s in SETTINGS)
+                + ".",
+                sheet=sheet.name,
+                cell=cell_ref(j, rownum),
+                value=name,
+                code="setting-unknown",
+            )
             continue
         if key in found:
             log.warning(
                 f"The setting {describe(name)} appears twice; the first one "
                 f"({found[key][1]}) was used. Delete one of them.",
-                sheet=sheet.name, cell=cell_ref(j, rownum), value=name, code="setting-duplicate")
+                sheet=sheet.name,
+                cell=cell_ref(j, rownum),
+                value=name,
+                code="setting-duplicate",
+            )
             continue
         if is_blank(value):
             continue
@@ -132,9 +155,14 @@ def resolve_settings(
         sources[s.key] = "default"
 
     def bad(key: str, raw: Any, cell: str, why: str) -> None:
-        log.warning(f"Setting '{key.replace('_', ' ')}' = {describe(raw)}: {why}. The default "
-                    f"({SETTING_DEFAULT_TEXT.get(key, 'none')}) was used.",
-                    sheet=sheet_name, cell=cell, value=raw, code=f"setting-{key}")
+        log.warning(
+            f"Setting '{key.replace('_', ' ')}' = {describe(raw)}: {why}. The default "
+            f"({SETTING_DEFAULT_TEXT.get(key, 'none')}) was used.",
+            sheet=sheet_name,
+            cell=cell,
+            value=raw,
+            code=f"setting-{key}",
+        )
 
     for key, (raw, cell) in sheet_values.items():
         if key == "period":
@@ -162,8 +190,12 @@ def resolve_settings(
         elif key in ("cap_outliers", "exchange_curve"):
             yes = parse_yes_no(raw)
             if yes is None:
-                bad(key, raw, cell, "write yes, no or auto" if key == "exchange_curve"
-                    else "write yes or no")
+                bad(
+                    key,
+                    raw,
+                    cell,
+                    "write yes, no or auto" if key == "exchange_curve" else "write yes or no",
+                )
                 continue
             out[key] = "yes" if yes else "no"
         else:
@@ -173,16 +205,28 @@ def resolve_settings(
                 continue
             assert x is not None
             if key in ("service_target", *CLASS_TARGET_SETTINGS.values()) and not 0 < x < 1:
-                bad(key, raw, cell, "a service target must lie strictly between 0 and 1 "
-                    "(write 0.95 or 95%)")
+                bad(
+                    key,
+                    raw,
+                    cell,
+                    "a service target must lie strictly between 0 and 1 (write 0.95 or 95%)",
+                )
                 continue
             if key in ("abc_share_a", "abc_share_b") and not 0 < x < 1:
-                bad(key, raw, cell, "a share of spend must lie strictly between 0 and 1 "
-                    "(write 0.8 or 80%)")
+                bad(
+                    key,
+                    raw,
+                    cell,
+                    "a share of spend must lie strictly between 0 and 1 (write 0.8 or 80%)",
+                )
                 continue
             if key == "holding_rate" and not 0 < x <= 1:
-                bad(key, raw, cell, "a yearly holding rate must be more than 0 and at most 1 "
-                    "(write 0.25 or 25%)")
+                bad(
+                    key,
+                    raw,
+                    cell,
+                    "a yearly holding rate must be more than 0 and at most 1 (write 0.25 or 25%)",
+                )
                 continue
             if key == "order_cost" and x < 0:
                 bad(key, raw, cell, "an order cost cannot be negative")
@@ -214,8 +258,9 @@ def resolve_settings(
     return out
 
 
-def _abc_cutoffs(out: dict[str, Any], sheet_values: dict[str, tuple[Any, str]],
-                 log: ProblemLog, sheet_name: str) -> None:
+def _abc_cutoffs(
+    out: dict[str, Any], sheet_values: dict[str, tuple[Any, str]], log: ProblemLog, sheet_name: str
+) -> None:
     """The cumulative ABC cut-offs (A share, A + B share) from the two share settings.
 
     Shares that add up to more than 100 % leave no room for class C: reported, and the
@@ -225,10 +270,15 @@ def _abc_cutoffs(out: dict[str, Any], sheet_values: dict[str, tuple[Any, str]],
     sources = out["sources"]
     if a + b > 1.0 + 1e-12:
         cell = sheet_values.get("abc_share_b", sheet_values.get("abc_share_a", (None, "")))[1]
-        log.warning(f"ABC share A ({a:.0%}) and ABC share B ({b:.0%}) add up to more than "
-                    "100%. Write shares that leave the rest to class C, e.g. 80% and 15%. "
-                    "The defaults (80% and 15%) were used.", sheet=sheet_name, cell=cell,
-                    value=b, code="setting-abc_shares")
+        log.warning(
+            f"ABC share A ({a:.0%}) and ABC share B ({b:.0%}) add up to more than "
+            "100%. Write shares that leave the rest to class C, e.g. 80% and 15%. "
+            "The defaults (80% and 15%) were used.",
+            sheet=sheet_name,
+            cell=cell,
+            value=b,
+            code="setting-abc_shares",
+        )
         a, b = 0.80, 0.15
         out["abc_share_a"], out["abc_share_b"] = a, b
         sources["abc_share_a"] = sources["abc_share_b"] = "default (shares over 100%)"

@@ -39,8 +39,11 @@ from .workbook import SHEET_ALIASES, RawSheet, WorkbookFile, cell_ref
 CSV_SUFFIXES = (".csv", ".tsv")
 
 #: What each kind of input is called in messages, by kind.
-KIND_NAMES = {"ods": "an OpenDocument spreadsheet (.ods)", "xls": "an old-style Excel file (.xls)",
-              "csv": "a folder of CSV files"}
+KIND_NAMES = {
+    "ods": "an OpenDocument spreadsheet (.ods)",
+    "xls": "an old-style Excel file (.xls)",
+    "csv": "a folder of CSV files",
+}
 
 
 class SheetSource(Protocol):
@@ -58,7 +61,7 @@ class SheetSource(Protocol):
 
 
 def source_kind(path: str | Path) -> str:
-    """"xlsx", "ods", "xls" or "csv" (a folder, or a .csv file), from the path alone."""
+    """ "xlsx", "ods", "xls" or "csv" (a folder, or a .csv file), from the path alone."""
     p = Path(path)
     if p.is_dir():
         return "csv"
@@ -117,7 +120,8 @@ def sniff(head: bytes) -> str:
         return "text"  # UTF-16, as Excel's "Unicode Text" saves
     start = head.lstrip(b"\xef\xbb\xbf \t\r\n").lower()
     if start.startswith((b"<!doctype html", b"<html", b"<table", b"<meta", b"<head")) or (
-            b"<html" in start[:1024] or b"<table" in start[:1024]):
+        b"<html" in start[:1024] or b"<table" in start[:1024]
+    ):
         return "html"
     if start.startswith(b"<?xml") or start.startswith(b"<"):
         return "xml"
@@ -143,22 +147,30 @@ def _renamed_message(name: str, kind: str, found: str) -> str | None:
     if foreign is not None:
         return foreign
     if found == "zip":
-        return (f"{name} is really an .xlsx workbook saved with {kind} name. Rename it to end "
-                "in .xlsx and run again.")
+        return (
+            f"{name} is really an .xlsx workbook saved with {kind} name. Rename it to end "
+            "in .xlsx and run again."
+        )
     if found in ("ole2", "biff"):
-        return (f"{name} is really an old-style Excel file (.xls) saved with {kind} name. "
-                "Rename it to end in .xls and run again.")
+        return (
+            f"{name} is really an old-style Excel file (.xls) saved with {kind} name. "
+            "Rename it to end in .xls and run again."
+        )
     return None
 
 
 def _exists(path: Path, log: ProblemLog, what: str) -> bool:
     if not path.exists():
-        log.fatal(f"The {what} {path.name} does not exist. Check the name and folder.",
-                  value=str(path), code="file-missing")
+        log.fatal(
+            f"The {what} {path.name} does not exist. Check the name and folder.",
+            value=str(path),
+            code="file-missing",
+        )
         return False
     if path.is_dir():
-        log.fatal(f"{path.name} is a folder, not a workbook.", value=str(path),
-                  code="file-is-folder")
+        log.fatal(
+            f"{path.name} is a folder, not a workbook.", value=str(path), code="file-is-folder"
+        )
         return False
     return True
 
@@ -194,17 +206,21 @@ class OdsFile:
         p = self.path
         if not _exists(p, self.log, "file"):
             return False
-        resave = ("Open it in your spreadsheet program and save it again as .ods or .xlsx.")
+        resave = "Open it in your spreadsheet program and save it again as .ods or .xlsx."
         try:
             found = sniff(_head(p))
         except OSError as exc:
-            self.log.fatal(f"{p.name} could not be opened ({exc.strerror or exc}).",
-                           value=str(p), code="file-unreadable")
+            self.log.fatal(
+                f"{p.name} could not be opened ({exc.strerror or exc}).",
+                value=str(p),
+                code="file-unreadable",
+            )
             return False
         if found != "zip":
             msg = _renamed_message(p.name, "an .ods", found) or (
                 f"{p.name} is not a readable .ods spreadsheet (it may be damaged or another "
-                f"kind of file renamed). {resave}")
+                f"kind of file renamed). {resave}"
+            )
             self.log.fatal(msg, value=str(p), code="file-not-ods")
             return False
         refused = refusal(p, "ods")  # zip bombs, DTDs, truncation: before any parser
@@ -214,36 +230,52 @@ class OdsFile:
         try:
             with zipfile.ZipFile(p) as zf:
                 names = set(zf.namelist())
-                mime = zf.read("mimetype").decode("ascii", "replace").strip() \
-                    if "mimetype" in names else ""
-                if "META-INF/manifest.xml" in names and \
-                        b"encryption-data" in zf.read("META-INF/manifest.xml"):
+                mime = (
+                    zf.read("mimetype").decode("ascii", "replace").strip()
+                    if "mimetype" in names
+                    else ""
+                )
+                if "META-INF/manifest.xml" in names and b"encryption-data" in zf.read(
+                    "META-INF/manifest.xml"
+                ):
                     self.log.fatal(
                         f"{p.name} is protected by a password, so it cannot be read. Open it, "
                         "remove the password (File > Properties > Security, or save without "
-                        "'Save with password') and run again.", value=str(p),
-                        code="file-encrypted")
+                        "'Save with password') and run again.",
+                        value=str(p),
+                        code="file-encrypted",
+                    )
                     return False
                 if "xl/workbook.xml" in names or "[Content_Types].xml" in names:
-                    self.log.fatal(_renamed_message(p.name, "an .ods", "zip") or "",
-                                   value=str(p), code="file-not-ods")
+                    self.log.fatal(
+                        _renamed_message(p.name, "an .ods", "zip") or "",
+                        value=str(p),
+                        code="file-not-ods",
+                    )
                     return False
                 if mime and mime != _ODS_MIME:
                     self.log.fatal(
                         f"{p.name} is an OpenDocument file of another kind ({mime}), not a "
-                        f"spreadsheet. {resave}", value=mime, code="file-not-ods")
+                        f"spreadsheet. {resave}",
+                        value=mime,
+                        code="file-not-ods",
+                    )
                     return False
                 content = zf.read("content.xml")
             root = _safe_fromstring(content)  # no DTD, no entities (defusedxml)
         except (zipfile.BadZipFile, KeyError, ET.ParseError, OSError, ValueError) as exc:
             self.log.fatal(
                 f"{p.name} is not a readable .ods spreadsheet ({type(exc).__name__}: {exc}); "
-                f"it may be damaged. {resave}", value=str(p), code="file-unreadable")
+                f"it may be damaged. {resave}",
+                value=str(p),
+                code="file-unreadable",
+            )
             return False
         body = root.find(f"{_O}body/{_O}spreadsheet")
         if body is None:
-            self.log.fatal(f"{p.name} holds no spreadsheet. {resave}", value=str(p),
-                           code="file-not-ods")
+            self.log.fatal(
+                f"{p.name} holds no spreadsheet. {resave}", value=str(p), code="file-not-ods"
+            )
             return False
         for table in body.findall(f"{_T}table"):
             name = table.get(f"{_T}name") or f"Sheet{len(self._tables) + 1}"
@@ -276,8 +308,7 @@ class OdsFile:
                 if value is None:
                     if uncalculated:
                         for k in range(n):
-                            sheet.uncalculated.add(cell_ref(len(values) + pending + k,
-                                                            rownum + 1))
+                            sheet.uncalculated.add(cell_ref(len(values) + pending + k, rownum + 1))
                     pending += n
                     continue
                 if len(values) + pending >= _MAX_COLS:
@@ -361,8 +392,13 @@ def _ods_cell(cell: ET.Element) -> tuple[Any, str, bool]:
             shown = _ods_text(cell).strip()
             if vtype == "percentage":
                 return x, "0%", False
-            if isinstance(x, int) and x >= 0 and len(shown) > len(str(x)) and \
-                    shown.isdigit() and shown.startswith("0"):
+            if (
+                isinstance(x, int)
+                and x >= 0
+                and len(shown) > len(str(x))
+                and shown.isdigit()
+                and shown.startswith("0")
+            ):
                 return x, "0" * len(shown), False  # zero-padded code, e.g. 000123
             return x, "#,##0.00" if vtype == "currency" else "General", False
         if vtype == "date":
@@ -405,6 +441,7 @@ def _duration(raw: str) -> _dt.time | _dt.timedelta:
 
 # --- .xls ---------------------------------------------------------------------------------
 
+
 class XlsFile:
     """An old-style Excel workbook (.xls, BIFF), read with xlrd."""
 
@@ -423,13 +460,17 @@ class XlsFile:
         try:
             found = sniff(_head(p))
         except OSError as exc:
-            self.log.fatal(f"{p.name} could not be opened ({exc.strerror or exc}).",
-                           value=str(p), code="file-unreadable")
+            self.log.fatal(
+                f"{p.name} could not be opened ({exc.strerror or exc}).",
+                value=str(p),
+                code="file-unreadable",
+            )
             return False
         if found not in ("ole2", "biff"):
             msg = _renamed_message(p.name, "an .xls", found) or (
                 f"{p.name} is not a readable .xls workbook (it may be damaged or another kind "
-                f"of file renamed). {resave}")
+                f"of file renamed). {resave}"
+            )
             self.log.fatal(msg, value=str(p), code="file-not-xls")
             return False
         try:
@@ -438,25 +479,32 @@ class XlsFile:
             self.log.fatal(
                 f"{p.name} is an .xls workbook, and reading .xls needs the Python package "
                 f"xlrd, which is not installed (pip install xlrd). Or: {resave}",
-                value=str(p), code="xls-needs-xlrd")
+                value=str(p),
+                code="xls-needs-xlrd",
+            )
             return False
         quiet = io.StringIO()  # xlrd writes its warnings to a log file; keep them off stdout
         try:
             try:
-                self._book = xlrd.open_workbook(str(p), formatting_info=True, logfile=quiet,
-                                                on_demand=True)
+                self._book = xlrd.open_workbook(
+                    str(p), formatting_info=True, logfile=quiet, on_demand=True
+                )
             except NotImplementedError:
                 self._book = xlrd.open_workbook(str(p), logfile=quiet, on_demand=True)
             self.sheet_names = list(self._book.sheet_names())
         except Exception as exc:  # xlrd raises many kinds; none may reach the user raw
             text = str(exc)
             if "encrypt" in text.lower():
-                msg = (f"{p.name} is protected by a password, so it cannot be read. Open it, "
-                       f"remove the password and {resave[0].lower()}{resave[1:]}")
+                msg = (
+                    f"{p.name} is protected by a password, so it cannot be read. Open it, "
+                    f"remove the password and {resave[0].lower()}{resave[1:]}"
+                )
                 code = "file-encrypted"
             else:
-                msg = (f"{p.name} is not a readable .xls workbook ({type(exc).__name__}: "
-                       f"{text}); it may be damaged. {resave}")
+                msg = (
+                    f"{p.name} is not a readable .xls workbook ({type(exc).__name__}: "
+                    f"{text}); it may be damaged. {resave}"
+                )
                 code = "file-unreadable"
             self.log.fatal(msg, value=str(p), code=code)
             self._book = None
@@ -481,8 +529,11 @@ class XlsFile:
         try:
             ws = book.sheet_by_name(name)
         except Exception as exc:  # a damaged sheet record
-            self.log.error(f"The sheet '{name}' could not be read ({exc}); it was left out.",
-                           sheet=name, code="sheet-unreadable")
+            self.log.error(
+                f"The sheet '{name}' could not be read ({exc}); it was left out.",
+                sheet=name,
+                code="sheet-unreadable",
+            )
             return sheet
         has_xf = bool(getattr(book, "formatting_info", False))
         for r in range(ws.nrows):
@@ -580,7 +631,7 @@ def decimal_comma(cells: list[str]) -> bool:
 
 
 def slash_order(cells: list[str]) -> str | None:
-    """"dmy" or "mdy" for dates like 03/04/2024, when the file's own dates settle it."""
+    """ "dmy" or "mdy" for dates like 03/04/2024, when the file's own dates settle it."""
     day_first = month_first = False
     for s in cells:
         m = _SLASHED.match(s)
@@ -659,27 +710,41 @@ class CsvFolder:
         """Find and read the CSV files; on failure record a fatal problem and return False."""
         p = self.path
         if not p.exists():
-            self.log.fatal(f"The folder or file {p.name} does not exist. Check the name.",
-                           value=str(p), code="file-missing")
+            self.log.fatal(
+                f"The folder or file {p.name} does not exist. Check the name.",
+                value=str(p),
+                code="file-missing",
+            )
             return False
         if not p.is_dir():
             self.log.fatal(
                 f"{p.name} is a single CSV file. Give xlpolicy the folder that holds your CSV "
                 "files instead: Items.csv (one row per item), History.csv (sales per item and "
-                "period) and, if you like, Settings.csv.", value=str(p), code="file-type")
+                "period) and, if you like, Settings.csv.",
+                value=str(p),
+                code="file-type",
+            )
             return False
-        files = sorted(f for f in p.iterdir() if f.is_file() and not f.name.startswith(".")
-                       and f.suffix.lower() in CSV_SUFFIXES)
+        files = sorted(
+            f
+            for f in p.iterdir()
+            if f.is_file() and not f.name.startswith(".") and f.suffix.lower() in CSV_SUFFIXES
+        )
         names = [f.name for f in files]
         folder = p.name or str(p)
         if _match_sheet(names, "Items", key=lambda n: Path(n).stem) is None:
-            found = (" (CSV files found: " + ", ".join(names) + ")") if names else (
-                " (it holds no CSV files)")
+            found = (
+                (" (CSV files found: " + ", ".join(names) + ")")
+                if names
+                else (" (it holds no CSV files)")
+            )
             self.log.fatal(
                 f"The folder {folder} has no Items CSV file{found}. Save the list of items, "
                 "one row per item with the headers in the first row, as Items.csv in that "
                 "folder (sales go in History.csv), or give the path of a workbook instead.",
-                value=str(p), code="items-sheet-missing")
+                value=str(p),
+                code="items-sheet-missing",
+            )
             return False
         for f in files:
             sheet = self._read_file(f)
@@ -704,9 +769,13 @@ class CsvFolder:
         try:
             data = f.read_bytes()
         except OSError as exc:
-            self.log.fatal(f"{f.name} could not be read ({exc.strerror or exc}). If it is open "
-                           "in another program, close it and try again.", sheet=f.name,
-                           value=str(f), code="file-unreadable")
+            self.log.fatal(
+                f"{f.name} could not be read ({exc.strerror or exc}). If it is open "
+                "in another program, close it and try again.",
+                sheet=f.name,
+                value=str(f),
+                code="file-unreadable",
+            )
             return None
         text = self._decode(f, data)
         if text is None:
@@ -715,9 +784,13 @@ class CsvFolder:
         try:
             records = _csv_records(text, delim)
         except csv.Error as exc:
-            self.log.fatal(f"{f.name} is not a readable CSV file ({exc}). Save it again from "
-                           "your spreadsheet program as CSV.", sheet=f.name, value=str(f),
-                           code="csv-unreadable")
+            self.log.fatal(
+                f"{f.name} is not a readable CSV file ({exc}). Save it again from "
+                "your spreadsheet program as CSV.",
+                sheet=f.name,
+                value=str(f),
+                code="csv-unreadable",
+            )
             return None
         cells = [c.strip() for _, rec in records for c in rec if c.strip()]
         commas = delim == ";" and decimal_comma(cells)
@@ -733,18 +806,24 @@ class CsvFolder:
             sheet.formats.append(["" for _ in values])
             sheet.row_numbers.append(line)
         rewritten = commas and any(
-            _COMMA_DECIMAL.match(c.replace(" ", "")) or _DOT_THOUSANDS.match(c) for c in cells)
+            _COMMA_DECIMAL.match(c.replace(" ", "")) or _DOT_THOUSANDS.match(c) for c in cells
+        )
         if rewritten:
             self.log.info(
                 f"{f.name} separates its columns with semicolons, so a comma in a number was "
                 "read as the decimal mark (1,5 is one and a half) and a point as the thousands "
-                "separator.", sheet=f.name, code="csv-decimal-comma")
+                "separator.",
+                sheet=f.name,
+                code="csv-decimal-comma",
+            )
         if slashes is None and any(_SLASHED.match(c) for c in cells):
             self.log.warning(
                 f"{f.name} writes dates like 03/04/2024, which could be day/month or "
                 "month/day, and nothing in the file settles it, so they were read as labels. "
-                "Write dates as 2024-04-03 (year-month-day).", sheet=f.name,
-                code="csv-date-ambiguous")
+                "Write dates as 2024-04-03 (year-month-day).",
+                sheet=f.name,
+                code="csv-date-ambiguous",
+            )
         return sheet
 
     def _decode(self, f: Path, data: bytes) -> str | None:
@@ -756,8 +835,11 @@ class CsvFolder:
         elif b"\x00" in data[:4096]:
             self.log.fatal(
                 f"{f.name} is not a text file (it may be a spreadsheet saved with a .csv name). "
-                "Open it in your spreadsheet program and save it as CSV.", sheet=f.name,
-                value=str(f), code="csv-not-text")
+                "Open it in your spreadsheet program and save it as CSV.",
+                sheet=f.name,
+                value=str(f),
+                code="csv-not-text",
+            )
             return None
         try:
             return data.decode("utf-8-sig")
@@ -766,7 +848,10 @@ class CsvFolder:
         self.log.info(
             f"{f.name} is not saved as UTF-8, so it was read as Windows (Western European) "
             "text. If accented letters look wrong in the results, save it as 'CSV UTF-8' and "
-            "run again.", sheet=f.name, code="csv-encoding")
+            "run again.",
+            sheet=f.name,
+            code="csv-encoding",
+        )
         return data.decode("cp1252", errors="replace")
 
 

@@ -76,8 +76,9 @@ def available() -> bool:
     return True
 
 
-def read_wide_cells(wb: WorkbookFile, name: str, header_row: int, code_col: int,
-                    head_texts: int = 0) -> WideCells | None:
+def read_wide_cells(
+    wb: WorkbookFile, name: str, header_row: int, code_col: int, head_texts: int = 0
+) -> WideCells | None:
     """The rows below ``header_row`` (1-based) with codes in ``code_col`` (0-based).
 
     ``head_texts``: how many text cells the rows down to the header hold. None when the
@@ -93,7 +94,8 @@ def read_wide_cells(wb: WorkbookFile, name: str, header_row: int, code_col: int,
         scanning = pool.submit(wb._scan, name)
         try:
             sheet = fastexcel.read_excel(str(wb.path)).load_sheet(
-                name, header_row=None, skip_rows=header_row, dtypes=dtypes)
+                name, header_row=None, skip_rows=header_row, dtypes=dtypes
+            )
             batch, errors = sheet.to_arrow_with_errors()
             columns = [c.absolute_index for c in sheet.available_columns()]
         except Exception:  # any surprise: the general path reads the sheet
@@ -102,8 +104,7 @@ def read_wide_cells(wb: WorkbookFile, name: str, header_row: int, code_col: int,
     if scan is None or scan.bools or not columns:
         return None
     try:
-        return _assemble(wb, name, header_row, code_col, batch, errors, columns, scan,
-                         head_texts)
+        return _assemble(wb, name, header_row, code_col, batch, errors, columns, scan, head_texts)
     except _NotExact:
         return None
 
@@ -112,8 +113,17 @@ class _NotExact(Exception):
     """Something in the sheet that this reader cannot give exactly as the general one."""
 
 
-def _assemble(wb: WorkbookFile, name: str, header_row: int, code_col: int, batch: Any,
-              errors: Any, columns: list[int], scan: Any, head_texts: int) -> WideCells:
+def _assemble(
+    wb: WorkbookFile,
+    name: str,
+    header_row: int,
+    code_col: int,
+    batch: Any,
+    errors: Any,
+    columns: list[int],
+    scan: Any,
+    head_texts: int,
+) -> WideCells:
     n = batch.num_rows
     if code_col in columns:
         code_array = batch.column(columns.index(code_col))
@@ -134,7 +144,7 @@ def _assemble(wb: WorkbookFile, name: str, header_row: int, code_col: int, batch
     col_of = {c: k for k, c in enumerate(number_cols)}
     cells: dict[tuple[int, int], Any] = {}
     decoded_texts = 0
-    for err in (errors.errors if errors is not None else []):
+    for err in errors.errors if errors is not None else []:
         row, col = err.position
         if row - err.offset_position[0] != header_row or col >= len(columns):
             raise _NotExact  # positions not where they are expected: do not guess
@@ -183,8 +193,16 @@ def _assemble(wb: WorkbookFile, name: str, header_row: int, code_col: int, batch
         numbers, present = numbers[:, keep], present[:, keep]
         cells = {(remap[p], c): v for (p, c), v in cells.items()}
         code_formats = {remap[p]: f for p, f in code_formats.items() if p in remap}
-    out = WideCells(keep + header_row + 1, codes, code_formats, numbers, present, col_of,
-                    cells, codes_exact=codes_exact)
+    out = WideCells(
+        keep + header_row + 1,
+        codes,
+        code_formats,
+        numbers,
+        present,
+        col_of,
+        cells,
+        codes_exact=codes_exact,
+    )
     if scan.formulas:
         out.uncalculated = wb._uncalculated_cells(name)
     return out
@@ -201,8 +219,10 @@ def _number(text: str) -> Any:
 _DATE_TEXT = re.compile(r"^\d{4}-\d{2}-\d{2}([ T]\d{2}:\d{2}(:\d{2}(\.\d+)?)?)?$")
 _DETAIL = re.compile(r"^Expected float but got '(.*)'$", re.S)
 _STRING = re.compile(r'^String\("(.*)"\)$', re.S)
-_DATETIME = re.compile(r"^DateTime\(ExcelDateTime \{ value: ([-0-9.eE+]+), "
-                       r"datetime_type: (DateTime|TimeDelta), is_1904: (true|false) \}\)$")
+_DATETIME = re.compile(
+    r"^DateTime\(ExcelDateTime \{ value: ([-0-9.eE+]+), "
+    r"datetime_type: (DateTime|TimeDelta), is_1904: (true|false) \}\)$"
+)
 _ESCAPE = re.compile(r"\\(u\{[0-9a-fA-F]{1,6}\}|.)", re.S)
 _ESCAPES = {"t": "\t", "r": "\r", "n": "\n", "0": "\0", "\\": "\\", '"': '"', "'": "'"}
 

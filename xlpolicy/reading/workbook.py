@@ -43,13 +43,34 @@ from .guard import refusal, unreadable_message
 SUPPORTED_SUFFIXES = (".xlsx", ".xlsm")
 
 SHEET_ALIASES: dict[str, tuple[str, ...]] = {
-    "Items": ("items", "item list", "item master", "products", "product list", "articles",
-              "stock items", "parts"),
-    "History": ("history", "sales history", "demand history", "sales", "demand", "usage",
-                "usage history"),
+    "Items": (
+        "items",
+        "item list",
+        "item master",
+        "products",
+        "product list",
+        "articles",
+        "stock items",
+        "parts",
+    ),
+    "History": (
+        "history",
+        "sales history",
+        "demand history",
+        "sales",
+        "demand",
+        "usage",
+        "usage history",
+    ),
     "Settings": ("settings", "parameters", "options", "configuration", "config"),
-    "Price breaks": ("price breaks", "quantity discounts", "discounts", "price list",
-                     "volume prices", "price tiers"),
+    "Price breaks": (
+        "price breaks",
+        "quantity discounts",
+        "discounts",
+        "price list",
+        "volume prices",
+        "price tiers",
+    ),
 }
 
 _NS_MAIN = "http://schemas.openxmlformats.org/spreadsheetml/2006/main"
@@ -80,8 +101,12 @@ class RawSheet:
         """The cells at ``rows`` x ``cols`` (indices into ``rows``, 0-based columns) as an
         object array (None for blank or beyond a row's end), and each cell's Python type."""
         grid = self.grid
-        if (grid is not None and self.kinds is not None and grid.shape[0] == len(self.rows)
-                and all(j < grid.shape[1] for j in cols)):
+        if (
+            grid is not None
+            and self.kinds is not None
+            and grid.shape[0] == len(self.rows)
+            and all(j < grid.shape[1] for j in cols)
+        ):
             at = np.ix_(np.asarray(rows, dtype=np.int64), np.asarray(cols, dtype=np.int64))
             return grid[at], self.kinds[at]
         blk = np.empty((len(rows), len(cols)), dtype=object)
@@ -108,8 +133,9 @@ class Header:
     titles: dict[str, str] = field(default_factory=dict)  # key -> header as the user wrote it
 
 
-def find_header(sheet: RawSheet, columns: tuple[Column, ...], *, scan_rows: int = 30,
-                min_matches: int = 2) -> Header | None:
+def find_header(
+    sheet: RawSheet, columns: tuple[Column, ...], *, scan_rows: int = 30, min_matches: int = 2
+) -> Header | None:
     """Find the first row whose cells name at least ``min_matches`` known columns.
 
     Rows above it (a title, a note) are skipped. Returns None if no row qualifies.
@@ -161,12 +187,18 @@ class WorkbookFile:
         """Open the file; on failure record a fatal problem and return False."""
         p = self.path
         if not p.exists():
-            self.log.fatal(f"The file {p.name} does not exist. Check the name and folder.",
-                           value=str(p), code="file-missing")
+            self.log.fatal(
+                f"The file {p.name} does not exist. Check the name and folder.",
+                value=str(p),
+                code="file-missing",
+            )
             return False
         if p.is_dir():
-            self.log.fatal(f"{p.name} is a folder, not a workbook. Give the path of an .xlsx file.",
-                           value=str(p), code="file-is-folder")
+            self.log.fatal(
+                f"{p.name} is a folder, not a workbook. Give the path of an .xlsx file.",
+                value=str(p),
+                code="file-is-folder",
+            )
             return False
         refused = refusal(p, "xlsx")  # lock files, fakes, zip bombs, DTDs: before any parser
         if refused is not None:
@@ -176,13 +208,18 @@ class WorkbookFile:
             self.log.fatal(
                 f"{p.name} is not an .xlsx or .xlsm workbook. Save it from your spreadsheet "
                 "program as 'Excel Workbook (.xlsx)' and try again.",
-                value=p.suffix, code="file-type")
+                value=p.suffix,
+                code="file-type",
+            )
             return False
         if not zipfile.is_zipfile(p):
             self.log.fatal(
                 f"{p.name} is not a readable .xlsx workbook (it may be damaged, password-"
                 "protected, or another kind of file renamed). Open it in your spreadsheet "
-                "program and save it again as .xlsx.", value=str(p), code="file-not-zip")
+                "program and save it again as .xlsx.",
+                value=str(p),
+                code="file-not-zip",
+            )
             return False
         self._sheet_parts = _sheet_parts(p)
         self._fast = _open_calamine(p)
@@ -353,8 +390,10 @@ class WorkbookFile:
                             ref = _REF.search(m.group(0))
                             if ref is None:
                                 return None  # a cell without its reference: not placed here
-                            at = (int(ref.group(2)) - 1,
-                                  column_index_from_string(ref.group(1).decode()) - 1)
+                            at = (
+                                int(ref.group(2)) - 1,
+                                column_index_from_string(ref.group(1).decode()) - 1,
+                            )
                             scan.formats[at] = self._styles[int(m.group(1))]
                             if _TEXT_TYPE.search(m.group(0)):
                                 scan.styled_text.add(at)
@@ -397,8 +436,13 @@ class WorkbookFile:
         return sheet
 
     @staticmethod
-    def _fill_openpyxl(sheet: RawSheet, rows: Any, progress: Progress, expected: int | None,
-                       stop: int | None = None) -> None:
+    def _fill_openpyxl(
+        sheet: RawSheet,
+        rows: Any,
+        progress: Progress,
+        expected: int | None,
+        stop: int | None = None,
+    ) -> None:
         """Append the rows openpyxl gives that hold anything, up to ``stop`` of them."""
         stage = f"Reading {sheet.name}"
         for k, row in enumerate(rows, start=1):
@@ -412,8 +456,9 @@ class WorkbookFile:
             for cell in row:
                 v = getattr(cell, "value", None)
                 values.append(v)
-                formats.append(getattr(cell, "number_format", "General") or "General"
-                               if v is not None else "")
+                formats.append(
+                    getattr(cell, "number_format", "General") or "General" if v is not None else ""
+                )
                 if rownum is None:
                     rownum = getattr(cell, "row", None)
             while values and values[-1] is None:
@@ -459,8 +504,10 @@ class _Inflating:
         if len(header) != 30 or header[:4] != b"PK\x03\x04":
             self._fh.close()
             raise zipfile.BadZipFile("a part's local header is not where the directory says")
-        name_len, extra_len = int.from_bytes(header[26:28], "little"), int.from_bytes(
-            header[28:30], "little")
+        name_len, extra_len = (
+            int.from_bytes(header[26:28], "little"),
+            int.from_bytes(header[28:30], "little"),
+        )
         self._fh.seek(info.header_offset + 30 + name_len + extra_len)
         self._left = info.compress_size
         self._inflate = fastzlib.decompressobj()
@@ -582,9 +629,11 @@ def _formulas_without_result(src: Any, chunk: int = 1 << 24) -> set[str]:
     for piece in _row_pieces(src, chunk):
         for pattern in (_NO_RESULT_AFTER_BODY, _NO_RESULT_AFTER_EMPTY):
             for m in pattern.finditer(piece):
-                start = max(piece.rfind(b"<c ", 0, m.start()),
-                            piece.rfind(b"<c\t", 0, m.start()),
-                            piece.rfind(b"<c\n", 0, m.start()))
+                start = max(
+                    piece.rfind(b"<c ", 0, m.start()),
+                    piece.rfind(b"<c\t", 0, m.start()),
+                    piece.rfind(b"<c\n", 0, m.start()),
+                )
                 if start < 0 or piece.find(b"</c>", start, m.start()) >= 0:
                     continue  # a cell without attributes: no reference of its own
                 ref = _REF.search(piece, start, piece.find(b">", start) + 1)
@@ -674,16 +723,23 @@ def _tally(piece: bytes) -> _Tally:
     out.text_cells = int(np.count_nonzero(text))
     out.bools = bool(np.any((v1 == ord("b")) & quote(v2)))
     out.errors = bool(np.any((v1 == ord("e")) & quote(v2)))
-    loose = space(at(t, -1)) & space(at(t, 1)) & (
-        (at(t, 2) == ord("=")) | (space(at(t, 2)) & (at(t, 3) == ord("="))))
+    loose = (
+        space(at(t, -1))
+        & space(at(t, 1))
+        & ((at(t, 2) == ord("=")) | (space(at(t, 2)) & (at(t, 3) == ord("="))))
+    )
     if np.any(loose):  # "t =": another way of writing it
         out.text_cells = -(1 << 40)
         out.bools = out.bools or b"b" in piece
         out.errors = True
     f = np.flatnonzero(a == ord("f"))
     before, after = at(f, -1), at(f, 1)
-    out.formulas = bool(np.any(((before == ord("<")) | (before == ord(":")))
-                               & (space(after) | (after == ord(">")) | (after == ord("/")))))
+    out.formulas = bool(
+        np.any(
+            ((before == ord("<")) | (before == ord(":")))
+            & (space(after) | (after == ord(">")) | (after == ord("/")))
+        )
+    )
     h = np.flatnonzero(a == ord("h"))
     hidden = np.ones(h.size, dtype=bool)
     for k, ch in enumerate(b"idden", start=1):
@@ -754,11 +810,12 @@ def _formats_that_matter(path: Path) -> dict[int, str]:
             if part is None:
                 return {}
             root = ET.fromstring(zf.read(part))
-    except (KeyError, ET.ParseError, DefusedXmlException, zipfile.BadZipFile, OSError,
-            zlib.error):
+    except (KeyError, ET.ParseError, DefusedXmlException, zipfile.BadZipFile, OSError, zlib.error):
         return {}
-    custom = {int(f.get("numFmtId", "-1")): f.get("formatCode", "")
-              for f in root.iter(f"{{{_NS_MAIN}}}numFmt")}
+    custom = {
+        int(f.get("numFmtId", "-1")): f.get("formatCode", "")
+        for f in root.iter(f"{{{_NS_MAIN}}}numFmt")
+    }
     out: dict[int, str] = {}
     xfs = root.find(f"{{{_NS_MAIN}}}cellXfs")
     if xfs is None:
@@ -790,8 +847,11 @@ def _sheet_parts(path: Path) -> dict[str, str]:
             targets = {}
             for rel in rels.iter(f"{{{_NS_PKG_REL}}}Relationship"):
                 t = rel.get("Target", "")
-                t = t.lstrip("/") if t.startswith("/") else posixpath.normpath(
-                    posixpath.join(base, t))
+                t = (
+                    t.lstrip("/")
+                    if t.startswith("/")
+                    else posixpath.normpath(posixpath.join(base, t))
+                )
                 targets[rel.get("Id")] = t
             wb = ET.fromstring(zf.read(wb_part))
             out = {}
@@ -800,8 +860,16 @@ def _sheet_parts(path: Path) -> dict[str, str]:
                 if target in names:
                     out[s.get("name")] = target
             return out
-    except (KeyError, ET.ParseError, DefusedXmlException, zipfile.BadZipFile, OSError,
-            zlib.error, EOFError, ValueError):
+    except (
+        KeyError,
+        ET.ParseError,
+        DefusedXmlException,
+        zipfile.BadZipFile,
+        OSError,
+        zlib.error,
+        EOFError,
+        ValueError,
+    ):
         return {}
 
 
@@ -813,11 +881,22 @@ def _hidden_sheets(path: Path) -> set[str]:
             if part is None:
                 return set()
             root = ET.fromstring(zf.read(part))
-    except (KeyError, ET.ParseError, DefusedXmlException, zipfile.BadZipFile, OSError,
-            zlib.error, EOFError, ValueError):
+    except (
+        KeyError,
+        ET.ParseError,
+        DefusedXmlException,
+        zipfile.BadZipFile,
+        OSError,
+        zlib.error,
+        EOFError,
+        ValueError,
+    ):
         return set()
-    return {s.get("name", "") for s in root.iter(f"{{{_NS_MAIN}}}sheet")
-            if s.get("state") in ("hidden", "veryHidden")}
+    return {
+        s.get("name", "")
+        for s in root.iter(f"{{{_NS_MAIN}}}sheet")
+        if s.get("state") in ("hidden", "veryHidden")
+    }
 
 
 _ROW_OR_MERGE = re.compile(rb"<(?:[A-Za-z_][\w.-]*:)?(row|mergeCell)\b([^>]*)>")
@@ -835,9 +914,12 @@ def layout_notes(wb: WorkbookFile, name: str, sheet: RawSheet, log: ProblemLog) 
     scanned once in 1 MB pieces, so this costs little even for a large sheet.
     """
     if name in _hidden_sheets(wb.path):
-        log.info(f"The sheet '{name}' is hidden in the workbook; it was read all the same. "
-                 "Unhide it (right-click a sheet tab > Unhide) to see what was read.",
-                 sheet=name, code="sheet-hidden")
+        log.info(
+            f"The sheet '{name}' is hidden in the workbook; it was read all the same. "
+            "Unhide it (right-click a sheet tab > Unhide) to see what was read.",
+            sheet=name,
+            code="sheet-hidden",
+        )
     part = wb._sheet_parts.get(name)
     if not part or not sheet.row_numbers or name in wb.plain_layout:
         return
@@ -869,16 +951,23 @@ def layout_notes(wb: WorkbookFile, name: str, sheet: RawSheet, log: ProblemLog) 
     except Exception:  # a scan for notes must never stop a run
         return
     if hidden:
-        log.warning(f"The sheet '{name}' has {len(hidden)} hidden row(s) with data "
-                    f"({_ranges(hidden)}); they were read like the others. Unhide them to "
-                    "check them, and delete any row that should not be planned.",
-                    sheet=name, code="rows-hidden")
+        log.warning(
+            f"The sheet '{name}' has {len(hidden)} hidden row(s) with data "
+            f"({_ranges(hidden)}); they were read like the others. Unhide them to "
+            "check them, and delete any row that should not be planned.",
+            sheet=name,
+            code="rows-hidden",
+        )
     for ref in merged[:20]:
         text = ref.decode()
-        log.warning(f"The cells {text} of '{name}' are merged: only the first row holds the "
-                    "value, so the rows below read as blank there. Unmerge them and fill the "
-                    "value into each row.", sheet=name, cell=text.split(":")[0],
-                    code="cells-merged")
+        log.warning(
+            f"The cells {text} of '{name}' are merged: only the first row holds the "
+            "value, so the rows below read as blank there. Unmerge them and fill the "
+            "value into each row.",
+            sheet=name,
+            cell=text.split(":")[0],
+            code="cells-merged",
+        )
 
 
 def _spans_data(ref: re.Match, data_rows: set[int]) -> bool:
@@ -919,8 +1008,13 @@ def _rows_as_present(ws: Any) -> Any:
     """A replacement for ``ws._cells_by_row`` that ignores the recorded used range."""
     original = type(ws)._cells_by_row
 
-    def rows(min_col: int, min_row: int, max_col: int | None, max_row: int | None,
-             values_only: bool = False) -> Any:
+    def rows(
+        min_col: int,
+        min_row: int,
+        max_col: int | None,
+        max_row: int | None,
+        values_only: bool = False,
+    ) -> Any:
         claimed = (ws._max_row, ws._max_column)
         if max_row == claimed[0]:
             max_row = None
@@ -930,8 +1024,7 @@ def _rows_as_present(ws: Any) -> Any:
             max_row = _last_row_with_content(ws)  # None: unknown, read to the end
         ws._max_row = ws._max_column = None
         try:
-            for k, row in enumerate(original(ws, min_col, min_row, max_col, max_row,
-                                             values_only)):
+            for k, row in enumerate(original(ws, min_col, min_row, max_col, max_row, values_only)):
                 if max_row is not None and min_row + k > max_row:
                     return
                 yield row

@@ -140,8 +140,7 @@ class CellBlock:
         arr = np.where(np.isfinite(arr), arr, np.nan)
         self._add(_Column(col, "number", fmt, arr), len(arr))
 
-    def texts(self, col: int, values: Sequence[str | None], fmt: Format,
-              quoted: Format) -> None:
+    def texts(self, col: int, values: Sequence[str | None], fmt: Format, quoted: Format) -> None:
         """Text cells, already cleaned (sheetkit.clean_text); None or "" gives a blank cell.
 
         Text that starts with = + - or @ gets ``quoted`` (the same format with the quote
@@ -156,13 +155,25 @@ class CellBlock:
             joined = "\x00" + "\x00".join(values) + "\x00"
         except TypeError:  # None among them
             joined = "\x00" + "\x00".join([v or "" for v in values]) + "\x00"
-        plain = not (_LEADING.search(joined) or _TRAILING.search(joined[::-1])
-                     or "&" in joined or "<" in joined or ">" in joined
-                     or ("_x" in joined and _NEEDS_ESCAPE.search(joined)))
+        plain = not (
+            _LEADING.search(joined)
+            or _TRAILING.search(joined[::-1])
+            or "&" in joined
+            or "<" in joined
+            or ">" in joined
+            or ("_x" in joined and _NEEDS_ESCAPE.search(joined))
+        )
         self._add(_Column(col, "text", fmt, values, quoted=quoted, plain=plain), len(values))
 
-    def formulas(self, col: int, pattern: str | Sequence[str], live: np.ndarray, cached: Any,
-                 fmt: Format | None, otherwise: Any | None = None) -> None:
+    def formulas(
+        self,
+        col: int,
+        pattern: str | Sequence[str],
+        live: np.ndarray,
+        cached: Any,
+        fmt: Format | None,
+        otherwise: Any | None = None,
+    ) -> None:
         """One formula per row from ``pattern`` (``ROW`` marks the row number), where ``live``.
 
         ``pattern`` may instead be a list with each row's own formula. ``cached`` is each
@@ -173,8 +184,9 @@ class CellBlock:
         """
         live = np.asarray(live, dtype=bool)
         cached = np.asarray(cached, dtype=float)
-        values = np.where(live, cached, np.nan if otherwise is None
-                          else np.asarray(otherwise, dtype=float))
+        values = np.where(
+            live, cached, np.nan if otherwise is None else np.asarray(otherwise, dtype=float)
+        )
         values = np.where(np.isfinite(values), values, np.nan)
         live = live & np.isfinite(values)
         if isinstance(pattern, str):
@@ -222,8 +234,7 @@ class CellBlock:
                     args.extend(more())
             states = np.ascontiguousarray(states.T)
             if (states == states[0]).all():
-                skeletons: Iterable[list[str]] = repeat(
-                    _row_template(slots, states[0], templates))
+                skeletons: Iterable[list[str]] = repeat(_row_template(slots, states[0], templates))
             else:
                 kinds, which = np.unique(states, axis=0, return_inverse=True)
                 each = [_row_template(slots, k, templates) for k in kinds]
@@ -235,16 +246,18 @@ class CellBlock:
 _R = "\x01"
 
 
-def _row_template(slots: list[_Slot], state: np.ndarray,
-                  cache: dict[bytes, list[str]]) -> list[str]:
+def _row_template(
+    slots: list[_Slot], state: np.ndarray, cache: dict[bytes, list[str]]
+) -> list[str]:
     """A row's %-template cut where its row number goes; column j takes ``state[j]``."""
     key = state.tobytes()
     found = cache.get(key)
     if found is None:
-        found = cache[key] = (f'<row r="{_R}">'
-                              + "".join([s.cells[k] for s, k in zip(slots, state.tolist(),
-                                                                      strict=True)])
-                              + "</row>").split(_R)
+        found = cache[key] = (
+            f'<row r="{_R}">'
+            + "".join([s.cells[k] for s, k in zip(slots, state.tolist(), strict=True)])
+            + "</row>"
+        ).split(_R)
     return found
 
 
@@ -284,13 +297,16 @@ def _slot(c: _Column, xf_of: XfOf) -> _Slot:
     if c.kind in ("text", "mixed"):
         if c.kind == "text" and c.plain:
             values = c.values
-            states = np.fromiter(map(operator.not_, values), dtype=np.uint8,
-                                 count=len(values))
+            states = np.fromiter(map(operator.not_, values), dtype=np.uint8, count=len(values))
         else:
             values, states = _own_cells(c, plain, quoted)
         # a value, a blank, a cell's own rendering after its reference (rare cells)
-        cells = (open_ + _pct(f'{plain} t="inlineStr"><is><t>') + "%s</t></is></c>",
-                 blank + "%.0s", open_ + "%s", blank)
+        cells = (
+            open_ + _pct(f'{plain} t="inlineStr"><is><t>') + "%s</t></is></c>",
+            blank + "%.0s",
+            open_ + "%s",
+            blank,
+        )
 
         def text_chunk(a: int, b: int) -> tuple[np.ndarray, Callable[[], list[Any]]]:
             return states[a:b], lambda: [values[a:b]]
@@ -306,18 +322,26 @@ def _slot(c: _Column, xf_of: XfOf) -> _Slot:
 
     value = open_ + _pct(f"{plain}><v>") + num + "</v></c>"
     if c.kind == "number":
+
         def number_chunk(a: int, b: int) -> tuple[np.ndarray, Callable[[], list[Any]]]:
             v = c.values[a:b]
             return np.isnan(v).view(np.uint8), lambda: [numbers(v)]
 
         return _Slot((value, blank + "%.0s", "", blank), number_chunk)
     if c.each is not None:  # each row's own formula: an argument of its own
-        cells = (open_ + _pct(f"{plain}><f>") + "%s</f><v>" + num + "</v></c>",
-                 blank + "%.0s%.0s", open_ + _pct(plain + ">") + "%.0s<v>" + num + "</v></c>",
-                 blank)
+        cells = (
+            open_ + _pct(f"{plain}><f>") + "%s</f><v>" + num + "</v></c>",
+            blank + "%.0s%.0s",
+            open_ + _pct(plain + ">") + "%.0s<v>" + num + "</v></c>",
+            blank,
+        )
     else:
-        cells = (open_ + _pct(f"{plain}><f>" + _R.join(c.pieces)) + "</f><v>" + num
-                 + "</v></c>", blank + "%.0s", value, blank)
+        cells = (
+            open_ + _pct(f"{plain}><f>" + _R.join(c.pieces)) + "</f><v>" + num + "</v></c>",
+            blank + "%.0s",
+            value,
+            blank,
+        )
 
     def formula_chunk(a: int, b: int) -> tuple[np.ndarray, Callable[[], list[Any]]]:
         v = c.values[a:b]
@@ -378,12 +402,38 @@ def _shortest_texts(v: np.ndarray) -> list[str]:
 def _check_shortest_texts() -> bool:
     """Whether :func:`_shortest_texts` works here and equals repr on awkward values."""
     rng = np.random.default_rng(20240531)
-    values = np.concatenate([
-        [0.1, 0.2 + 0.1, 1 / 3, 2 / 3, 4.35, 0.0001, 0.00012345, 9.999e-5, 1e-4 - 1e-20,
-         99999.99999, 1e14 + 0.5, 1e15 - 0.5, 1e15 + 0.5, 9999999999999998.0, 1e16, -0.0,
-         0.0, -1.5, 123456789.125, 5e-324, 1.7976931348623157e308, np.nan, 377.0],
-        10.0 ** rng.uniform(-5, 17, 4000) * rng.choice([-1.0, 1.0], 4000),
-        np.round(rng.uniform(-1e6, 1e6, 2000), 2), rng.integers(1, 10**6, 2000) / 7.0])
+    values = np.concatenate(
+        [
+            [
+                0.1,
+                0.2 + 0.1,
+                1 / 3,
+                2 / 3,
+                4.35,
+                0.0001,
+                0.00012345,
+                9.999e-5,
+                1e-4 - 1e-20,
+                99999.99999,
+                1e14 + 0.5,
+                1e15 - 0.5,
+                1e15 + 0.5,
+                9999999999999998.0,
+                1e16,
+                -0.0,
+                0.0,
+                -1.5,
+                123456789.125,
+                5e-324,
+                1.7976931348623157e308,
+                np.nan,
+                377.0,
+            ],
+            10.0 ** rng.uniform(-5, 17, 4000) * rng.choice([-1.0, 1.0], 4000),
+            np.round(rng.uniform(-1e6, 1e6, 2000), 2),
+            rng.integers(1, 10**6, 2000) / 7.0,
+        ]
+    )
     try:
         return _shortest_texts(values) == list(map(repr, values.tolist()))
     except Exception:  # no pyarrow, or one that cannot do this: repr cell by cell
@@ -416,8 +466,9 @@ def _own_cells(c: _Column, plain: str, quoted: str) -> tuple[list[str | None], n
 
 def _simple(v: str) -> bool:
     """Whether text ``v`` (not empty) goes into a cell as it is."""
-    return not (v[0] in _PLAIN_BREAKERS or v[0].isspace() or v[-1].isspace()
-                or _NEEDS_ESCAPE.search(v))
+    return not (
+        v[0] in _PLAIN_BREAKERS or v[0].isspace() or v[-1].isspace() or _NEEDS_ESCAPE.search(v)
+    )
 
 
 def _text_cell(start: str, plain: str, quoted: str, v: str) -> str:
@@ -454,8 +505,11 @@ class BlockSheet(Worksheet):
             return
         blocks = sorted(self.blocks, key=lambda b: b.first_row)
         for block in blocks:
-            clash = [r for r, cells in self.table.items()
-                     if cells and block.first_row <= r <= block.last_row]
+            clash = [
+                r
+                for r, cells in self.table.items()
+                if cells and block.first_row <= r <= block.last_row
+            ]
             if clash:
                 raise ValueError(f"ordinary cells written on a block's rows ({clash[:3]})")
         lo, hi = self.dim_rowmin, self.dim_rowmax

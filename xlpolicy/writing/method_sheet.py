@@ -27,8 +27,13 @@ def write_method(ctx: Context, ws: Worksheet) -> None:
     ws.set_column(1, 1, 24)
     ws.set_column(2, 3, 30)
     ctx.w.text(ws, 0, 0, "How the numbers are made", bold=True, font_size=15)
-    ctx.w.text(ws, 1, 0, f"Stock policy for {clean_text(ctx.report.source_name) or ''}, "
-               f"run on {ctx.run_text()}", font_color=MUTED)
+    ctx.w.text(
+        ws,
+        1,
+        0,
+        f"Stock policy for {clean_text(ctx.report.source_name) or ''}, run on {ctx.run_text()}",
+        font_color=MUTED,
+    )
     row = 3
     row = _paragraphs(ctx, ws, row, "The method, step by step", method_sentences(ctx))
     row = _paragraphs(ctx, ws, row + 1, "How the demand model is chosen", model_rule())
@@ -37,8 +42,7 @@ def write_method(ctx: Context, ws: Worksheet) -> None:
     row = _paragraphs(ctx, ws, row + 1, "Across all items", portfolio_sentences(ctx))
     buyer = buyer_sentences(ctx)
     if buyer:
-        row = _paragraphs(ctx, ws, row + 1, "Price breaks, shelf life and review periods",
-                          buyer)
+        row = _paragraphs(ctx, ws, row + 1, "Price breaks, shelf life and review periods", buyer)
     if (ctx.report.totals or {}).get("items_simulated"):
         row = _paragraphs(ctx, ws, row + 1, "The back-test", backtest_sentences(ctx))
     row = _settings(ctx, ws, row + 1)
@@ -61,16 +65,19 @@ def method_sentences(ctx: Context) -> list[str]:
         contract.CYCLE_SERVICE: (
             "cycle service, the chance of getting through the wait for an order without "
             "running out. The reorder point is the smallest whole number of units whose "
-            "chance of covering the lead-time demand meets the target."),
+            "chance of covering the lead-time demand meets the target."
+        ),
         contract.FILL_RATE: (
             "fill rate, the share of demand met straight from the shelf. With the order "
             "quantity fixed, the reorder point is the smallest one whose expected units "
             "short per order (from the normal loss function, Silver, Pyke & Peterson "
-            "1998) keep the fill rate at or above the target."),
+            "1998) keep the fill rate at or above the target."
+        ),
         contract.SHORTAGE_COST: (
             "shortage cost. No service target is set; the order quantity and reorder "
             "point are found together so that the cost of units short balances the "
-            "cost of holding more stock (Hadley & Whitin 1963)."),
+            "cost of holding more stock (Hadley & Whitin 1963)."
+        ),
     }
     others = {
         contract.CYCLE_SERVICE: "cycle service",
@@ -154,12 +161,20 @@ def _formulas(ctx: Context, ws: Worksheet, row: int) -> int:
         lines = max(1, -(-len(words) // 56))
         ws.set_row(row, 15 * lines + 3)
         row += 1
-    row = ctx.paragraph(ws, row, (
-        "Formula cells carry the tool's own number as their saved result; where a formula "
-        "could not reproduce that number exactly, the number itself is written instead. "
-        "Change an input (say the order cost) and the formula columns follow; the model "
-        "values (reorder point, service, units short) do not, so run the tool again after "
-        "changing the inputs."), _WIDTH, _CHARS, font_color=MUTED)
+    row = ctx.paragraph(
+        ws,
+        row,
+        (
+            "Formula cells carry the tool's own number as their saved result; where a formula "
+            "could not reproduce that number exactly, the number itself is written instead. "
+            "Change an input (say the order cost) and the formula columns follow; the model "
+            "values (reorder point, service, units short) do not, so run the tool again after "
+            "changing the inputs."
+        ),
+        _WIDTH,
+        _CHARS,
+        font_color=MUTED,
+    )
     return row
 
 
@@ -201,29 +216,35 @@ def buyer_sentences(ctx: Context) -> list[str]:
             "(Nahmias, Production and Operations Analysis, ch. 4; Chopra & Meindl, Supply "
             "Chain Management, ch. 11). Holding and purchase costs then use the price paid, "
             "and the reorder point follows from that quantity. The saving is against the "
-            "plain EOQ at the Unit cost, at the price that quantity earns.")
+            "plain EOQ at the Unit cost, at the price that quantity earns."
+        )
     n_life = count("shelf_life_cost")
     if n_life:
         out.append(
             f"Shelf life ({n_life} item(s)): the order quantity is at most the demand "
             "expected over the shelf life, in whole packs; its yearly cost is the ordering + "
             "cycle holding (+ purchase) cost of the capped quantity minus that without the "
-            "cap. Safety stock ages too: check items with a tight shelf life by hand.")
+            "cap. Safety stock ages too: check items with a tight shelf life by hand."
+        )
     n_per = count("review", lambda c: c.astype(str) == "periodic")
     if n_per:
         out.append(
             f"Periodic review ({n_per} item(s)): every review period T, order up to the level "
             "S, set for the demand over T + lead time under the item's demand model (Silver, "
             "Pyke & Peterson 1998, ch. 7); one order per review, the average order being "
-            "the demand over T.")
+            "the demand over T."
+        )
     return out
 
 
 def _class_target_sentences(ctx: Context) -> list[str]:
     """Which service target each class gets (Settings: Service target A, B, C)."""
     settings = ctx.report.settings or {}
-    given = {cls: settings.get(key) for cls, key in contract.CLASS_TARGET_SETTINGS.items()
-             if finite(settings.get(key)) is not None}
+    given = {
+        cls: settings.get(key)
+        for cls, key in contract.CLASS_TARGET_SETTINGS.items()
+        if finite(settings.get(key)) is not None
+    }
     if not given:
         return []
     parts = ", ".join(f"class {cls} {float(v):.1%}" for cls, v in given.items())
@@ -231,7 +252,8 @@ def _class_target_sentences(ctx: Context) -> list[str]:
         f"Service targets by class: {parts}. The classes are set first, from annual demand "
         "x unit cost, which does not depend on the target; an item's own Service target "
         "still wins, and the column 'Service target from' on the Policy sheet says which "
-        "applied."]
+        "applied."
+    ]
 
 
 def _settings(ctx: Context, ws: Worksheet, row: int) -> int:

@@ -78,24 +78,79 @@ _CHUNK = 1 << 20
 # Built-in number formats whose codes are fixed (ECMA-376 Part 1, 18.8.30). Used only
 # when the user's styles redefine one of these ids with another code.
 _BUILTIN_NUMFMTS = {
-    0: "General", 1: "0", 2: "0.00", 3: "#,##0", 4: "#,##0.00", 9: "0%", 10: "0.00%",
-    11: "0.00E+00", 12: "# ?/?", 13: "# ??/??", 14: "mm-dd-yy", 15: "d-mmm-yy",
-    16: "d-mmm", 17: "mmm-yy", 18: "h:mm AM/PM", 19: "h:mm:ss AM/PM", 20: "h:mm",
-    21: "h:mm:ss", 22: "m/d/yy h:mm", 37: "#,##0 ;(#,##0)", 38: "#,##0 ;[Red](#,##0)",
-    39: "#,##0.00;(#,##0.00)", 40: "#,##0.00;[Red](#,##0.00)", 45: "mm:ss",
-    46: "[h]:mm:ss", 47: "mmss.0", 48: "##0.0E+0", 49: "@",
+    0: "General",
+    1: "0",
+    2: "0.00",
+    3: "#,##0",
+    4: "#,##0.00",
+    9: "0%",
+    10: "0.00%",
+    11: "0.00E+00",
+    12: "# ?/?",
+    13: "# ??/??",
+    14: "mm-dd-yy",
+    15: "d-mmm-yy",
+    16: "d-mmm",
+    17: "mmm-yy",
+    18: "h:mm AM/PM",
+    19: "h:mm:ss AM/PM",
+    20: "h:mm",
+    21: "h:mm:ss",
+    22: "m/d/yy h:mm",
+    37: "#,##0 ;(#,##0)",
+    38: "#,##0 ;[Red](#,##0)",
+    39: "#,##0.00;(#,##0.00)",
+    40: "#,##0.00;[Red](#,##0.00)",
+    45: "mm:ss",
+    46: "[h]:mm:ss",
+    47: "mmss.0",
+    48: "##0.0E+0",
+    49: "@",
 }
 
 # Child order of <styleSheet> and <workbook> (ECMA-376 Part 1, CT_Stylesheet, CT_Workbook).
-_STYLE_ORDER = ["numFmts", "fonts", "fills", "borders", "cellStyleXfs", "cellXfs",
-                "cellStyles", "dxfs", "tableStyles", "colors", "extLst"]
-_WORKBOOK_ORDER = ["fileVersion", "fileSharing", "workbookPr", "workbookProtection",
-                   "bookViews", "sheets", "functionGroups", "externalReferences",
-                   "definedNames", "calcPr", "oleSize", "customWorkbookViews", "pivotCaches",
-                   "smartTagPr", "smartTagTypes", "webPublishing", "fileRecoveryPr",
-                   "webPublishObjects", "extLst"]
-_TABLE_DXF_ATTRS = ("headerRowDxfId", "dataDxfId", "totalsRowDxfId", "headerRowBorderDxfId",
-                    "tableBorderDxfId", "totalsRowBorderDxfId")
+_STYLE_ORDER = [
+    "numFmts",
+    "fonts",
+    "fills",
+    "borders",
+    "cellStyleXfs",
+    "cellXfs",
+    "cellStyles",
+    "dxfs",
+    "tableStyles",
+    "colors",
+    "extLst",
+]
+_WORKBOOK_ORDER = [
+    "fileVersion",
+    "fileSharing",
+    "workbookPr",
+    "workbookProtection",
+    "bookViews",
+    "sheets",
+    "functionGroups",
+    "externalReferences",
+    "definedNames",
+    "calcPr",
+    "oleSize",
+    "customWorkbookViews",
+    "pivotCaches",
+    "smartTagPr",
+    "smartTagTypes",
+    "webPublishing",
+    "fileRecoveryPr",
+    "webPublishObjects",
+    "extLst",
+]
+_TABLE_DXF_ATTRS = (
+    "headerRowDxfId",
+    "dataDxfId",
+    "totalsRowDxfId",
+    "headerRowBorderDxfId",
+    "tableBorderDxfId",
+    "totalsRowBorderDxfId",
+)
 
 _PARSER = etree.XMLParser(resolve_entities=False, no_network=True, huge_tree=True)
 
@@ -164,8 +219,7 @@ def _key(el: etree._Element) -> tuple:
     return (el.tag, tuple(sorted(el.attrib.items())), text, children)
 
 
-def _insert_ordered(parent: etree._Element, ns: str, name: str,
-                    order: list[str]) -> etree._Element:
+def _insert_ordered(parent: etree._Element, ns: str, name: str, order: list[str]) -> etree._Element:
     """Return child ``name`` of ``parent``, creating it at its schema position if absent."""
     found = parent.find(_q(ns, name))
     if found is not None:
@@ -338,10 +392,17 @@ def _load_workbook(pkg: _Package) -> _Workbook:
     if pkg.has(rels_part):
         rels_tree = pkg.parse(rels_part)
     else:
-        rels_tree = etree.ElementTree(etree.Element(_q(_PKG_REL, "Relationships"),
-                                                    nsmap={None: _PKG_REL}))
-    wb = _Workbook(pkg, part, tree, pkg.name(rels_part) or rels_part, rels_tree,
-                   pkg.parse("[Content_Types].xml"))
+        rels_tree = etree.ElementTree(
+            etree.Element(_q(_PKG_REL, "Relationships"), nsmap={None: _PKG_REL})
+        )
+    wb = _Workbook(
+        pkg,
+        part,
+        tree,
+        pkg.name(rels_part) or rels_part,
+        rels_tree,
+        pkg.parse("[Content_Types].xml"),
+    )
     rel_by_id = {r.get("Id"): r for r in rels_tree.getroot()}
     sheets_el = root.find(_q(_MAIN, "sheets"))
     if sheets_el is None:
@@ -349,11 +410,16 @@ def _load_workbook(pkg: _Package) -> _Workbook:
     for el in sheets_el.findall(_q(_MAIN, "sheet")):
         rid = el.get(_q(_DOC_REL, "id"), "")
         rel = rel_by_id.get(rid)
-        wb.sheets.append(_Sheet(
-            el=el, name=el.get("name", ""), sheet_id=int(el.get("sheetId", "0")), rid=rid,
-            part=None if rel is None else wb.part_of(rel),
-            rel_type="" if rel is None else rel.get("Type", ""),
-        ))
+        wb.sheets.append(
+            _Sheet(
+                el=el,
+                name=el.get("name", ""),
+                sheet_id=int(el.get("sheetId", "0")),
+                rid=rid,
+                part=None if rel is None else wb.part_of(rel),
+                rel_type="" if rel is None else rel.get("Type", ""),
+            )
+        )
     return wb
 
 
@@ -364,12 +430,16 @@ class _ContentTypes:
         self.root = tree.getroot()
 
     def defaults(self) -> dict[str, str]:
-        return {d.get("Extension", "").lower(): d.get("ContentType", "")
-                for d in self.root.findall(_q(_CT, "Default"))}
+        return {
+            d.get("Extension", "").lower(): d.get("ContentType", "")
+            for d in self.root.findall(_q(_CT, "Default"))
+        }
 
     def overrides(self) -> dict[str, etree._Element]:
-        return {o.get("PartName", "").lstrip("/").lower(): o
-                for o in self.root.findall(_q(_CT, "Override"))}
+        return {
+            o.get("PartName", "").lstrip("/").lower(): o
+            for o in self.root.findall(_q(_CT, "Override"))
+        }
 
     def type_of(self, part: str) -> str | None:
         over = self.overrides().get(part.lower())
@@ -389,8 +459,9 @@ class _ContentTypes:
         if not by_override and defaults.get(ext) == content_type:
             return
         if not by_override and ext and ext not in defaults:
-            new = self.root.makeelement(_q(_CT, "Default"),
-                                        {"Extension": ext, "ContentType": content_type})
+            new = self.root.makeelement(
+                _q(_CT, "Default"), {"Extension": ext, "ContentType": content_type}
+            )
             last = self.root.findall(_q(_CT, "Default"))
             if last:
                 last[-1].addnext(new)
@@ -398,8 +469,11 @@ class _ContentTypes:
                 self.root.insert(0, new)
             return
         self.remove(part)
-        self.root.append(self.root.makeelement(
-            _q(_CT, "Override"), {"PartName": "/" + part, "ContentType": content_type}))
+        self.root.append(
+            self.root.makeelement(
+                _q(_CT, "Override"), {"PartName": "/" + part, "ContentType": content_type}
+            )
+        )
 
 
 # --- styles ------------------------------------------------------------------------------
@@ -412,9 +486,11 @@ class _StyleMerger:
         self._containers: dict[str, etree._Element] = {}
         self._keys: dict[str, dict[tuple, int]] = {}
         self._maps: dict[str, dict[int, int]] = {}
-        self.gen_numfmts = {int(n.get("numFmtId", "0")): n.get("formatCode", "")
-                            for n in gen.iter(_q(_MAIN, "numFmt"))
-                            if n.getparent() is not None and _local(n.getparent()) == "numFmts"}
+        self.gen_numfmts = {
+            int(n.get("numFmtId", "0")): n.get("formatCode", "")
+            for n in gen.iter(_q(_MAIN, "numFmt"))
+            if n.getparent() is not None and _local(n.getparent()) == "numFmts"
+        }
         numfmts = user.find(_q(_MAIN, "numFmts"))
         self.user_numfmts: dict[int, str] = {}
         if numfmts is not None:
@@ -477,16 +553,23 @@ class _StyleMerger:
             return self.code_to_id[code]
         new_id = max([_FIRST_CUSTOM_NUMFMT - 1, *self.user_numfmts]) + 1
         container = self._container("numFmts")
-        container.append(container.makeelement(
-            _q(_MAIN, "numFmt"), {"numFmtId": str(new_id), "formatCode": code}))
+        container.append(
+            container.makeelement(
+                _q(_MAIN, "numFmt"), {"numFmtId": str(new_id), "formatCode": code}
+            )
+        )
         self.user_numfmts[new_id] = code
         self.code_to_id[code] = new_id
         return new_id
 
     def _mapped(self, kind: str, index: int) -> int:
         cache = self._maps.setdefault(kind, {})
-        if kind == "fills" and index in (0, 1) and self._has("fills") and len(
-                self._records("fills")) >= 2:
+        if (
+            kind == "fills"
+            and index in (0, 1)
+            and self._has("fills")
+            and len(self._records("fills")) >= 2
+        ):
             return index  # fills 0 and 1 are reserved (none, gray125) in every workbook
         if index not in cache:
             records = self._gen_records(kind)
@@ -517,8 +600,11 @@ class _StyleMerger:
         match = None
         if style is not None:
             for us in user_styles:
-                if style.get("builtinId") is not None and us.get("builtinId") == style.get(
-                        "builtinId") and us.get("iLevel") == style.get("iLevel"):
+                if (
+                    style.get("builtinId") is not None
+                    and us.get("builtinId") == style.get("builtinId")
+                    and us.get("iLevel") == style.get("iLevel")
+                ):
                     match = us
                     break
                 if style.get("builtinId") is None and us.get("name") == style.get("name"):
@@ -600,8 +686,9 @@ def _shared_strings(gen: _Package, gen_wb: _Workbook) -> list[bytes]:
     out = []
     decl = f' xmlns="{_MAIN}"'.encode()
     with gen.zf.open(part) as fh:
-        for _, si in etree.iterparse(fh, tag=_q(_MAIN, "si"), huge_tree=True,
-                                     resolve_entities=False, no_network=True):
+        for _, si in etree.iterparse(
+            fh, tag=_q(_MAIN, "si"), huge_tree=True, resolve_entities=False, no_network=True
+        ):
             pieces = []
             for child in si:
                 if not isinstance(child.tag, str):
@@ -632,8 +719,9 @@ def _edit_sheet_tree(root: etree._Element, edit: _SheetEdit) -> None:
             rule.set("dxfId", str(edit.dxf_map[int(rule.get("dxfId"))]))
 
 
-def _rows_writer(edit: _SheetEdit, dst: IO[bytes],
-                 blocks: Mapping[int, CellBlock]) -> Callable[[bytes], None]:
+def _rows_writer(
+    edit: _SheetEdit, dst: IO[bytes], blocks: Mapping[int, CellBlock]
+) -> Callable[[bytes], None]:
     """Write whole <row> elements to ``dst`` rewritten; render deferred blocks in place.
 
     A deferred block (writing/bulk.py) stands in the generated sheet as a marker; it is
@@ -647,7 +735,7 @@ def _rows_writer(edit: _SheetEdit, dst: IO[bytes],
     def emit(piece: bytes) -> None:
         pos = 0
         for m in BLOCK_MARKER.finditer(piece):
-            dst.write(rewrite(piece[pos:m.start()]))
+            dst.write(rewrite(piece[pos : m.start()]))
             block = blocks.get(int(m.group(1)))
             if block is None:
                 raise _Unexpected("a generated sheet refers to cells that were not given")
@@ -673,8 +761,7 @@ class _Pipe:
         self._dst = dst
         self._queue: queue.Queue[bytes | None] = queue.Queue(maxsize=depth)
         self._error: BaseException | None = None
-        self._thread = threading.Thread(target=self._run, name="xlpolicy-deflate",
-                                        daemon=True)
+        self._thread = threading.Thread(target=self._run, name="xlpolicy-deflate", daemon=True)
 
     def _run(self) -> None:
         while True:
@@ -712,8 +799,15 @@ def _rows_rewriter(edit: _SheetEdit) -> Callable[[bytes], bytes]:
         return m.group(1) + xf_bytes[m.group(2)]
 
     def shared(m: re.Match) -> bytes:
-        return (b"<c" + m.group(1) + b' t="inlineStr"' + m.group(2) + b"><is>"
-                + strings[int(m.group(3))] + b"</is></c>")
+        return (
+            b"<c"
+            + m.group(1)
+            + b' t="inlineStr"'
+            + m.group(2)
+            + b"><is>"
+            + strings[int(m.group(3))]
+            + b"</is></c>"
+        )
 
     def rewrite(block: bytes) -> bytes:
         block, n = _SHARED_CELL.subn(shared, block)
@@ -727,7 +821,8 @@ def _rows_rewriter(edit: _SheetEdit) -> Callable[[bytes], bytes]:
 def _split_serialized(root: etree._Element) -> tuple[bytes, bytes]:
     """Serialize a sheet whose <sheetData/> is empty and cut it there: (head, tail)."""
     data = b'<?xml version="1.0" encoding="UTF-8" standalone="yes"?>\r\n' + etree.tostring(
-        root, encoding="UTF-8")
+        root, encoding="UTF-8"
+    )
     if data.count(b"<sheetData/>") != 1:
         raise _Unexpected("cannot locate the cell data of a generated sheet")
     head, tail = data.split(b"<sheetData/>")
@@ -735,15 +830,17 @@ def _split_serialized(root: etree._Element) -> tuple[bytes, bytes]:
 
 
 def _root_name(head: bytes) -> bytes:
-    m = re.search(rb"<([A-Za-z_][\w.:-]*)[\s>]", re.sub(rb"<\?.*?\?>|<!--.*?-->", b"", head,
-                                                        flags=re.S))
+    m = re.search(
+        rb"<([A-Za-z_][\w.:-]*)[\s>]", re.sub(rb"<\?.*?\?>|<!--.*?-->", b"", head, flags=re.S)
+    )
     if m is None:
         raise _Unexpected("a generated sheet has no root element")
     return m.group(1)
 
 
-def _copy_sheet(src: IO[bytes], dst: IO[bytes], edit: _SheetEdit,
-                blocks: Mapping[int, CellBlock]) -> None:
+def _copy_sheet(
+    src: IO[bytes], dst: IO[bytes], edit: _SheetEdit, blocks: Mapping[int, CellBlock]
+) -> None:
     """Stream a generated worksheet from ``src`` to ``dst``, rewriting it on the way."""
     buf = b""
     while True:
@@ -759,8 +856,8 @@ def _copy_sheet(src: IO[bytes], dst: IO[bytes], edit: _SheetEdit,
             return
         buf += chunk
     head = buf[:start]
-    empty = buf[end - 1:end] == b"/"
-    buf = buf[end + 1:]
+    empty = buf[end - 1 : end] == b"/"
+    buf = buf[end + 1 :]
     root_name = _root_name(head)
     head_root = etree.fromstring(head + b"<sheetData/></" + root_name + b">", _PARSER)
     _edit_sheet_tree(head_root, edit)
@@ -775,14 +872,14 @@ def _copy_sheet(src: IO[bytes], dst: IO[bytes], edit: _SheetEdit,
             stop = buf.find(b"</sheetData>")
             if stop >= 0:
                 emit(buf[:stop])
-                buf = buf[stop + len(b"</sheetData>"):]
+                buf = buf[stop + len(b"</sheetData>") :]
                 break
             # Whole rows, and a block marker after them (a marker is never cut in two: it
             # follows a </row> or the start tag, and what follows the last </row> waits).
             last = buf.rfind(b"</row>")
             if last >= 0:
-                emit(buf[:last + 6])
-                buf = buf[last + 6:]
+                emit(buf[: last + 6])
+                buf = buf[last + 6 :]
             chunk = src.read(_CHUNK)
             if not chunk:
                 raise _Unexpected("a generated sheet ends inside its cell data")
@@ -831,8 +928,9 @@ class _Names:
             k += 1
 
 
-def _reachable(pkg: _Package, starts: Iterable[str],
-               rels_override: dict[str, list[str]]) -> set[str]:
+def _reachable(
+    pkg: _Package, starts: Iterable[str], rels_override: dict[str, list[str]]
+) -> set[str]:
     seen: set[str] = set()
     todo = list(starts)
     while todo:
@@ -891,15 +989,19 @@ def _remove_generated(wb: _Workbook, ct: _ContentTypes) -> tuple[list[str], set[
                 view.set(attr, str(new))
     remaining_ids = {s.sheet_id for s in wb.sheets}
     for view in wb.root.iter(_q(_MAIN, "customWorkbookView")):
-        if view.get("activeSheetId", "").isdigit() and int(
-                view.get("activeSheetId")) not in remaining_ids and wb.sheets:
+        if (
+            view.get("activeSheetId", "").isdigit()
+            and int(view.get("activeSheetId")) not in remaining_ids
+            and wb.sheets
+        ):
             view.set("activeSheetId", str(wb.sheets[0].sheet_id))
 
     # parts only the removed sheets (or the dropped calc chain) used
     wb_targets = [p for p in (wb.part_of(r) for r in rel_root) if p is not None]
     keep = _reachable(pkg, pkg.internal_targets(""), {wb.part: wb_targets})
-    starts = [s.part for s in removed if s.part] + [p for p in (wb.part_of(r) for r in calc)
-                                                    if p is not None]
+    starts = [s.part for s in removed if s.part] + [
+        p for p in (wb.part_of(r) for r in calc) if p is not None
+    ]
     dropped = _reachable(pkg, starts, {}) - keep
     drop = set(dropped)
     for part in dropped:
@@ -959,14 +1061,17 @@ def _plan(user: _Package, gen: _Package) -> _Plan:
     gen_ct = _ContentTypes(gen_wb.ct_tree)
 
     replaced, drop = _remove_generated(wb, ct)
-    active_removed = any(v.get("activeTab") == "-1"
-                         for v in wb.root.iter(_q(_MAIN, "workbookView")))
+    active_removed = any(
+        v.get("activeTab") == "-1" for v in wb.root.iter(_q(_MAIN, "workbookView"))
+    )
 
     user_names = {s.name.lower(): s.name for s in wb.sheets}
     for s in gen_wb.sheets:
         if s.name.lower() in user_names:
-            raise CannotMerge(f"the workbook already has a sheet named "
-                              f"{user_names[s.name.lower()]!r}: rename it and try again")
+            raise CannotMerge(
+                f"the workbook already has a sheet named "
+                f"{user_names[s.name.lower()]!r}: rename it and try again"
+            )
         if s.part is None or s.rel_type not in (_RT_WORKSHEET, _RT_CHARTSHEET):
             raise _Unexpected(f"generated sheet {s.name!r} has no worksheet part")
 
@@ -985,8 +1090,9 @@ def _plan(user: _Package, gen: _Package) -> _Plan:
     used_rids = {r.get("Id") for r in rel_root}
 
     def new_rid() -> str:
-        k = 1 + max([0] + [int(r[3:]) for r in used_rids if r and r.startswith("rId")
-                           and r[3:].isdigit()])
+        k = 1 + max(
+            [0] + [int(r[3:]) for r in used_rids if r and r.startswith("rId") and r[3:].isdigit()]
+        )
         while f"rId{k}" in used_rids:
             k += 1
         used_rids.add(f"rId{k}")
@@ -1005,8 +1111,12 @@ def _plan(user: _Package, gen: _Package) -> _Plan:
         xf_map, dxf_map = list(range(n_xf)), list(range(n_dxf))
         name = names.claim(posixpath.join(posixpath.dirname(wb.part), "styles.xml"), True)
         new_parts.append(_NewPart(name, gen_styles_part, "copy"))
-        rel_root.append(rel_root.makeelement(_q(_PKG_REL, "Relationship"), {
-            "Id": new_rid(), "Type": _RT_STYLES, "Target": _relative(wb.part, name)}))
+        rel_root.append(
+            rel_root.makeelement(
+                _q(_PKG_REL, "Relationship"),
+                {"Id": new_rid(), "Type": _RT_STYLES, "Target": _relative(wb.part, name)},
+            )
+        )
         ct.add(name, _CT_STYLES, True)
 
     strings = _shared_strings(gen, gen_wb)
@@ -1049,8 +1159,7 @@ def _plan(user: _Package, gen: _Package) -> _Plan:
             root = tree.getroot()
             for attr in ("name", "displayName"):
                 if root.get(attr, "").lower() in user_tables:
-                    raise CannotMerge(
-                        f"the workbook already has a table named {root.get(attr)!r}")
+                    raise CannotMerge(f"the workbook already has a table named {root.get(attr)!r}")
             max_table += 1
             root.set("id", str(max_table))
             for el in root.iter():
@@ -1059,8 +1168,9 @@ def _plan(user: _Package, gen: _Package) -> _Plan:
                         el.set(attr, str(dxf_map[int(el.get(attr))]))
             new_parts.append(_NewPart(new_name, part, "table", data=_serialize(tree)))
         elif part.lower().endswith(".vml") and vml_map:
-            new_parts.append(_NewPart(new_name, part, "vml",
-                                      data=_renumber_vml(gen.read(part), vml_map)))
+            new_parts.append(
+                _NewPart(new_name, part, "vml", data=_renumber_vml(gen.read(part), vml_map))
+            )
         else:
             new_parts.append(_NewPart(new_name, part, "copy"))
         rels = gen.name(_rels_name(part))
@@ -1073,8 +1183,7 @@ def _plan(user: _Package, gen: _Package) -> _Plan:
                 if target is None or target not in rename:
                     raise _Unexpected(f"generated part {part} points at a missing part")
                 rel.set("Target", _relative(new_name, rename[target]))
-            new_parts.append(_NewPart(_rels_name(new_name), rels, "rels",
-                                      data=_serialize(tree)))
+            new_parts.append(_NewPart(_rels_name(new_name), rels, "rels", data=_serialize(tree)))
 
     # register the sheets in the workbook
     sheets_el = wb.root.find(_q(_MAIN, "sheets"))
@@ -1090,12 +1199,19 @@ def _plan(user: _Package, gen: _Package) -> _Plan:
         el = sheets_el.makeelement(_q(_MAIN, "sheet"), attrs)
         el.set(_q(_DOC_REL, "id"), rid)
         sheets_el.append(el)
-        rel_root.append(rel_root.makeelement(_q(_PKG_REL, "Relationship"), {
-            "Id": rid, "Type": s.rel_type, "Target": _relative(wb.part, rename[s.part])}))
+        rel_root.append(
+            rel_root.makeelement(
+                _q(_PKG_REL, "Relationship"),
+                {"Id": rid, "Type": s.rel_type, "Target": _relative(wb.part, rename[s.part])},
+            )
+        )
 
     dn_parent = _insert_ordered(wb.root, _MAIN, "definedNames", _WORKBOOK_ORDER)
-    user_globals = {dn.get("name", "").lower(): (dn.text or "")
-                    for dn in wb.defined_names() if "localSheetId" not in dn.attrib}
+    user_globals = {
+        dn.get("name", "").lower(): (dn.text or "")
+        for dn in wb.defined_names()
+        if "localSheetId" not in dn.attrib
+    }
     for dn in gen_wb.defined_names():
         new = copy.deepcopy(dn)
         if "localSheetId" in dn.attrib:
@@ -1108,8 +1224,10 @@ def _plan(user: _Package, gen: _Package) -> _Plan:
                 raise CannotMerge(f"the workbook already defines the name {dn.get('name')!r}")
         dn_parent.append(new)
     for i in range(len(gen_wb.sheets)):
-        mark = dn_parent.makeelement(_q(_MAIN, "definedName"), {
-            "name": GENERATED_MARK, "localSheetId": str(base + i), "hidden": "1"})
+        mark = dn_parent.makeelement(
+            _q(_MAIN, "definedName"),
+            {"name": GENERATED_MARK, "localSheetId": str(base + i), "hidden": "1"},
+        )
         mark.text = _MARK_VALUE
         dn_parent.append(mark)
 
@@ -1166,8 +1284,7 @@ class _ParallelDeflate:
     def __init__(self, pool: concurrent.futures.Executor, level: int) -> None:
         self._pool = pool
         self._level = level
-        self._pending: collections.deque[concurrent.futures.Future[bytes]] = (
-            collections.deque())
+        self._pending: collections.deque[concurrent.futures.Future[bytes]] = collections.deque()
         self._window = b""
 
     def _deflate(self, data: memoryview | bytes, primer: bytes) -> bytes:
@@ -1178,14 +1295,17 @@ class _ParallelDeflate:
         view = memoryview(data).cast("B")
         for start in range(0, len(view), _DEFLATE_PIECE):
             # the 32 KB of input before the piece (a piece is longer than that)
-            primer = (bytes(view[start - _WINDOW:start]) if start else self._window)
-            self._pending.append(self._pool.submit(
-                self._deflate, view[start:start + _DEFLATE_PIECE], primer))
-        self._window = (bytes(view[-_WINDOW:]) if len(view) >= _WINDOW
-                        else (self._window + bytes(view))[-_WINDOW:])
+            primer = bytes(view[start - _WINDOW : start]) if start else self._window
+            self._pending.append(
+                self._pool.submit(self._deflate, view[start : start + _DEFLATE_PIECE], primer)
+            )
+        self._window = (
+            bytes(view[-_WINDOW:])
+            if len(view) >= _WINDOW
+            else (self._window + bytes(view))[-_WINDOW:]
+        )
         done = []
-        while self._pending and (len(self._pending) > _DEFLATE_AHEAD
-                                 or self._pending[0].done()):
+        while self._pending and (len(self._pending) > _DEFLATE_AHEAD or self._pending[0].done()):
             done.append(self._pending.popleft().result())
         return b"".join(done)
 
@@ -1215,19 +1335,31 @@ def _zip_info(name: str, like: zipfile.ZipInfo | None) -> zipfile.ZipInfo:
         info._compresslevel = _GENERATED_LEVEL  # zipfile reads it when the part is opened
         return info
     info = zipfile.ZipInfo(name, date_time=like.date_time)
-    info.compress_type = (zipfile.ZIP_STORED if like.compress_type == zipfile.ZIP_STORED
-                          else zipfile.ZIP_DEFLATED)
+    info.compress_type = (
+        zipfile.ZIP_STORED if like.compress_type == zipfile.ZIP_STORED else zipfile.ZIP_DEFLATED
+    )
     info.external_attr = like.external_attr
     return info
 
 
-_DAMAGED = (OSError, zipfile.BadZipFile, *fastzlib.ERRORS, EOFError, ValueError,
-            NotImplementedError)
+_DAMAGED = (
+    OSError,
+    zipfile.BadZipFile,
+    *fastzlib.ERRORS,
+    EOFError,
+    ValueError,
+    NotImplementedError,
+)
 _LOCAL_HEADER = struct.Struct("<4s22xHH")  # signature, ..., name length, extra length
 
 
-def _copy_user_part(user: _Package, info: zipfile.ZipInfo, zout: zipfile.ZipFile,
-                    target: zipfile.ZipInfo, checker: _Checker | None = None) -> None:
+def _copy_user_part(
+    user: _Package,
+    info: zipfile.ZipInfo,
+    zout: zipfile.ZipFile,
+    target: zipfile.ZipInfo,
+    checker: _Checker | None = None,
+) -> None:
     """Copy one of the user's parts unchanged; a part that cannot be read is _Unexpected.
 
     Reading errors (a damaged entry: bad offsets, CRC, deflate data) are told apart from
@@ -1259,16 +1391,22 @@ def _copy_user_part(user: _Package, info: zipfile.ZipInfo, zout: zipfile.ZipFile
 
 def _can_copy_raw(zin: zipfile.ZipFile, info: zipfile.ZipInfo, zout: zipfile.ZipFile) -> bool:
     """Whether the part's compressed bytes can be copied as they are (see _copy_raw)."""
-    return (info.compress_type in (zipfile.ZIP_STORED, zipfile.ZIP_DEFLATED)
-            and not info.flag_bits & 0x1  # not encrypted
-            and all(hasattr(zout, a) for a in ("fp", "start_dir", "filelist", "NameToInfo",
-                                               "_writecheck"))
-            and hasattr(zin, "fp") and zin.fp is not None and zout.fp is not None
-            and not getattr(zout, "_writing", False))
+    return (
+        info.compress_type in (zipfile.ZIP_STORED, zipfile.ZIP_DEFLATED)
+        and not info.flag_bits & 0x1  # not encrypted
+        and all(
+            hasattr(zout, a) for a in ("fp", "start_dir", "filelist", "NameToInfo", "_writecheck")
+        )
+        and hasattr(zin, "fp")
+        and zin.fp is not None
+        and zout.fp is not None
+        and not getattr(zout, "_writing", False)
+    )
 
 
-def _copy_raw(zin: zipfile.ZipFile, info: zipfile.ZipInfo, zout: zipfile.ZipFile,
-              target: zipfile.ZipInfo) -> int:
+def _copy_raw(
+    zin: zipfile.ZipFile, info: zipfile.ZipInfo, zout: zipfile.ZipFile, target: zipfile.ZipInfo
+) -> int:
     """Copy a part's compressed bytes into ``zout`` without inflating and deflating them.
 
     Re-compressing the user's parts was most of the time the splice took on a big workbook
@@ -1353,8 +1491,7 @@ class _Checker:
         self._queue: queue.Queue[tuple[zipfile.ZipInfo, int] | None] = queue.Queue()
         self._error: BaseException | None = None
         self._cancelled = False
-        self._thread = threading.Thread(target=self._run, name="xlpolicy-check",
-                                        daemon=True)
+        self._thread = threading.Thread(target=self._run, name="xlpolicy-check", daemon=True)
 
     def _run(self) -> None:
         try:
@@ -1397,15 +1534,18 @@ class _Checker:
         self._stop()
 
 
-def _write(out: Path, user: _Package, gen: _Package, plan: _Plan,
-           blocks: Mapping[int, CellBlock]) -> int:
+def _write(
+    out: Path, user: _Package, gen: _Package, plan: _Plan, blocks: Mapping[int, CellBlock]
+) -> int:
     """Write the output package; return how many user parts were copied unchanged."""
     drop, replaced_parts, new_parts = plan.drop, plan.replaced_parts, plan.new_parts
     kept = 0
     path = getattr(user.zf, "filename", None)
-    with (zipfile.ZipFile(out, "w", allowZip64=True) as zout,
-          _Checker(path) if path else contextlib.nullcontext() as checker,
-          concurrent.futures.ThreadPoolExecutor(_DEFLATE_THREADS, "xlpolicy-deflate") as pool):
+    with (
+        zipfile.ZipFile(out, "w", allowZip64=True) as zout,
+        _Checker(path) if path else contextlib.nullcontext() as checker,
+        concurrent.futures.ThreadPoolExecutor(_DEFLATE_THREADS, "xlpolicy-deflate") as pool,
+    ):
         for info in user.infos:
             if info.filename in drop:
                 continue
@@ -1455,8 +1595,12 @@ def user_sheet_names(path: Path) -> list[str]:
         raise CannotMerge(f"{path.name} cannot be read as a workbook package ({exc})") from exc
 
 
-def merge_generated_sheets(user_path: Path, generated_path: Path, out_path: Path,
-                           blocks: Mapping[int, CellBlock] | None = None) -> MergeResult:
+def merge_generated_sheets(
+    user_path: Path,
+    generated_path: Path,
+    out_path: Path,
+    blocks: Mapping[int, CellBlock] | None = None,
+) -> MergeResult:
     """Write out_path = the user's package + the generated workbook's sheets appended after the
     user's sheets.
 
@@ -1489,13 +1633,22 @@ def merge_generated_sheets(user_path: Path, generated_path: Path, out_path: Path
             except Exception as exc:  # anything unexpected while reading: no traceback
                 raise CannotMerge(
                     f"{user_path.name} has content this tool cannot handle "
-                    f"({type(exc).__name__}: {exc})") from exc
+                    f"({type(exc).__name__}: {exc})"
+                ) from exc
             try:
                 with atomic_output(out_path) as tmp:
                     kept = _write(tmp, user, gen, plan, blocks or {})
             except (OutputLocked, OSError):
                 raise
-            except (_Unexpected, etree.XMLSyntaxError, zipfile.BadZipFile, zlib.error,
-                    EOFError, KeyError, IndexError, ValueError) as exc:
+            except (
+                _Unexpected,
+                etree.XMLSyntaxError,
+                zipfile.BadZipFile,
+                zlib.error,
+                EOFError,
+                KeyError,
+                IndexError,
+                ValueError,
+            ) as exc:
                 raise CannotMerge(f"{user_path.name}: {exc}") from exc
     return MergeResult(sheet_names=plan.sheet_names, replaced=plan.replaced, kept_parts=kept)

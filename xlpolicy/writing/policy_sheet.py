@@ -87,8 +87,7 @@ POLICY_COLUMNS: tuple[Col, ...] = (
     Col("discount_saving", "Yearly saving of the price break over the plain EOQ", "money"),
     # shelf life
     Col("shelf_life_days", "Shelf life (days)", "days"),
-    Col("shelf_life_max_qty", "Most to order: what sells within the shelf life (units)",
-        "units"),
+    Col("shelf_life_max_qty", "Most to order: what sells within the shelf life (units)", "units"),
     Col("shelf_life_cost", "Yearly cost of the shelf-life cap", "money"),
     # where the demand figures come from
     Col("demand_per_period", "Demand per period (units)", "demand"),
@@ -113,12 +112,10 @@ POLICY_COLUMNS: tuple[Col, ...] = (
     Col("current_safety_stock", "Today: safety stock (units)", "units1"),
     Col("current_cycle_service", "Today: cycle service", "percent"),
     Col("current_fill_rate", "Today: fill rate", "percent"),
-    Col("current_units_short_per_cycle", "Today: expected units short per order cycle",
-        "demand"),
+    Col("current_units_short_per_cycle", "Today: expected units short per order cycle", "demand"),
     Col("current_annual_ordering_cost", "Today: annual ordering cost", "money"),
     Col("current_annual_cycle_holding_cost", "Today: annual cycle stock holding cost", "money"),
-    Col("current_annual_safety_holding_cost", "Today: annual safety stock holding cost",
-        "money"),
+    Col("current_annual_safety_holding_cost", "Today: annual safety stock holding cost", "money"),
     Col("current_annual_shortage_cost", "Today: annual shortage cost", "money"),
     Col("current_annual_total_cost", "Today: annual total cost", "money"),
     Col("annual_saving", "Annual saving with the recommended policy", "money"),
@@ -134,8 +131,7 @@ POLICY_COLUMNS: tuple[Col, ...] = (
     Col("simulated_fill_rate", "Back-test: fill rate", "percent"),
     Col("simulated_fill_rate_low", "Back-test: fill rate, band low", "percent"),
     Col("simulated_fill_rate_high", "Back-test: fill rate, band high", "percent"),
-    Col("replayed_cycle_service", "Back-test: cycle service on the history as it was",
-        "percent"),
+    Col("replayed_cycle_service", "Back-test: cycle service on the history as it was", "percent"),
     Col("simulated_average_on_hand", "Back-test: average on hand (units)", "demand"),
     Col("simulated_orders_per_year", "Back-test: orders per year", "decimal1"),
     Col("simulated_annual_total_cost", "Back-test: annual total cost", "money"),
@@ -144,11 +140,19 @@ POLICY_COLUMNS: tuple[Col, ...] = (
 
 #: The inputs the formulas name, by symbol.
 SYMBOLS = {
-    "Q": "order_qty", "R": "reorder_point", "mu": "lead_time_demand_mean",
-    "D": "annual_demand", "S": "order_cost", "i": "holding_rate", "c": "unit_price",
-    "p": "shortage_cost", "n": "expected_units_short_per_cycle",
-    "ORD": "annual_ordering_cost", "CYC": "annual_cycle_holding_cost",
-    "SAF": "annual_safety_holding_cost", "SHO": "annual_shortage_cost",
+    "Q": "order_qty",
+    "R": "reorder_point",
+    "mu": "lead_time_demand_mean",
+    "D": "annual_demand",
+    "S": "order_cost",
+    "i": "holding_rate",
+    "c": "unit_price",
+    "p": "shortage_cost",
+    "n": "expected_units_short_per_cycle",
+    "ORD": "annual_ordering_cost",
+    "CYC": "annual_cycle_holding_cost",
+    "SAF": "annual_safety_holding_cost",
+    "SHO": "annual_shortage_cost",
 }
 
 Values = dict[str, np.ndarray]
@@ -160,37 +164,73 @@ def _shortage(v: Values) -> np.ndarray:
 
 #: key -> (formula template, symbols that must be filled, the same sum in numpy, words).
 FORMULAS: dict[str, tuple[str, tuple[str, ...], Callable[[Values], np.ndarray], str]] = {
-    "safety_stock": ("{R}-{mu}", ("R", "mu"), lambda v: v["R"] - v["mu"],
-                     "reorder point - mean lead-time demand"),
-    "orders_per_year": ("{D}/{Q}", ("D", "Q"), lambda v: v["D"] / v["Q"],
-                        "annual demand / order quantity"),
-    "annual_ordering_cost": ("{D}/{Q}*{S}", ("D", "Q", "S"),
-                             lambda v: v["D"] / v["Q"] * v["S"],
-                             "annual demand / order quantity x order cost"),
-    "annual_cycle_holding_cost": ("{i}*{c}*{Q}/2", ("i", "c", "Q"),
-                                  lambda v: v["i"] * v["c"] * v["Q"] / 2,
-                                  "holding rate x unit cost x order quantity / 2"),
-    "annual_safety_holding_cost": ("{i}*{c}*({R}-{mu})", ("i", "c", "R", "mu"),
-                                   lambda v: v["i"] * v["c"] * (v["R"] - v["mu"]),
-                                   "holding rate x unit cost x safety stock"),
-    "annual_shortage_cost": ('IF({p}="",0,{p}*{D}/{Q}*{n})', ("D", "Q", "n"), _shortage,
-                             "shortage cost x orders per year x expected units short per "
-                             "order cycle (0 when no shortage cost is given)"),
-    "annual_total_cost": ("{ORD}+{CYC}+{SAF}+{SHO}", ("ORD", "CYC", "SAF", "SHO"),
-                          lambda v: v["ORD"] + v["CYC"] + v["SAF"] + v["SHO"],
-                          "ordering + cycle stock holding + safety stock holding + shortage"),
-    "annual_purchase_cost": ("{D}*{c}", ("D", "c"), lambda v: v["D"] * v["c"],
-                             "annual demand x unit cost"),
-    "average_inventory_value": ("{c}*({Q}/2+MAX({R}-{mu},0))", ("c", "Q", "R", "mu"),
-                                lambda v: v["c"] * (v["Q"] / 2 + np.maximum(v["R"] - v["mu"],
-                                                                            0.0)),
-                                "unit cost x (order quantity / 2 + safety stock, if above 0)"),
-    "fill_rate": ("MAX(0,1-{n}/{Q})", ("n", "Q"),
-                  lambda v: np.maximum(0.0, 1 - v["n"] / v["Q"]),
-                  "1 - expected units short per order cycle / order quantity"),
-    "eoq": ("SQRT(2*{D}*{S}/({i}*{c}))", ("D", "S", "i", "c"),
-            lambda v: np.sqrt(2 * v["D"] * v["S"] / (v["i"] * v["c"])),
-            "square root of (2 x annual demand x order cost / (holding rate x unit cost))"),
+    "safety_stock": (
+        "{R}-{mu}",
+        ("R", "mu"),
+        lambda v: v["R"] - v["mu"],
+        "reorder point - mean lead-time demand",
+    ),
+    "orders_per_year": (
+        "{D}/{Q}",
+        ("D", "Q"),
+        lambda v: v["D"] / v["Q"],
+        "annual demand / order quantity",
+    ),
+    "annual_ordering_cost": (
+        "{D}/{Q}*{S}",
+        ("D", "Q", "S"),
+        lambda v: v["D"] / v["Q"] * v["S"],
+        "annual demand / order quantity x order cost",
+    ),
+    "annual_cycle_holding_cost": (
+        "{i}*{c}*{Q}/2",
+        ("i", "c", "Q"),
+        lambda v: v["i"] * v["c"] * v["Q"] / 2,
+        "holding rate x unit cost x order quantity / 2",
+    ),
+    "annual_safety_holding_cost": (
+        "{i}*{c}*({R}-{mu})",
+        ("i", "c", "R", "mu"),
+        lambda v: v["i"] * v["c"] * (v["R"] - v["mu"]),
+        "holding rate x unit cost x safety stock",
+    ),
+    "annual_shortage_cost": (
+        'IF({p}="",0,{p}*{D}/{Q}*{n})',
+        ("D", "Q", "n"),
+        _shortage,
+        "shortage cost x orders per year x expected units short per "
+        "order cycle (0 when no shortage cost is given)",
+    ),
+    "annual_total_cost": (
+        "{ORD}+{CYC}+{SAF}+{SHO}",
+        ("ORD", "CYC", "SAF", "SHO"),
+        lambda v: v["ORD"] + v["CYC"] + v["SAF"] + v["SHO"],
+        "ordering + cycle stock holding + safety stock holding + shortage",
+    ),
+    "annual_purchase_cost": (
+        "{D}*{c}",
+        ("D", "c"),
+        lambda v: v["D"] * v["c"],
+        "annual demand x unit cost",
+    ),
+    "average_inventory_value": (
+        "{c}*({Q}/2+MAX({R}-{mu},0))",
+        ("c", "Q", "R", "mu"),
+        lambda v: v["c"] * (v["Q"] / 2 + np.maximum(v["R"] - v["mu"], 0.0)),
+        "unit cost x (order quantity / 2 + safety stock, if above 0)",
+    ),
+    "fill_rate": (
+        "MAX(0,1-{n}/{Q})",
+        ("n", "Q"),
+        lambda v: np.maximum(0.0, 1 - v["n"] / v["Q"]),
+        "1 - expected units short per order cycle / order quantity",
+    ),
+    "eoq": (
+        "SQRT(2*{D}*{S}/({i}*{c}))",
+        ("D", "S", "i", "c"),
+        lambda v: np.sqrt(2 * v["D"] * v["S"] / (v["i"] * v["c"])),
+        "square root of (2 x annual demand x order cost / (holding rate x unit cost))",
+    ),
 }
 
 #: Columns that stay values, and how they are made (shown as a note on the header).
@@ -200,48 +240,60 @@ VALUE_NOTES = {
         "of the pack size and raised to the minimum order, taking whichever rounding costs "
         "less a year; under the shortage-cost measure, found together with the reorder "
         "point by the iterative (Q, R) method. With price breaks: the allowed quantity "
-        "with the lowest ordering + holding + purchase cost a year (all-units discount)."),
+        "with the lowest ordering + holding + purchase cost a year (all-units discount)."
+    ),
     "discount_saving": (
         "A value: for an item with price breaks, the yearly ordering + cycle holding + "
         "purchase cost of the plain EOQ (at the Unit cost, rounded to packs, paying the "
-        "price that quantity earns) minus that of the order quantity chosen."),
+        "price that quantity earns) minus that of the order quantity chosen."
+    ),
     "order_up_to_level": (
         "A value, not a formula: periodic review only. At each review, order enough to raise "
         "the stock position to this level; the smallest whole number meeting the service "
         "target for demand over the review period plus the lead time under the item's "
         "demand model (Silver, Pyke & Peterson 1998, ch. 7). For such items the order "
         "quantity is the average order (demand over one review period) and the safety "
-        "stock is this level minus the mean demand over review period + lead time."),
+        "stock is this level minus the mean demand over review period + lead time."
+    ),
     "shelf_life_max_qty": (
         "A value: demand per period x shelf life in periods, rounded down to whole packs. "
-        "Where the smallest allowed order is more, that order is used, with a warning."),
+        "Where the smallest allowed order is more, that order is used, with a warning."
+    ),
     "shelf_life_cost": (
         "A value: the yearly ordering + cycle holding (+ purchase, with price breaks) cost "
-        "of the capped order quantity minus that of the quantity without the cap."),
+        "of the capped order quantity minus that of the quantity without the cap."
+    ),
     "reorder_point": (
         "A value, not a formula: the smallest whole number of units that meets the service "
         "target under the item's demand model (a quantile of lead-time demand, or the "
         "fill-rate or shortage-cost condition). It needs the model's distribution, which a "
-        "short formula cannot show."),
+        "short formula cannot show."
+    ),
     "cycle_service": (
         "A value, not a formula: the chance, under the item's demand model, that lead-time "
-        "demand does not exceed the reorder point (the model's distribution function)."),
+        "demand does not exceed the reorder point (the model's distribution function)."
+    ),
     "expected_units_short_per_cycle": (
         "A value, not a formula: the expected units short per order cycle, E[(lead-time "
-        "demand - reorder point)+], from the item's demand model (the loss function)."),
+        "demand - reorder point)+], from the item's demand model (the loss function)."
+    ),
     "lead_time_demand_mean": (
-        "A value: demand per period x lead time in periods (days / days per period)."),
+        "A value: demand per period x lead time in periods (days / days per period)."
+    ),
     "simulated_cycle_service": (
         "A value from the back-test: the share of simulated order cycles without a "
         "stock-out, each order counted as placed when the stock position reached the "
         "reorder point (as the cycle service column assumes). The band low and high "
-        "columns give its 95 % confidence band from the simulation runs."),
+        "columns give its 95 % confidence band from the simulation runs."
+    ),
     "simulated_fill_rate": (
         "A value from the back-test: 1 - simulated units short per order cycle / units "
-        "ordered, as the fill rate column defines it, with its 95 % band beside it."),
+        "ordered, as the fill rate column defines it, with its 95 % band beside it."
+    ),
     "lead_time_demand_sd": (
         "A value: square root of (lead time x demand sd squared + demand rate squared x "
-        "lead-time sd squared), lead time in periods (Silver, Pyke & Peterson 1998)."),
+        "lead-time sd squared), lead time in periods (Silver, Pyke & Peterson 1998)."
+    ),
 }
 
 _REL, _ABS = 1e-9, 1e-12
@@ -306,8 +358,7 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
         ctx.w.text(ws, 0, c, col.title, **props)
         note = _header_note(col.key)
         if note:
-            ws.write_comment(0, c, note, {"author": "xlpolicy", "x_scale": 2.2,
-                                          "y_scale": 1.6})
+            ws.write_comment(0, c, note, {"author": "xlpolicy", "x_scale": 2.2, "y_scale": 1.6})
     ctx.policy_row_of = {k: k + 1 for k in range(n)}
 
     cur_len = len(ctx.currency)
@@ -320,8 +371,9 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
             props = {"num_format": "@", **line}
             data = texts(df, col.key)
             if block is not None:
-                block.texts(c, data, ctx.styles.get(**props),
-                            ctx.styles.get(**props, quote_prefix=True))
+                block.texts(
+                    c, data, ctx.styles.get(**props), ctx.styles.get(**props, quote_prefix=True)
+                )
             cap = 45 if col.key in ("description", "model_reason") else 30
             width = min(max(header_width(col.title), longest_line(data) + 2, 8), cap)
         else:
@@ -332,8 +384,8 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
             if live is not None:  # rows where the formula could not be rebuilt
                 reported = column(df, col.key)
                 ctx.policy_fallbacks.extend(
-                    (col.key, int(r) + 1) for r in np.flatnonzero(~live[0] & np.isfinite(
-                        reported)))
+                    (col.key, int(r) + 1) for r in np.flatnonzero(~live[0] & np.isfinite(reported))
+                )
             if block is not None and live is not None and live[0].any():
                 # The column's formula with its letters in place, once; each row only adds
                 # its row number.
@@ -355,16 +407,28 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
     if n:
         ctx.policy_rows = (1, n)
         status = xl_col_to_name(ctx.policy_cols["status"])
-        ws.conditional_format(1, 0, n, last_col, {
-            "type": "formula",
-            "criteria": f'=${status}2="{contract.STATUS_SKIPPED}"',
-            "format": ctx.styles.get(bg_color=SKIPPED_FILL, font_color=MUTED),
-        })
-        ws.conditional_format(1, 0, n, last_col, {
-            "type": "formula",
-            "criteria": f'=${status}2="{contract.STATUS_WARNING}"',
-            "format": ctx.styles.get(bg_color=WARNING_FILL),
-        })
+        ws.conditional_format(
+            1,
+            0,
+            n,
+            last_col,
+            {
+                "type": "formula",
+                "criteria": f'=${status}2="{contract.STATUS_SKIPPED}"',
+                "format": ctx.styles.get(bg_color=SKIPPED_FILL, font_color=MUTED),
+            },
+        )
+        ws.conditional_format(
+            1,
+            0,
+            n,
+            last_col,
+            {
+                "type": "formula",
+                "criteria": f'=${status}2="{contract.STATUS_WARNING}"',
+                "format": ctx.styles.get(bg_color=WARNING_FILL),
+            },
+        )
     else:
         ctx.w.text(ws, 1, 0, "No items were read.", italic=True, font_color=MUTED)
     # ~60 columns are unreadable shrunk to one page: print full size across pages, with
@@ -375,14 +439,19 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
 
 def _refs(ctx: Context) -> dict[str, str]:
     """Each symbol's column letters followed by the row marker (a relative reference)."""
-    return {sym: xl_col_to_name(c) + ROW for sym, key in SYMBOLS.items()
-            if (c := ctx.policy_cols.get(key)) is not None}
+    return {
+        sym: xl_col_to_name(c) + ROW
+        for sym, key in SYMBOLS.items()
+        if (c := ctx.policy_cols.get(key)) is not None
+    }
 
 
 def _header_note(key: str) -> str:
     if key in VALUE_NOTES:
         return VALUE_NOTES[key]
     if key in FORMULAS:
-        return ("A formula over this row's visible inputs: " + FORMULAS[key][3] + ". The "
-                "cached result is the tool's own number.")
+        return (
+            "A formula over this row's visible inputs: " + FORMULAS[key][3] + ". The "
+            "cached result is the tool's own number."
+        )
     return ""

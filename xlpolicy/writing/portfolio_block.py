@@ -30,14 +30,20 @@ def cap_headline(ctx: Context) -> str | None:
     if not cap.binding:
         return f"The {what} is not reached, so the policy is as without it."
     if not cap.feasible:
-        return (f"The {what} cannot be met with these service targets and minimum orders; "
-                "see 'Limits across all items' below.")
+        return (
+            f"The {what} cannot be met with these service targets and minimum orders; "
+            "see 'Limits across all items' below."
+        )
     if cap.cost_of_cap < 0:
-        return (f"The {what} is met, and the capped policy even costs about "
-                f"{money_text(-cap.cost_of_cap, ctx.currency)} a year less (see 'Limits "
-                "across all items' below).")
-    return (f"The {what} is met; keeping to it costs about "
-            f"{money_text(cap.cost_of_cap, ctx.currency)} a year more than without it.")
+        return (
+            f"The {what} is met, and the capped policy even costs about "
+            f"{money_text(-cap.cost_of_cap, ctx.currency)} a year less (see 'Limits "
+            "across all items' below)."
+        )
+    return (
+        f"The {what} is met; keeping to it costs about "
+        f"{money_text(cap.cost_of_cap, ctx.currency)} a year more than without it."
+    )
 
 
 def cap_sentence(cap: CapResult, currency: Any) -> str:
@@ -46,25 +52,35 @@ def cap_sentence(cap: CapResult, currency: Any) -> str:
     if not cap.binding:
         return "The cap is not reached: nothing was changed."
     if not cap.feasible:
-        return ("Even the smallest orders the packs and minimum orders allow"
-                + (", with the reorder points the service targets need," if cap.kind == BUDGET
-                   else "") + " do not meet the cap, so the policy that comes closest is "
-                "used. Raise the cap, or lower the service targets.")
-    cheaper = (" The capped policy costs less than the plan without the cap: under the "
-               "fill-rate measure the order quantity is set by the EOQ and the reorder point "
-               "then follows it, so a larger order that lets the reorder point fall can cost "
-               "less in all." if cap.cost_of_cap < 0 else "")
+        return (
+            "Even the smallest orders the packs and minimum orders allow"
+            + (", with the reorder points the service targets need," if cap.kind == BUDGET else "")
+            + " do not meet the cap, so the policy that comes closest is "
+            "used. Raise the cap, or lower the service targets."
+        )
+    cheaper = (
+        " The capped policy costs less than the plan without the cap: under the "
+        "fill-rate measure the order quantity is set by the EOQ and the reorder point "
+        "then follows it, so a larger order that lets the reorder point fall can cost "
+        "less in all."
+        if cap.cost_of_cap < 0
+        else ""
+    )
     if cap.kind == BUDGET:
-        return (f"Each extra {money_text(1.0, currency)} of stock budget would save about "
-                f"{money_text(lam, currency)} a year (the Lagrange multiplier): keeping to "
-                f"the budget works as if each {money_text(1.0, currency)} of stock held for a "
-                f"year cost {money_text(lam, currency)} more than its holding rate says "
-                f"(a holding rate {lam:.1%} higher), so order quantities are smaller and "
-                "orders more frequent." + cheaper)
-    return (f"Each extra order a year the cap allowed would save about "
-            f"{money_text(lam, currency)} a year (the Lagrange multiplier): keeping to the cap "
-            f"works as if every order cost {money_text(lam, currency)} more, so order "
-            "quantities are larger and stock higher." + cheaper)
+        return (
+            f"Each extra {money_text(1.0, currency)} of stock budget would save about "
+            f"{money_text(lam, currency)} a year (the Lagrange multiplier): keeping to "
+            f"the budget works as if each {money_text(1.0, currency)} of stock held for a "
+            f"year cost {money_text(lam, currency)} more than its holding rate says "
+            f"(a holding rate {lam:.1%} higher), so order quantities are smaller and "
+            "orders more frequent." + cheaper
+        )
+    return (
+        f"Each extra order a year the cap allowed would save about "
+        f"{money_text(lam, currency)} a year (the Lagrange multiplier): keeping to the cap "
+        f"works as if every order cost {money_text(lam, currency)} more, so order "
+        "quantities are larger and stock higher." + cheaper
+    )
 
 
 def write_portfolio(ctx: Context, ws: Worksheet, row: int) -> int:
@@ -85,8 +101,11 @@ def _cap_block(ctx: Context, ws: Worksheet, row: int, cap: CapResult) -> int:
     count = ctx.num_props("decimal1")
     usage_props = money if cap.kind == BUDGET else count
     head = ctx.header_props()
-    what = ("Average stock value (the stock budget)" if cap.kind == BUDGET
-            else "Orders a year, all items (the cap)")
+    what = (
+        "Average stock value (the stock budget)"
+        if cap.kind == BUDGET
+        else "Orders a year, all items (the cap)"
+    )
     for c, t in enumerate(("", "Without the cap", "With the cap", "Cap")):
         ctx.w.text(ws, row, c, t, **head)
     row += 1
@@ -108,23 +127,39 @@ def _cap_block(ctx: Context, ws: Worksheet, row: int, cap: CapResult) -> int:
     ctx.w.number(ws, row, 2, float(np.sum(cap.changed)), num_format="#,##0")
     row += 1
     if cap.binding and cap.feasible:
-        ctx.w.text(ws, row, 0, "Lagrange multiplier" + (
-            " (yearly cost per unit of money in stock)" if cap.kind == BUDGET
-            else " (yearly cost per order)"))
-        ctx.w.number(ws, row, 2, cap.multiplier,
-                     num_format="0.0000" if cap.kind == BUDGET else ctx.money)
+        ctx.w.text(
+            ws,
+            row,
+            0,
+            "Lagrange multiplier"
+            + (
+                " (yearly cost per unit of money in stock)"
+                if cap.kind == BUDGET
+                else " (yearly cost per order)"
+            ),
+        )
+        ctx.w.number(
+            ws, row, 2, cap.multiplier, num_format="0.0000" if cap.kind == BUDGET else ctx.money
+        )
         row += 1
     colour = GOOD if cap.feasible else INK
-    row = ctx.paragraph(ws, row, cap_sentence(cap, ctx.currency), _WIDTH, _CHARS,
-                        font_color=colour)
-    return ctx.paragraph(ws, row, (
-        "How: the cap's Lagrange multiplier is added to every holding rate (a budget) or "
-        "order cost (an orders cap), each item's policy is worked out as usual with it, and "
-        "the multiplier is raised by bisection until the whole-pack policies meet the cap; "
-        "the slack left by whole packs is then spent on the single-item steps that save most. "
-        "The Policy sheet shows the capped policy and, at its right, the order quantity, "
-        "reorder point and cost without the cap."), _WIDTH, _CHARS, italic=True,
-        font_color=MUTED)
+    row = ctx.paragraph(ws, row, cap_sentence(cap, ctx.currency), _WIDTH, _CHARS, font_color=colour)
+    return ctx.paragraph(
+        ws,
+        row,
+        (
+            "How: the cap's Lagrange multiplier is added to every holding rate (a budget) or "
+            "order cost (an orders cap), each item's policy is worked out as usual with it, and "
+            "the multiplier is raised by bisection until the whole-pack policies meet the cap; "
+            "the slack left by whole packs is then spent on the single-item steps that save most. "
+            "The Policy sheet shows the capped policy and, at its right, the order quantity, "
+            "reorder point and cost without the cap."
+        ),
+        _WIDTH,
+        _CHARS,
+        italic=True,
+        font_color=MUTED,
+    )
 
 
 _CURVE_COLUMNS = (
@@ -140,17 +175,28 @@ def _curve_block(ctx: Context, ws: Worksheet, row: int, curve: pd.DataFrame) -> 
     sheet = ctx.names["summary"]
     by_cost = curve["default_target"].isna().all()
     row = ctx.block_title(ws, row, "Exchange curve: safety stock against shortages", _WIDTH)
-    row = ctx.paragraph(ws, row, (
-        "Each row plans every item again with "
-        + ("every shortage cost multiplied by the factor shown"
-           if by_cost else "another service target for the items on the Settings default "
-           "(items with a target of their own move with it: their odds of running short "
-           "are scaled by the same factor)")
-        + ", under each item's own demand model. Read down: more money in safety stock, "
-        "fewer shortages. Today's settings are marked. To choose another point, set its "
-        + ("shortage costs" if by_cost else "service target") + " in Settings and run again. "
-        "Source: Silver, Pyke & Peterson (1998), exchange curves."), _WIDTH, _CHARS,
-        font_color=INK)
+    row = ctx.paragraph(
+        ws,
+        row,
+        (
+            "Each row plans every item again with "
+            + (
+                "every shortage cost multiplied by the factor shown"
+                if by_cost
+                else "another service target for the items on the Settings default "
+                "(items with a target of their own move with it: their odds of running short "
+                "are scaled by the same factor)"
+            )
+            + ", under each item's own demand model. Read down: more money in safety stock, "
+            "fewer shortages. Today's settings are marked. To choose another point, set its "
+            + ("shortage costs" if by_cost else "service target")
+            + " in Settings and run again. "
+            "Source: Silver, Pyke & Peterson (1998), exchange curves."
+        ),
+        _WIDTH,
+        _CHARS,
+        font_color=INK,
+    )
     head = ctx.header_props()
     ws.set_row(row, 45)
     first_title = "Shortage cost multiplier" if by_cost else "Service target (Settings default)"
@@ -168,42 +214,74 @@ def _curve_block(ctx: Context, ws: Worksheet, row: int, curve: pd.DataFrame) -> 
             props["bold"] = True
             today_row = row
         if by_cost:
-            ctx.w.number(ws, row, 0, point["shortage_cost_multiplier"], num_format="0.0#\"x\"",
-                         align="left", **props)
+            ctx.w.number(
+                ws,
+                row,
+                0,
+                point["shortage_cost_multiplier"],
+                num_format='0.0#"x"',
+                align="left",
+                **props,
+            )
         else:
-            ctx.w.number(ws, row, 0, point["default_target"], num_format="0.0%",
-                         align="left", **props)
+            ctx.w.number(
+                ws, row, 0, point["default_target"], num_format="0.0%", align="left", **props
+            )
         for c, (_t, key, kind) in enumerate(_CURVE_COLUMNS, start=1):
             ctx.w.number(ws, row, c, point[key], **ctx.num_props(kind), **props)
-        ctx.w.text(ws, row, len(_CURVE_COLUMNS) + 1, "today's settings" if now else "",
-                   **props)
+        ctx.w.text(ws, row, len(_CURVE_COLUMNS) + 1, "today's settings" if now else "", **props)
         row += 1
     last = row - 1
     chart = ctx.wb.add_chart({"type": "scatter", "subtype": "straight_with_markers"})
-    chart.add_series({
-        "name": "Settings tried",
-        "categories": [sheet, first, 1, last, 1],
-        "values": [sheet, first, 2, last, 2],
-        "line": {"color": SERIES_COLOURS[0], "width": 2},
-        "marker": {"type": "circle", "size": 5,
-                   "fill": {"color": SERIES_COLOURS[0]}, "border": {"none": True}},
-    })
+    chart.add_series(
+        {
+            "name": "Settings tried",
+            "categories": [sheet, first, 1, last, 1],
+            "values": [sheet, first, 2, last, 2],
+            "line": {"color": SERIES_COLOURS[0], "width": 2},
+            "marker": {
+                "type": "circle",
+                "size": 5,
+                "fill": {"color": SERIES_COLOURS[0]},
+                "border": {"none": True},
+            },
+        }
+    )
     if today_row is not None:
-        chart.add_series({
-            "name": "Today's settings",
-            "categories": [sheet, today_row, 1, today_row, 1],
-            "values": [sheet, today_row, 2, today_row, 2],
-            "line": {"none": True},
-            "marker": {"type": "diamond", "size": 11,
-                       "fill": {"color": SERIES_COLOURS[1]}, "border": {"color": INK}},
-        })
-    chart.set_title({"name": "Safety stock investment against units short a year",
-                     "name_font": {"size": 11, "bold": True}})
-    chart.set_x_axis({"name": "Safety stock investment",
-                      "num_format": ctx.money.replace(".00", ""),
-                      "major_gridlines": {"visible": True, "line": {"color": LIGHT_RULE}}})
-    chart.set_y_axis({"name": "Units short a year", "num_format": "#,##0",
-                      "major_gridlines": {"visible": True, "line": {"color": LIGHT_RULE}}})
+        chart.add_series(
+            {
+                "name": "Today's settings",
+                "categories": [sheet, today_row, 1, today_row, 1],
+                "values": [sheet, today_row, 2, today_row, 2],
+                "line": {"none": True},
+                "marker": {
+                    "type": "diamond",
+                    "size": 11,
+                    "fill": {"color": SERIES_COLOURS[1]},
+                    "border": {"color": INK},
+                },
+            }
+        )
+    chart.set_title(
+        {
+            "name": "Safety stock investment against units short a year",
+            "name_font": {"size": 11, "bold": True},
+        }
+    )
+    chart.set_x_axis(
+        {
+            "name": "Safety stock investment",
+            "num_format": ctx.money.replace(".00", ""),
+            "major_gridlines": {"visible": True, "line": {"color": LIGHT_RULE}},
+        }
+    )
+    chart.set_y_axis(
+        {
+            "name": "Units short a year",
+            "num_format": "#,##0",
+            "major_gridlines": {"visible": True, "line": {"color": LIGHT_RULE}},
+        }
+    )
     chart.set_legend({"position": "bottom"})
     chart.set_size({"width": 760, "height": 20 * _CHART_ROWS - 10})
     ws.insert_chart(row + 1, 0, chart, {"x_offset": 2, "y_offset": 4})
@@ -239,9 +317,11 @@ def method_sentences(ctx: Context) -> list[str]:
             "reorder point) that lower the yearly cost most per unit of the cap. Service "
             "targets are kept: the cap changes order quantities, not the chance of running "
             "short in a cycle, except under the shortage-cost measure, where reorder points "
-            "fall too.")
+            "fall too."
+        )
         out.append(
             "Where stock is medicine, food or anything safety-critical, check every item a "
             "cap changed before acting: smaller orders mean more orders to place on time, and "
-            "under the shortage-cost measure lower reorder points mean more shortages.")
+            "under the shortage-cost measure lower reorder points mean more shortages."
+        )
     return out

@@ -59,7 +59,8 @@ def write_reorder(ctx: Context, ws: Worksheet) -> None:
     ws.write_string(0, 0, f"Reorder now, run {run}", ctx.styles.get(bold=True, font_size=14))
     ctx.w.text(ws, 1, 0, f"From {source}" if source else "", font_color=MUTED)
     ws.write_string(
-        2, 0,
+        2,
+        0,
         "Items whose inventory position (on hand + on order - backordered) is at or below "
         "the reorder point. Order the quantity shown; it brings the position back above the "
         "reorder point.",
@@ -97,13 +98,16 @@ def _nothing_to_order(ctx: Context) -> str:
         pos = pd.to_numeric(res["inventory_position"], errors="coerce")
         has_stock = bool(pos.notna().any())
     if not has_stock:
-        return ("Nothing to list: no stock figures were given (On hand, On order, "
-                "Backordered in Items), so the tool cannot tell what to order now.")
+        return (
+            "Nothing to list: no stock figures were given (On hand, On order, "
+            "Backordered in Items), so the tool cannot tell what to order now."
+        )
     return "Nothing to order now: every planned item is above its reorder point."
 
 
-def _groups(ctx: Context, ws: Worksheet, df: pd.DataFrame, cols: Sequence[Col], row: int,
-            widths: list[int]) -> int:
+def _groups(
+    ctx: Context, ws: Worksheet, df: pd.DataFrame, cols: Sequence[Col], row: int, widths: list[int]
+) -> int:
     """Supplier band, its items, its subtotal; then a grand total. Returns the last row."""
     keys = [c.key for c in cols]
     value_col = keys.index("order_now_value")
@@ -135,27 +139,49 @@ def _groups(ctx: Context, ws: Worksheet, df: pd.DataFrame, cols: Sequence[Col], 
                     sub += _order_value(ctx, ws, row, rec, (qty_col, cost_col, c), line)
                 else:
                     ctx.w.number(ws, row, c, v, **ctx.num_props(col.kind), **line)
-                    widths[c] = max(widths[c], display_len([v], col.kind,
-                                                           len(ctx.currency)) + 2)
+                    widths[c] = max(widths[c], display_len([v], col.kind, len(ctx.currency)) + 2)
             row += 1
         letter = xl_col_to_name(value_col)
-        ws.write_string(row, value_col - 1,
-                        f"Total for {clean_text(supplier) or ''}"[:MAX_CELL_TEXT],
-                        ctx.styles.get(bold=True, align="right"))
-        ctx.w.formula(ws, row, value_col, f"=SUM({letter}{first + 1}:{letter}{row})", sub,
-                      bold=True, num_format=ctx.money, top=1, top_color=RULE)
+        ws.write_string(
+            row,
+            value_col - 1,
+            f"Total for {clean_text(supplier) or ''}"[:MAX_CELL_TEXT],
+            ctx.styles.get(bold=True, align="right"),
+        )
+        ctx.w.formula(
+            ws,
+            row,
+            value_col,
+            f"=SUM({letter}{first + 1}:{letter}{row})",
+            sub,
+            bold=True,
+            num_format=ctx.money,
+            top=1,
+            top_color=RULE,
+        )
         grand += sub
         row += 2  # a blank line between suppliers
     last_data = row - 2
     item_letter = xl_col_to_name(item_col)
     letter = xl_col_to_name(value_col)
-    ws.write_string(row, value_col - 1, "Total to order now",
-                    ctx.styles.get(bold=True, align="right", font_size=12))
+    ws.write_string(
+        row,
+        value_col - 1,
+        "Total to order now",
+        ctx.styles.get(bold=True, align="right", font_size=12),
+    )
     ctx.w.formula(
-        ws, row, value_col,
+        ws,
+        row,
+        value_col,
         f'=SUMIF({item_letter}{first_data + 1}:{item_letter}{last_data + 1},"<>",'
         f"{letter}{first_data + 1}:{letter}{last_data + 1})",
-        grand, bold=True, font_size=12, num_format=ctx.money, top=6, top_color=INK,
+        grand,
+        bold=True,
+        font_size=12,
+        num_format=ctx.money,
+        top=6,
+        top_color=INK,
     )
     ctx.reorder_total_cell = (row, value_col)
     ctx.reorder_total_value = grand
@@ -164,8 +190,9 @@ def _groups(ctx: Context, ws: Worksheet, df: pd.DataFrame, cols: Sequence[Col], 
     return row
 
 
-def _order_value(ctx: Context, ws: Worksheet, row: int, rec: dict, cols: tuple[int, int, int],
-                 line: dict) -> float:
+def _order_value(
+    ctx: Context, ws: Worksheet, row: int, rec: dict, cols: tuple[int, int, int], line: dict
+) -> float:
     """Write one line's order value: a live product when it matches. Returns the value."""
     qty_col, cost_col, col = cols
     value = finite(rec.get("order_now_value"))
@@ -183,8 +210,7 @@ def _sign_off(ctx: Context, ws: Worksheet, row: int, last_col: int) -> int:
     """Lines to write who approved the order, when, and the order numbers given."""
     label = ctx.styles.get(bold=True, align="right")
     blank = ctx.styles.get(bottom=1, bottom_color=INK)
-    for text, first, last in (("Approved by", 1, 3), ("Signature", 5, 6),
-                              ("Date", 8, 9)):
+    for text, first, last in (("Approved by", 1, 3), ("Signature", 5, 6), ("Date", 8, 9)):
         ws.write_string(row, first - 1, text, label)
         ws.merge_range(row, first, row, last, "", blank)
     row += 2

@@ -28,8 +28,7 @@ from ..report import Report
 
 #: Every function a generated formula may use: all in OpenFormula (ISO/IEC 26300-2) and
 #: in Excel since 2007, none an array or dynamic-array function.
-ALLOWED_FUNCTIONS = frozenset({"SUM", "SUMIF", "COUNTIF", "COUNTIFS", "IF", "MAX", "MIN",
-                               "SQRT"})
+ALLOWED_FUNCTIONS = frozenset({"SUM", "SUMIF", "COUNTIF", "COUNTIFS", "IF", "MAX", "MIN", "SQRT"})
 
 # Our own restrained palette.
 INK = "#1F2A36"
@@ -124,8 +123,7 @@ def finite(value: Any) -> float | None:
 
 def floats(values: Any) -> np.ndarray:
     """A column as a float array; text, missing, pd.NA and infinities become NaN."""
-    arr = pd.to_numeric(pd.Series(values), errors="coerce").to_numpy(
-        dtype=float, na_value=np.nan)
+    arr = pd.to_numeric(pd.Series(values), errors="coerce").to_numpy(dtype=float, na_value=np.nan)
     arr = arr.astype(float, copy=True)
     arr[~np.isfinite(arr)] = np.nan
     return arr
@@ -150,8 +148,11 @@ def texts(df: pd.DataFrame, key: str) -> list[str]:
     if key not in df.columns:
         return [""] * len(df)
     values = df[key].tolist()
-    if (set(map(type, values)) <= {str} and not _UNCLEAN.search("\n".join(values))
-            and max(map(len, values), default=0) <= MAX_CELL_TEXT):
+    if (
+        set(map(type, values)) <= {str}
+        and not _UNCLEAN.search("\n".join(values))
+        and max(map(len, values), default=0) <= MAX_CELL_TEXT
+    ):
         return values
     return [(clean_text(v) or "") for v in values]
 
@@ -160,8 +161,9 @@ def longest_line(values: list[str]) -> int:
     """The length of the longest line among cleaned texts, for a column's width."""
     if set(map(type, values)) <= {str} and "\n" not in "".join(values):
         return max(map(len, values), default=0)  # one line each: no split needed
-    return max((max(map(len, t.split("\n"))) if "\n" in t else len(t) for t in values if t),
-               default=0)
+    return max(
+        (max(map(len, t.split("\n"))) if "\n" in t else len(t) for t in values if t), default=0
+    )
 
 
 def same(a: float | None, b: float | None, rel: float = 1e-9, abs_tol: float = 1e-9) -> bool:
@@ -239,9 +241,12 @@ def header_width(title: str) -> int:
 
 def display_len(values: Any, kind: str, currency_len: int) -> int:
     """Roughly how many characters the widest formatted value takes."""
-    if isinstance(values, list) and len(values) == 1 and isinstance(
-            values[0], (int, float, np.integer, np.floating)) and not isinstance(
-            values[0], (bool, np.bool_)):
+    if (
+        isinstance(values, list)
+        and len(values) == 1
+        and isinstance(values[0], (int, float, np.integer, np.floating))
+        and not isinstance(values[0], (bool, np.bool_))
+    ):
         # One plain number (a cell at a time, the common case): no arrays at all.
         x = float(values[0])
         if not math.isfinite(x):
@@ -276,12 +281,42 @@ class Col:
 
 
 #: Functions xlsxwriter stores as written (no _xlfn. prefix, no dynamic-array handling).
-_CLASSIC_FUNCTIONS = frozenset({
-    "ABS", "AND", "AVERAGE", "CEILING", "COUNT", "COUNTA", "COUNTIF", "FLOOR", "HYPERLINK",
-    "IF", "IFERROR", "INDEX", "INT", "ISBLANK", "ISNUMBER", "LEN", "MATCH", "MAX", "MIN",
-    "MOD", "NOT", "OR", "ROUND", "ROUNDDOWN", "ROUNDUP", "SQRT", "SUM", "SUMIF", "SUMIFS",
-    "SUMPRODUCT", "TEXT", "VLOOKUP",
-})
+_CLASSIC_FUNCTIONS = frozenset(
+    {
+        "ABS",
+        "AND",
+        "AVERAGE",
+        "CEILING",
+        "COUNT",
+        "COUNTA",
+        "COUNTIF",
+        "FLOOR",
+        "HYPERLINK",
+        "IF",
+        "IFERROR",
+        "INDEX",
+        "INT",
+        "ISBLANK",
+        "ISNUMBER",
+        "LEN",
+        "MATCH",
+        "MAX",
+        "MIN",
+        "MOD",
+        "NOT",
+        "OR",
+        "ROUND",
+        "ROUNDDOWN",
+        "ROUNDUP",
+        "SQRT",
+        "SUM",
+        "SUMIF",
+        "SUMIFS",
+        "SUMPRODUCT",
+        "TEXT",
+        "VLOOKUP",
+    }
+)
 _FUNCTION_NAME = re.compile(r"([A-Za-z_][\w.]*)\(")
 try:  # xlsxwriter's own cell record; without it every formula goes the public way
     from xlsxwriter.worksheet import CellFormulaTuple as _CellFormula
@@ -289,8 +324,9 @@ except ImportError:  # pragma: no cover - other xlsxwriter versions
     _CellFormula = None
 
 
-def write_formula(ws: Worksheet, row: int, col: int, formula: str, fmt: Format | None,
-                  value: Any) -> None:
+def write_formula(
+    ws: Worksheet, row: int, col: int, formula: str, fmt: Format | None, value: Any
+) -> None:
     """``ws.write_formula``, minus its cost where it would store the formula unchanged.
 
     xlsxwriter runs some thirty regular-expression substitutions on every formula (for
@@ -300,9 +336,14 @@ def write_formula(ws: Worksheet, row: int, col: int, formula: str, fmt: Format |
     would store it; anything else goes through write_formula.
     """
     body = formula[1:] if formula.startswith("=") else formula
-    if (_CellFormula is None or getattr(ws, "use_future_functions", True) or not body
-            or body[0] == "{" or body[-1] == "}"
-            or not all(f.upper() in _CLASSIC_FUNCTIONS for f in _FUNCTION_NAME.findall(body))):
+    if (
+        _CellFormula is None
+        or getattr(ws, "use_future_functions", True)
+        or not body
+        or body[0] == "{"
+        or body[-1] == "}"
+        or not all(f.upper() in _CLASSIC_FUNCTIONS for f in _FUNCTION_NAME.findall(body))
+    ):
         ws.write_formula(row, col, formula, fmt, value)
         return
     if ws._check_dimensions(row, col):
@@ -365,12 +406,11 @@ class Writer:
         else:
             ws.write_number(row, col, f, fmt)
 
-    def formula(self, ws: Worksheet, row: int, col: int, formula: str, value: float,
-                **props: Any) -> None:
+    def formula(
+        self, ws: Worksheet, row: int, col: int, formula: str, value: float, **props: Any
+    ) -> None:
         """Write one of our formulas with its computed value as the cached result."""
         write_formula(ws, row, col, formula, self.styles.get(**props), value)
-
-
 
     def any(self, ws: Worksheet, row: int, col: int, value: Any, **props: Any) -> None:
         """Write a value of unknown kind: date, number or text."""
@@ -430,11 +470,9 @@ class Context:
         self.currency = _currency(settings.get("currency"))
         self.money = money_format(self.currency)
         results = self.report.results
-        self.results = (results if results is not None else pd.DataFrame()).reset_index(
-            drop=True)
+        self.results = (results if results is not None else pd.DataFrame()).reset_index(drop=True)
         reorder = self.report.reorder
-        self.reorder = (reorder if reorder is not None else pd.DataFrame()).reset_index(
-            drop=True)
+        self.reorder = (reorder if reorder is not None else pd.DataFrame()).reset_index(drop=True)
 
     def header_props(self) -> dict[str, Any]:
         return {
@@ -458,15 +496,21 @@ class Context:
 
     def block_title(self, ws: Worksheet, row: int, title: str, width: int = 4) -> int:
         """A section heading ruled across ``width`` columns; returns the next row."""
-        props = {"bold": True, "font_size": 12, "font_color": INK, "bottom": 1,
-                 "bottom_color": RULE}
+        props = {
+            "bold": True,
+            "font_size": 12,
+            "font_color": INK,
+            "bottom": 1,
+            "bottom_color": RULE,
+        }
         for c in range(width):
             ws.write_blank(row, c, None, self.styles.get(**props))
         ws.write_string(row, 0, title, self.styles.get(**props))
         return row + 1
 
-    def paragraph(self, ws: Worksheet, row: int, text: str, width: int, chars: int,
-                  **props: Any) -> int:
+    def paragraph(
+        self, ws: Worksheet, row: int, text: str, width: int, chars: int, **props: Any
+    ) -> int:
         """A wrapped sentence merged across ``width`` columns, sized to ``chars`` per line."""
         fmt = self.styles.get(text_wrap=True, valign="top", **props)
         if width > 1:
@@ -476,8 +520,16 @@ class Context:
         ws.set_row(row, 15 * lines + 3)
         return row + 1
 
-    def print_setup(self, ws: Worksheet, title: str, header_row: int, last_row: int,
-                    last_col: int, landscape: bool = True, fit_width: bool = True) -> None:
+    def print_setup(
+        self,
+        ws: Worksheet,
+        title: str,
+        header_row: int,
+        last_row: int,
+        last_col: int,
+        landscape: bool = True,
+        fit_width: bool = True,
+    ) -> None:
         """Landscape, one page wide, header rows repeated, run date and page numbers.
 
         fit_width=False prints at full size across several pages (for sheets too wide to
@@ -496,5 +548,5 @@ class Context:
         run = self.run_text()
         source = (clean_text(self.report.source_name) or "").replace("&", "&&")
         source = source.replace("\n", " ")[:80]
-        ws.set_header(f"&L{source}&C&\"-,Bold\"{title.replace('&', '&&')}&RRun {run}")
+        ws.set_header(f'&L{source}&C&"-,Bold"{title.replace("&", "&&")}&RRun {run}')
         ws.set_footer(f"&LRun {run}&RPage &P of &N")

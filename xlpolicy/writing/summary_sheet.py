@@ -70,8 +70,11 @@ TOTAL_LABELS: tuple[tuple[str, str, str], ...] = (
     ("reorder_value", "Value to reorder now", "money"),
     ("items_compared", "Items compared with today's policy", "count"),
     ("current_annual_total_cost", "Today's policy: annual cost of those items", "money"),
-    ("compared_recommended_annual_total_cost", "Recommended policy: annual cost of those items",
-     "money"),
+    (
+        "compared_recommended_annual_total_cost",
+        "Recommended policy: annual cost of those items",
+        "money",
+    ),
     ("annual_saving", "Annual saving from the change", "money"),
     ("items_simulated", "Items back-tested in simulation", "count"),
     ("items_with_target_simulated", "Of those, with a service target", "count"),
@@ -101,8 +104,7 @@ BREAKDOWN: tuple[tuple[str, str, tuple[str, ...]], ...] = (
     ("Share of purchase cost", "percent", ()),
     ("Average inventory value", "money", ("average_inventory_value",)),
     ("Annual ordering cost", "money", ("annual_ordering_cost",)),
-    ("Annual holding cost", "money", ("annual_cycle_holding_cost",
-                                       "annual_safety_holding_cost")),
+    ("Annual holding cost", "money", ("annual_cycle_holding_cost", "annual_safety_holding_cost")),
     ("Annual shortage cost", "money", ("annual_shortage_cost",)),
     ("Annual total cost", "money", ("annual_total_cost",)),
 )
@@ -143,10 +145,19 @@ def write_summary(ctx: Context, ws: Worksheet) -> None:
     row = _top_items(ctx, ws, row + 1)
     row = write_portfolio(ctx, ws, row + 1)
     row = _read(ctx, ws, row + 1)
-    row = ctx.paragraph(ws, row + 1, (
-        f"How these numbers are made, the settings used and the cautions (including those "
-        f"for medicine, food and safety-critical stock): see the '{ctx.names['method']}' "
-        "sheet."), _WIDTH, _CHARS, italic=True, font_color=MUTED)
+    row = ctx.paragraph(
+        ws,
+        row + 1,
+        (
+            f"How these numbers are made, the settings used and the cautions (including those "
+            f"for medicine, food and safety-critical stock): see the '{ctx.names['method']}' "
+            "sheet."
+        ),
+        _WIDTH,
+        _CHARS,
+        italic=True,
+        font_color=MUTED,
+    )
     _charts(ctx, ws, glance, cat, abc)
     ws.hide_gridlines(2)
     ctx.print_setup(ws, ctx.names["summary"], -1, row, _WIDTH - 1)
@@ -165,21 +176,28 @@ def headlines(ctx: Context) -> list[tuple[str, str]]:
     if planned is not None:
         warn = int(finite(t.get("items_warning")) or 0)
         skipped = int(finite(t.get("items_skipped")) or 0)
-        out.append((f"{int(planned)} item{'s' if planned != 1 else ''} planned; {warn} with a "
-                    f"warning to read, {skipped} skipped (see '{ctx.names['warnings']}').",
-                    INK))
+        out.append(
+            (
+                f"{int(planned)} item{'s' if planned != 1 else ''} planned; {warn} with a "
+                f"warning to read, {skipped} skipped (see '{ctx.names['warnings']}').",
+                INK,
+            )
+        )
     n_order = finite(t.get("items_to_reorder"))
     value = finite(t.get("reorder_value")) or 0.0
     if n_order:
-        out.append((f"{int(n_order)} item{'s' if n_order != 1 else ''} to order now, worth "
-                    f"about {money_text(value, ctx.currency)} (see '{ctx.names['reorder']}').",
-                    INK))
+        out.append(
+            (
+                f"{int(n_order)} item{'s' if n_order != 1 else ''} to order now, worth "
+                f"about {money_text(value, ctx.currency)} (see '{ctx.names['reorder']}').",
+                INK,
+            )
+        )
     elif n_order is not None:
         out.append((f"Nothing to order now (see '{ctx.names['reorder']}').", INK))
     if ctx.compare_headline:
         colour = GOOD if (finite(t.get("annual_saving")) or 0) >= 0 else INK
-        out.append((ctx.compare_headline.rstrip(".") + f" (see '{ctx.names['compare']}').",
-                    colour))
+        out.append((ctx.compare_headline.rstrip(".") + f" (see '{ctx.names['compare']}').", colour))
     cap = cap_headline(ctx)
     if cap:
         out.append((cap, INK))
@@ -187,15 +205,25 @@ def headlines(ctx: Context) -> list[tuple[str, str]]:
     if simulated:
         meets = int(finite(t.get("items_meeting_target_in_simulation")) or 0)
         short = int(finite(t.get("items_short_in_simulation")) or 0)
-        out.append((f"Back-test: in simulation on their own demand, {meets} of "
-                    f"{int(simulated)} item{'s' if simulated != 1 else ''} meet their service "
-                    f"target; {short} fall short of what their model promises (see "
-                    f"'{ctx.names['warnings']}').", INK if short else GOOD))
+        out.append(
+            (
+                f"Back-test: in simulation on their own demand, {meets} of "
+                f"{int(simulated)} item{'s' if simulated != 1 else ''} meet their service "
+                f"target; {short} fall short of what their model promises (see "
+                f"'{ctx.names['warnings']}').",
+                INK if short else GOOD,
+            )
+        )
     avg = finite(t.get("average_inventory_value"))
     turns = finite(t.get("inventory_turns"))
     if avg is not None and turns is not None:
-        out.append((f"Stock held on average is worth about {money_text(avg, ctx.currency)} and "
-                    f"turns over {turns:.1f} times a year.", INK))
+        out.append(
+            (
+                f"Stock held on average is worth about {money_text(avg, ctx.currency)} and "
+                f"turns over {turns:.1f} times a year.",
+                INK,
+            )
+        )
     return out
 
 
@@ -224,10 +252,15 @@ def _total_formula(ctx: Context, key: str) -> tuple[str, float] | None:
     if key == "reorder_value":
         if ctx.reorder_total_cell is None:
             return None
-        return (f"={abs_cell(ctx.names['reorder'], *ctx.reorder_total_cell)}",
-                ctx.reorder_total_value or 0.0)
-    compare = {"current_annual_total_cost": "cur",
-               "compared_recommended_annual_total_cost": "rec", "annual_saving": "sav"}
+        return (
+            f"={abs_cell(ctx.names['reorder'], *ctx.reorder_total_cell)}",
+            ctx.reorder_total_value or 0.0,
+        )
+    compare = {
+        "current_annual_total_cost": "cur",
+        "compared_recommended_annual_total_cost": "rec",
+        "annual_saving": "sav",
+    }
     if key in compare:
         cell = ctx.compare_totals.get(compare[key])
         if cell is None:
@@ -284,8 +317,9 @@ def _totals(ctx: Context, ws: Worksheet, row: int) -> int:
     return row
 
 
-def _turns_formula(where: dict[str, tuple[int, bool]], value: float | None
-                   ) -> tuple[str, float] | None:
+def _turns_formula(
+    where: dict[str, tuple[int, bool]], value: float | None
+) -> tuple[str, float] | None:
     """Turns = purchase cost / average inventory value, over the two cells above."""
     p, a = where.get("annual_purchase_cost"), where.get("average_inventory_value")
     if p is None or a is None or value is None:
@@ -302,8 +336,11 @@ def _status(ctx: Context, ws: Worksheet, row: int) -> int:
     ws.write_string(row, 2, "What it means", sub)
     row += 1
     rng = _policy_range(ctx, "status")
-    status = (ctx.results["status"].astype(str) if "status" in ctx.results.columns
-              else pd.Series([], dtype=str))
+    status = (
+        ctx.results["status"].astype(str)
+        if "status" in ctx.results.columns
+        else pd.Series([], dtype=str)
+    )
     meaning = {
         contract.STATUS_OK: "planned, nothing to check",
         contract.STATUS_WARNING: f"planned; read its lines in '{ctx.names['warnings']}' first",
@@ -321,11 +358,15 @@ def _status(ctx: Context, ws: Worksheet, row: int) -> int:
     counts = {s: 0 for s in Severity}
     for p in ctx.report.problems or []:
         counts[severity(p)] += 1
-    parts = [f"{counts[s]} {SEVERITY_WORDS[s].split()[0].lower()}"
-             f"{'' if counts[s] == 1 else 's'}" for s in Severity if counts[s]]
+    parts = [
+        f"{counts[s]} {SEVERITY_WORDS[s].split()[0].lower()}{'' if counts[s] == 1 else 's'}"
+        for s in Severity
+        if counts[s]
+    ]
     ctx.w.text(ws, row, 0, "Problems found")
-    ctx.w.text(ws, row, 1, ("; ".join(parts) + f" (see '{ctx.names['warnings']}')")
-               if parts else "none")
+    ctx.w.text(
+        ws, row, 1, ("; ".join(parts) + f" (see '{ctx.names['warnings']}')") if parts else "none"
+    )
     return row + 1
 
 
@@ -359,8 +400,9 @@ def _safe_criteria(names: list[str]) -> set[str]:
     return out
 
 
-def _breakdown(ctx: Context, ws: Worksheet, row: int, title: str, key: str,
-               abc: bool = False) -> Table | None:
+def _breakdown(
+    ctx: Context, ws: Worksheet, row: int, title: str, key: str, abc: bool = False
+) -> Table | None:
     df = ctx.results
     if key not in df.columns or not len(df):
         return None
@@ -381,8 +423,7 @@ def _breakdown(ctx: Context, ws: Worksheet, row: int, title: str, key: str,
     if not abc:
         names.sort(key=lambda n: (-sums[n]["Annual total cost"], n))
     if not names:
-        ctx.w.text(ws, row, 0, "No planned item has a value here.", italic=True,
-                   font_color=MUTED)
+        ctx.w.text(ws, row, 0, "No planned item has a value here.", italic=True, font_color=MUTED)
         return Table(row, row - 1, title)
     safe = _safe_criteria([n for n in names if n])
     grp_rng = _policy_range(ctx, key)
@@ -401,19 +442,24 @@ def _breakdown(ctx: Context, ws: Worksheet, row: int, title: str, key: str,
                 total = sum(s["Annual purchase cost"] for s in sums.values())
                 value = sums[n]["Annual purchase cost"] / total if total > 0 else float("nan")
                 if total > 0:
-                    formula = (f"={xl_rowcol_to_cell(row, 2)}/"
-                               f"{xl_rowcol_to_cell(total_row, 2, row_abs=True)}")
+                    formula = (
+                        f"={xl_rowcol_to_cell(row, 2)}/"
+                        f"{xl_rowcol_to_cell(total_row, 2, row_abs=True)}"
+                    )
                     ctx.w.formula(ws, row, c, formula, value, **props)
                 else:
                     ctx.w.number(ws, row, c, value, **props)
                 continue
             formula = None
             if live and kind == "count":
-                formula = (f'=COUNTIF({grp_rng},{crit})-COUNTIFS({grp_rng},{crit},'
-                           f'{status_rng},"{contract.STATUS_SKIPPED}")')
+                formula = (
+                    f"=COUNTIF({grp_rng},{crit})-COUNTIFS({grp_rng},{crit},"
+                    f'{status_rng},"{contract.STATUS_SKIPPED}")'
+                )
             elif live and all(k in ctx.policy_cols for k in keys):
-                formula = "=" + "+".join(f"SUMIF({grp_rng},{crit},{_policy_range(ctx, k)})"
-                                         for k in keys)
+                formula = "=" + "+".join(
+                    f"SUMIF({grp_rng},{crit},{_policy_range(ctx, k)})" for k in keys
+                )
             if formula is not None:
                 ctx.w.formula(ws, row, c, formula, value, **props)
             else:
@@ -429,8 +475,7 @@ def _breakdown(ctx: Context, ws: Worksheet, row: int, title: str, key: str,
             value = 1.0 if purchase > 0 else float("nan")
         props = {**ctx.num_props(kind), **top}
         if np.isfinite(value):
-            ctx.w.formula(ws, row, c, f"=SUM({letter}{first + 1}:{letter}{row})", value,
-                          **props)
+            ctx.w.formula(ws, row, c, f"=SUM({letter}{first + 1}:{letter}{row})", value, **props)
         else:
             ctx.w.number(ws, row, c, value, **props)
     return Table(first, row - 1, title)
@@ -451,9 +496,12 @@ def _group_sums(df: pd.DataFrame, mask: np.ndarray) -> dict[str, float]:
 # ---------------------------------------------------------------------------
 
 _TOP_COLUMNS = (
-    ("Item", "item", "code"), ("Description", "description", "text"),
-    ("Category", "category", "text"), ("Supplier", "supplier", "text"),
-    ("ABC class", "abc_class", "text"), ("Annual total cost", "annual_total_cost", "money"),
+    ("Item", "item", "code"),
+    ("Description", "description", "text"),
+    ("Category", "category", "text"),
+    ("Supplier", "supplier", "text"),
+    ("ABC class", "abc_class", "text"),
+    ("Annual total cost", "annual_total_cost", "money"),
     ("Annual purchase cost", "annual_purchase_cost", "money"),
     ("Average inventory value", "average_inventory_value", "money"),
 )
@@ -469,8 +517,12 @@ def top_items(ctx: Context, k: int = _TOP) -> np.ndarray:
 
 def _top_items(ctx: Context, ws: Worksheet, row: int) -> int:
     idx = top_items(ctx)
-    row = ctx.block_title(ws, row, f"The {len(idx) or _TOP} items that cost most a year "
-                          "(ordering, holding and shortage)", _WIDTH)
+    row = ctx.block_title(
+        ws,
+        row,
+        f"The {len(idx) or _TOP} items that cost most a year (ordering, holding and shortage)",
+        _WIDTH,
+    )
     if not len(idx):
         ctx.w.text(ws, row, 0, "No planned items.", italic=True, font_color=MUTED)
         return row + 1
@@ -491,8 +543,9 @@ def _top_items(ctx: Context, ws: Worksheet, row: int) -> int:
             props = {**ctx.num_props(kind), **line}
             pc, pr = ctx.policy_cols.get(key), ctx.policy_row_of.get(int(i))
             if np.isfinite(value) and pc is not None and pr is not None:
-                ctx.w.formula(ws, row, c, "=" + abs_cell(ctx.names["policy"], pr, pc), value,
-                              **props)
+                ctx.w.formula(
+                    ws, row, c, "=" + abs_cell(ctx.names["policy"], pr, pc), value, **props
+                )
             else:
                 ctx.w.number(ws, row, c, value, **props)
         row += 1
@@ -503,9 +556,13 @@ def _read(ctx: Context, ws: Worksheet, row: int) -> int:
     info = dict(ctx.report.input_summary or {})
     row = ctx.block_title(ws, row, "What was read", _WIDTH)
     labels = {
-        "file": "File", "items_read": "Items read", "items_planned": "Items planned",
-        "items_skipped": "Items skipped", "history_layout": "History layout",
-        "periods": "History periods", "first_period": "First period",
+        "file": "File",
+        "items_read": "Items read",
+        "items_planned": "Items planned",
+        "items_skipped": "Items skipped",
+        "history_layout": "History layout",
+        "periods": "History periods",
+        "first_period": "First period",
         "last_period": "Last period",
     }
     if "file" not in info and ctx.report.source_name:
@@ -530,8 +587,7 @@ def _read(ctx: Context, ws: Worksheet, row: int) -> int:
 # ---------------------------------------------------------------------------
 
 
-def _charts(ctx: Context, ws: Worksheet, row: int, cat: Table | None,
-            abc: Table | None) -> None:
+def _charts(ctx: Context, ws: Worksheet, row: int, cat: Table | None, abc: Table | None) -> None:
     """Annual cost by category (stacked bars) and inventory investment by ABC class."""
     ctx.block_title(ws, row, "At a glance", _WIDTH)
     sheet = ctx.names["summary"]
@@ -539,26 +595,38 @@ def _charts(ctx: Context, ws: Worksheet, row: int, cat: Table | None,
     if cat is not None and cat.last >= cat.first:
         last = min(cat.last, cat.first + _CHART_GROUPS - 1)
         chart = ctx.wb.add_chart({"type": "bar", "subtype": "stacked"})
-        series = ((5, "Annual ordering cost"), (6, "Annual holding cost"),
-                  (7, "Annual shortage cost"))
+        series = (
+            (5, "Annual ordering cost"),
+            (6, "Annual holding cost"),
+            (7, "Annual shortage cost"),
+        )
         shortage = column(ctx.results, "annual_shortage_cost")
         for k, (col, name) in enumerate(series):
             if name == "Annual shortage cost" and not np.nansum(np.abs(shortage)) > 0:
                 continue
-            chart.add_series({
-                "name": name,
-                "categories": [sheet, cat.first, 0, last, 0],
-                "values": [sheet, cat.first, col, last, col],
-                "fill": {"color": SERIES_COLOURS[k]},
-                "gap": 60,
-            })
+            chart.add_series(
+                {
+                    "name": name,
+                    "categories": [sheet, cat.first, 0, last, 0],
+                    "values": [sheet, cat.first, col, last, col],
+                    "fill": {"color": SERIES_COLOURS[k]},
+                    "gap": 60,
+                }
+            )
         more = cat.last - last
-        chart.set_title({"name": "Annual cost by category" + (
-            f" ({_CHART_GROUPS} largest)" if more > 0 else ""),
-            "name_font": {"size": 11, "bold": True}})
-        chart.set_x_axis({"num_format": ctx.money.replace(".00", ""),
-                          "major_gridlines": {"visible": True,
-                                              "line": {"color": LIGHT_RULE}}})
+        chart.set_title(
+            {
+                "name": "Annual cost by category"
+                + (f" ({_CHART_GROUPS} largest)" if more > 0 else ""),
+                "name_font": {"size": 11, "bold": True},
+            }
+        )
+        chart.set_x_axis(
+            {
+                "num_format": ctx.money.replace(".00", ""),
+                "major_gridlines": {"visible": True, "line": {"color": LIGHT_RULE}},
+            }
+        )
         chart.set_y_axis({"reverse": True})
         chart.set_legend({"position": "bottom"})
         chart.set_size({"width": 540, "height": 20 * _CHART_ROWS - 10})
@@ -566,19 +634,28 @@ def _charts(ctx: Context, ws: Worksheet, row: int, cat: Table | None,
         placed += 1
     if abc is not None and abc.last >= abc.first:
         chart = ctx.wb.add_chart({"type": "column"})
-        chart.add_series({
-            "name": "Average inventory value",
-            "categories": [sheet, abc.first, 0, abc.last, 0],
-            "values": [sheet, abc.first, 4, abc.last, 4],
-            "fill": {"color": SERIES_COLOURS[0]},
-            "data_labels": {"value": True, "num_format": ctx.money.replace(".00", "")},
-            "gap": 80,
-        })
-        chart.set_title({"name": "Average inventory investment by ABC class",
-                         "name_font": {"size": 11, "bold": True}})
-        chart.set_y_axis({"num_format": ctx.money.replace(".00", ""),
-                          "major_gridlines": {"visible": True,
-                                              "line": {"color": LIGHT_RULE}}})
+        chart.add_series(
+            {
+                "name": "Average inventory value",
+                "categories": [sheet, abc.first, 0, abc.last, 0],
+                "values": [sheet, abc.first, 4, abc.last, 4],
+                "fill": {"color": SERIES_COLOURS[0]},
+                "data_labels": {"value": True, "num_format": ctx.money.replace(".00", "")},
+                "gap": 80,
+            }
+        )
+        chart.set_title(
+            {
+                "name": "Average inventory investment by ABC class",
+                "name_font": {"size": 11, "bold": True},
+            }
+        )
+        chart.set_y_axis(
+            {
+                "num_format": ctx.money.replace(".00", ""),
+                "major_gridlines": {"visible": True, "line": {"color": LIGHT_RULE}},
+            }
+        )
         chart.set_legend({"none": True})
         chart.set_size({"width": 500, "height": 20 * _CHART_ROWS - 10})
         ws.insert_chart(row + 1, 0, chart, {"x_offset": 560 if placed else 2, "y_offset": 4})

@@ -125,17 +125,27 @@ def portfolio_for_export(report: Report) -> dict[str, Any]:
     out: dict[str, Any] = {}
     curve = port.get("exchange_curve")
     if curve is not None:
-        out["exchange_curve"] = [{k: plain(v) for k, v in rec.items()}
-                                 for rec in curve.to_dict("records")]
+        out["exchange_curve"] = [
+            {k: plain(v) for k, v in rec.items()} for rec in curve.to_dict("records")
+        ]
     cap = port.get("cap")
     if cap is not None:
-        out["cap"] = plain({
-            "kind": cap.kind, "cap": cap.cap, "binding": cap.binding, "feasible": cap.feasible,
-            "multiplier": cap.multiplier, "usage": cap.usage,
-            "uncapped_usage": cap.uncapped_usage, "annual_total_cost": cap.cost,
-            "uncapped_annual_total_cost": cap.uncapped_cost, "cost_of_cap": cap.cost_of_cap,
-            "items_changed": int(cap.changed.sum()), "least_usage": cap.least,
-        })
+        out["cap"] = plain(
+            {
+                "kind": cap.kind,
+                "cap": cap.cap,
+                "binding": cap.binding,
+                "feasible": cap.feasible,
+                "multiplier": cap.multiplier,
+                "usage": cap.usage,
+                "uncapped_usage": cap.uncapped_usage,
+                "annual_total_cost": cap.cost,
+                "uncapped_annual_total_cost": cap.uncapped_cost,
+                "cost_of_cap": cap.cost_of_cap,
+                "items_changed": int(cap.changed.sum()),
+                "least_usage": cap.least,
+            }
+        )
     return out
 
 

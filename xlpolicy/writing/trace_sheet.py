@@ -25,13 +25,17 @@ def write_trace(ctx: Context, ws: Worksheet) -> None:
     items: list[dict[str, Any]] = list(trace.get("items") or [])
     ws.set_column(0, 0, 12)
     ws.set_column(1, 5, 11)
-    ctx.w.text(ws, 0, 0, "Stock trace: the policy run on past demand", bold=True,
-               font_size=15)
-    ctx.w.text(ws, 1, 0, "Simulated stock at the end of each period, for the items whose "
-               "simulated service falls furthest below what their model promises. Demand "
-               f"that found no stock was {trace.get('unmet', 'backordered')}; net stock is on "
-               "hand less what customers wait for, so below 0 they are waiting.",
-               font_color=MUTED)
+    ctx.w.text(ws, 0, 0, "Stock trace: the policy run on past demand", bold=True, font_size=15)
+    ctx.w.text(
+        ws,
+        1,
+        0,
+        "Simulated stock at the end of each period, for the items whose "
+        "simulated service falls furthest below what their model promises. Demand "
+        f"that found no stock was {trace.get('unmet', 'backordered')}; net stock is on "
+        "hand less what customers wait for, so below 0 they are waiting.",
+        font_color=MUTED,
+    )
     row = 3
     head = ctx.header_props()
     name = ctx.names["trace"]
@@ -40,7 +44,8 @@ def write_trace(ctx: Context, ws: Worksheet) -> None:
         desc = it.get("description")
         label = (f"{desc}; " if isinstance(desc, str) and desc else "") + (
             f"order quantity {it['order_qty']:g}, reorder point {it['reorder_point']:g}; "
-            f"demand from {it['source']}")
+            f"demand from {it['source']}"
+        )
         ctx.w.text(ws, row + 1, 0, label, font_color=MUTED)
         top = row + 2
         for c, title in enumerate(_COLUMNS):
@@ -59,19 +64,30 @@ def write_trace(ctx: Context, ws: Worksheet) -> None:
         if n:
             last = top + n
             chart = ctx.wb.add_chart({"type": "line"})
-            for k, (c, title) in enumerate(((2, "Net stock"), (3, "Stock position"),
-                                            (5, "Reorder point"))):
-                chart.add_series({
-                    "name": title,
-                    "categories": [name, top + 1, 0, last, 0],
-                    "values": [name, top + 1, c, last, c],
-                    "line": {"color": SERIES_COLOURS[k], "width": 1.5,
-                             "dash_type": "dash" if c == 5 else "solid"},
-                })
-            chart.set_title({"name": f"{it['item']}: simulated stock",
-                             "name_font": {"size": 11, "bold": True}})
-            chart.set_y_axis({"name": "units", "major_gridlines": {
-                "visible": True, "line": {"color": LIGHT_RULE}}})
+            for k, (c, title) in enumerate(
+                ((2, "Net stock"), (3, "Stock position"), (5, "Reorder point"))
+            ):
+                chart.add_series(
+                    {
+                        "name": title,
+                        "categories": [name, top + 1, 0, last, 0],
+                        "values": [name, top + 1, c, last, c],
+                        "line": {
+                            "color": SERIES_COLOURS[k],
+                            "width": 1.5,
+                            "dash_type": "dash" if c == 5 else "solid",
+                        },
+                    }
+                )
+            chart.set_title(
+                {"name": f"{it['item']}: simulated stock", "name_font": {"size": 11, "bold": True}}
+            )
+            chart.set_y_axis(
+                {
+                    "name": "units",
+                    "major_gridlines": {"visible": True, "line": {"color": LIGHT_RULE}},
+                }
+            )
             chart.set_x_axis({"num_font": {"rotation": -45}, "interval_unit": max(1, n // 12)})
             chart.set_legend({"position": "bottom"})
             chart.set_size({"width": 620, "height": 20 * _CHART_ROWS})

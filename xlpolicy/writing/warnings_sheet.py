@@ -44,15 +44,21 @@ def link_target(sheet: str, cell: str) -> str | None:
 
 def write_warnings(ctx: Context, ws: Worksheet) -> None:
     """One row per problem, most severe first (stable within a severity)."""
-    problems: list[Problem] = sorted(ctx.report.problems or [],
-                                     key=lambda p: severity(p).rank)
+    problems: list[Problem] = sorted(ctx.report.problems or [], key=lambda p: severity(p).rank)
     cut = len(problems) - MAX_PROBLEM_ROWS
     if cut > 0:  # a sheet holds 1,048,576 rows: keep the most severe, say how many are left
-        problems = problems[:MAX_PROBLEM_ROWS - 1] + [Problem(
-            Severity.INFO, "", "", "", None,
-            f"... and {cut + 1:,} more problems, not listed: a sheet cannot hold them all. "
-            "Run 'xlpolicy check' or 'xlpolicy plan --json FILE' to see every one.",
-            "warnings-cut")]
+        problems = problems[: MAX_PROBLEM_ROWS - 1] + [
+            Problem(
+                Severity.INFO,
+                "",
+                "",
+                "",
+                None,
+                f"... and {cut + 1:,} more problems, not listed: a sheet cannot hold them all. "
+                "Run 'xlpolicy check' or 'xlpolicy plan --json FILE' to see every one.",
+                "warnings-cut",
+            )
+        ]
     if not problems:
         ws.write_string(0, 0, "No problems found.", ctx.styles.get(bold=True))
         ws.set_column(0, 0, 24)
@@ -66,18 +72,30 @@ def write_warnings(ctx: Context, ws: Worksheet) -> None:
     links = 0
     for r, p in enumerate(problems, start=1):
         sev = severity(p)
-        tint = {"bg_color": SEVERITY_FILL[sev], "valign": "top", "bottom": 1,
-                "bottom_color": "#FFFFFF"}
+        tint = {
+            "bg_color": SEVERITY_FILL[sev],
+            "valign": "top",
+            "bottom": 1,
+            "bottom_color": "#FFFFFF",
+        }
         for c, v in enumerate((SEVERITY_WORDS[sev], p.sheet, p.cell, p.item)):
             n = ctx.w.text(ws, r, c, v, **tint)
             widths[c] = max(widths[c], n + 2)
         target = link_target(p.sheet, p.cell) if ctx.link_to_input else None
-        if (target is not None and links < _MAX_LINKS
-                and (clean_text(p.sheet) or "").lower() not in generated):
+        if (
+            target is not None
+            and links < _MAX_LINKS
+            and (clean_text(p.sheet) or "").lower() not in generated
+        ):
             shown = clean_text(p.cell) or ""
-            ws.write_url(r, 2, target, ctx.styles.get(**tint, font_color="#1F4E8C",
-                                                      underline=1),
-                         string=shown, tip=f"Go to {clean_text(p.sheet)}!{shown}")
+            ws.write_url(
+                r,
+                2,
+                target,
+                ctx.styles.get(**tint, font_color="#1F4E8C", underline=1),
+                string=shown,
+                tip=f"Go to {clean_text(p.sheet)}!{shown}",
+            )
             links += 1
         ctx.w.any(ws, r, 4, p.value, **tint)
         widths[4] = max(widths[4], len(clean_text(p.value) or "") + 2)
