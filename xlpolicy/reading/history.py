@@ -520,8 +520,8 @@ def _wide_items(
                 (
                     pos,
                     dict(
-                        message=f"History has item {code!r}, which is not in the Items sheet; its row "
-                        "was ignored. Add the item to Items or correct the code.",
+                        message=f"History has item {code!r}, which is not in the Items sheet; "
+                        "its row was ignored. Add the item to Items or correct the code.",
                         sheet=sheet,
                         cell=ref,
                         item=code,
@@ -536,8 +536,9 @@ def _wide_items(
                 (
                     pos,
                     dict(
-                        message=f"Item {code!r} has a second History row (first at {first_cell[code]}); "
-                        "the second was ignored. Keep one row per item.",
+                        message=f"Item {code!r} has a second History row "
+                        f"(first at {first_cell[code]}); the second was ignored. "
+                        "Keep one row per item.",
                         sheet=sheet,
                         cell=ref,
                         item=code,
