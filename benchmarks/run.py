@@ -3,7 +3,7 @@
     python benchmarks/run.py                 # 1k, 10k and 100k items, wide History
     python benchmarks/run.py --quick         # 1k only: a smoke check (CI), no timing claims
     python benchmarks/run.py --sizes 1000 10000 --layout both
-    python benchmarks/run.py --layout all --features   # the README's tables
+    python benchmarks/run.py --layout all --features   # the tables in docs/performance.md
 
 For each size, every measurement runs in a fresh Python process, one after another:
 

@@ -1,4 +1,4 @@
-"""Render pictures of the generated sheets for the README.
+"""Render pictures of the generated sheets for the README and docs/outputs.md.
 
     python examples/make_pictures.py            # rewrites examples/pictures/*.png
 
