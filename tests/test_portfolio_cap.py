@@ -305,3 +305,61 @@ def test_polish_recosting_only_moved_items_equals_recosting_all(monkeypatch, mea
     np.testing.assert_array_equal(got.policy["order_qty"], want.policy["order_qty"])
     np.testing.assert_array_equal(got.policy["reorder_point"], want.policy["reorder_point"])
     np.testing.assert_array_equal(got.policy["annual_total_cost"], want.policy["annual_total_cost"])
+
+
+def varied_inputs(measure: str, seed: int, n: int = 120) -> PolicyInputs:
+    """An invented instance with every rule that shapes Q (test data only): packs, minimum
+    orders, all-units price breaks on a third of the items, shelf lives on a quarter, and
+    the four lead-time demand models."""
+    rng = np.random.default_rng(seed)
+    d = rng.uniform(0.3, 60, n)
+    cost = rng.uniform(1, 80, n)
+    qty = np.full((n, 2), np.nan)
+    price = np.full((n, 2), np.nan)
+    has = np.arange(n) % 3 == 0
+    qty[has] = np.stack([d[has] * 8, d[has] * 30], axis=1).round()
+    price[has] = np.stack([cost[has] * 0.95, cost[has] * 0.9], axis=1)
+    models = np.array(["normal", "poisson", "negative binomial", "gamma"], dtype=object)
+    return PolicyInputs(
+        annual_demand=d * 52,
+        demand_per_period=d,
+        demand_sd_per_period=np.sqrt(d) * rng.uniform(0.8, 3, n),
+        lead_time_days=rng.uniform(2, 40, n),
+        lead_time_sd_days=rng.uniform(0, 4, n),
+        unit_cost=cost,
+        order_cost=rng.uniform(0, 60, n),
+        holding_rate=rng.uniform(0.1, 0.4, n),
+        measure=np.full(n, measure, dtype=object),
+        service_target=rng.uniform(0.8, 0.995, n),
+        shortage_cost=cost * rng.uniform(0.2, 3, n),
+        pack_size=rng.choice([1.0, 1.0, 6.0, 12.0, 50.0], n),
+        minimum_order=rng.choice([0.0, 0.0, 20.0, 100.0], n),
+        days_per_period=7.0,
+        model=models[np.arange(n) % 4],
+        break_qty=qty,
+        break_price=price,
+        shelf_life_days=np.where(np.arange(n) % 4 == 1, rng.uniform(10, 200, n), np.nan),
+    )
+
+
+@pytest.mark.parametrize("measure", ["cycle service", "fill rate", "shortage cost"])
+@pytest.mark.parametrize("kind", [BUDGET, ORDERS])
+@pytest.mark.parametrize("seed", [1, 2])
+def test_policy_between_two_multipliers_equals_a_whole_calculation(measure, kind, seed):
+    # The bisection re-solves only the items whose Q or R differ at the two ends of its
+    # interval, on the ground that each item's Q and R move one way as the multiplier
+    # grows. Checked here against a whole compute_policy at points inside the interval,
+    # for every measure, with packs, minimums, price breaks, shelf lives and four models.
+    from xlpolicy.core.portfolio import _Point, _relaxed
+
+    inp = varied_inputs(measure, seed)
+    lams = [0.0, 0.01, 0.03, 0.1, 0.4, 1.5] if kind == BUDGET else [0.0, 1, 4, 15, 60, 250]
+    at = [_Point.of(compute_policy(_relaxed(inp, kind, lam)), kind) for lam in lams]
+    for j in range(len(lams) - 1):
+        for frac in (0.3, 0.7):
+            lam = lams[j] + frac * (lams[j + 1] - lams[j])
+            whole = _Point.of(compute_policy(_relaxed(inp, kind, lam)), kind)
+            part = _Point.between(inp, kind, lam, at[j], at[j + 1])
+            np.testing.assert_array_equal(part.q, whole.q)
+            np.testing.assert_array_equal(part.r, whole.r)
+            np.testing.assert_array_equal(part.share, whole.share)

@@ -460,6 +460,62 @@ class _Costing:
         return ok
 
 
+@dataclass(frozen=True)
+class _Point:
+    """Every item's order quantity, reorder point and share of the cap at one multiplier."""
+
+    q: np.ndarray
+    r: np.ndarray
+    share: np.ndarray  # average inventory value (budget) or orders a year; NaN: not planned
+
+    @property
+    def usage(self) -> float:
+        """The capped total, as :func:`cap_usage` gives it for the whole frame."""
+        return float(np.nansum(self.share))
+
+    @classmethod
+    def of(cls, policy: pd.DataFrame, kind: str) -> _Point:
+        key = "average_inventory_value" if kind == BUDGET else "orders_per_year"
+        return cls(
+            policy["order_qty"].to_numpy(float),
+            policy["reorder_point"].to_numpy(float),
+            policy[key].to_numpy(float),
+        )
+
+    @classmethod
+    def between(cls, inp: PolicyInputs, kind: str, lam: float, lo: _Point, hi: _Point) -> _Point:
+        """The policy at multiplier ``lam``, for ``lo`` and ``hi`` the policies at two
+        multipliers on either side of it, computing only the items that can move.
+
+        Each item's relaxed problem is the ordinary one with a higher holding rate (budget)
+        or order cost (orders cap), and an item's order quantity only falls as its holding
+        rate rises and only rises as its order cost does (the EOQ, the cheaper pack multiple
+        of it and the cheapest price break all move one way, since each comparison between
+        a larger and a smaller quantity tips further the same way; its reorder point then
+        moves one way too under the service measures: a cycle-service R does not depend on
+        the costs, a fill-rate R only on Q). So such an item whose Q and R are the same at
+        both ends has them at every multiplier between, and only the others are solved
+        again: near the end of the bisection a few per cent of the items. Under the
+        shortage-cost measure R is the cheaper of the floor and ceiling of a quantile that
+        the costs move, and that choice can flip back and forth (a test found one), so
+        those items are always solved again. An item's policy does not depend on the other
+        items in the call (compute_policy), so the result equals a whole call's.
+        """
+        shortage = _measures(inp, len(hi.q)) == SHORTAGE_COST
+        same = _equal(lo.q, hi.q) & _equal(lo.r, hi.r) & ~shortage
+        move = np.flatnonzero(~same)
+        q, r, share = hi.q.copy(), hi.r.copy(), hi.share.copy()
+        if move.size:
+            got = cls.of(compute_policy(take_inputs(_relaxed(inp, kind, lam), move)), kind)
+            q[move], r[move], share[move] = got.q, got.r, got.share
+        return cls(q, r, share)
+
+
+def _equal(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Element-wise equality that counts two NaNs (an item not planned) as equal."""
+    return (a == b) | (np.isnan(a) & np.isnan(b))
+
+
 def apply_cap(inp: PolicyInputs, base: pd.DataFrame, kind: str, cap: float) -> CapResult:
     """The least-cost policies whose total average inventory value (kind "budget") or total
     orders a year (kind "orders") is at most ``cap``; see the module docstring.
@@ -489,39 +545,35 @@ def apply_cap(inp: PolicyInputs, base: pd.DataFrame, kind: str, cap: float) -> C
             np.zeros(n, dtype=bool),
         )
 
-    def usage_at(lam: float) -> tuple[float, pd.DataFrame]:
-        pol = compute_policy(_relaxed(inp, kind, lam))
-        return cap_usage(pol, kind), pol
-
-    # bracket: double the multiplier until the cap is met (or it clearly cannot be)
+    # bracket: quadruple the multiplier until the cap is met (or it clearly cannot be)
     scale = (
         0.05
         if kind == BUDGET
         else max(float(np.nanmedian(_item_column(inp, "order_cost", n))), 1.0)
     )
     lo, hi = 0.0, scale
-    use_hi, pol_hi = usage_at(hi)
+    at_lo = _Point.of(base, kind)
+    at_hi = _Point.of(compute_policy(_relaxed(inp, kind, hi)), kind)
     for _ in range(_BRACKET_MAX):
-        if use_hi <= cap:
+        if at_hi.usage <= cap:
             break
-        lo, hi = hi, hi * 4.0
-        prev = use_hi
-        use_hi, pol_hi = usage_at(hi)
-        if kind == BUDGET and prev - use_hi <= 1e-9 * max(prev, 1.0) and hi > 1e3:
+        prev = at_hi.usage
+        lo, hi, at_lo = hi, hi * 4.0, at_hi
+        at_hi = _Point.of(compute_policy(_relaxed(inp, kind, hi)), kind)
+        if kind == BUDGET and prev - at_hi.usage <= 1e-9 * max(prev, 1.0) and hi > 1e3:
             break  # at the floor: the targets and minimum orders need more than the cap
-    feasible = use_hi <= cap
+    feasible = at_hi.usage <= cap
     if feasible:
         for _ in range(_BISECTION_MAX):
             if hi - lo <= _BISECTION_REL * hi:
                 break
             mid = 0.5 * (lo + hi)
-            use_mid, pol_mid = usage_at(mid)
-            if use_mid <= cap:
-                hi, use_hi, pol_hi = mid, use_mid, pol_mid
+            at_mid = _Point.between(inp, kind, mid, at_lo, at_hi)
+            if at_mid.usage <= cap:
+                hi, at_hi = mid, at_mid
             else:
-                lo = mid
-    q = pol_hi["order_qty"].to_numpy(float).copy()
-    r = pol_hi["reorder_point"].to_numpy(float).copy()
+                lo, at_lo = mid, at_mid
+    q, r = at_hi.q.copy(), at_hi.r.copy()
     ok = np.isfinite(q) & np.isfinite(base["order_qty"].to_numpy(float))
     cost = _Costing(inp, base, kind)
     steps = 0
