@@ -651,7 +651,7 @@ def test_mixed_measures_and_models_give_each_item_its_own_numbers() -> None:
 def test_model_names_once_per_distinct_value_equal_the_per_item_rule() -> None:
     """item_model_names normalises each distinct name once; the reference is the per-item
     rule itself (pandas strip + lower, missing -> "") applied to every item."""
-    from xlpolicy.core.policy import _normalised_names, item_model_names
+    from xlpolicy.core.arrays import _normalised_names, item_model_names
 
     rng = np.random.default_rng(3)
     pool = np.array(

@@ -743,3 +743,7 @@ def model_factory(name: str) -> type[LeadTimeDemandModel]:
     if key not in _MODELS:
         raise ValueError(f"unknown lead-time demand model {name!r}; use one of {MODEL_NAMES}")
     return _MODELS[key]
+
+
+#: Builds a lead-time demand model from (mean, sd) arrays: a model class or a function.
+ModelFactory = Callable[[np.ndarray, np.ndarray], LeadTimeDemandModel]
