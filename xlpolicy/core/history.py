@@ -45,7 +45,7 @@ SEASON_REPEAT_R = 0.5  # ... and, with two years or more, year-1 vs later profil
 OUTLIER_K = 5.0  # threshold = median + OUTLIER_K * 1.4826 * MAD
 OUTLIER_SD_DROP = 0.30  # removing the value must lower the sd by more than this fraction
 NORMAL_MIN_MEAN = 20.0  # normal model needs at least this many units over the lead time
-NORMAL_MAX_CV = 0.5  # ... and sd/mean over the lead time below this (field notes)
+NORMAL_MAX_CV = 0.5  # ... and sd/mean over the lead time below this (common practice)
 DISPERSION_ALPHA = 0.05  # index-of-dispersion test level (Poisson vs over-dispersed)
 
 _MAD_TO_SD = 1.4826  # 1 / Phi^-1(0.75): MAD -> sd for normal data (common practice)
@@ -268,6 +268,147 @@ def analyse_history(
 ANALYSIS_BLOCK = 2_048
 
 
+@dataclass(frozen=True)
+class _Span:
+    """Where each item's history counts from: an explicit start, else its first sale,
+    else column 0; ``span`` marks its readable cells from there on."""
+
+    begin: np.ndarray
+    explicit: np.ndarray
+    span: np.ndarray
+    raw_sale: np.ndarray  # a readable cell above 0 in the span
+
+    @classmethod
+    def of(cls, m: np.ndarray, start: ArrayLike | None) -> _Span:
+        n_items, n_cols = m.shape
+        cols = np.arange(n_cols)
+        readable = ~np.isnan(m)
+        positive = m > 0  # False for NaN: a sale is a readable cell above 0
+        first_sale = _first_true(positive)
+        if start is None:
+            explicit = np.zeros(n_items, dtype=bool)
+            s_in = np.full(n_items, -1, dtype=np.int64)
+        else:
+            s_f = np.broadcast_to(np.asarray(start, dtype=float), (n_items,))
+            s_in = np.where(np.isfinite(s_f), s_f, -1.0).astype(np.int64)  # NaN = no start
+            explicit = s_in >= 0
+        begin = np.where(explicit, s_in, np.maximum(first_sale, 0)).astype(np.int64)
+        span = readable & (cols[None, :] >= begin[:, None])
+        return cls(begin, explicit, span, span & positive)
+
+
+def _whole_numbers(m: np.ndarray, span: np.ndarray) -> np.ndarray:
+    """Items whose span holds only whole numbers (count data), on the raw values:
+    |m - round(m)| <= 1e-9 max(1, |m|) in every cell, computed in two buffers."""
+    off = np.round(m)
+    np.subtract(m, off, out=off)
+    np.abs(off, out=off)
+    tol = np.abs(m)
+    np.maximum(tol, 1.0, out=tol)
+    np.multiply(tol, 1e-9, out=tol)
+    frac = off > tol
+    del off, tol
+    return span.any(axis=1) & ~(span & frac).any(axis=1)
+
+
+@dataclass(frozen=True)
+class _Outliers:
+    """The span's raw statistics and the one outlier per item the rule below may flag."""
+
+    n_raw: np.ndarray
+    mean_raw: np.ndarray
+    sd_raw: np.ndarray
+    threshold: np.ndarray
+    cand: np.ndarray  # the column of the span's largest value
+    outlier: np.ndarray
+    outlier_index: np.ndarray
+    outlier_value: np.ndarray
+    sd_without_outlier: np.ndarray
+
+
+def _outliers(m: np.ndarray, sp: _Span, whole: np.ndarray) -> _Outliers:
+    """Our rule: the largest value in the span is an outlier when it exceeds
+    median + 5 * 1.4826 * MAD and leaving that one period out lowers the span sd by more
+    than 30 %. Median and MAD come from the whole span, or from the non-zero sizes for
+    intermittent-side items (ADI > 1.32), whose medians would otherwise be 0. The robust
+    scale is floored at 10 % of the median, and at 1 unit for whole-number items, so that
+    near-constant series (MAD = 0) do not flag a 1-unit step. ADI does not change under
+    capping, so the choice is stable."""
+    n_items, n_cols = m.shape
+    rows = np.arange(n_items)
+    span, raw_sale = sp.span, sp.raw_sale
+    n_raw, mean_raw, sd_raw = _row_stats(m, span)
+    nz_raw = raw_sale.sum(axis=1)
+    adi_raw = np.where(nz_raw > 0, n_raw / np.maximum(nz_raw, 1), np.nan)
+    basis = np.where((adi_raw > ADI_CUTOFF)[:, None], raw_sale, span)
+    med = _row_median(m, basis)
+    mad = _row_median(np.abs(m - med[:, None]), basis)
+    scale = np.maximum(_MAD_TO_SD * mad, 0.1 * np.abs(med))
+    scale = np.where(whole, np.maximum(scale, 1.0), scale)
+    threshold = med + OUTLIER_K * scale
+    ranked = np.where(span, m, -np.inf)
+    cand = ranked.argmax(axis=1) if n_cols else np.zeros(n_items, dtype=np.int64)
+    cand_val = ranked[rows, cand] if n_cols else np.full(n_items, -np.inf)
+    # the span sd without the largest value, for the rows where it can decide anything
+    # (each row's sd is its own, so a subset of rows gives the same numbers)
+    maybe = np.flatnonzero((cand_val > threshold) & (n_raw >= 3))
+    sd_wo = np.full(n_items, np.nan)
+    if maybe.size:
+        without = span[maybe]
+        without[np.arange(maybe.size), cand[maybe]] = False
+        sd_wo[maybe] = _row_stats(m[maybe], without)[2]
+    outlier = np.zeros(n_items, dtype=bool)
+    outlier[maybe] = sd_wo[maybe] < (1.0 - OUTLIER_SD_DROP) * sd_raw[maybe]
+    return _Outliers(
+        n_raw,
+        mean_raw,
+        sd_raw,
+        threshold,
+        cand,
+        outlier,
+        np.where(outlier, cand, -1).astype(np.int64),
+        np.where(outlier, cand_val, np.nan),
+        np.where(outlier, sd_wo, np.nan),
+    )
+
+
+def _sbc_class(
+    work: np.ndarray, sale: np.ndarray, n: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """(non-zero periods, ADI, CV^2 of the sale sizes, class): Syntetos, Boylan & Croston
+    (2005) cut-offs ADI = 1.32 and CV^2 = 0.49."""
+    nz = sale.sum(axis=1)
+    adi = np.where(nz > 0, n / np.maximum(nz, 1), np.nan)
+    _, size_mean, size_sd = _row_stats(work, sale)
+    cv2 = np.where(nz >= 2, (size_sd / size_mean) ** 2, 0.0)
+    intermittent_side = adi > ADI_CUTOFF
+    erratic_side = cv2 > CV2_CUTOFF
+    demand_class = np.select(
+        [
+            np.isnan(adi),
+            ~intermittent_side & ~erratic_side,
+            ~intermittent_side & erratic_side,
+            intermittent_side & ~erratic_side,
+        ],
+        ["", "smooth", "erratic", "intermittent"],
+        default="lumpy",
+    ).astype(object)
+    return nz, adi, cv2, demand_class
+
+
+def _dispersion(n: np.ndarray, mean: np.ndarray, sd: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(variance-to-mean ratio, p-value of the index-of-dispersion test): under Poisson
+    demand (n - 1) VMR is chi-square with n - 1 degrees of freedom."""
+    var = sd * sd
+    vmr = np.where(mean > 0, var / np.where(mean > 0, mean, 1.0), np.nan)
+    disp_ok = (n >= 2) & (mean > 0) & np.isfinite(vmr)
+    dfree = np.maximum(n - 1, 1)
+    p = np.where(
+        disp_ok, _upper_tail(special.chdtrc, np.where(disp_ok, dfree * vmr, 0.0), dfree), np.nan
+    )
+    return vmr, p
+
+
 def _analyse_block(
     m: np.ndarray,
     periods_per_year: float,
@@ -277,126 +418,35 @@ def _analyse_block(
     smoothing: float,
 ) -> HistoryAnalysis:
     """analyse_history for one block of items (rows of ``m``)."""
-    n_items, n_cols = m.shape
-    cols = np.arange(n_cols)
-    rows = np.arange(n_items)
-    readable = ~np.isnan(m)
-    positive = m > 0  # False for NaN: a sale is a readable cell above 0
-
-    # --- span: explicit start, else first sale, else column 0 -------------------------
-    first_sale = _first_true(positive)
-    if start is None:
-        explicit = np.zeros(n_items, dtype=bool)
-        s_in = np.full(n_items, -1, dtype=np.int64)
-    else:
-        s_f = np.broadcast_to(np.asarray(start, dtype=float), (n_items,))
-        s_in = np.where(np.isfinite(s_f), s_f, -1.0).astype(np.int64)  # NaN = no start
-        explicit = s_in >= 0
-    begin = np.where(explicit, s_in, np.maximum(first_sale, 0)).astype(np.int64)
-    span = readable & (cols[None, :] >= begin[:, None])
-    raw_sale = span & positive
-
+    n_cols = m.shape[1]
+    sp = _Span.of(m, start)
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        # --- whole numbers (count data), on the raw values ------------------------------
-        # |m - round(m)| > 1e-9 max(1, |m|), in two buffers
-        off = np.round(m)
-        np.subtract(m, off, out=off)
-        np.abs(off, out=off)
-        tol = np.abs(m)
-        np.maximum(tol, 1.0, out=tol)
-        np.multiply(tol, 1e-9, out=tol)
-        frac = off > tol
-        del off, tol
-        whole = span.any(axis=1) & ~(span & frac).any(axis=1)
-
-        # --- outliers, on the raw values -----------------------------------------------
-        # Our rule: the largest value in the span is an outlier when it exceeds
-        # median + 5 * 1.4826 * MAD and leaving that one period out lowers the span sd by
-        # more than 30 %. Median and MAD come from the whole span, or from the non-zero
-        # sizes for intermittent-side items (ADI > 1.32), whose medians would otherwise be
-        # 0. The robust scale is floored at 10 % of the median, and at 1 unit for
-        # whole-number items, so that near-constant series (MAD = 0) do not flag a 1-unit
-        # step. ADI does not change under capping, so the choice is stable.
-        n_raw, mean_raw, sd_raw = _row_stats(m, span)
-        nz_raw = raw_sale.sum(axis=1)
-        adi_raw = np.where(nz_raw > 0, n_raw / np.maximum(nz_raw, 1), np.nan)
-        basis = np.where((adi_raw > ADI_CUTOFF)[:, None], raw_sale, span)
-        med = _row_median(m, basis)
-        mad = _row_median(np.abs(m - med[:, None]), basis)
-        scale = np.maximum(_MAD_TO_SD * mad, 0.1 * np.abs(med))
-        scale = np.where(whole, np.maximum(scale, 1.0), scale)
-        threshold = med + OUTLIER_K * scale
-        ranked = np.where(span, m, -np.inf)
-        cand = ranked.argmax(axis=1) if n_cols else np.zeros(n_items, dtype=np.int64)
-        cand_val = ranked[rows, cand] if n_cols else np.full(n_items, -np.inf)
-        # the span sd without the largest value, for the rows where it can decide anything
-        # (each row's sd is its own, so a subset of rows gives the same numbers)
-        maybe = np.flatnonzero((cand_val > threshold) & (n_raw >= 3))
-        sd_wo = np.full(n_items, np.nan)
-        if maybe.size:
-            without = span[maybe]
-            without[np.arange(maybe.size), cand[maybe]] = False
-            sd_wo[maybe] = _row_stats(m[maybe], without)[2]
-        outlier = np.zeros(n_items, dtype=bool)
-        outlier[maybe] = sd_wo[maybe] < (1.0 - OUTLIER_SD_DROP) * sd_raw[maybe]
-        outlier_index = np.where(outlier, cand, -1).astype(np.int64)
-        outlier_value = np.where(outlier, cand_val, np.nan)
-        sd_without_outlier = np.where(outlier, sd_wo, np.nan)
-
-        work = m
-        n, mean, sd, sale = n_raw, mean_raw, sd_raw, raw_sale  # unchanged unless capped
-        if cap_outliers and outlier.any():
+        whole = _whole_numbers(m, sp.span)
+        o = _outliers(m, sp, whole)
+        work, sale = m, sp.raw_sale
+        n, mean, sd = o.n_raw, o.mean_raw, o.sd_raw
+        if cap_outliers and o.outlier.any():  # the capped values replace the raw ones
             work = m.copy()
-            cap = np.where(whole, np.floor(threshold), threshold)
-            work[rows[outlier], cand[outlier]] = cap[outlier]
-            sale = span & (work > 0)
-            n, mean, sd = _row_stats(work, span)
-
-        # --- level, spread, SBC class --------------------------------------------------
-        nz = sale.sum(axis=1)
-        adi = np.where(nz > 0, n / np.maximum(nz, 1), np.nan)
-        _, size_mean, size_sd = _row_stats(work, sale)
-        cv2 = np.where(nz >= 2, (size_sd / size_mean) ** 2, 0.0)
-        intermittent_side = adi > ADI_CUTOFF
-        erratic_side = cv2 > CV2_CUTOFF
-        demand_class = np.select(
-            [
-                np.isnan(adi),
-                ~intermittent_side & ~erratic_side,
-                ~intermittent_side & erratic_side,
-                intermittent_side & ~erratic_side,
-            ],
-            ["", "smooth", "erratic", "intermittent"],
-            default="lumpy",
-        ).astype(object)
-
-        # --- Croston (1972) and the Syntetos-Boylan approximation (2005) ---------------
-        croston, sba = _croston(work, sale, begin, explicit, smoothing)
-        use_sba = intermittent_side & np.isfinite(sba)
-        rate = np.where(use_sba, sba, mean)
-        rate_method = np.where(use_sba, "SBA", "mean").astype(object)
-
-        # --- dispersion: variance-to-mean ratio and the index-of-dispersion test ------
-        var = sd * sd
-        vmr = np.where(mean > 0, var / np.where(mean > 0, mean, 1.0), np.nan)
-        disp_ok = (n >= 2) & (mean > 0) & np.isfinite(vmr)
-        dfree = np.maximum(n - 1, 1)
-        dispersion_p = np.where(
-            disp_ok, _upper_tail(special.chdtrc, np.where(disp_ok, dfree * vmr, 0.0), dfree), np.nan
+            cap = np.where(whole, np.floor(o.threshold), o.threshold)
+            work[np.flatnonzero(o.outlier), o.cand[o.outlier]] = cap[o.outlier]
+            sale = sp.span & (work > 0)
+            n, mean, sd = _row_stats(work, sp.span)
+        nz, adi, cv2, demand_class = _sbc_class(work, sale, n)
+        # Croston (1972) and the Syntetos-Boylan approximation (2005)
+        croston, sba = _croston(work, sale, sp.begin, sp.explicit, smoothing)
+        use_sba = (adi > ADI_CUTOFF) & np.isfinite(sba)
+        vmr, dispersion_p = _dispersion(n, mean, sd)
+        trend_ratio, trend = _trend(work, sp.span, n)
+        seasonal, seasonal_strength = _seasonality(
+            work, sp.span, sp.begin, n, mean, periods_per_year
         )
-
-        trend_ratio, trend = _trend(work, span, n)
-        seasonal, seasonal_strength = _seasonality(work, span, begin, n, mean, periods_per_year)
-
-        # --- recency -------------------------------------------------------------------
         last_sale = _last_true(sale)
         periods_since_sale = np.where(last_sale >= 0, n_cols - 1 - last_sale, -1)
         if dormant_periods is None:
             dormant_periods = max(1, int(round(periods_per_year / 4)))
-        dormant = (last_sale >= 0) & (periods_since_sale >= dormant_periods)
 
     return HistoryAnalysis(
-        start=begin,
+        start=sp.begin,
         periods=n.astype(np.int64),
         nonzero_periods=nz.astype(np.int64),
         mean=mean,
@@ -404,8 +454,8 @@ def _analyse_block(
         adi=adi,
         cv2=cv2,
         demand_class=demand_class,
-        rate=rate,
-        rate_method=rate_method,
+        rate=np.where(use_sba, sba, mean),
+        rate_method=np.where(use_sba, "SBA", "mean").astype(object),
         croston=croston,
         vmr=vmr,
         whole_numbers=whole,
@@ -414,13 +464,13 @@ def _analyse_block(
         trend=trend,
         seasonal=seasonal,
         seasonal_strength=seasonal_strength,
-        outlier=outlier,
-        outlier_index=outlier_index,
-        outlier_value=outlier_value,
-        sd_without_outlier=sd_without_outlier,
+        outlier=o.outlier,
+        outlier_index=o.outlier_index,
+        outlier_value=o.outlier_value,
+        sd_without_outlier=o.sd_without_outlier,
         periods_since_sale=periods_since_sale.astype(np.int64),
-        dormant=dormant,
-        outlier_threshold=np.where(n_raw >= 3, threshold, np.nan),
+        dormant=(last_sale >= 0) & (periods_since_sale >= dormant_periods),
+        outlier_threshold=np.where(o.n_raw >= 3, o.threshold, np.nan),
     )
 
 
