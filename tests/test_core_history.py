@@ -14,8 +14,8 @@ from xlpolicy.core.history import (
     CV2_CUTOFF,
     DEMAND_CLASSES,
     analyse_history,
-    choose_model,
 )
+from xlpolicy.core.model_choice import choose_model
 
 WEEKS = 104
 
@@ -443,7 +443,7 @@ def test_two_significant_digits_by_table_equal_python_formatting() -> None:
     """The reasons' short numbers below 10 come from a table where that is exact; the
     reference is Python's own "%.2g" on every value, with values at and near the halves
     (0.125, 2.05, 9.95) and the decade edges."""
-    from xlpolicy.core.history import _two_digits
+    from xlpolicy.core.model_choice import _two_digits
 
     rng = np.random.default_rng(29)
     edges = np.array(

@@ -173,7 +173,8 @@ def test_slow_mover_policy_meets_its_target_under_the_true_distribution():
     # lead time 2 weeks, target 95 % cycle service. Estimate from 104 weeks, then measure
     # P(lead-time demand <= R) under the true Poisson(1.6). Over 200 seeded histories the
     # average achieved service must be within 2 points of the target.
-    from xlpolicy.core.history import analyse_history, choose_model
+    from xlpolicy.core.history import analyse_history
+    from xlpolicy.core.model_choice import choose_model
     from xlpolicy.core.policy import PolicyInputs, compute_policy
 
     rng = np.random.default_rng(42)

@@ -26,7 +26,8 @@ from .contract import (
 )
 from .core.classes import DEFAULT_CUTOFFS, abc_classes
 from .core.discounts import price_at
-from .core.history import analyse_history, analysis_from_figures, choose_model
+from .core.history import analyse_history
+from .core.model_choice import analysis_from_figures, choose_model
 from .core.periodic import periodic_policy
 from .core.policy import PolicyInputs, compute_policy, evaluate_policy
 from .core.portfolio import (
