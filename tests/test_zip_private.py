@@ -12,6 +12,7 @@ from __future__ import annotations
 import sys
 import zipfile
 from pathlib import Path
+from typing import Any
 
 import pytest
 from builders import simple_workbook
@@ -42,7 +43,9 @@ def test_a_missing_internal_is_named_and_turns_the_fallback_on(monkeypatch, attr
 
 def test_a_compressor_zipfile_no_longer_calls_is_found(monkeypatch) -> None:
     """If zipfile kept its compressor elsewhere, swapping ``_compressor`` would do nothing."""
-    real_init = zipfile._ZipWriteFile.__init__
+    zipfile_module: Any = zipfile  # its private entry writer, which zip_private relies on
+    writer_class = zipfile_module._ZipWriteFile
+    real_init = writer_class.__init__
 
     def init(self, *args, **kwargs):
         real_init(self, *args, **kwargs)
@@ -56,8 +59,8 @@ def test_a_compressor_zipfile_no_longer_calls_is_found(monkeypatch) -> None:
         self._fileobj.write(out)
         return len(data)
 
-    monkeypatch.setattr(zipfile._ZipWriteFile, "__init__", init)
-    monkeypatch.setattr(zipfile._ZipWriteFile, "write", write)
+    monkeypatch.setattr(writer_class, "__init__", init)
+    monkeypatch.setattr(writer_class, "write", write)
     problems = zip_private.internals_problems()
     assert any("_compressor" in p for p in problems), problems
 
