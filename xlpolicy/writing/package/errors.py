@@ -3,7 +3,8 @@
 :class:`CannotMerge` is the one a caller sees: the user's workbook cannot take the
 generated sheets intact, and ``str()`` says why in plain words. :class:`Unexpected` is
 raised inside the subpackage when a part is not as expected; the entry points in
-:mod:`.merge` turn it into :class:`CannotMerge`.
+:mod:`.merge` turn it into :class:`CannotMerge`. :data:`DAMAGED` lists what reading a
+damaged zip entry raises, so a damaged input part is told apart from a failed write.
 """
 
 from __future__ import annotations

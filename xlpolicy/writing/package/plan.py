@@ -61,6 +61,8 @@ _TABLE_DXF_ATTRS = (
 
 @dataclass
 class NewPart:
+    """A part the output gains: copied from the generated package, or written as given."""
+
     name: str  # in the output package
     source: str  # in the generated package
     kind: str  # "sheet", "rels", "table", "vml", "copy"
@@ -70,6 +72,8 @@ class NewPart:
 
 @dataclass
 class Plan:
+    """What :func:`make_plan` decided; the writer follows it to the letter."""
+
     replaced: list[str]  # generated sheets of an earlier run, removed
     drop: set[str]  # user parts left out (exclusively owned by those sheets)
     replaced_parts: dict[str, bytes]  # user parts rewritten
