@@ -35,6 +35,8 @@ from collections.abc import Iterator
 from dataclasses import dataclass, replace
 from pathlib import Path
 
+from .filekind import sniff
+
 __all__ = [
     "ALLOW_LARGE_ENV",
     "DEFAULT_LIMITS",
@@ -256,8 +258,6 @@ def _lock_file_message(p: Path) -> str | None:
 
 def _not_a_package(p: Path, head: bytes, kind: str) -> str:
     """Why a file named .xlsx/.ods is not a zip package, as far as its bytes tell."""
-    from .sources import sniff  # lazily: sources imports workbook, which imports this
-
     name = p.name
     ext = ".ods" if kind == "ods" else ".xlsx"
     resave = (

@@ -33,6 +33,7 @@ from defusedxml.ElementTree import fromstring as _safe_fromstring
 
 from ..contract import normalise
 from ..problems import ProblemLog
+from .filekind import read_head, sniff
 from .guard import current_limits, foreign_file_message, refusal, too_many_cells
 from .workbook import SHEET_ALIASES, RawSheet, WorkbookFile, cell_ref
 
@@ -97,47 +98,7 @@ def _match_sheet(names: list[str], canonical: str, key: Any = None) -> str | Non
     return None
 
 
-# --- sniffing what a file really is -------------------------------------------------------
-
-_OLE2_MAGIC = b"\xd0\xcf\x11\xe0\xa1\xb1\x1a\xe1"
-_BIFF_STARTS = (b"\x09\x00", b"\x09\x02", b"\x09\x04", b"\x09\x08")
-
-
-def _head(path: Path, n: int = 4096) -> bytes:
-    with open(path, "rb") as f:
-        return f.read(n)
-
-
-def sniff(head: bytes) -> str:
-    """What the first bytes of a file say it is: zip, ole2, biff, html, xml, text or unknown."""
-    if head.startswith(b"PK\x03\x04"):
-        return "zip"
-    if head.startswith(_OLE2_MAGIC):
-        return "ole2"
-    if head[:2] in _BIFF_STARTS:
-        return "biff"
-    if head.startswith((b"\xff\xfe", b"\xfe\xff")):
-        return "text"  # UTF-16, as Excel's "Unicode Text" saves
-    start = head.lstrip(b"\xef\xbb\xbf \t\r\n").lower()
-    if start.startswith((b"<!doctype html", b"<html", b"<table", b"<meta", b"<head")) or (
-        b"<html" in start[:1024] or b"<table" in start[:1024]
-    ):
-        return "html"
-    if start.startswith(b"<?xml") or start.startswith(b"<"):
-        return "xml"
-    if head and b"\x00" not in head:
-        try:
-            head.decode("utf-8")
-            return "text"
-        except UnicodeDecodeError:
-            # a cut multi-byte character at the end is still text
-            try:
-                head[:-4].decode("utf-8")
-                return "text"
-            except UnicodeDecodeError:
-                printable = sum(32 <= b < 127 or b in (9, 10, 13) or b >= 160 for b in head)
-                return "text" if printable >= 0.95 * len(head) else "unknown"
-    return "unknown"
+# --- a file whose contents are not what its name says (sniffed by filekind.py) ---------
 
 
 def _renamed_message(name: str, kind: str, found: str) -> str | None:
@@ -208,7 +169,7 @@ class OdsFile:
             return False
         resave = "Open it in your spreadsheet program and save it again as .ods or .xlsx."
         try:
-            found = sniff(_head(p))
+            found = sniff(read_head(p))
         except OSError as exc:
             self.log.fatal(
                 f"{p.name} could not be opened ({exc.strerror or exc}).",
@@ -458,7 +419,7 @@ class XlsFile:
             return False
         resave = "Open it in your spreadsheet program and save it as 'Excel Workbook (.xlsx)'."
         try:
-            found = sniff(_head(p))
+            found = sniff(read_head(p))
         except OSError as exc:
             self.log.fatal(
                 f"{p.name} could not be opened ({exc.strerror or exc}).",
