@@ -239,3 +239,28 @@ def test_airline_passengers_seasonal_and_beats_seasonal_naive() -> None:
     )
     ref_mape = np.mean(np.abs(ref - test) / test)
     assert mape < ref_mape + 0.02  # fixed constants lose little against fitted ones
+
+
+@pytest.mark.parametrize("weeks", [104, 156])
+def test_lead_time_error_sd_matches_the_truth(weeks: int) -> None:
+    # Safety stock covers the error of the forecast over the lead time (Silver, Pyke &
+    # Peterson 1998, ch. 4 and 7), estimated per item as the root mean square error of its
+    # past lead-time forecasts with the residual variance's degrees-of-freedom correction
+    # (Hyndman & Athanasopoulos). Simulation with a known error: a seasonal pattern times a
+    # level of 40 a week plus normal noise of sd 6 (invented), three years, lead time 3
+    # weeks. The truth is the spread of the error of the forecast made at the end of the
+    # history for the 3 weeks after it, across the series; it is at least sqrt(3) x 6
+    # (the noise alone) and the estimates average to it within sampling error.
+    rng = np.random.default_rng(21)
+    n_items, lead = 600, 3
+    cal = calendar_for(_weekly_labels(weeks), 52.0, 7.0, lead)
+    mean = 40.0 * PATTERN[cal.season]
+    y = mean[None, :] + rng.normal(0.0, 6.0, (n_items, weeks + lead))
+    r = forecast_items(y[:, :weeks], cal, np.full(n_items, float(lead)), horizon=lead)
+    assert r.chosen.all()
+    err_end = r.path.sum(axis=1) - y[:, weeks:].sum(axis=1)
+    truth = np.sqrt(np.mean(err_end**2))
+    estimate = np.sqrt(np.mean(r.error_sd**2))
+    assert truth >= np.sqrt(lead) * 6.0 * 0.9
+    se = truth / np.sqrt(2 * n_items)  # standard error of an sd from n normal draws
+    assert abs(estimate - truth) < 3 * se + 0.03 * truth, (estimate, truth)

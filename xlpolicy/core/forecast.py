@@ -363,8 +363,12 @@ class ForecastResult:
     it). chosen: the smoothed forecast beat the flat average out of sample (and the item was
     eligible). mae_ratio: the smoothed forecast's out-of-sample mean absolute error over the
     flat average's (NaN when not tested); origins: how many origins were compared.
-    error_sd: the root mean square error of the smoothed lead-time forecast over those
-    origins (units over the lead time); flat_error_sd: the same for the flat average.
+    error_sd: the spread of the smoothed lead-time forecast's error (units over the lead
+    time) for safety stock: for chosen items the root mean square error of the lead-time
+    forecasts of the model started on the whole span, over the same origins, corrected for
+    the parameters fitted (SSE / (N - k), k = seasons + 2); holdout_error_sd: the same from
+    the out-of-sample run (started on the first year only); flat_error_sd: the flat
+    average's out-of-sample root mean square error.
     level, trend, phi: the final state (per period) and the damping per period; indices:
     items x seasons, the final seasonal indices; weight: the shrinkage weight of the
     starting indices (0 = flat, 1 = kept as measured). path: items x future periods, the
@@ -378,6 +382,7 @@ class ForecastResult:
     origins: np.ndarray
     error_sd: np.ndarray
     flat_error_sd: np.ndarray
+    holdout_error_sd: np.ndarray
     level: np.ndarray
     trend: np.ndarray
     phi: float
@@ -485,7 +490,20 @@ def _forecast_block(
     path = np.full((n, max(horizon, 0)), np.nan)
     strength = np.full(n, np.nan)
     pick = np.flatnonzero(chosen)
+    holdout_sd = error_sd.copy()
     if pick.size:
+        # The spread for safety stock: errors of the lead-time forecasts of the model as it
+        # is finally started (on the whole span), over the same origins, with the residual
+        # variance's degrees-of-freedom correction SSE / (N - k), k = the seasons' indices,
+        # level and trend fitted (Hyndman & Athanasopoulos, residual variance). The
+        # out-of-sample errors, whose model was started on one year only, overstate the
+        # error of a forecast started on all of it (kept as holdout_error_sd).
+        ins = _evaluate(m[pick], cal, lead[pick], begin[pick], smoothing, whole_span=True)
+        k_par = cal.n_seasons + 2
+        n_or = ins[2]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            fix = np.sqrt(n_or / np.where(n_or > k_par, n_or - k_par, np.nan))
+        error_sd[pick] = np.where(np.isfinite(fix), ins[3] * fix, holdout_sd[pick])
         fin = _final(m[pick], cal, begin[pick], horizon, smoothing)
         for arr, part in zip((level, trend, indices, weight, path, strength), fin, strict=True):
             arr[pick] = part
@@ -496,6 +514,7 @@ def _forecast_block(
         origins=origins,
         error_sd=error_sd,
         flat_error_sd=flat_sd,
+        holdout_error_sd=holdout_sd,
         level=level,
         trend=trend,
         phi=phi,
@@ -508,9 +527,19 @@ def _forecast_block(
 
 
 def _evaluate(
-    m: np.ndarray, cal: Calendar, lead: np.ndarray, begin: np.ndarray, smoothing: Smoothing
+    m: np.ndarray,
+    cal: Calendar,
+    lead: np.ndarray,
+    begin: np.ndarray,
+    smoothing: Smoothing,
+    whole_span: bool = False,
 ) -> tuple[np.ndarray, ...]:
-    """Rolling-origin comparison: (tested, MAE ratio, origins, error sd, flat error sd)."""
+    """Rolling-origin comparison: (tested, MAE ratio, origins, error sd, flat error sd).
+
+    Started on the first year of each item's span (out of sample from its end on), or, with
+    whole_span, on the whole span with a trend where it is 1.5 years long (as the final
+    forecast is started).
+    """
     n, t_len = m.shape
     ppy = cal.periods_per_year
     alpha, beta, gamma, phi = smoothing.per_period(ppy)
@@ -523,9 +552,13 @@ def _evaluate(
     span_len = np.where(t_len > begin, t_len - begin, 0)
 
     # --- evaluation run: started on the first year only ---------------------------------
-    first_year = span & (cols[None, :] < (begin + year)[:, None])
-    no_trend = np.zeros(n, dtype=bool)
-    l0, b0, s0, _, _ = starting_state(m, first_year, season, g, ppy, no_trend)
+    if whole_span:
+        fit_trend = span_len >= int(round(1.5 * ppy))
+        l0, b0, s0, _, _ = starting_state(m, span, season, g, ppy, fit_trend)
+    else:
+        first_year = span & (cols[None, :] < (begin + year)[:, None])
+        no_trend = np.zeros(n, dtype=bool)
+        l0, b0, s0, _, _ = starting_state(m, first_year, season, g, ppy, no_trend)
     l0 = np.where(np.isfinite(l0), l0, 0.0)
     # the state at the end of the first year is where the out-of-sample comparison starts;
     # the recursion runs through the first year too (its own starting values came from it)
