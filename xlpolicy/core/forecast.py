@@ -42,6 +42,7 @@ __all__ = [
     "smooth",
     "starting_state",
     "forecast_items",
+    "rolling_forecasts",
     "MONTH_NAMES",
     "CHOOSE_MARGIN",
     "MIN_ORIGINS_YEAR_SHARE",
@@ -135,7 +136,11 @@ def calendar_for(
     total = n + max(int(extra), 0)
     dated = n > 0 and all(isinstance(x, (_dt.date, _dt.datetime)) for x in labels)
     if dated:
-        first = [x.date() if isinstance(x, _dt.datetime) else x for x in labels]
+        first: list[_dt.date] = [
+            x.date() if isinstance(x, _dt.datetime) else x
+            for x in labels
+            if isinstance(x, _dt.date)
+        ]
         days: list[_dt.date] = list(first)
         if round(periods_per_year) == 12:  # a month's label may be any day of the month
             y0, m0 = first[-1].year, first[-1].month - 1
@@ -505,8 +510,7 @@ def _forecast_block(
             fix = np.sqrt(n_or / np.where(n_or > k_par, n_or - k_par, np.nan))
         error_sd[pick] = np.where(np.isfinite(fix), ins[3] * fix, holdout_sd[pick])
         fin = _final(m[pick], cal, begin[pick], horizon, smoothing)
-        for arr, part in zip((level, trend, indices, weight, path, strength), fin, strict=True):
-            arr[pick] = part
+        level[pick], trend[pick], indices[pick], weight[pick], path[pick], strength[pick] = fin
     return ForecastResult(
         tested=tested,
         chosen=chosen,
@@ -533,6 +537,7 @@ def _evaluate(
     begin: np.ndarray,
     smoothing: Smoothing,
     whole_span: bool = False,
+    keep: dict[str, np.ndarray] | None = None,
 ) -> tuple[np.ndarray, ...]:
     """Rolling-origin comparison: (tested, MAE ratio, origins, error sd, flat error sd).
 
@@ -596,6 +601,19 @@ def _evaluate(
     act_t = np.ascontiguousarray(active.T)
     season_ext = np.concatenate([season, np.zeros(h_max + 1, dtype=np.int64)])
     any_use = use.any(axis=0)
+    f_month: np.ndarray | None = None
+    first_origin = int(begin.min()) + year if n else 0
+    if keep is not None:
+        f_month = np.full((n, t_len), np.nan)
+        # periods from each column to the end of its season's run (the month)
+        seas_all = cal.season
+        month_len = np.ones(len(seas_all), dtype=np.int64)
+        for c in range(len(seas_all) - 2, -1, -1):
+            if seas_all[c + 1] == seas_all[c]:
+                month_len[c] = month_len[c + 1] + 1
+        pad = int(month_len.max()) + h_max + 1
+        season_ext2 = np.concatenate([seas_all, np.zeros(pad, dtype=np.int64)])
+        phis_ext = damped_sum(phi, np.arange(1, h_max + pad + 1))
     with np.errstate(invalid="ignore", divide="ignore"):
         for t in range(t_len):
             gs = int(season[t])
@@ -620,6 +638,18 @@ def _evaluate(
                 f_hw[:, t] = lv * np.einsum("ij,ij->i", ahead, weights) + tr * np.einsum(
                     "ij,ij->i", ahead, w_trend
                 )
+            if f_month is not None and t + 1 >= first_origin:
+                # the largest lead-time forecast among the lead times starting in the
+                # month (season) that begins after t: what a plan made now must cover
+                stay = int(month_len[t + 1]) if t + 1 < len(month_len) else 1
+                fut = season_ext2[t + 1 : t + 1 + h_max + stay]
+                path = (lv[:, None] + phis_ext[None, : len(fut)] * tr[:, None]) * s_all[:, fut]
+                best = np.full(n, -np.inf)
+                for sh in range(stay):
+                    best = np.maximum(best, (path[:, sh : sh + h_max] * weights).sum(axis=1))
+                f_month[:, t] = best
+    if keep is not None:  # the forecasts themselves, for a back-test
+        keep.update(forecast=f_hw, flat=f_flat, actual=actual, origin=use, month=f_month)
     with np.errstate(invalid="ignore"):
         e_hw = f_hw - actual
         e_flat = f_flat - actual
@@ -675,3 +705,30 @@ def _final(
         low = s_fin.min(axis=1)
         strength = s_fin.max(axis=1) / np.where(low > 0, low, np.nan)
     return lv, tr, s_fin, weight, path, strength
+
+
+def rolling_forecasts(
+    matrix: ArrayLike,
+    calendar: Calendar,
+    lead_periods: ArrayLike,
+    begin: ArrayLike,
+    smoothing: Smoothing | None = None,
+) -> dict[str, np.ndarray]:
+    """The out-of-sample lead-time forecasts behind the choice, per item and origin.
+
+    Returns items x periods arrays: "forecast" (the smoothed forecast of the demand over
+    the lead time after each period, made with the data up to it), "month" (made at the same
+    origin: the largest of the forecasts for the lead times starting in the month that
+    begins after it, what a plan made then must cover until the next), "flat" (the flat
+    average's), "actual" (the demand that came), and "origin" (True where the origin counts:
+    from the end of the item's first year on, with the lead time inside the history).
+    """
+    m = np.asarray(matrix, dtype=float)
+    if m.ndim == 1:
+        m = m.reshape(1, -1)
+    n = m.shape[0]
+    lead = np.broadcast_to(np.asarray(lead_periods, dtype=float), (n,))
+    b = np.broadcast_to(np.asarray(begin, dtype=np.int64), (n,))
+    keep: dict[str, np.ndarray] = {}
+    _evaluate(m, calendar, lead, b, smoothing or Smoothing(), keep=keep)
+    return keep
