@@ -119,6 +119,8 @@ def test_year_ahead_sheet_reads_back(tmp_path: Path) -> None:
     assert not any(r and r[0] == "FLAT" for r in rows)
     text = " ".join(str(c) for r in rows[:4] for c in r if c)
     assert "licensed staff" in text
+    summary = [r[0] for r in wb["Summary"].iter_rows(max_row=12, values_only=True) if r[0]]
+    assert any(str(s).startswith("Planning with seasons and trends") for s in summary)
 
 
 def test_plan_as_of_settings_row_and_a_bad_one(tmp_path: Path) -> None:
