@@ -13,6 +13,8 @@ import datetime as _dt
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from xlpolicy.core.forecast import (
     CHOOSE_MARGIN,
@@ -264,3 +266,20 @@ def test_lead_time_error_sd_matches_the_truth(weeks: int) -> None:
     assert truth >= np.sqrt(lead) * 6.0 * 0.9
     se = truth / np.sqrt(2 * n_items)  # standard error of an sd from n normal draws
     assert abs(estimate - truth) < 3 * se + 0.03 * truth, (estimate, truth)
+
+
+@settings(max_examples=12, deadline=None, derandomize=True)
+@given(scale=st.floats(0.25, 40.0), seed=st.integers(0, 10_000))
+def test_forecast_is_scale_equivariant(scale: float, seed: int) -> None:
+    # A property of the multiplicative model (and of ratios-based shrinkage): selling in
+    # dozens instead of units changes no choice and scales every forecast and error.
+    rng = np.random.default_rng(seed)
+    cal = calendar_for(_weekly_labels(104), 52.0, 7.0, 10)
+    lam = 20.0 * PATTERN[cal.season[:104]] * rng.uniform(0.5, 2.0, (12, 1))
+    y = rng.poisson(lam).astype(float)
+    a = forecast_items(y, cal, np.full(12, 2.0), horizon=10)
+    b = forecast_items(y * scale, cal, np.full(12, 2.0), horizon=10)
+    assert (a.chosen == b.chosen).all()
+    np.testing.assert_allclose(b.mae_ratio, a.mae_ratio, rtol=1e-9)
+    np.testing.assert_allclose(b.error_sd, a.error_sd * scale, rtol=1e-9)
+    np.testing.assert_allclose(b.path, a.path * scale, rtol=1e-9)
