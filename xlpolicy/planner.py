@@ -312,8 +312,20 @@ def _demand(
         hist_row[has_hist] = w
         span_start[has_hist] = an.start[w]
         steady = np.isin(out_text["demand_class"], ("smooth", "erratic"))
+        # the season plan is of reorder points: items on periodic review stay flat for now
+        periodic = _review_days(df, settings) > 0
         season = forecast_demand(
-            hist, where, an.start, lead, usable & has_hist & steady, settings, run_date, log
+            hist,
+            where,
+            an.start,
+            lead,
+            usable & has_hist & steady & ~periodic,
+            settings,
+            run_date,
+            log,
+        )
+        season.reason[has_hist & steady & periodic] = (
+            "items on periodic review are planned on the flat average"
         )
 
     annual_fig = df["annual_demand"].to_numpy(float)

@@ -649,7 +649,9 @@ def _evaluate(
                     best = np.maximum(best, (path[:, sh : sh + h_max] * weights).sum(axis=1))
                 f_month[:, t] = best
     if keep is not None:  # the forecasts themselves, for a back-test
-        keep.update(forecast=f_hw, flat=f_flat, actual=actual, origin=use, month=f_month)
+        keep.update(forecast=f_hw, flat=f_flat, actual=actual, origin=use)
+        if f_month is not None:
+            keep["month"] = f_month
     with np.errstate(invalid="ignore"):
         e_hw = f_hw - actual
         e_flat = f_flat - actual
