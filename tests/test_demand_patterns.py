@@ -92,14 +92,22 @@ def test_planner_notes_read_like_a_planners(mixed):
     by_item: dict[str, set[str]] = {}
     for p in report.problems:
         by_item.setdefault(p.item, set()).add(p.code)
-    assert "demand-seasonal" in by_item["SEASON"]
+    # the seasonal item is planned with its season: the warning became a note of what was done
+    assert "demand-planned-with-forecast" in by_item["SEASON"]
+    assert "demand-seasonal" not in by_item["SEASON"]
     assert "history-new-item" in by_item["NEW"] and "history-short" in by_item["NEW"]
     assert "demand-outlier" in by_item["SPIKY"]
     assert "demand-dormant" in by_item["DORMANT"]
     assert "demand-trend" not in by_item["DORMANT"]  # the stop explains the fall: say it once
-    assert "demand-trend" in by_item["RISING"]
+    assert by_item["RISING"] & {"demand-trend", "demand-planned-with-forecast"}
     quiet = by_item.get("STEADY", set()) | by_item.get("SLOW", set())
-    assert not quiet & {"demand-seasonal", "demand-trend", "demand-outlier", "demand-dormant"}
+    assert not quiet & {
+        "demand-seasonal",
+        "demand-trend",
+        "demand-outlier",
+        "demand-dormant",
+        "demand-planned-with-forecast",
+    }
     spiky = next(p for p in report.problems if p.code == "demand-outlier")
     assert "200 units" in spiky.message and "Cap outliers" in spiky.message
 

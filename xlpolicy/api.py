@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from .contract import SERVICE_MEASURES, SETTINGS
+from .contract import READ_SETTINGS, SERVICE_MEASURES
 from .problems import Problem, ProblemLog, Severity, UnusableWorkbook
 from .progress import Progress, silent
 from .reading import guard, read_input
@@ -149,7 +149,8 @@ def _named_settings(values: dict[str, Any] | None) -> dict[str, Any]:
         key = setting_key(name)
         if key is None:
             raise UsageError(
-                f"unknown setting {name!r}; known settings: " + ", ".join(s.title for s in SETTINGS)
+                f"unknown setting {name!r}; known settings: "
+                + ", ".join(s.title for s in READ_SETTINGS)
             )
         found[key] = (raw, "")
     log = ProblemLog()

@@ -142,7 +142,16 @@ def _caps(stock_budget: str | None, orders_cap: str | None, curve: bool | None) 
 
 
 def _set_option(f: Any) -> Any:
-    """--set NAME=VALUE: any Settings row from the command line (repeatable)."""
+    """--set NAME=VALUE: any Settings row from the command line (repeatable); --as-of DATE:
+    the Settings row 'Plan as of'."""
+    f = click.option(
+        "--as-of",
+        metavar="DATE",
+        expose_value=False,
+        callback=_keep_as_of,
+        help="Plan as of this date (e.g. 2025-03-01): items planned with their season or "
+        "trend get the policy for the lead time from then. Default: today.",
+    )(f)
     return click.option(
         "--set",
         "named",
@@ -153,9 +162,18 @@ def _set_option(f: Any) -> Any:
     )(f)
 
 
+def _keep_as_of(ctx: click.Context, param: click.Parameter, value: str | None) -> None:
+    if value is not None:
+        ctx.meta["xlpolicy_as_of"] = value
+
+
 def _named(pairs: tuple[str, ...]) -> dict[str, str]:
-    """NAME=VALUE pairs as a dict; a pair without '=' is a usage error."""
+    """NAME=VALUE pairs as a dict (with --as-of as 'Plan as of'); a pair without '=' is a
+    usage error."""
     out: dict[str, str] = {}
+    ctx = click.get_current_context(silent=True)
+    if ctx is not None and ctx.meta.get("xlpolicy_as_of") is not None:
+        out["Plan as of"] = str(ctx.meta["xlpolicy_as_of"]).strip()
     for pair in pairs:
         name, eq, value = pair.partition("=")
         if not eq or not name.strip():

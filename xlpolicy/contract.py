@@ -579,7 +579,22 @@ CLASS_TARGET_SETTINGS: dict[str, str] = {
     "C": "service_target_c",
 }
 
-SETTING_BY_KEY = {s.key: s for s in SETTINGS}
+#: The season planning's settings (xlpolicy.seasons), read like the others.
+SEASON_SETTINGS: tuple[Setting, ...] = (
+    Setting(
+        "plan_as_of",
+        "Plan as of",
+        None,
+        "The date the policy is planned for: items planned with their season or trend get "
+        "the reorder point and order quantity for the lead time from that date, and the "
+        "season plan starts in its month. Blank: the day of the run.",
+        ("as of", "plan date", "planning date"),
+    ),
+)
+#: Every setting a Settings sheet (or --set) may give.
+READ_SETTINGS: tuple[Setting, ...] = SETTINGS + SEASON_SETTINGS
+
+SETTING_BY_KEY = {s.key: s for s in READ_SETTINGS}
 
 
 # ---------------------------------------------------------------------------
@@ -668,6 +683,15 @@ EXTRA_RESULT_KEYS: tuple[str, ...] = (
     "order_up_to_level",
     "protection_demand_mean",
     "protection_demand_sd",
+    # the forecast with seasons and trend (xlpolicy.seasons)
+    "forecast",
+    "forecast_reason",
+    "forecast_mae_ratio",
+    "forecast_error_sd",
+    "season_backtest_service",
+    "season_backtest_flat_service",
+    "season_backtest_stock",
+    "season_backtest_flat_stock",
     # the back-test (only with a simulation; see xlpolicy.backtest)
     "simulation_source",
     "simulated_cycle_service",
@@ -712,6 +736,8 @@ TEXT_RESULT_KEYS: frozenset[str] = frozenset(
         "review",
         "simulation_source",
         "simulation_check",
+        "forecast",
+        "forecast_reason",
     }
 )
 

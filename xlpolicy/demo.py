@@ -456,6 +456,8 @@ def _settings(wb: Workbook, rows: list[tuple[str, object]]) -> None:
         cell = ws.cell(row=r, column=2, value=value)
         if name in ("Service target", "Holding rate", "Service target A"):
             cell.number_format = "0%"
+        elif isinstance(value, datetime):
+            cell.number_format = "yyyy-mm-dd"
 
 
 def build_shop(path: Path) -> None:
@@ -516,6 +518,8 @@ def build_shop(path: Path) -> None:
             ("Holding rate", 0.25),
             ("Currency", "$"),
             ("Service target A", 0.97),
+            # the owner runs the plan in early spring, ahead of the riding season
+            ("Plan as of", datetime(2025, 3, 3)),
         ],
     )
     breaks = wb.create_sheet("Price breaks")

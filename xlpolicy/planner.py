@@ -13,7 +13,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .backtest import backtest_totals, run_backtest
+from .backtest import AUTO_MAX_ITEMS, backtest_totals, run_backtest
 from .contract import (
     ALL_RESULT_KEYS,
     AUTO_MODEL,
@@ -41,6 +41,8 @@ from .core.portfolio import (
 from .problems import ProblemLog, Severity
 from .reading import InputData
 from .report import REORDER_KEYS, Report
+from .season_backtest import SEASON_BACKTEST_KEYS, compare_policies
+from .seasons import SeasonForecast, forecast_demand, season_notes, season_plan
 
 #: Fewer non-zero periods than this gives an unreliable standard deviation (field notes:
 #: "fewer than ~8 non-zero periods"; common practice).
@@ -58,7 +60,7 @@ def build_report(
     ppy = float(settings["periods_per_year"])
     usable = items.usable.copy()
 
-    demand = _demand(data, df, usable, ppy, log)
+    demand = _demand(data, df, usable, ppy, log, run_date)
     planned = usable & demand["ok"]
 
     # Classes first, from annual demand x unit cost (neither depends on the service target),
@@ -96,6 +98,10 @@ def build_report(
         "adi",
         "cv2",
         "history_start",
+        "forecast",
+        "forecast_reason",
+        "forecast_mae_ratio",
+        "forecast_error_sd",
     ):
         first[key] = demand[
             "source" if key == "demand_source" else "periods" if key == "history_periods" else key
@@ -108,6 +114,8 @@ def build_report(
     idx = np.flatnonzero(planned)
     portfolio: dict[str, Any] = {}
     trace = None
+    plan_table = None
+    season_totals: dict[str, float] = {}
     if len(idx):
         sub = df[list(_PLAN_INPUTS)].iloc[idx]  # the columns the policy reads, planned rows
         measure = np.full(len(idx), settings["service_measure"], dtype=object)
@@ -157,6 +165,17 @@ def build_report(
             if key in results.columns:
                 _put(results, idx, key, pol[key].to_numpy())
         _flag_problems(pol, df[["row", "item"]].iloc[idx], items, log)
+        sf = demand["season"]
+        if sf is not None and sf.chosen[idx].any():
+            ahead = np.intersect1d(cont, np.flatnonzero(sf.chosen[idx]))
+            plan_table = season_plan(inp, ahead, sf, idx, df["item"].to_numpy(object))
+            season_notes(plan_table, sf, df, data.history, settings, log)
+            if 0 < len(ahead) <= AUTO_MAX_ITEMS and data.history is not None:
+                frame, season_totals = compare_policies(
+                    inp, ahead, idx, sf, data.history.matrix, ppy
+                )
+                for key in SEASON_BACKTEST_KEYS:
+                    _put(results, frame["row"].to_numpy(), key, frame[key].to_numpy(float))
     _periodic(results, df, planned, demand, target, settings, data, log)
     # The back-test simulates continuous review; items on periodic review are left out
     # (their order-up-to policy has no reorder point to replay).
@@ -173,6 +192,7 @@ def build_report(
     results = _typed(results)
     reorder = _reorder_list(results, df)
     totals = _totals(results, reorder)
+    totals.update(season_totals)
     results = backtest_totals(results, totals)
     history = data.history
     summary: dict[str, Any] = {
@@ -198,6 +218,7 @@ def build_report(
         run_date=run_date or _dt.date.today(),
         portfolio=portfolio,
         trace=trace,
+        season_plan=plan_table,
     )
 
 
@@ -217,8 +238,13 @@ _PLAN_INPUTS = (
 
 
 def _demand(
-    data: InputData, df: pd.DataFrame, usable: np.ndarray, ppy: float, log: ProblemLog
-) -> dict[str, np.ndarray]:
+    data: InputData,
+    df: pd.DataFrame,
+    usable: np.ndarray,
+    ppy: float,
+    log: ProblemLog,
+    run_date: _dt.date | None = None,
+) -> dict[str, Any]:
     """Demand per period (rate, sd), per year, and the lead-time demand model, per item.
 
     From History: each item's own span (from its first sale, or its History start), its
@@ -251,6 +277,7 @@ def _demand(
     lead_sd = np.nan_to_num(df["lead_time_sd_days"].to_numpy(float)) / dpp
     forced = _forced_models(df, settings)
     an = None
+    season: SeasonForecast | None = None
     if hist is not None and len(hist.items):
         where = _history_rows(hist.items, codes)
         has_hist = where >= 0
@@ -285,6 +312,22 @@ def _demand(
         source[has_hist] = "history"
         hist_row[has_hist] = w
         span_start[has_hist] = an.start[w]
+        steady = np.isin(out_text["demand_class"], ("smooth", "erratic"))
+        # the season plan is of reorder points: items on periodic review stay flat for now
+        periodic = _review_days(df, settings) > 0
+        season = forecast_demand(
+            hist,
+            where,
+            an.start,
+            lead,
+            usable & has_hist & steady & ~periodic,
+            settings,
+            run_date,
+            log,
+        )
+        season.reason[has_hist & steady & periodic] = (
+            "items on periodic review are planned on the flat average"
+        )
 
     annual_fig = df["annual_demand"].to_numpy(float)
     fig = ~has_hist & ~np.isnan(annual_fig)
@@ -396,12 +439,38 @@ def _demand(
             code="demand-missing",
         )
     ok = ~(too_short | zero_hist | zero_fig | missing)
+    annual = mean * ppy
+    fc_keys: dict[str, Any] = {
+        "forecast": np.full(n, "", dtype=object),
+        "forecast_reason": np.full(n, "", dtype=object),
+        "forecast_mae_ratio": np.full(n, np.nan),
+        "forecast_error_sd": np.full(n, np.nan),
+    }
+    if season is not None:
+        # items planned with their forecast: its demand for now, its error for the spread
+        use = ok & season.chosen & (season.mean_now > 0) & (season.annual_now > 0)
+        none_ahead = season.chosen & ~use
+        season.label[none_ahead] = "flat average"
+        season.reason[none_ahead] = "the forecast for the coming lead time is not above 0"
+        season.chosen &= use
+        season.flat_mean, season.flat_sd = mean.copy(), sd.copy()
+        mean[use] = season.mean_now[use]
+        sd[use] = season.sd_now[use]
+        annual[use] = season.annual_now[use]
+        fc_keys["forecast"] = np.where(ok, season.label, "")
+        fc_keys["forecast_reason"] = np.where(ok, season.reason, "")
+        fc_keys["forecast_mae_ratio"] = np.where(ok, season.mae_ratio, np.nan)
+        fc_keys["forecast_error_sd"] = np.where(use, season.error_sd, np.nan)
     if an is not None:
-        _pattern_notes(an, hist, where, usable & ok & has_hist, codes, period, settings, log)
+        _pattern_notes(
+            an, hist, where, usable & ok & has_hist, codes, period, settings, log, season
+        )
     return {
         "mean": mean,
         "sd": sd,
-        "annual": mean * ppy,
+        "annual": annual,
+        "season": season,
+        **fc_keys,
         "periods": periods,
         "ok": ok,
         "source": source,
@@ -484,11 +553,24 @@ def _pattern_notes(
     period: str,
     settings: dict[str, Any],
     log: ProblemLog,
+    season: SeasonForecast | None = None,
 ) -> None:
-    """A planner's notes on each item's history: new, shifting, seasonal, spiky, dormant."""
+    """A planner's notes on each item's history: new, shifting, seasonal, spiky, dormant.
+
+    Items planned with their season or trend are left to xlpolicy.seasons, which says what
+    was planned; the others keep the warning, with why the forecast was not used.
+    """
     n_cols = hist.matrix.shape[1]
+    if season is not None:
+        sel = sel & ~season.chosen
     items_idx = np.flatnonzero(sel)
     h = where[items_idx]
+    why_flat = np.full(hist.matrix.shape[0], "", dtype=object)
+    if season is not None:
+        why_flat[where[items_idx]] = [
+            f" Not planned with a season or trend: {r}." if r else ""
+            for r in season.reason[items_idx]
+        ]
     capped = settings.get("cap_outliers") == "yes"
 
     def note(mask: np.ndarray, code: str, severity: str, text: Any) -> None:
@@ -523,6 +605,7 @@ def _pattern_notes(
             f"the history runs at {an.trend_ratio[j]:.2f} times the earlier level. The policy uses "
             "the average over the whole history; if the change will last, set a later History "
             "start for this item or adjust the order quantity and reorder point by hand."
+            + why_flat[j]
         ),
     )
     note(
@@ -533,7 +616,7 @@ def _pattern_notes(
             f"Demand is seasonal: the busiest part of the year runs at about "
             f"{min(an.seasonal_strength[j], 99):.1f} times the quietest. A year-round average "
             "leaves too little stock before the peak and too much after it: raise the reorder "
-            "point ahead of the busy season and lower it after."
+            "point ahead of the busy season and lower it after." + why_flat[j]
         ),
     )
     note(

@@ -44,6 +44,9 @@ class Report:
     portfolio: dict[str, Any] = field(default_factory=dict)
     #: the back-test's stock trace of a few items (xlpolicy.backtest), or None
     trace: dict[str, Any] | None = None
+    #: the season plan (xlpolicy.seasons.SEASON_PLAN_COLUMNS, "row" = the Items row
+    #: position), one row per item planned with its season or trend and month; or None
+    season_plan: pd.DataFrame | None = None
 
 
 REORDER_KEYS: tuple[str, ...] = (

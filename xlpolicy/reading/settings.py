@@ -7,6 +7,7 @@ it to the accountant.
 
 from __future__ import annotations
 
+import datetime as _dt
 from typing import Any
 
 from ..contract import (
@@ -14,15 +15,15 @@ from ..contract import (
     PERIODS,
     PERIODS_PER_YEAR,
     RATE_SETTINGS,
+    READ_SETTINGS,
     SERVICE_MEASURES,
-    SETTINGS,
     normalise,
 )
 from ..problems import ProblemLog
 from .cells import describe, is_blank, parse_number
 from .workbook import RawSheet, cell_ref
 
-_SETTING_LOOKUP = {name: s.key for s in SETTINGS for name in s.names()}
+_SETTING_LOOKUP = {name: s.key for s in READ_SETTINGS for name in s.names()}
 
 
 def _words(table: dict[str, tuple[str, ...]]) -> dict[str, str]:
@@ -86,6 +87,19 @@ def parse_measure(value: Any) -> str | None:
     return _MEASURE_LOOKUP.get(normalise(value)) if not is_blank(value) else None
 
 
+def parse_day(value: Any) -> _dt.date | None:
+    """A date from a date cell or text such as 2025-03-01 (a time of day is dropped)."""
+    if isinstance(value, _dt.datetime):
+        return value.date()
+    if isinstance(value, _dt.date):
+        return value
+    text = str(value).strip()[:10]
+    try:
+        return _dt.date.fromisoformat(text)
+    except ValueError:
+        return None
+
+
 def parse_period(value: Any) -> str | None:
     """A period name (day, week, month), loosely matched, or None."""
     return _PERIOD_LOOKUP.get(normalise(value)) if not is_blank(value) else None
@@ -113,7 +127,7 @@ def read_settings(sheet: RawSheet | None, log: ProblemLog) -> dict[str, tuple[An
                 continue
             log.warning(
                 f"Unknown setting {describe(name)}; it was ignored. Known settings: "
-                + ", ".join(s.title for s in SETTINGS)
+                + ", ".join(s.title for s in READ_SETTINGS)
                 + ".",
                 sheet=sheet.name,
                 cell=cell_ref(j, rownum),
@@ -150,7 +164,7 @@ def resolve_settings(
     """
     out: dict[str, Any] = {}
     sources: dict[str, str] = {}
-    for s in SETTINGS:
+    for s in READ_SETTINGS:
         out[s.key] = s.default
         sources[s.key] = "default"
 
@@ -177,6 +191,12 @@ def resolve_settings(
                 bad(key, raw, cell, "write " + ", ".join(f"'{m}'" for m in SERVICE_MEASURES))
                 continue
             out[key] = m
+        elif key == "plan_as_of":
+            day = parse_day(raw)
+            if day is None:
+                bad(key, raw, cell, "write a date, e.g. 2025-03-01")
+                continue
+            out[key] = day
         elif key in ("currency", "history_file"):
             out[key] = str(raw).strip()
         elif key == "demand_model":
@@ -316,4 +336,5 @@ SETTING_DEFAULT_TEXT = {
     "service_target_b": "the Service target",
     "service_target_c": "the Service target",
     "review_period_days": "continuous review",
+    "plan_as_of": "the day of the run",
 }

@@ -19,6 +19,7 @@ from xlsxwriter.worksheet import Worksheet
 
 from .. import contract
 from ..problems import Severity
+from ..season_backtest import summary_line
 from .portfolio_block import cap_headline, write_portfolio
 from .sheetkit import (
     GOOD,
@@ -214,6 +215,9 @@ def headlines(ctx: Context) -> list[tuple[str, str]]:
                 INK if short else GOOD,
             )
         )
+    seasons = summary_line(t, ctx.currency)  # planning with seasons, back-tested
+    if seasons:
+        out.append((seasons.rstrip(".") + f" (see '{ctx.names['seasons']}').", INK))
     avg = finite(t.get("average_inventory_value"))
     turns = finite(t.get("inventory_turns"))
     if avg is not None and turns is not None:

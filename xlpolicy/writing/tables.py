@@ -149,6 +149,20 @@ def portfolio_for_export(report: Report) -> dict[str, Any]:
     return out
 
 
+def season_plan_for_export(report: Report) -> list[dict[str, Any]]:
+    """The season plan, one record per item planned with its season or trend: the item and
+    its months, each with its date, forecast and policy (xlpolicy.seasons)."""
+    plan = getattr(report, "season_plan", None)
+    if plan is None or plan.empty:
+        return []
+    out = []
+    keys = [k for k in plan.columns if k not in ("row", "item")]
+    for item, block in plan.groupby("item", sort=False):
+        months = [{k: plain(v) for k, v in rec.items()} for rec in block[keys].to_dict("records")]
+        out.append({"item": plain(item), "months": months})
+    return out
+
+
 def write_json(path: Path, report: Report) -> None:
     """Write items, problems, settings and totals as strict JSON (NaN becomes null).
 
@@ -166,6 +180,7 @@ def write_json(path: Path, report: Report) -> None:
         "settings": plain(dict(report.settings or {})),
         "totals": plain(dict(report.totals or {})),
         "portfolio": portfolio_for_export(report),
+        "season_plan": season_plan_for_export(report),
     }
     text = json.dumps(doc, ensure_ascii=False, indent=2, allow_nan=False)
     with atomic_output(Path(path)) as tmp:
