@@ -90,17 +90,22 @@ def cli_reference() -> str:
 
     from .cli import main as group
 
-    def help_of(cmd: click.Command, name: str, parent: click.Context | None) -> str:
-        ctx = click.Context(
+    def context(cmd: click.Command, name: str, parent: click.Context | None) -> click.Context:
+        # the command's own context settings (the group's -h alias among them), as click
+        # applies them when it runs the command; a bare Context would leave them out
+        return click.Context(
             cmd,
             info_name=name,
             parent=parent,
             terminal_width=HELP_WIDTH,
             max_content_width=HELP_WIDTH,
+            **cmd.context_settings,
         )
-        return cmd.get_help(ctx)
 
-    top = click.Context(group, info_name="xlpolicy", terminal_width=HELP_WIDTH)
+    def help_of(cmd: click.Command, name: str, parent: click.Context | None) -> str:
+        return cmd.get_help(context(cmd, name, parent))
+
+    top = context(group, "xlpolicy", None)
     parts = [
         "# Command reference",
         "",
@@ -110,7 +115,7 @@ def cli_reference() -> str:
         "## xlpolicy",
         "",
         "```text",
-        help_of(group, "xlpolicy", None),
+        group.get_help(top),
         "```",
     ]
     assert isinstance(group, click.Group)
