@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import asyncio
 import io
+import shutil
 import time
 import zipfile
 from pathlib import Path
@@ -428,3 +429,22 @@ def test_pdf_route_says_why_when_there_is_no_libreoffice(monkeypatch, tmp_path):
         wait(client, job)
         r = client.get(f"/api/jobs/{job}/pdf")
         assert r.status_code == 404 and "LibreOffice" in r.json()["failure"]["message"]
+
+
+@pytest.mark.skipif(
+    shutil.which("soffice") is None and shutil.which("libreoffice") is None,
+    reason="LibreOffice is not installed (.ci/run installs it)",
+)
+def test_pdf_route_prints_the_reorder_list_with_libreoffice(tmp_path):
+    book = simple_workbook(tmp_path / "one.xlsx")
+    with make_client() as client:
+        enter(client)
+        assert client.get("/api/about").json()["pdf"] is True
+        job = upload(client, book)["job"]
+        wait(client, job)
+        r = client.get(f"/api/jobs/{job}/pdf")
+        assert r.status_code == 200 and r.content.startswith(b"%PDF")
+        assert "one-reorder.pdf" in r.headers["content-disposition"]
+        # the folder still holds the policy workbook and nothing of the print run
+        (folder,) = folders(client)
+        assert sorted(p.name for p in folder.iterdir()) == ["one-policy.xlsx", "one.xlsx"]

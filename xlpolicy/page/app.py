@@ -23,6 +23,7 @@ from __future__ import annotations
 import asyncio
 import contextlib
 import secrets
+import shutil
 import urllib.parse
 from collections.abc import AsyncIterator
 from importlib import resources
@@ -327,7 +328,7 @@ def create_app(
         if isinstance(made, str):
             return JSONResponse(refusal("Could not make the printable list", made), 500)
         data = made.read_bytes()
-        made.unlink(missing_ok=True)
+        shutil.rmtree(made.parent, ignore_errors=True)  # the copy, the profile, the PDF
         return Response(
             data,
             media_type="application/pdf",

@@ -121,23 +121,38 @@ def reorder_data(report: Report) -> dict[str, Any]:
     frame = report.reorder
     groups: list[dict[str, Any]] = []
     if frame is None or frame.empty:
-        return {"columns": [], "groups": [], "left_out": 0}
+        return {"columns": [], "groups": [], "left_out": 0, "note": ""}
     shown = frame.iloc[:MAX_ROWS]
-    columns = [title for _, title, _ in _REORDER_COLUMNS] + ["Value"]
+    spec = list(_REORDER_COLUMNS)
+    if "order_up_to_level" in frame and frame["order_up_to_level"].notna().any():
+        # items on periodic review order up to a level instead of at a reorder point
+        spec.insert(4, ("order_up_to_level", "Order up to", _quantity))
+    columns = [title for _, title, _ in spec] + ["Value"]
     current: dict[str, Any] | None = None
     for row in shown.to_dict("records"):
         supplier = _text(row.get("supplier")) or "(no supplier given)"
         if current is None or current["supplier"] != supplier:
             current = {"supplier": supplier, "rows": [], "total": 0.0}
             groups.append(current)
-        cells = [fmt(row.get(key)) for key, _, fmt in _REORDER_COLUMNS]
+        cells = [fmt(row.get(key)) for key, _, fmt in spec]
         value = _number(row.get("order_now_value")) or 0.0
         cells.append(money(value))
         current["rows"].append({"cells": cells, "item": _text(row.get("item"))})
         current["total"] += value
     for g in groups:
         g["total_text"] = money(g.pop("total"))
-    return {"columns": columns, "groups": groups, "left_out": max(0, len(frame) - MAX_ROWS)}
+    note = (
+        "Order up to: an item reviewed on a schedule (periodic review) is ordered up to this "
+        "level instead of at a reorder point."
+        if len(spec) > len(_REORDER_COLUMNS)
+        else ""
+    )
+    return {
+        "columns": columns,
+        "groups": groups,
+        "left_out": max(0, len(frame) - MAX_ROWS),
+        "note": note,
+    }
 
 
 _CHOICES = ("service_measure", "service_target", "holding_rate", "order_cost")

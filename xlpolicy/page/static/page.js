@@ -181,6 +181,8 @@
     }
     table.hidden = r.reorder.groups.length === 0;
     $("reorder-empty").hidden = r.reorder.groups.length !== 0;
+    $("reorder-note").textContent = r.reorder.note || "";
+    $("reorder-note").hidden = !r.reorder.note;
     $("reorder-more").hidden = !r.reorder.left_out;
     $("reorder-more").textContent = "… and " + r.reorder.left_out +
       " more lines: see the reorder sheet of the policy workbook.";
@@ -202,7 +204,7 @@
     // the choices as used
     for (const k of CHOICES) {
       const c = r.choices[k];
-      const v = c.value == null ? "none" : String(formatChoice(k, c.value));
+      const v = c.value == null ? "each item's own value" : String(formatChoice(k, c.value));
       $(k + "-used").textContent = "used: " + v + (c.source ? " (" + c.source + ")" : "");
     }
     $("rerun").disabled = false;
