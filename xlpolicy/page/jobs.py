@@ -213,6 +213,11 @@ class JobStore:
                     "title": "Cannot use this workbook",
                     "problems": problems_data(exc.problems),
                 }
+                if any("--allow-large" in p.message for p in exc.problems):
+                    job.failure["message"] = (
+                        "On this page, --allow-large means starting the page with "
+                        "'xlpolicy open --allow-large'."
+                    )
                 job.state = "failed"
             except OSError as exc:
                 msg = getattr(exc, "user_message", None) or (
