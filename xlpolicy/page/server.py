@@ -9,14 +9,17 @@ out, whatever stopped it.
 
 from __future__ import annotations
 
+import contextlib
 import secrets
 import shutil
+import signal
 import socket
 import threading
 import warnings
 import webbrowser
 from collections.abc import Callable
 from dataclasses import dataclass
+from typing import Any
 
 from .app import create_app
 from .jobs import IDLE_MINUTES, JobStore
@@ -69,9 +72,26 @@ def serve(
         announce(started)
     if open_browser:
         threading.Timer(0.5, webbrowser.open, args=(started.url,)).start()
+    # uvicorn shuts down cleanly on a termination signal, then raises it again to the
+    # handler found before; this one makes it a KeyboardInterrupt (as Ctrl-C), so the
+    # command ends with its message and status 0 instead of being killed by the signal
+    previous = _stop_on_sigterm()
     try:
         server.run(sockets=[sock])
     finally:
         store.close()
         shutil.rmtree(store.root, ignore_errors=True)
         sock.close()
+        if previous is not None:
+            with contextlib.suppress(ValueError, OSError):
+                signal.signal(signal.SIGTERM, previous)
+
+
+def _stop_on_sigterm() -> Any:
+    def stop(signum: int, frame: Any) -> None:
+        raise KeyboardInterrupt
+
+    try:
+        return signal.signal(signal.SIGTERM, stop)
+    except (ValueError, OSError):  # not the main thread: leave signals alone
+        return None
