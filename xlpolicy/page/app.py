@@ -42,7 +42,7 @@ from .jobs import CHOICE_KEYS, IDLE_MINUTES, JobStore, refusal
 from .reorder_pdf import find_office, reorder_pdf
 
 #: The largest upload taken, before --allow-large multiplies it by the reader's factor.
-#: A workbook a person keeps is a few megabytes (the 10,000-item benchmark is about 6 MB).
+#: A workbook a person keeps is a few megabytes (the 10,000-item benchmark is under 4 MB).
 MAX_UPLOAD = 200 * (1 << 20)
 
 _ASSETS = {

@@ -190,6 +190,7 @@ class JobStore:
             csv = job.folder / f"{job.source.stem}-policy.csv"
             try:
                 given = {k: _blank_none(choices.get(k)) for k in CHOICE_KEYS}
+                started = time.perf_counter()
                 plan = api.plan(
                     job.source,
                     out,
@@ -203,6 +204,8 @@ class JobStore:
                 job.output = plan.output
                 name = plan.output.name if plan.output is not None else ""
                 job.result = result_data(plan.report, name, plan.standalone)
+                # how long the planning itself took, so the page's own cost can be told apart
+                job.result["run_seconds"] = round(time.perf_counter() - started, 3)
                 job.failure = None
                 job.state = "done"
             except api.UsageError as exc:

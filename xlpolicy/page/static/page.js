@@ -209,6 +209,7 @@
     }
     $("rerun").disabled = false;
     show("result");
+    document.body.dataset.runSeconds = String(r.run_seconds);
     document.body.dataset.state = "done";
   }
 
