@@ -392,6 +392,37 @@ def template(path: Path, force: bool) -> None:
     click.echo(f"Wrote {path}")
 
 
+@main.command("open")
+@click.option("--port", type=int, default=0, help="Port on 127.0.0.1 (default: any free one).")
+@click.option("--no-browser", is_flag=True, help="Only print the page's address.")
+@_allow_large_option
+def open_page(port: int, no_browser: bool, allow_large: bool) -> None:
+    """Open the owner's page in your browser: drop a workbook there, see what to order.
+
+    The page lives on this computer only (127.0.0.1) and answers only the address printed
+    here, which holds a key made at each start. Stop it with Ctrl-C.
+    """
+    try:
+        from .page.server import serve
+    except ImportError as exc:
+        raise click.UsageError(
+            f"the page needs its extra packages ({exc.name} is missing): "
+            "pip install 'xlpolicy[page]'"
+        ) from None
+
+    def announce(started: Any) -> None:
+        click.echo(f"The page is at {started.url}")
+        click.echo("Keep this window open while you use it; Ctrl-C stops it.")
+
+    try:
+        serve(port=port, open_browser=not no_browser, allow_large=allow_large, announce=announce)
+    except OSError as exc:
+        raise click.UsageError(f"cannot listen on 127.0.0.1 port {port}: {exc.strerror}") from None
+    except KeyboardInterrupt:
+        pass
+    click.echo("Stopped; the uploaded files are removed.")
+
+
 def _run(fn: Any, bar: _Bar | None = None) -> Any:
     """Call into the API, turning the user's mistakes into messages and exit codes."""
 
