@@ -200,6 +200,7 @@ def analyse(
     simulate: bool | None = None,
     replications: int | None = None,
     lost_sales: bool = False,
+    columns: dict[str, str] | None = None,
 ) -> Report:
     """Read, check and plan a workbook without writing anything.
 
@@ -232,6 +233,8 @@ def analyse(
         ),
     }
     overrides.update(_simulation_overrides(simulate, replications, lost_sales))
+    if columns:  # {our column: your header}, see xlpolicy.reading.column_map
+        overrides["columns"] = dict(columns)
     with guard.allow_large(allow_large):
         data = read_input(Path(path), overrides, log, progress, while_waiting=_warm_up)
     if data is None:
@@ -290,6 +293,7 @@ def plan(
     simulate: bool | None = None,
     replications: int | None = None,
     lost_sales: bool = False,
+    columns: dict[str, str] | None = None,
 ) -> PlanResult:
     """Plan every item in the workbook at ``path`` and write the results.
 
@@ -318,6 +322,7 @@ def plan(
         simulate=simulate,
         replications=replications,
         lost_sales=lost_sales,
+        columns=columns,
     )
     result = PlanResult(report)
     if write_workbook:

@@ -75,12 +75,17 @@ def unit_of(text: str, bracket: bool = True) -> Unit:
         return NO_UNIT
     if "%" in raw and (bracket or normalise(raw) in ("", "in", "per")):
         return Unit("percent", "%", raw)
+    per = raw.lower().startswith("per ")
     words = re.sub(r"^(in|per)\s+", "", raw.lower())
     n = normalise(words) or words.strip()
     if n in _UNITS:
         name = _UNITS[n]
         kind = "duration" if name in DURATION_UNITS else "percent" if name == "%" else "count"
+        if per and kind == "duration":  # "per week": a rate over time, not a length of time
+            return Unit("other", "", raw)
         return Unit(kind, name, raw)
+    if per and n in _TIME_WORDS:
+        return Unit("other", "", raw)
     if n in _CURRENCIES or raw in CURRENCY_SPELLINGS:
         return Unit("money", _CURRENCIES.get(n) or CURRENCY_SPELLINGS[raw], raw)
     if n in _TIME_WORDS:
