@@ -94,9 +94,11 @@ def read_input(
         )
         # Blank targets stay NaN while reading, so an item's own target can be told from a
         # default: a class target (Service target A/B/C) may apply to it instead.
-        items = read_items(read(items_name), {**settings, "service_target": float("nan")}, log)
+        for_items = {**settings, "service_target": float("nan")}
+        items = read_items(read(items_name), for_items, log)
         if items is None:
             return None
+        settings["currency"] = for_items.get("currency")  # (a currency named in a header)
         _default_targets(items, settings)
         if history_file is not None:
             if history_name is not None:

@@ -105,6 +105,9 @@ def split_unit(header: object) -> tuple[str, Unit]:
     if m is not None and raw[: m.start()].strip():
         return raw[: m.start()].strip(), unit_of(m.group(1))
     tokens = list(_TOKENS.finditer(raw))
+    if len(tokens) > 1 and tokens[-1].group(0) == "%":  # "Holding cost %", "Margin in %"
+        base = re.sub(r"\b(in|per)\s*$", "", raw[: tokens[-1].start()].strip(), flags=re.I)
+        return base.strip(" -_/:,"), Unit("percent", "%", "%")
     for size in (2, 1):
         if len(tokens) <= size:
             continue

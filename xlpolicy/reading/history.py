@@ -164,10 +164,12 @@ def read_history(
         return _read_long(
             sheet, long_header.columns, long_header.row_index, known_items, settings, log
         )
-    wide = _find_wide_header(sheet)
+    # Two of the three long-layout headers (Item and Date, say) is a long layout short of
+    # a column, not a row of period labels: say which column is missing.
+    partial = find_header(sheet, HISTORY_LONG_COLUMNS, min_matches=2, mapping=mapping)
+    wide = _find_wide_header(sheet) if partial is None else None
     if wide is not None:
         return _read_wide(sheet, *wide, known_items, settings, log)
-    partial = find_header(sheet, HISTORY_LONG_COLUMNS, min_matches=2, mapping=mapping)
     if partial is not None:
         hrow = sheet.row_numbers[partial.row_index]
         missing = [c for c in HISTORY_LONG_COLUMNS if c.key not in partial.columns]
@@ -639,8 +641,8 @@ def _wide_finish(
 def wide_header(sheet: RawSheet) -> tuple[int, int, list[int]] | None:
     """(row index, item column, period columns) when ``sheet`` opens with a wide-layout
     History header (and not a long one), else None."""
-    if find_header(sheet, HISTORY_LONG_COLUMNS, min_matches=3) is not None:
-        return None
+    if find_header(sheet, HISTORY_LONG_COLUMNS, min_matches=2) is not None:
+        return None  # long, or long short of a column (read_history says which)
     return _find_wide_header(sheet)
 
 
