@@ -108,7 +108,8 @@ def what_it_holds(top: Any, mapping: dict[str, str] | None) -> tuple[str | None,
         if n >= 2 and n >= len(periods) / 2:
             return "History", "item codes and a row of periods, a column per period"
     lacks = []
-    found = set(items.columns) if items is not None else set()
+    loose = items or find_header(top, ITEM_COLUMNS, min_matches=1, mapping=mapping)
+    found = set(loose.columns) if loose is not None else set()
     if "item" not in found:
         lacks.append("no column of item codes")
     if "item" in found and "unit_cost" not in found:
