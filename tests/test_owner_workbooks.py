@@ -18,7 +18,9 @@ from openpyxl import Workbook, load_workbook
 from owner_books import PLANTS, garden_centre, monthly_columns, stock_sheet, till_export
 
 import xlpolicy
+from xlpolicy.backtest import AUTO_MAX_ITEMS, DEFAULT_RUNS
 from xlpolicy.cli import main
+from xlpolicy.contract import CAUTION
 from xlpolicy.problems import Problem, ProblemLog, Severity
 from xlpolicy.reading import read_input
 
@@ -71,6 +73,13 @@ def test_garden_centre_till_export_plans_without_renaming(tmp_path):
     rows = policy_rows(out)
     lead = next(k for k in rows["GC-101"] if k and str(k).lower().startswith("lead time"))
     assert rows["GC-101"][lead] == pytest.approx(14)
+    wb = load_workbook(out)
+    # the caution where people look: top of the Summary, in normal type; the printed list
+    assert wb["Summary"]["A3"].value == CAUTION and not wb["Summary"]["A3"].font.i
+    assert wb["Reorder now"]["A4"].value == CAUTION
+    method = " ".join(str(c.value) for r in wb["How it works"].iter_rows() for c in r if c.value)
+    assert "The items: the sheet 'Stock list' (found by its name)" in method
+    assert "Lead time read in weeks from 'Supplier lead time (weeks)'" in method
 
 
 def test_garden_centre_monthly_columns_plans_without_renaming(tmp_path):
@@ -269,3 +278,12 @@ def test_the_demo_mistakes_are_planted_ones(tmp_path):
     demo = Path(__file__).parent.parent / "examples" / "demo-shop.xlsx"
     found = {(p.item, p.code) for p in xlpolicy.check(demo, simulate=False)}
     assert set(PLANTED) <= found
+
+
+def test_plan_help_names_every_sheet_and_the_back_test_default():
+    from xlpolicy.writing.sheets import DEFAULT_SHEET_NAMES
+
+    text = " ".join(cli("plan", "--help").output.split())
+    for name in DEFAULT_SHEET_NAMES.values():
+        assert name in text, name
+    assert f"({DEFAULT_RUNS} runs an item) for up to {AUTO_MAX_ITEMS:,} items" in text

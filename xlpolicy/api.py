@@ -64,15 +64,20 @@ class PlanResult:
 def default_output_path(path: str | Path) -> Path:
     """``<input name>-policy.<ext>`` beside the input (.xlsm keeps its macros and extension).
 
-    Inputs that are not .xlsx/.xlsm (.ods, .xls, a folder of CSV files) give an .xlsx:
-    ``shop.ods`` -> ``shop-policy.xlsx``; the folder ``shop/`` -> ``shop-policy.xlsx`` beside it.
+    Inputs that are not .xlsx/.xlsm give an .xlsx named with their kind, so that shop.xlsx,
+    shop.ods, shop.xls and a folder shop/ beside each other never share an output:
+    ``shop.ods`` -> ``shop-ods-policy.xlsx``, ``shop.xls`` -> ``shop-xls-policy.xlsx``, the
+    folder ``shop/`` -> ``shop-csv-policy.xlsx`` beside it.
     """
     p = Path(path)
     if p.is_dir():
         q = p if p.name else p.resolve()
-        return q.with_name(f"{q.name}-policy.xlsx")
-    ext = p.suffix.lower() if p.suffix.lower() in (".xlsx", ".xlsm") else ".xlsx"
-    return p.with_name(f"{p.stem}-policy{ext}")
+        return q.with_name(f"{q.name}-csv-policy.xlsx")
+    suffix = p.suffix.lower()
+    if suffix in (".xlsx", ".xlsm"):
+        return p.with_name(f"{p.stem}-policy{suffix}")
+    kind = suffix.lstrip(".") or "input"
+    return p.with_name(f"{p.stem}-{kind}-policy.xlsx")
 
 
 def _overrides(

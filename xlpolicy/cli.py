@@ -18,9 +18,11 @@ from typing import Any
 import click
 
 from . import __version__, api
-from .contract import SERVICE_MEASURES
+from .backtest import AUTO_MAX_ITEMS, DEFAULT_RUNS
+from .contract import CAUTION, SERVICE_MEASURES
 from .problems import Problem, Severity, UnusableWorkbook
 from .report import Report
+from .writing.sheets import DEFAULT_SHEET_NAMES, SHEET_ORDER
 
 _SEVERITY_STYLE = {
     Severity.FATAL: {"fg": "red", "bold": True},
@@ -58,6 +60,24 @@ class _Bar:
         if self.shown:
             click.echo("\r\x1b[K", nl=False, err=True, color=True)
             self.shown = False
+
+
+def _plan_help() -> str:
+    """plan's help, its facts taken from the code that applies them."""
+    names = DEFAULT_SHEET_NAMES
+    sheets = ", ".join(names[k] for k in SHEET_ORDER)
+    return (
+        "Compute the policy for every item and write the policy workbook.\n\n"
+        "Your WORKBOOK is never changed. The output (default: <name>-policy.xlsx beside it; "
+        "<name>-ods-policy.xlsx and the like for other kinds of input) holds your own "
+        f"sheets plus {sheets}, and {names['trace']} when the back-test runs. The back-test "
+        f"runs by default ({DEFAULT_RUNS} runs an item) for up to {AUTO_MAX_ITEMS:,} items, "
+        "unless the Settings sheet's 'Simulation runs' or --simulate/--no-simulate say "
+        "otherwise."
+    )
+
+
+_PLAN_HELP = _plan_help()
 
 
 def _override_options(f: Any) -> Any:
@@ -211,14 +231,15 @@ def main() -> None:
     """
 
 
-@main.command()
+@main.command(help=_PLAN_HELP)
 @click.argument("workbook", type=click.Path(path_type=Path))
 @click.option(
     "-o",
     "--output",
     type=click.Path(path_type=Path),
     default=None,
-    help="Where to write the policy workbook (default: <name>-policy.xlsx beside the input).",
+    help="Where to write the policy workbook (default: <name>-policy.xlsx beside the "
+    "input; <name>-ods-policy.xlsx for an .ods, and so on, so inputs never share one).",
 )
 @click.option(
     "--csv",
@@ -245,7 +266,8 @@ def main() -> None:
     default=None,
     help="Back-test each policy by simulating it on resamples of the item's own "
     "demand, and warn where it falls short of what it promises. Default: as "
-    "the Settings sheet's 'Simulation runs' says (off when blank).",
+    f"the Settings sheet's 'Simulation runs' says; when blank, {DEFAULT_RUNS} runs an "
+    f"item for up to {AUTO_MAX_ITEMS:,} items and none above.",
 )
 @click.option(
     "--replications",
@@ -282,11 +304,6 @@ def plan(
     lost_sales: bool,
     quiet: bool,
 ) -> None:
-    """Compute the policy for every item and write the policy workbook.
-
-    Your WORKBOOK is never changed. The output holds your own sheets plus Policy, Summary,
-    Reorder now and Warnings.
-    """
     bar = _Bar(quiet)
     given = _named(named)
     result = _run(
@@ -331,15 +348,6 @@ def demo(folder: Path, quiet: bool) -> None:
         click.echo(f"Wrote the demo workbook {folder / 'demo-shop.xlsx'}")
     planted = [p for p in result.problems if (p.item, p.code) in set(PLANTED)]
     _print_run(result, quiet, planted=planted)
-
-
-#: The caution, printed once by plan and demo (the Summary and the Reorder now page carry
-#: it too).
-CAUTION = (
-    "Caution: these are estimates from past sales; new, promoted, seasonal or ending items "
-    "need your judgement. For medicine, food or anything safety-critical they support, and "
-    "do not replace, licensed judgement and your local rules."
-)
 
 
 def _print_run(result: api.PlanResult, quiet: bool, planted: list[Problem] | None = None) -> None:

@@ -1132,6 +1132,14 @@ AUTO_MODEL = "auto"
 
 ALL_RESULT_KEYS: tuple[str, ...] = RESULT_KEYS + EXTRA_RESULT_KEYS
 
+#: The caution shown where people look: printed once by plan and demo, at the top of the
+#: Summary and on the printed Reorder now page (the How it works sheet says more).
+CAUTION = (
+    "Caution: these are estimates from past sales; new, promoted, seasonal or ending items "
+    "need your judgement. For medicine, food or anything safety-critical they support, and "
+    "do not replace, licensed judgement and your local rules."
+)
+
 STATUS_OK = "ok"
 STATUS_WARNING = "warning"
 STATUS_SKIPPED = "skipped"
