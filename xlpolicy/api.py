@@ -258,7 +258,8 @@ def analyse(
             None,
             f"No item in '{data.items.sheet}' could be planned "
             f"({report.input_summary['items_read']} read). Fix the problems listed "
-            "and run again.",
+            "and run again"
+            + (f" ({len(reasons)} in all; the first 20 are listed)." if len(reasons) > 20 else "."),
             "no-usable-item",
         )
         raise UnusableWorkbook([fatal, *reasons[:20]])

@@ -92,8 +92,11 @@ def _period_like(value: Any) -> bool:
     return isinstance(value, str) and _as_date(value) is not None
 
 
-def what_it_holds(top: Any, mapping: dict[str, str] | None) -> tuple[str | None, str]:
-    """("Items", "History" or None, what was found or lacked) from a sheet's top rows."""
+def what_it_holds(
+    top: Any, mapping: dict[str, str] | None, role: str = "Items"
+) -> tuple[str | None, str]:
+    """("Items", "History" or None, what was found, or what it lacked to be ``role``'s
+    sheet) from a sheet's top rows."""
     items = find_header(top, ITEM_COLUMNS, mapping=mapping)
     if items is not None and {"item", "unit_cost"} <= set(items.columns):
         return "Items", "item codes and unit costs"
@@ -110,17 +113,19 @@ def what_it_holds(top: Any, mapping: dict[str, str] | None) -> tuple[str | None,
     lacks = []
     loose = items or find_header(top, ITEM_COLUMNS, min_matches=1, mapping=mapping)
     found = set(loose.columns) if loose is not None else set()
-    if "item" not in found:
-        lacks.append("no column of item codes")
-    if "item" in found and "unit_cost" not in found:
-        lacks.append("item codes but no unit cost")
-    if long is not None:
-        titles = {c.key: c.title for c in HISTORY_LONG_COLUMNS}
+    if role == "History":
+        hist = long or find_header(top, HISTORY_LONG_COLUMNS, min_matches=1, mapping=mapping)
+        have = set(hist.columns) if hist is not None else set()
+        titles = {c.key: f"'{c.title}'" for c in HISTORY_LONG_COLUMNS}
         lacks.append(
-            "no "
-            + " or ".join(f"'{titles[k]}'" for k in titles if k not in long.columns)
-            + " for a history"
+            "no " + ", ".join(titles[k] for k in titles if k not in have) + " column"
+            if have
+            else "no header row with item codes, dates and quantities"
         )
+    elif "item" not in found:
+        lacks.append("no column of item codes")
+    elif "unit_cost" not in found:
+        lacks.append("item codes but no unit cost")
     return None, "; ".join(lacks) or "no header row I recognise"
 
 
@@ -138,7 +143,7 @@ def by_content(
     found: list[tuple[str, str]] = []
     lacked: list[str] = []
     for name, top in candidates.items():
-        kind, why = what_it_holds(top, mapping)
+        kind, why = what_it_holds(top, mapping, role)
         if kind == role:
             found.append((name, why))
         else:
@@ -167,5 +172,15 @@ def by_content(
             + "). Rename the sheet with your items 'Items', or add the missing headers "
             "(run 'xlpolicy template' for an example).",
             code="items-sheet-missing",
+        )
+    elif role == "History":
+        log.warning(
+            f"{source} has no 'History' sheet, and no other sheet holds sales by item and "
+            "period ("
+            + ("; ".join(lacked) or "no other sheets")
+            + "). Only items with an Annual demand in the item list can be planned. Name "
+            "the sheet with your sales 'History', or give its headers (item code, date, "
+            "quantity sold).",
+            code="history-sheet-missing",
         )
     return None
