@@ -271,3 +271,13 @@ def test_two_columns_for_one_thing_are_reported(tmp_path):
     assert "'Unit cost' (B1)" in dup.message and "'Cost price' (C1)" in dup.message
     assert data.items.df["unit_cost"].tolist() == [10]
     assert normalise("Cost price") in {normalise(a) for a in ITEM_COLUMNS[4].aliases}
+
+
+def test_the_workbook_guide_lists_every_header_word():
+    """docs/workbook.md is written for owners; it must not fall behind the contract."""
+    guide = (Path(__file__).parent.parent / "docs" / "workbook.md").read_text(encoding="utf-8")
+    for cols in (ITEM_COLUMNS, HISTORY_LONG_COLUMNS[1:]):
+        for col in cols:
+            row = next(line for line in guide.splitlines() if line.startswith(f"| {col.title} |"))
+            for alias in col.aliases:
+                assert alias in row or normalise(alias) == normalise(col.title), alias
