@@ -361,11 +361,11 @@ def _print_run(result: api.PlanResult, quiet: bool, planted: list[Problem] | Non
                 f"{_count(len(planted), 'mistake')} planted in the demo on purpose, to show "
                 "how problems are reported (each is on the Warnings sheet too):"
             )
-            for p in planted:
-                where = p.where() + (f" [{p.item}]" if p.item else "")
-                click.echo(f"  - {where}: {p.message}")
-        ids = {id(p) for p in planted or []}
-        rest = [p for p in report.problems if id(p) not in ids]
+            for mistake in planted:
+                where = mistake.where() + (f" [{mistake.item}]" if mistake.item else "")
+                click.echo(f"  - {where}: {mistake.message}")
+        ids = {id(m) for m in planted or []}
+        rest = [q for q in report.problems if id(q) not in ids]
         if planted and rest:
             click.echo("Besides those:")
         _print_problems(rest)

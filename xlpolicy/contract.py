@@ -66,7 +66,7 @@ DURATION_UNITS: dict[str, float] = {
 #: How people write each unit, normalised (see :func:`normalise`) -> the unit's name.
 UNIT_SPELLINGS: dict[str, str] = {
     **dict.fromkeys(("d", "day", "days", "dys", "calendar days", "cal days"), "days"),
-    **dict.fromkeys(("w", "wk", "wks", "week", "weeks", "wk s"), "weeks"),
+    **dict.fromkeys(("w", "wk", "wks", "week", "weeks"), "weeks"),
     **dict.fromkeys(("mo", "mos", "mth", "mths", "mnth", "mnths", "month", "months"), "months"),
     **dict.fromkeys(
         (

@@ -193,9 +193,28 @@ def match(text: object, columns: tuple[Column, ...]) -> tuple[str | None, Unit]:
     return _match(text, _lookup(columns), {c.key for c in columns})
 
 
+#: Last words that may be a unit: a header ending otherwise has none (a quick test that
+#: spares most headers the full split).
+_LAST_WORDS = frozenset(
+    w
+    for spelling in (*UNIT_SPELLINGS, *CURRENCY_SPELLINGS, *UNSUPPORTED_TIME_UNITS)
+    for w in (spelling.lower().split() or [spelling])[-1:]
+)
+
+
+def _may_have_unit(text: str) -> bool:
+    if not text or text[-1] in ")]}%$€£¥₹":
+        return True
+    last = text.rsplit(None, 1)[-1].lower().strip(".:,;-_")
+    return last in _LAST_WORDS
+
+
 def _match(text: object, lookup: dict[str, str], keys: set[str]) -> tuple[str | None, Unit]:
+    raw = str(text)
+    full = normalise(raw)
+    if not _may_have_unit(raw.strip()):
+        return lookup.get(full), NO_UNIT
     base, unit = split_unit(text)
-    full = normalise(text)
     if full in lookup:
         return lookup[full], unit
     b = normalise(base)
@@ -231,13 +250,16 @@ def find_header(
                 continue
             text = " ".join(str(value).split())
             head.texts[j] = text
+            if not isinstance(value, str):  # a date or number heads a period, not a column
+                head.unknown[j] = text
+                continue
             key, unit = _match(text, lookup, keys)
             if normalise(text) in own:
                 key = own[normalise(text)]
                 head.mapped[j] = key
             if key is None:
                 head.unknown[j] = text
-                b = normalise(split_unit(text)[0])
+                b = normalise(split_unit(text)[0]) if _may_have_unit(text) else normalise(text)
                 if b in _PERCENT_ONLY and _PERCENT_ONLY[b] in keys:
                     head.hints[j] = (
                         f"'{text}' may be money or a rate; write '{text} (%)' if it is the "
