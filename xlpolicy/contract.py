@@ -173,6 +173,11 @@ NUMBER = "number"
 RATE = "rate"  # a fraction; accepts 0.14, 14 % formatted, "14%"
 
 
+def _words(text: str) -> tuple[str, ...]:
+    """Aliases written as one text, separated by semicolons (the vocabulary stays readable)."""
+    return tuple(w.strip() for w in text.split(";") if w.strip())
+
+
 @dataclass(frozen=True)
 class Column:
     """One input column: its key, the header the template writes, and how to read it."""
@@ -196,33 +201,11 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         TEXT,
         "yes",
         "The item's code, unique. Kept as text: 000123 stays 000123.",
-        (
-            "sku",
-            "item code",
-            "item no",
-            "item number",
-            "code",
-            "product code",
-            "part number",
-            "part no",
-            "article",
-            "stock code",
-            "item id",
-            "product id",
-            "product no",
-            "product number",
-            "sku code",
-            "stock no",
-            "stock number",
-            "article number",
-            "art no",
-            "barcode",
-            "ean",
-            "plu",
-            "ref",
-            "reference",
-            "catalogue number",
-            "cat no",
+        _words(
+            "sku; item code; item no; item number; code; product code; part number; part no; "
+            "article; stock code; item id; product id; product no; product number; sku code; "
+            "stock no; stock number; article number; art no; barcode; ean; plu; ref; "
+            "reference; catalogue number; cat no"
         ),
     ),
     Column(
@@ -231,19 +214,9 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         TEXT,
         "no",
         "What the item is; carried to the output.",
-        (
-            "item description",
-            "item name",
-            "name",
-            "product name",
-            "product",
-            "product description",
-            "desc",
-            "article name",
-            "item desc",
-            "title",
-            "plant name",
-            "variety",
+        _words(
+            "item description; item name; name; product name; product; product description; "
+            "desc; article name; item desc; title; plant name; variety"
         ),
     ),
     Column(
@@ -252,18 +225,9 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         TEXT,
         "no",
         "A group for the summary; carried to the output.",
-        (
-            "group",
-            "product group",
-            "department",
-            "family",
-            "type",
-            "product type",
-            "section",
-            "range",
-            "product category",
-            "item group",
-            "category name",
+        _words(
+            "group; product group; department; family; type; product type; section; range; "
+            "product category; item group; category name"
         ),
     ),
     Column(
@@ -272,15 +236,9 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         TEXT,
         "no",
         "Who it is bought from; the reorder list groups by it.",
-        (
-            "vendor",
-            "supplier name",
-            "vendor name",
-            "supplied by",
-            "wholesaler",
-            "distributor",
-            "preferred supplier",
-            "main supplier",
+        _words(
+            "vendor; supplier name; vendor name; supplied by; wholesaler; distributor; "
+            "preferred supplier; main supplier"
         ),
     ),
     Column(
@@ -289,27 +247,11 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "yes",
         "What one unit costs to buy, more than 0.",
-        (
-            "cost",
-            "cost per unit",
-            "unit price paid",
-            "purchase price",
-            "buy price",
-            "cost price",
-            "cost each",
-            "unit cost price",
-            "cost per item",
-            "purchase cost",
-            "buying price",
-            "buy cost",
-            "cost ex vat",
-            "net cost",
-            "trade price",
-            "wholesale price",
-            "landed cost",
-            "item cost",
-            "price paid",
-            "our cost",
+        _words(
+            "cost; cost per unit; unit price paid; purchase price; buy price; cost price; "
+            "cost each; unit cost price; cost per item; purchase cost; buying price; buy "
+            "cost; cost ex vat; net cost; trade price; wholesale price; landed cost; item "
+            "cost; price paid; our cost"
         ),
     ),
     Column(
@@ -318,20 +260,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "unless set in Settings",
         "Cost of placing and receiving one order (admin, delivery), 0 or more.",
-        (
-            "ordering cost",
-            "cost per order",
-            "setup cost",
-            "order handling cost",
-            "cost to order",
-            "order charge",
-            "delivery charge",
-            "delivery cost",
-            "shipping cost",
-            "carriage",
-            "cost of ordering",
-            "order fee",
-            "admin cost per order",
+        _words(
+            "ordering cost; cost per order; setup cost; order handling cost; cost to order; "
+            "order charge; delivery charge; delivery cost; shipping cost; carriage; cost of "
+            "ordering; order fee; admin cost per order"
         ),
     ),
     Column(
@@ -340,18 +272,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         RATE,
         "unless set in Settings",
         "Yearly cost of keeping stock, as a fraction of unit cost (0.25 or 25%).",
-        (
-            "carrying rate",
-            "holding cost rate",
-            "carrying cost rate",
-            "annual holding rate",
-            "holding",
-            "holding percent",
-            "holding pct",
-            "carrying cost rate per year",
-            "storage rate",
-            "inventory carrying rate",
-            "holding rate per year",
+        _words(
+            "carrying rate; holding cost rate; carrying cost rate; annual holding rate; "
+            "holding; holding percent; holding pct; carrying cost rate per year; storage "
+            "rate; inventory carrying rate; holding rate per year"
         ),
     ),
     Column(
@@ -360,22 +284,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "yes",
         "Days from placing an order to having the goods on the shelf, more than 0.",
-        (
-            "lead time",
-            "leadtime",
-            "lt days",
-            "supplier lead time",
-            "delivery days",
-            "delivery time",
-            "delivery lead time",
-            "lt",
-            "time to deliver",
-            "days to deliver",
-            "replenishment time",
-            "order lead time",
-            "lead days",
-            "supplier lead time days",
-            "turnaround",
+        _words(
+            "lead time; leadtime; lt days; supplier lead time; delivery days; delivery time; "
+            "delivery lead time; lt; time to deliver; days to deliver; replenishment time; "
+            "order lead time; lead days; supplier lead time days; turnaround"
         ),
     ),
     Column(
@@ -384,18 +296,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "How much the lead time varies: its standard deviation in days, 0 or more.",
-        (
-            "lead time sd",
-            "lead time std dev",
-            "lead time standard deviation",
-            "lead time std",
-            "lt sd",
-            "lead time variation",
-            "lead time spread",
-            "lt std dev",
-            "lead time stdev",
-            "delivery time sd",
-            "lead time variability",
+        _words(
+            "lead time sd; lead time std dev; lead time standard deviation; lead time std; lt "
+            "sd; lead time variation; lead time spread; lt std dev; lead time stdev; delivery "
+            "time sd; lead time variability"
         ),
     ),
     Column(
@@ -405,15 +309,9 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         "no",
         "Target for the service measure, between 0 and 1 (0.95 or 95%). "
         "Blank: the Settings default.",
-        (
-            "service level",
-            "target service",
-            "service",
-            "target",
-            "service level target",
-            "target service level",
-            "availability target",
-            "in stock target",
+        _words(
+            "service level; target service; service; target; service level target; target "
+            "service level; availability target; in stock target"
         ),
     ),
     Column(
@@ -422,16 +320,9 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "Cost of each unit short; used when the service measure is 'shortage cost'.",
-        (
-            "stockout cost",
-            "backorder cost",
-            "cost per unit short",
-            "penalty cost",
-            "cost of a shortage",
-            "shortage penalty",
-            "lost sale cost",
-            "cost per stockout",
-            "out of stock cost",
+        _words(
+            "stockout cost; backorder cost; cost per unit short; penalty cost; cost of a "
+            "shortage; shortage penalty; lost sale cost; cost per stockout; out of stock cost"
         ),
     ),
     Column(
@@ -440,28 +331,11 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "Orders come in whole multiples of this many units (a case, a box).",
-        (
-            "case size",
-            "pack qty",
-            "case qty",
-            "order multiple",
-            "units per pack",
-            "pack",
-            "carton",
-            "carton qty",
-            "carton size",
-            "pack of",
-            "case",
-            "units per case",
-            "units per carton",
-            "box qty",
-            "box size",
-            "pack quantity",
-            "case quantity",
-            "order in multiples of",
-            "multiple",
-            "outer",
-            "sold in packs of",
+        _words(
+            "case size; pack qty; case qty; order multiple; units per pack; pack; carton; "
+            "carton qty; carton size; pack of; case; units per case; units per carton; box "
+            "qty; box size; pack quantity; case quantity; order in multiples of; multiple; "
+            "outer; sold in packs of"
         ),
     ),
     Column(
@@ -470,17 +344,9 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "Smallest quantity the supplier accepts, in units.",
-        (
-            "moq",
-            "min order",
-            "minimum order qty",
-            "minimum order quantity",
-            "min order qty",
-            "min order quantity",
-            "smallest order",
-            "minimum buy",
-            "min buy",
-            "minimum purchase",
+        _words(
+            "moq; min order; minimum order qty; minimum order quantity; min order qty; min "
+            "order quantity; smallest order; minimum buy; min buy; minimum purchase"
         ),
     ),
     Column(
@@ -489,23 +355,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "Units on the shelf now; for the reorder list.",
-        (
-            "stock",
-            "qty on hand",
-            "stock on hand",
-            "in stock",
-            "soh",
-            "stock level",
-            "current stock",
-            "qty in stock",
-            "stock qty",
-            "quantity on hand",
-            "on shelf",
-            "stock count",
-            "units in stock",
-            "qoh",
-            "instock",
-            "in store",
+        _words(
+            "stock; qty on hand; stock on hand; in stock; soh; stock level; current stock; "
+            "qty in stock; stock qty; quantity on hand; on shelf; stock count; units in "
+            "stock; qoh; instock; in store"
         ),
     ),
     Column(
@@ -514,17 +367,9 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "Units ordered but not yet received.",
-        (
-            "open orders",
-            "qty on order",
-            "incoming",
-            "ordered",
-            "on order qty",
-            "quantity on order",
-            "due in",
-            "in transit",
-            "outstanding orders",
-            "open purchase orders",
+        _words(
+            "open orders; qty on order; incoming; ordered; on order qty; quantity on order; "
+            "due in; in transit; outstanding orders; open purchase orders"
         ),
     ),
     Column(
@@ -533,15 +378,9 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "Units customers are waiting for.",
-        (
-            "backorders",
-            "back orders",
-            "owed to customers",
-            "customer backorders",
-            "owed",
-            "customer orders waiting",
-            "back ordered",
-            "awaiting stock",
+        _words(
+            "backorders; back orders; owed to customers; customer backorders; owed; customer "
+            "orders waiting; back ordered; awaiting stock"
         ),
     ),
     Column(
@@ -550,16 +389,9 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "The order quantity used today, for comparison.",
-        (
-            "current order quantity",
-            "current q",
-            "order qty now",
-            "order qty",
-            "usual order",
-            "order quantity",
-            "reorder qty",
-            "reorder quantity",
-            "normal order",
+        _words(
+            "current order quantity; current q; order qty now; order qty; usual order; order "
+            "quantity; reorder qty; reorder quantity; normal order"
         ),
     ),
     Column(
@@ -568,18 +400,9 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "The reorder point used today, for comparison.",
-        (
-            "current rop",
-            "reorder point now",
-            "current reorder level",
-            "reorder point",
-            "reorder level",
-            "min stock",
-            "minimum stock",
-            "reorder at",
-            "rop",
-            "order point",
-            "min level",
+        _words(
+            "current rop; reorder point now; current reorder level; reorder point; reorder "
+            "level; min stock; minimum stock; reorder at; rop; order point; min level"
         ),
     ),
     Column(
@@ -588,18 +411,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "Units sold per year, for an item with no history.",
-        (
-            "demand per year",
-            "yearly demand",
-            "annual usage",
-            "annual sales",
-            "annual sales units",
-            "sales per year",
-            "units per year",
-            "yearly sales",
-            "annual qty",
-            "annual volume",
-            "usage per year",
+        _words(
+            "demand per year; yearly demand; annual usage; annual sales; annual sales units; "
+            "sales per year; units per year; yearly sales; annual qty; annual volume; usage "
+            "per year"
         ),
     ),
     Column(
@@ -609,7 +424,7 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         "no",
         "Standard deviation of demand per period (see Settings: period), "
         "for an item with no history.",
-        ("demand sd per period", "demand std dev", "demand standard deviation", "sd of demand"),
+        _words("demand sd per period; demand std dev; demand standard deviation; sd of demand"),
     ),
     Column(
         "demand_model",
@@ -627,16 +442,9 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         "no",
         "The period (a date or label, as in History) from which this item's history counts. "
         "Blank: its first sale.",
-        (
-            "first period",
-            "launch date",
-            "start date",
-            "introduced",
-            "history from",
-            "first sold",
-            "first sale",
-            "date added",
-            "in range since",
+        _words(
+            "first period; launch date; start date; introduced; history from; first sold; "
+            "first sale; date added; in range since"
         ),
     ),
     Column(
@@ -646,17 +454,9 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         "no",
         "Days a unit stays usable after it arrives, more than 0. The order quantity is "
         "capped at the demand expected over that time. Blank: it keeps.",
-        (
-            "shelf life",
-            "usable life days",
-            "usable life",
-            "days to expiry",
-            "expiry days",
-            "best before days",
-            "expiry",
-            "use within days",
-            "sell by days",
-            "shelf life days",
+        _words(
+            "shelf life; usable life days; usable life; days to expiry; expiry days; best "
+            "before days; expiry; use within days; sell by days; shelf life days"
         ),
     ),
     Column(
@@ -667,15 +467,9 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         "Periodic review: look at the item every this many days and order up to a level. "
         "0: continuous review (order when stock falls to the reorder point). Blank: the "
         "Settings value, else continuous.",
-        (
-            "review period",
-            "review every days",
-            "review cycle days",
-            "review interval days",
-            "review interval",
-            "check every",
-            "count every",
-            "review frequency",
+        _words(
+            "review period; review every days; review cycle days; review interval days; "
+            "review interval; check every; count every; review frequency"
         ),
     ),
 )
@@ -690,25 +484,10 @@ HISTORY_LONG_COLUMNS: tuple[Column, ...] = (
         TEXT,
         "yes",
         "A date (the period's first day) or a period number or label.",
-        (
-            "date",
-            "week",
-            "month",
-            "day",
-            "period start",
-            "week starting",
-            "month starting",
-            "sale date",
-            "date sold",
-            "transaction date",
-            "date of sale",
-            "invoice date",
-            "order date",
-            "week commencing",
-            "week beginning",
-            "sales date",
-            "posting date",
-            "period",
+        _words(
+            "date; week; month; day; period start; week starting; month starting; sale date; "
+            "date sold; transaction date; date of sale; invoice date; order date; week "
+            "commencing; week beginning; sales date; posting date; period"
         ),
     ),
     Column(
@@ -717,30 +496,10 @@ HISTORY_LONG_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "yes",
         "Units sold (demanded) in that period.",
-        (
-            "qty",
-            "units",
-            "demand",
-            "sales",
-            "units sold",
-            "quantity sold",
-            "sold",
-            "qty sold",
-            "number sold",
-            "quantity",
-            "sales qty",
-            "sales units",
-            "sold qty",
-            "amount sold",
-            "count",
-            "volume",
-            "pcs sold",
-            "items sold",
-            "used",
-            "usage",
-            "issued",
-            "qty issued",
-            "units out",
+        _words(
+            "qty; units; demand; sales; units sold; quantity sold; sold; qty sold; number "
+            "sold; quantity; sales qty; sales units; sold qty; amount sold; count; volume; "
+            "pcs sold; items sold; used; usage; issued; qty issued; units out"
         ),
     ),
 )
@@ -755,14 +514,8 @@ PRICE_BREAK_COLUMNS: tuple[Column, ...] = (
         "yes",
         "Order size from which this price applies, more than 0: an order of at least this "
         "many units pays the price on every unit (all-units discount).",
-        (
-            "from quantity",
-            "break quantity",
-            "quantity from",
-            "min qty",
-            "break qty",
-            "order from",
-            "from qty",
+        _words(
+            "from quantity; break quantity; quantity from; min qty; break qty; order from; from qty"
         ),
     ),
     Column(
@@ -772,7 +525,7 @@ PRICE_BREAK_COLUMNS: tuple[Column, ...] = (
         "yes",
         "What each unit costs in such an order, more than 0. Below the smallest break the "
         "item's Unit cost applies.",
-        ("price", "discounted price", "price per unit", "break price", "discount price"),
+        _words("price; discounted price; price per unit; break price; discount price"),
     ),
 )
 
