@@ -181,7 +181,7 @@ def test_ods_input_is_written_to_its_own_xlsx_with_a_warning(converted, tmp_path
     before = src.read_bytes()
     res = CliRunner().invoke(main, ["plan", str(src)])
     assert res.exit_code == 0, res.output
-    out = tmp_path / "shop-policy.xlsx"
+    out = tmp_path / "shop-ods-policy.xlsx"
     assert out.exists() and f"Wrote {out}" in res.output
     assert "Your input is an OpenDocument spreadsheet (.ods)" in res.output
     assert src.read_bytes() == before
@@ -195,12 +195,16 @@ def test_ods_input_is_written_to_its_own_xlsx_with_a_warning(converted, tmp_path
 
 
 def test_output_names_for_other_inputs(tmp_path):
-    assert default_output_path(tmp_path / "shop.ods") == tmp_path / "shop-policy.xlsx"
-    assert default_output_path(tmp_path / "shop.xls") == tmp_path / "shop-policy.xlsx"
+    # inputs that share a stem never share an output
+    assert default_output_path(tmp_path / "shop.ods") == tmp_path / "shop-ods-policy.xlsx"
+    assert default_output_path(tmp_path / "shop.xls") == tmp_path / "shop-xls-policy.xlsx"
+    assert default_output_path(tmp_path / "shop.xlsx") == tmp_path / "shop-policy.xlsx"
     assert default_output_path(tmp_path / "m.xlsm") == tmp_path / "m-policy.xlsm"
-    folder = tmp_path / "export"
+    folder = tmp_path / "shop"
     folder.mkdir()
-    assert default_output_path(folder) == tmp_path / "export-policy.xlsx"
+    assert default_output_path(folder) == tmp_path / "shop-csv-policy.xlsx"
+    names = {default_output_path(tmp_path / n) for n in ("shop.ods", "shop.xls", "shop.xlsx")}
+    assert len(names | {default_output_path(folder)}) == 4
 
 
 # --- CSV folders --------------------------------------------------------------------------

@@ -64,15 +64,20 @@ class PlanResult:
 def default_output_path(path: str | Path) -> Path:
     """``<input name>-policy.<ext>`` beside the input (.xlsm keeps its macros and extension).
 
-    Inputs that are not .xlsx/.xlsm (.ods, .xls, a folder of CSV files) give an .xlsx:
-    ``shop.ods`` -> ``shop-policy.xlsx``; the folder ``shop/`` -> ``shop-policy.xlsx`` beside it.
+    Inputs that are not .xlsx/.xlsm give an .xlsx named with their kind, so that shop.xlsx,
+    shop.ods, shop.xls and a folder shop/ beside each other never share an output:
+    ``shop.ods`` -> ``shop-ods-policy.xlsx``, ``shop.xls`` -> ``shop-xls-policy.xlsx``, the
+    folder ``shop/`` -> ``shop-csv-policy.xlsx`` beside it.
     """
     p = Path(path)
     if p.is_dir():
         q = p if p.name else p.resolve()
-        return q.with_name(f"{q.name}-policy.xlsx")
-    ext = p.suffix.lower() if p.suffix.lower() in (".xlsx", ".xlsm") else ".xlsx"
-    return p.with_name(f"{p.stem}-policy{ext}")
+        return q.with_name(f"{q.name}-csv-policy.xlsx")
+    suffix = p.suffix.lower()
+    if suffix in (".xlsx", ".xlsm"):
+        return p.with_name(f"{p.stem}-policy{suffix}")
+    kind = suffix.lstrip(".") or "input"
+    return p.with_name(f"{p.stem}-{kind}-policy.xlsx")
 
 
 def _overrides(
@@ -201,6 +206,7 @@ def analyse(
     simulate: bool | None = None,
     replications: int | None = None,
     lost_sales: bool = False,
+    columns: dict[str, str] | None = None,
 ) -> Report:
     """Read, check and plan a workbook without writing anything.
 
@@ -233,6 +239,8 @@ def analyse(
         ),
     }
     overrides.update(_simulation_overrides(simulate, replications, lost_sales))
+    if columns:  # {our column: your header}, see xlpolicy.reading.column_map
+        overrides["columns"] = dict(columns)
     with guard.allow_large(allow_large):
         data = read_input(Path(path), overrides, log, progress, while_waiting=_warm_up)
     if data is None:
@@ -251,7 +259,8 @@ def analyse(
             None,
             f"No item in '{data.items.sheet}' could be planned "
             f"({report.input_summary['items_read']} read). Fix the problems listed "
-            "and run again.",
+            "and run again"
+            + (f" ({len(reasons)} in all; the first 20 are listed)." if len(reasons) > 20 else "."),
             "no-usable-item",
         )
         raise UnusableWorkbook([fatal, *reasons[:20]])
@@ -291,6 +300,7 @@ def plan(
     simulate: bool | None = None,
     replications: int | None = None,
     lost_sales: bool = False,
+    columns: dict[str, str] | None = None,
 ) -> PlanResult:
     """Plan every item in the workbook at ``path`` and write the results.
 
@@ -319,6 +329,7 @@ def plan(
         simulate=simulate,
         replications=replications,
         lost_sales=lost_sales,
+        columns=columns,
     )
     result = PlanResult(report)
     if write_workbook:

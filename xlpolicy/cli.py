@@ -18,9 +18,11 @@ from typing import Any
 import click
 
 from . import __version__, api
-from .contract import SERVICE_MEASURES
+from .backtest import AUTO_MAX_ITEMS, DEFAULT_RUNS
+from .contract import CAUTION, SERVICE_MEASURES
 from .problems import Problem, Severity, UnusableWorkbook
 from .report import Report
+from .writing.sheets import DEFAULT_SHEET_NAMES, SHEET_ORDER
 
 _SEVERITY_STYLE = {
     Severity.FATAL: {"fg": "red", "bold": True},
@@ -58,6 +60,24 @@ class _Bar:
         if self.shown:
             click.echo("\r\x1b[K", nl=False, err=True, color=True)
             self.shown = False
+
+
+def _plan_help() -> str:
+    """plan's help, its facts taken from the code that applies them."""
+    names = DEFAULT_SHEET_NAMES
+    sheets = ", ".join(names[k] for k in SHEET_ORDER)
+    return (
+        "Compute the policy for every item and write the policy workbook.\n\n"
+        "Your WORKBOOK is never changed. The output (default: <name>-policy.xlsx beside it; "
+        "<name>-ods-policy.xlsx and the like for other kinds of input) holds your own "
+        f"sheets plus {sheets}, and {names['trace']} when the back-test runs. The back-test "
+        f"runs by default ({DEFAULT_RUNS} runs an item) for up to {AUTO_MAX_ITEMS:,} items, "
+        "unless the Settings sheet's 'Simulation runs' or --simulate/--no-simulate say "
+        "otherwise."
+    )
+
+
+_PLAN_HELP = _plan_help()
 
 
 def _override_options(f: Any) -> Any:
@@ -182,6 +202,32 @@ def _named(pairs: tuple[str, ...]) -> dict[str, str]:
     return out
 
 
+def _column_option(f: Any) -> Any:
+    """--column 'OURS=YOURS': read the owner's header as one of our columns (repeatable)."""
+    return click.option(
+        "--column",
+        "column_names",
+        multiple=True,
+        metavar="OURS=YOURS",
+        help="Read your column YOURS as our column OURS, e.g. --column 'Lead time "
+        "days=Supplier LT (wks)' (a unit in your header is still read). Repeatable; "
+        "the same as a row of a 'Column names' sheet, which it overrides.",
+    )(f)
+
+
+def _columns(pairs: tuple[str, ...]) -> dict[str, str]:
+    """OURS=YOURS pairs as a dict; a pair without '=' is a usage error."""
+    out: dict[str, str] = {}
+    for pair in pairs:
+        ours, eq, yours = pair.partition("=")
+        if not eq or not ours.strip() or not yours.strip():
+            raise click.UsageError(
+                f"--column {pair!r}: write OURS=YOURS, e.g. 'Unit cost=Cost price'"
+            )
+        out[ours.strip()] = yours.strip()
+    return out
+
+
 def _allow_large_option(f: Any) -> Any:
     """--allow-large: raise the limits that keep zip bombs out (for a trusted, huge file)."""
     return click.option(
@@ -203,14 +249,15 @@ def main() -> None:
     """
 
 
-@main.command()
+@main.command(help=_PLAN_HELP)
 @click.argument("workbook", type=click.Path(path_type=Path))
 @click.option(
     "-o",
     "--output",
     type=click.Path(path_type=Path),
     default=None,
-    help="Where to write the policy workbook (default: <name>-policy.xlsx beside the input).",
+    help="Where to write the policy workbook (default: <name>-policy.xlsx beside the "
+    "input; <name>-ods-policy.xlsx for an .ods, and so on, so inputs never share one).",
 )
 @click.option(
     "--csv",
@@ -229,6 +276,7 @@ def main() -> None:
 @_override_options
 @_portfolio_options
 @_set_option
+@_column_option
 @_allow_large_option
 @click.option(
     "--simulate/--no-simulate",
@@ -236,7 +284,8 @@ def main() -> None:
     default=None,
     help="Back-test each policy by simulating it on resamples of the item's own "
     "demand, and warn where it falls short of what it promises. Default: as "
-    "the Settings sheet's 'Simulation runs' says (off when blank).",
+    f"the Settings sheet's 'Simulation runs' says; when blank, {DEFAULT_RUNS} runs an "
+    f"item for up to {AUTO_MAX_ITEMS:,} items and none above.",
 )
 @click.option(
     "--replications",
@@ -266,17 +315,13 @@ def plan(
     orders_cap: str | None,
     curve: bool | None,
     named: tuple[str, ...],
+    column_names: tuple[str, ...],
     allow_large: bool,
     simulate: bool | None,
     replications: str | None,
     lost_sales: bool,
     quiet: bool,
 ) -> None:
-    """Compute the policy for every item and write the policy workbook.
-
-    Your WORKBOOK is never changed. The output holds your own sheets plus Policy, Summary,
-    Reorder now and Warnings.
-    """
     bar = _Bar(quiet)
     given = _named(named)
     result = _run(
@@ -296,6 +341,7 @@ def plan(
             simulate=simulate,
             replications=replications,
             lost_sales=lost_sales,
+            columns=_columns(column_names),
             **_caps(stock_budget, orders_cap, curve),
         ),
         bar,
@@ -312,25 +358,43 @@ def demo(folder: Path, quiet: bool) -> None:
     A quick way to see what xlpolicy makes: open FOLDER/demo-shop-policy.xlsx afterwards.
     The demo holds a few deliberate mistakes, to show the warnings.
     """
+    from .demo import PLANTED
+
     bar = _Bar(quiet)
     result = _run(lambda: api.demo(folder, progress=bar), bar)
     if not quiet:
         click.echo(f"Wrote the demo workbook {folder / 'demo-shop.xlsx'}")
-    _print_run(result, quiet)
+    planted = [p for p in result.problems if (p.item, p.code) in set(PLANTED)]
+    _print_run(result, quiet, planted=planted)
 
 
-def _print_run(result: api.PlanResult, quiet: bool) -> None:
-    """What a planning run read, found and wrote."""
+def _print_run(result: api.PlanResult, quiet: bool, planted: list[Problem] | None = None) -> None:
+    """What a planning run read, found and wrote. ``planted``: the demo's deliberate
+    mistakes, shown as such rather than among the problems."""
     report = result.report
     if not quiet:
         _print_read(report)
-        _print_problems(report.problems)
+        if planted:
+            click.echo(
+                f"{_count(len(planted), 'mistake')} planted in the demo on purpose, to show "
+                "how problems are reported (each is on the Warnings sheet too):"
+            )
+            for mistake in planted:
+                where = mistake.where() + (f" [{mistake.item}]" if mistake.item else "")
+                click.echo(f"  - {where}: {mistake.message}")
+        ids = {id(m) for m in planted or []}
+        rest = [q for q in report.problems if id(q) not in ids]
+        if planted and rest:
+            click.echo("Besides those:")
+        _print_problems(rest)
         _print_totals(report)
     for p in (result.output, result.csv, result.json):
         if p is not None:
             click.echo(f"Wrote {p}" if not quiet else str(p))
     if result.standalone and not quiet:
         click.echo("Note: your own sheets are not in it (see the first warning).")
+    if not quiet:
+        click.echo(CAUTION)
 
 
 @main.command()
@@ -338,6 +402,7 @@ def _print_run(result: api.PlanResult, quiet: bool) -> None:
 @_override_options
 @_portfolio_options
 @_set_option
+@_column_option
 @_allow_large_option
 def check(
     workbook: Path,
@@ -350,6 +415,7 @@ def check(
     orders_cap: str | None,
     curve: bool | None,
     named: tuple[str, ...],
+    column_names: tuple[str, ...],
     allow_large: bool,
 ) -> None:
     """Report every problem in WORKBOOK without writing anything.
@@ -369,14 +435,19 @@ def check(
             allow_large=allow_large,
             history=history,
             settings=given,
+            columns=_columns(column_names),
             **_caps(stock_budget, orders_cap, curve),
         ),
         bar,
     )
     _print_read(report)
     _print_problems(report.problems, limit=None)
-    if not report.problems:
+    if not [p for p in report.problems if not p.code.startswith(_READ_AS)]:
         click.echo("No problems found.")
+    click.echo(
+        f"Next: 'xlpolicy plan {workbook}' writes the policy workbook "
+        f"({api.default_output_path(workbook).name} unless you give -o)."
+    )
 
 
 @main.command()
@@ -390,6 +461,10 @@ def template(path: Path, force: bool) -> None:
         raise click.UsageError("the template must be an .xlsx file")
     _run(lambda: api.template(path))
     click.echo(f"Wrote {path}")
+    click.echo(
+        "Next: fill in Items (one row per item) and History (your sales), replacing the "
+        f"example rows, then run 'xlpolicy check {path}'."
+    )
 
 
 @main.command("open")
@@ -455,6 +530,7 @@ def _run(fn: Any, bar: _Bar | None = None) -> Any:
     except UnusableWorkbook as exc:
         click.echo(click.style("Cannot use this workbook:", fg="red", bold=True), err=True)
         _print_problems(exc.problems, limit=None, err=True)
+        click.echo("Fix what is listed above, then run the same command again.", err=True)
         sys.exit(1)
     except OSError as exc:
         name = getattr(exc, "filename", None) or ""
@@ -499,42 +575,110 @@ def _restore_sigterm(previous: Any) -> None:
             signal.signal(signal.SIGTERM, previous)
 
 
+def _count(n: int, word: str) -> str:
+    """'1 item', '2 items', '1,200 items'."""
+    return f"{n:,} {word}{'' if n == 1 else 's'}"
+
+
+#: What the console calls each sheet's role.
+_ROLE_WORDS = {
+    "Items": "items",
+    "History": "sales history",
+    "Settings": "settings",
+    "Price breaks": "price breaks",
+    "Column names": "your column names",
+}
+
+#: Problems that say how the workbook was read (units, sheets, columns not used): printed
+#: together under the Read line, not among the problems.
+_READ_AS = "read-as-"
+
+
 def _print_read(report: Report) -> None:
     s = report.input_summary
     layout = s.get("history_layout")
     hist = (
         (
-            f"History: {s.get('history_items', 0)} items x {s.get('periods', 0)} "
-            f"{s.get('period', 'period')}s ({layout} layout)"
+            f"History: {_count(int(s.get('history_items') or 0), 'item')} x "
+            f"{_count(int(s.get('periods') or 0), str(s.get('period') or 'period'))} "
+            f"({layout} layout)"
         )
         if layout != "none"
-        else ("no History sheet")
+        else "no sales history"
     )
-    click.echo(f"Read {s.get('file')}: {s.get('items_read')} items; {hist}.")
+    click.echo(f"Read {s.get('file')}: {_count(int(s.get('items_read') or 0), 'item')}; {hist}.")
+    roles = report.settings.get("sheet_roles") or {}
+    found = report.settings.get("sheet_found") or {}
+    if roles:
+        click.echo(
+            "Sheets used: "
+            + "; ".join(
+                f"{_ROLE_WORDS.get(r, r)} from '{n}'"
+                + (" (found by what it holds)" if found.get(r) == "by what it holds" else "")
+                for r, n in roles.items()
+            )
+            + "."
+        )
+    notes = [p for p in report.problems if p.code.startswith(_READ_AS)]
+    if notes:
+        click.echo("How your workbook was read:")
+        for p in notes:
+            where = p.where()
+            click.echo(f"  {where + ': ' if where else ''}{p.message}")
     click.echo(
-        f"Planned {s.get('items_planned')} items, skipped {s.get('items_skipped')}; "
-        f"service measure: {report.settings['service_measure']}."
+        f"Planned {_count(int(s.get('items_planned') or 0), 'item')}, skipped "
+        f"{int(s.get('items_skipped') or 0):,}; service measure: "
+        f"{report.settings['service_measure']}."
     )
 
 
-def _print_problems(problems: list[Problem], limit: int | None = 10, err: bool = False) -> None:
+def _print_problems(
+    problems: list[Problem],
+    limit: int | None = 10,
+    err: bool = False,
+    plain: bool = False,
+) -> None:
+    """The problems, most severe first; alike ones (same message, other items) on one line,
+    and '... and N more' when the list is cut. ``plain``: no colours (the demo's planted
+    mistakes are no alarm)."""
+    problems = [p for p in problems if not p.code.startswith(_READ_AS)]
     if not problems:
         return
     counts = {sev: sum(1 for p in problems if p.severity is sev) for sev in Severity}
-    parts = [f"{n} {sev.value}{'s' if n != 1 else ''}" for sev, n in counts.items() if n]
+    parts = [_count(n, sev.word) for sev, n in counts.items() if n]
     click.echo("Problems: " + ", ".join(parts), err=err)
-    shown = problems if limit is None else problems[:limit]
-    for p in shown:
-        where = p.where()
-        item = f" [{p.item}]" if p.item else ""
+    groups: list[list[Problem]] = []
+    for p in problems:
+        last = groups[-1][0] if groups else None
+        if (
+            last is not None
+            and last.message == p.message
+            and last.severity is p.severity
+            and last.code == p.code
+        ):
+            groups[-1].append(p)
+        else:
+            groups.append([p])
+    shown = groups if limit is None else groups[:limit]
+    for group in shown:
+        p = group[0]
+        where = p.where() + (f" [{p.item}]" if p.item else "")
+        word = f"{p.severity.word:<7}"
+        head = word if plain else click.style(word, **_SEVERITY_STYLE[p.severity])
+        alike = ""
+        if len(group) > 1:
+            others = [q.item or q.where() for q in group[1:]]
+            listed = ", ".join(others[:5]) + (
+                f" ... and {len(others) - 5} more" if len(others) > 5 else ""
+            )
+            alike = f" (the same for {len(others)} more: {listed})"
         click.echo(
-            "  "
-            + click.style(f"{p.severity.value:<7}", **_SEVERITY_STYLE[p.severity])
-            + f" {where}{item}: {p.message}",
+            "  " + head + (f" {where}:" if where.strip() else "") + f" {p.message}{alike}",
             err=err,
         )
-    if limit is not None and len(problems) > limit:
-        click.echo(f"  ... and {len(problems) - limit} more: see the Warnings sheet.", err=err)
+    if limit is not None and len(groups) > limit:
+        rest = sum(len(g) for g in groups[limit:])
+        click.echo(f"  ... and {rest} more: see the Warnings sheet.", err=err)
 
 
 def _print_totals(report: Report) -> None:

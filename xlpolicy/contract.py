@@ -50,12 +50,132 @@ def spellings(key: str, title: str, aliases: tuple[str, ...]) -> set[str]:
 
 
 # ---------------------------------------------------------------------------
+# Units in headers and cells
+# ---------------------------------------------------------------------------
+
+#: Days in one unit of time, for the columns measured in days. A month is a twelfth of a
+#: 365-day year (as for the history period). Working days count five to a calendar week
+#: (common practice for a Monday-to-Friday supplier), so 5 working days are 7 days.
+DURATION_UNITS: dict[str, float] = {
+    "days": 1.0,
+    "weeks": 7.0,
+    "months": 365.0 / 12.0,
+    "working days": 7.0 / 5.0,
+}
+
+#: How people write each unit, normalised (see :func:`normalise`) -> the unit's name.
+UNIT_SPELLINGS: dict[str, str] = {
+    **dict.fromkeys(("d", "day", "days", "dys", "calendar days", "cal days"), "days"),
+    **dict.fromkeys(("w", "wk", "wks", "week", "weeks"), "weeks"),
+    **dict.fromkeys(("mo", "mos", "mth", "mths", "mnth", "mnths", "month", "months"), "months"),
+    **dict.fromkeys(
+        (
+            "working days",
+            "working day",
+            "work days",
+            "workdays",
+            "business days",
+            "business day",
+            "wd",
+        ),
+        "working days",
+    ),
+    **dict.fromkeys(("pct", "percent", "per cent", "percentage"), "%"),
+    **dict.fromkeys(
+        ("units", "unit", "pcs", "pc", "pieces", "piece", "each", "ea", "per unit", "per item"),
+        "units",
+    ),
+}
+
+#: Currency signs and codes a money header may carry -> the symbol or code shown.
+CURRENCY_SPELLINGS: dict[str, str] = {
+    "$": "$",
+    "€": "€",
+    "£": "£",
+    "¥": "¥",
+    "₹": "₹",
+    **{
+        code: code.upper()
+        for code in (
+            "usd",
+            "eur",
+            "gbp",
+            "chf",
+            "cad",
+            "aud",
+            "nzd",
+            "sek",
+            "nok",
+            "dkk",
+            "pln",
+            "czk",
+            "huf",
+            "inr",
+            "zar",
+            "jpy",
+            "cny",
+            "sgd",
+            "hkd",
+            "mxn",
+            "brl",
+        )
+    },
+    "euro": "€",
+    "euros": "€",
+    "pounds": "£",
+    "dollars": "$",
+}
+
+#: Units of time we do not convert: a header naming one is refused, never ignored.
+UNSUPPORTED_TIME_UNITS: frozenset[str] = frozenset(
+    {
+        "hours",
+        "hour",
+        "hrs",
+        "hr",
+        "h",
+        "minutes",
+        "mins",
+        "years",
+        "year",
+        "yrs",
+        "yr",
+        "fortnights",
+        "fortnight",
+        "quarters",
+        "quarter",
+        "qtr",
+        "seconds",
+    }
+)
+
+#: Columns measured in days: a header or cell unit of days, weeks, months or working days
+#: is converted to days.
+DURATION_KEYS: frozenset[str] = frozenset(
+    {"lead_time_days", "lead_time_sd_days", "shelf_life_days", "review_period_days"}
+)
+#: Columns holding money: a currency in the header is shown in the outputs.
+MONEY_KEYS: frozenset[str] = frozenset({"unit_cost", "order_cost", "shortage_cost", "unit_price"})
+
+#: Header words that name a column only with a per-cent unit: "Holding cost (%)" is the
+#: holding rate, but "Holding cost" alone may as well be money per unit, so it is not read.
+PERCENT_ONLY_ALIASES: dict[str, tuple[str, ...]] = {
+    "holding_rate": ("holding cost", "carrying cost", "storage cost", "holding cost per year"),
+}
+
+
+# ---------------------------------------------------------------------------
 # Input columns
 # ---------------------------------------------------------------------------
 
 TEXT = "text"
 NUMBER = "number"
 RATE = "rate"  # a fraction; accepts 0.14, 14 % formatted, "14%"
+
+
+def _words(text: str) -> tuple[str, ...]:
+    """Aliases written as one text, separated by semicolons (the vocabulary stays readable)."""
+    return tuple(w.strip() for w in text.split(";") if w.strip())
 
 
 @dataclass(frozen=True)
@@ -81,17 +201,11 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         TEXT,
         "yes",
         "The item's code, unique. Kept as text: 000123 stays 000123.",
-        (
-            "sku",
-            "item code",
-            "item no",
-            "item number",
-            "code",
-            "product code",
-            "part number",
-            "part no",
-            "article",
-            "stock code",
+        _words(
+            "sku; item code; item no; item number; code; product code; part number; part no; "
+            "article; stock code; item id; product id; product no; product number; sku code; "
+            "stock no; stock number; article number; art no; barcode; ean; plu; ref; "
+            "reference; catalogue number; cat no"
         ),
     ),
     Column(
@@ -100,7 +214,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         TEXT,
         "no",
         "What the item is; carried to the output.",
-        ("item description", "item name", "name", "product name"),
+        _words(
+            "item description; item name; name; product name; product; product description; "
+            "desc; article name; item desc; title; plant name; variety"
+        ),
     ),
     Column(
         "category",
@@ -108,7 +225,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         TEXT,
         "no",
         "A group for the summary; carried to the output.",
-        ("group", "product group", "department", "family"),
+        _words(
+            "group; product group; department; family; type; product type; section; range; "
+            "product category; item group; category name"
+        ),
     ),
     Column(
         "supplier",
@@ -116,7 +236,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         TEXT,
         "no",
         "Who it is bought from; the reorder list groups by it.",
-        ("vendor", "supplier name", "vendor name"),
+        _words(
+            "vendor; supplier name; vendor name; supplied by; wholesaler; distributor; "
+            "preferred supplier; main supplier"
+        ),
     ),
     Column(
         "unit_cost",
@@ -124,7 +247,12 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "yes",
         "What one unit costs to buy, more than 0.",
-        ("cost", "cost per unit", "unit price paid", "purchase price", "buy price"),
+        _words(
+            "cost; cost per unit; unit price paid; purchase price; buy price; cost price; "
+            "cost each; unit cost price; cost per item; purchase cost; buying price; buy "
+            "cost; cost ex vat; net cost; trade price; wholesale price; landed cost; item "
+            "cost; price paid; our cost"
+        ),
     ),
     Column(
         "order_cost",
@@ -132,7 +260,11 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "unless set in Settings",
         "Cost of placing and receiving one order (admin, delivery), 0 or more.",
-        ("ordering cost", "cost per order", "setup cost", "order handling cost"),
+        _words(
+            "ordering cost; cost per order; setup cost; order handling cost; cost to order; "
+            "order charge; delivery charge; delivery cost; shipping cost; carriage; cost of "
+            "ordering; order fee; admin cost per order"
+        ),
     ),
     Column(
         "holding_rate",
@@ -140,12 +272,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         RATE,
         "unless set in Settings",
         "Yearly cost of keeping stock, as a fraction of unit cost (0.25 or 25%).",
-        (
-            "carrying rate",
-            "holding cost rate",
-            "carrying cost rate",
-            "annual holding rate",
-            "holding",
+        _words(
+            "carrying rate; holding cost rate; carrying cost rate; annual holding rate; "
+            "holding; holding percent; holding pct; carrying cost rate per year; storage "
+            "rate; inventory carrying rate; holding rate per year"
         ),
     ),
     Column(
@@ -154,7 +284,11 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "yes",
         "Days from placing an order to having the goods on the shelf, more than 0.",
-        ("lead time", "leadtime", "lt days", "supplier lead time", "delivery days"),
+        _words(
+            "lead time; leadtime; lt days; supplier lead time; delivery days; delivery time; "
+            "delivery lead time; lt; time to deliver; days to deliver; replenishment time; "
+            "order lead time; lead days; supplier lead time days; turnaround"
+        ),
     ),
     Column(
         "lead_time_sd_days",
@@ -162,12 +296,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "How much the lead time varies: its standard deviation in days, 0 or more.",
-        (
-            "lead time sd",
-            "lead time std dev",
-            "lead time standard deviation",
-            "lead time std",
-            "lt sd",
+        _words(
+            "lead time sd; lead time std dev; lead time standard deviation; lead time std; lt "
+            "sd; lead time variation; lead time spread; lt std dev; lead time stdev; delivery "
+            "time sd; lead time variability"
         ),
     ),
     Column(
@@ -177,7 +309,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         "no",
         "Target for the service measure, between 0 and 1 (0.95 or 95%). "
         "Blank: the Settings default.",
-        ("service level", "target service", "service", "target"),
+        _words(
+            "service level; target service; service; target; service level target; target "
+            "service level; availability target; in stock target"
+        ),
     ),
     Column(
         "shortage_cost",
@@ -185,7 +320,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "Cost of each unit short; used when the service measure is 'shortage cost'.",
-        ("stockout cost", "backorder cost", "cost per unit short", "penalty cost"),
+        _words(
+            "stockout cost; backorder cost; cost per unit short; penalty cost; cost of a "
+            "shortage; shortage penalty; lost sale cost; cost per stockout; out of stock cost"
+        ),
     ),
     Column(
         "pack_size",
@@ -193,7 +331,12 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "Orders come in whole multiples of this many units (a case, a box).",
-        ("case size", "pack qty", "case qty", "order multiple", "units per pack", "pack"),
+        _words(
+            "case size; pack qty; case qty; order multiple; units per pack; pack; carton; "
+            "carton qty; carton size; pack of; case; units per case; units per carton; box "
+            "qty; box size; pack quantity; case quantity; order in multiples of; multiple; "
+            "outer; sold in packs of"
+        ),
     ),
     Column(
         "minimum_order",
@@ -201,7 +344,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "Smallest quantity the supplier accepts, in units.",
-        ("moq", "min order", "minimum order qty", "minimum order quantity", "min order qty"),
+        _words(
+            "moq; min order; minimum order qty; minimum order quantity; min order qty; min "
+            "order quantity; smallest order; minimum buy; min buy; minimum purchase"
+        ),
     ),
     Column(
         "on_hand",
@@ -209,7 +355,11 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "Units on the shelf now; for the reorder list.",
-        ("stock", "qty on hand", "stock on hand", "in stock", "soh"),
+        _words(
+            "stock; qty on hand; stock on hand; in stock; soh; stock level; current stock; "
+            "qty in stock; stock qty; quantity on hand; on shelf; stock count; units in "
+            "stock; qoh; instock; in store"
+        ),
     ),
     Column(
         "on_order",
@@ -217,7 +367,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "Units ordered but not yet received.",
-        ("open orders", "qty on order", "incoming"),
+        _words(
+            "open orders; qty on order; incoming; ordered; on order qty; quantity on order; "
+            "due in; in transit; outstanding orders; open purchase orders"
+        ),
     ),
     Column(
         "backordered",
@@ -225,7 +378,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "Units customers are waiting for.",
-        ("backorders", "back orders", "owed to customers"),
+        _words(
+            "backorders; back orders; owed to customers; customer backorders; owed; customer "
+            "orders waiting; back ordered; awaiting stock"
+        ),
     ),
     Column(
         "current_order_qty",
@@ -233,7 +389,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "The order quantity used today, for comparison.",
-        ("current order quantity", "current q", "order qty now"),
+        _words(
+            "current order quantity; current q; order qty now; order qty; usual order; order "
+            "quantity; reorder qty; reorder quantity; normal order"
+        ),
     ),
     Column(
         "current_reorder_point",
@@ -241,7 +400,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "The reorder point used today, for comparison.",
-        ("current rop", "reorder point now", "current reorder level"),
+        _words(
+            "current rop; reorder point now; current reorder level; reorder point; reorder "
+            "level; min stock; minimum stock; reorder at; rop; order point; min level"
+        ),
     ),
     Column(
         "annual_demand",
@@ -249,7 +411,11 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "no",
         "Units sold per year, for an item with no history.",
-        ("demand per year", "yearly demand", "annual usage", "annual sales"),
+        _words(
+            "demand per year; yearly demand; annual usage; annual sales; annual sales units; "
+            "sales per year; units per year; yearly sales; annual qty; annual volume; usage "
+            "per year"
+        ),
     ),
     Column(
         "demand_sd",
@@ -258,7 +424,7 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         "no",
         "Standard deviation of demand per period (see Settings: period), "
         "for an item with no history.",
-        ("demand sd per period", "demand std dev", "demand standard deviation", "sd of demand"),
+        _words("demand sd per period; demand std dev; demand standard deviation; sd of demand"),
     ),
     Column(
         "demand_model",
@@ -276,7 +442,10 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         "no",
         "The period (a date or label, as in History) from which this item's history counts. "
         "Blank: its first sale.",
-        ("first period", "launch date", "start date", "introduced", "history from"),
+        _words(
+            "first period; launch date; start date; introduced; history from; first sold; "
+            "first sale; date added; in range since"
+        ),
     ),
     Column(
         "shelf_life_days",
@@ -285,13 +454,9 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         "no",
         "Days a unit stays usable after it arrives, more than 0. The order quantity is "
         "capped at the demand expected over that time. Blank: it keeps.",
-        (
-            "shelf life",
-            "usable life days",
-            "usable life",
-            "days to expiry",
-            "expiry days",
-            "best before days",
+        _words(
+            "shelf life; usable life days; usable life; days to expiry; expiry days; best "
+            "before days; expiry; use within days; sell by days; shelf life days"
         ),
     ),
     Column(
@@ -302,12 +467,9 @@ ITEM_COLUMNS: tuple[Column, ...] = (
         "Periodic review: look at the item every this many days and order up to a level. "
         "0: continuous review (order when stock falls to the reorder point). Blank: the "
         "Settings value, else continuous.",
-        (
-            "review period",
-            "review every days",
-            "review cycle days",
-            "review interval days",
-            "review interval",
+        _words(
+            "review period; review every days; review cycle days; review interval days; "
+            "review interval; check every; count every; review frequency"
         ),
     ),
 )
@@ -322,7 +484,11 @@ HISTORY_LONG_COLUMNS: tuple[Column, ...] = (
         TEXT,
         "yes",
         "A date (the period's first day) or a period number or label.",
-        ("date", "week", "month", "day", "period start", "week starting", "month starting"),
+        _words(
+            "date; week; month; day; period start; week starting; month starting; sale date; "
+            "date sold; transaction date; date of sale; invoice date; order date; week "
+            "commencing; week beginning; sales date; posting date; period"
+        ),
     ),
     Column(
         "quantity",
@@ -330,7 +496,11 @@ HISTORY_LONG_COLUMNS: tuple[Column, ...] = (
         NUMBER,
         "yes",
         "Units sold (demanded) in that period.",
-        ("qty", "units", "demand", "sales", "units sold", "quantity sold", "sold"),
+        _words(
+            "qty; units; demand; sales; units sold; quantity sold; sold; qty sold; number "
+            "sold; quantity; sales qty; sales units; sold qty; amount sold; count; volume; "
+            "pcs sold; items sold; used; usage; issued; qty issued; units out"
+        ),
     ),
 )
 
@@ -344,14 +514,8 @@ PRICE_BREAK_COLUMNS: tuple[Column, ...] = (
         "yes",
         "Order size from which this price applies, more than 0: an order of at least this "
         "many units pays the price on every unit (all-units discount).",
-        (
-            "from quantity",
-            "break quantity",
-            "quantity from",
-            "min qty",
-            "break qty",
-            "order from",
-            "from qty",
+        _words(
+            "from quantity; break quantity; quantity from; min qty; break qty; order from; from qty"
         ),
     ),
     Column(
@@ -361,7 +525,7 @@ PRICE_BREAK_COLUMNS: tuple[Column, ...] = (
         "yes",
         "What each unit costs in such an order, more than 0. Below the smallest break the "
         "item's Unit cost applies.",
-        ("price", "discounted price", "price per unit", "break price", "discount price"),
+        _words("price; discounted price; price per unit; break price; discount price"),
     ),
 )
 
@@ -746,6 +910,14 @@ DEMAND_MODELS: tuple[str, ...] = ("normal", "poisson", "negative binomial", "gam
 AUTO_MODEL = "auto"
 
 ALL_RESULT_KEYS: tuple[str, ...] = RESULT_KEYS + EXTRA_RESULT_KEYS
+
+#: The caution shown where people look: printed once by plan and demo, at the top of the
+#: Summary and on the printed Reorder now page (the How it works sheet says more).
+CAUTION = (
+    "Caution: these are estimates from past sales; new, promoted, seasonal or ending items "
+    "need your judgement. For medicine, food or anything safety-critical they support, and "
+    "do not replace, licensed judgement and your local rules."
+)
 
 STATUS_OK = "ok"
 STATUS_WARNING = "warning"

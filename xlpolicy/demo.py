@@ -234,6 +234,15 @@ DUPLICATE = Spec(
     "000421", "Tyre 700x35c hybrid, reflective sidewall", TT, "NCW", 22.50, "medium", 0
 )  # a second row with the same code as "000421"
 UNKNOWN_CODE = "000422"  # sold in History, but not listed in Items
+#: The mistakes above as (item, the code of the problem each should raise), so the console
+#: can present them as planted rather than as the demo's own faults.
+PLANTED: tuple[tuple[str, str], ...] = (
+    (MISTAKE_TEXT_COST, "unit_cost-not-number"),
+    (MISTAKE_TARGET, "service_target-out-of-range"),
+    (MISTAKE_LEAD, "lead_time_days-out-of-range"),
+    (DUPLICATE.code, "item-duplicate"),
+    (UNKNOWN_CODE, "history-unknown-item"),
+)
 
 WIDE_ITEMS = (
     "000411",

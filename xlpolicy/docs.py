@@ -20,7 +20,7 @@ import re
 import sys
 from pathlib import Path
 
-from .contract import ITEM_COLUMNS, PERIODS_PER_YEAR, PRICE_BREAK_COLUMNS, SETTINGS, Column
+from .contract import ITEM_COLUMNS, PERIODS_PER_YEAR, PRICE_BREAK_COLUMNS, READ_SETTINGS, Column
 
 
 def _cell(text: str) -> str:
@@ -47,7 +47,7 @@ def items_table() -> str:
 def settings_table() -> str:
     """Markdown table of the Settings rows with their defaults."""
     rows = ["| setting | default | meaning |", "| --- | --- | --- |"]
-    for s in SETTINGS:
+    for s in READ_SETTINGS:
         if s.key == "periods_per_year":
             default = " / ".join(f"{int(v)}" for v in PERIODS_PER_YEAR.values())
         else:

@@ -27,6 +27,11 @@ class Severity(str, Enum):
     INFO = "info"
 
     @property
+    def word(self) -> str:
+        """The one word for this severity wherever it is shown (console and sheets)."""
+        return "note" if self is Severity.INFO else self.value
+
+    @property
     def rank(self) -> int:
         """Sort key: most severe first."""
         return {"fatal": 0, "error": 1, "warning": 2, "info": 3}[self.value]

@@ -13,13 +13,15 @@ import numpy as np
 from ..problems import ProblemLog
 from ..progress import Progress, silent
 from . import typed
+from .column_map import combine, parse_pairs, read_map_sheet
 from .guard import Refused, unreadable_message
 from .history import History, aggregate_daily_to_weeks, read_history, read_wide_typed, wide_header
 from .history_file import read_history_file
 from .items import ItemTable, read_items
 from .price_breaks import PriceBreaks, read_price_breaks
 from .settings import finish_period, read_settings, resolve_settings
-from .sources import open_source
+from .sheet_roles import SheetRoles, by_content, by_name
+from .sources import CsvFolder, open_source
 from .workbook import RawSheet, WorkbookFile, layout_notes
 
 
@@ -79,22 +81,10 @@ def read_input(
     # costs little more than the Items sheet's checks (see xlpolicy.reading.typed).
     ahead = ThreadPoolExecutor(max_workers=1, thread_name_prefix="xlpolicy-history")
     try:
-        items_name = wb.find_sheet("Items")
-        if items_name is None:
-            log.fatal(
-                f"{Path(path).name} has no 'Items' sheet (sheets found: "
-                + ", ".join(repr(n) for n in wb.sheet_names)
-                + "). Add a sheet named Items with one row per item, or rename yours "
-                "(run 'xlpolicy template' for an example).",
-                code="items-sheet-missing",
-            )
+        roles = find_roles(wb, Path(path), overrides, log, read)
+        if roles is None:
             return None
-        settings_name = wb.find_sheet("Settings")
-        settings_sheet = read(settings_name) if settings_name else None
-        settings = resolve_settings(
-            read_settings(settings_sheet, log), overrides, log, settings_name or "Settings"
-        )
-        history_name = wb.find_sheet("History")
+        settings, items_name, history_name = roles
         history = None
         history_file = _history_file(Path(path), settings)
         early = (
@@ -104,9 +94,11 @@ def read_input(
         )
         # Blank targets stay NaN while reading, so an item's own target can be told from a
         # default: a class target (Service target A/B/C) may apply to it instead.
-        items = read_items(read(items_name), {**settings, "service_target": float("nan")}, log)
+        for_items = {**settings, "service_target": float("nan")}
+        items = read_items(read(items_name), for_items, log)
         if items is None:
             return None
+        settings["currency"] = for_items.get("currency")  # (a currency named in a header)
         _default_targets(items, settings)
         if history_file is not None:
             if history_name is not None:
@@ -152,7 +144,7 @@ def read_input(
                 settings["period"] = history.period
                 settings["sources"]["period"] = f"inferred from {history_name} dates"
                 finish_period(settings)
-        breaks_name = wb.find_sheet("Price breaks")
+        breaks_name = settings["sheet_roles"].get("Price breaks")
         breaks = (
             read_price_breaks(read(breaks_name), items, log) if breaks_name is not None else None
         )
@@ -257,6 +249,66 @@ def _default_targets(items: ItemTable, settings: dict[str, Any]) -> None:
     items.df["service_target"] = np.where(
         items.own_target, target, float(settings["service_target"])
     )
+
+
+def find_roles(
+    wb: Any,
+    path: Path,
+    overrides: dict[str, Any],
+    log: ProblemLog,
+    read: Callable[[str], Any],
+) -> tuple[dict[str, Any], str, str | None] | None:
+    """(the settings, the Items sheet's name, the History sheet's name or None): sheets found
+    by name, else by what they hold (xlpolicy.reading.sheet_roles), the Settings read, and
+    the owner's column names (a Column names sheet, ``overrides["columns"]``) put in
+    ``settings["column_map"]``. None when a fatal problem was logged."""
+    overrides = dict(overrides)
+    given = overrides.pop("columns", None) or {}
+    stem = isinstance(wb, CsvFolder)
+    names = list(wb.sheet_names)
+    roles = SheetRoles()
+    for role in ("Items", "History", "Settings", "Price breaks", "Column names"):
+        name = by_name(names, role, log, stem=stem)
+        if name is not None:
+            roles.names[role] = name
+            roles.how[role] = "by its name"
+    if log.has_fatal:
+        return None
+    settings_name = roles.get("Settings")
+    settings_sheet = read(settings_name) if settings_name else None
+    settings = resolve_settings(
+        read_settings(settings_sheet, log), overrides, log, settings_name or "Settings"
+    )
+    map_name = roles.get("Column names")
+    from_sheet = read_map_sheet(read(map_name), log) if map_name else {}
+    settings["column_map"] = combine(from_sheet, parse_pairs(given, log, sheet="command line"))
+    settings["sheet_roles"] = roles.names
+    settings["sheet_found"] = roles.how
+    need_items = roles.get("Items") is None
+    need_history = roles.get("History") is None and _history_file(path, settings) is None
+    if need_items or need_history:
+        taken = set(roles.names.values())
+        tops = {}
+        for n in names:
+            if n in taken:
+                continue
+            top = wb.peek(n) if isinstance(wb, WorkbookFile) else wb.read(n)
+            if top is not None:
+                tops[n] = top
+        mapping = settings["column_map"]
+        if need_items:
+            found = by_content(tops, "Items", mapping, log, path.name)
+            if found is None:
+                return None
+            roles.names["Items"], roles.how["Items"] = found, "by what it holds"
+            tops.pop(found, None)
+        if need_history:
+            found = by_content(tops, "History", mapping, log, path.name)
+            if log.has_fatal:
+                return None
+            if found is not None:
+                roles.names["History"], roles.how["History"] = found, "by what it holds"
+    return settings, roles.names["Items"], roles.get("History")
 
 
 class _AlreadyReported(Exception):

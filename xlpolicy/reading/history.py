@@ -21,12 +21,24 @@ import numpy as np
 from ..contract import HISTORY_LONG_COLUMNS, ITEM_COLUMNS, PERIODS, normalise
 from ..problems import ProblemLog
 from .cells import describe, is_blank, item_code, item_codes, parse_number, typed_periods
+from .headers import missing_message, report_header
 from .typed import NUMBER_TEXT, NotTyped, WideCells
 from .workbook import RawSheet, cell_ref, find_header
 
 _ISO_DATE = re.compile(r"^\d{4}-\d{2}-\d{2}([ T].*)?$")
 _ISO_MONTH = re.compile(r"^(\d{4})-(\d{2})$")
 _PERIOD_ORDER = {"day": 0, "week": 1, "month": 2}
+_MONTHS = {
+    m: k
+    for k, m in enumerate(
+        ("jan", "feb", "mar", "apr", "may", "jun", "jul", "aug", "sep", "oct", "nov", "dec"), 1
+    )
+}
+_MONTH_LABEL = re.compile(
+    r"^(jan(?:uary)?|feb(?:ruary)?|mar(?:ch)?|apr(?:il)?|may|june?|july?|aug(?:ust)?"
+    r"|sep(?:t(?:ember)?)?|oct(?:ober)?|nov(?:ember)?|dec(?:ember)?)\.?[\s\-/']*(\d{4}|\d{2})$",
+    re.IGNORECASE,
+)
 
 
 @dataclass
@@ -66,6 +78,10 @@ def _as_date(value: Any) -> _dt.date | None:
         m = _ISO_MONTH.match(s)
         if m and 1 <= int(m.group(2)) <= 12:
             return _dt.date(int(m.group(1)), int(m.group(2)), 1)
+        m = _MONTH_LABEL.match(s)
+        if m:  # "Jan 2024", "January 2024", "Jan-24": the month's first day
+            year = int(m.group(2))
+            return _dt.date(year + 2000 if year < 100 else year, _MONTHS[m.group(1)[:3].lower()], 1)
     return None
 
 
@@ -140,14 +156,30 @@ def read_history(
     sheet: RawSheet, known_items: set[str], settings: dict[str, Any], log: ProblemLog
 ) -> History | None:
     """Read History in whichever layout its header shows; None (fatal) if neither."""
-    long_header = find_header(sheet, HISTORY_LONG_COLUMNS, min_matches=3)
+    mapping = settings.get("column_map")
+    long_header = find_header(sheet, HISTORY_LONG_COLUMNS, min_matches=3, mapping=mapping)
     if long_header is not None:
+        hrow = sheet.row_numbers[long_header.row_index]
+        report_header(long_header, HISTORY_LONG_COLUMNS, sheet.name, hrow, log, cell=cell_ref)
         return _read_long(
             sheet, long_header.columns, long_header.row_index, known_items, settings, log
         )
-    wide = _find_wide_header(sheet)
+    # Two of the three long-layout headers (Item and Date, say) is a long layout short of
+    # a column, not a row of period labels: say which column is missing.
+    partial = find_header(sheet, HISTORY_LONG_COLUMNS, min_matches=2, mapping=mapping)
+    wide = _find_wide_header(sheet) if partial is None else None
     if wide is not None:
         return _read_wide(sheet, *wide, known_items, settings, log)
+    if partial is not None:
+        hrow = sheet.row_numbers[partial.row_index]
+        missing = [c for c in HISTORY_LONG_COLUMNS if c.key not in partial.columns]
+        log.fatal(
+            missing_message(sheet.name, missing, list(partial.texts.values()), hrow),
+            sheet=sheet.name,
+            cell=cell_ref(0, hrow),
+            code="history-missing-column",
+        )
+        return None
     log.fatal(
         f"The sheet '{sheet.name}' has no header row that I can read. Use either columns "
         "Item, Period, Quantity (one row per item and period), or Item followed by one "
@@ -609,8 +641,8 @@ def _wide_finish(
 def wide_header(sheet: RawSheet) -> tuple[int, int, list[int]] | None:
     """(row index, item column, period columns) when ``sheet`` opens with a wide-layout
     History header (and not a long one), else None."""
-    if find_header(sheet, HISTORY_LONG_COLUMNS, min_matches=3) is not None:
-        return None
+    if find_header(sheet, HISTORY_LONG_COLUMNS, min_matches=2) is not None:
+        return None  # long, or long short of a column (read_history says which)
     return _find_wide_header(sheet)
 
 

@@ -17,6 +17,7 @@ import pandas as pd
 from openpyxl.utils import column_index_from_string
 
 from ..contract import (
+    DURATION_KEYS,
     EXAMPLE_PREFIX,
     ITEM_COLUMN_BY_KEY,
     ITEM_COLUMNS,
@@ -27,7 +28,9 @@ from ..contract import (
 )
 from ..problems import ProblemLog, Severity
 from .cells import describe, is_blank, item_code, item_codes, parse_number, text, texts
+from .headers import missing_message, report_header
 from .settings import parse_model
+from .units import cell_duration, units_from_headers
 from .workbook import Header, RawSheet, cell_ref, find_header
 
 REQUIRED_ALWAYS = ("item", "unit_cost", "lead_time_days")
@@ -142,7 +145,7 @@ class ItemTable:
 
 def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> ItemTable | None:
     """Read and check the Items sheet. Returns None (with a fatal problem) if unusable."""
-    header = find_header(sheet, ITEM_COLUMNS)
+    header = find_header(sheet, ITEM_COLUMNS, mapping=settings.get("column_map"))
     if header is None:
         log.fatal(
             f"The sheet '{sheet.name}' has no header row naming the item columns. Put a row "
@@ -155,34 +158,33 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
         return None
     hrow = sheet.row_numbers[header.row_index]
     cols = header.columns
+    report_header(
+        header, ITEM_COLUMNS, sheet.name, hrow, log, cell=cell_ref, required=REQUIRED_ALWAYS
+    )
+    if log.has_fatal:
+        return None
     missing = [k for k in REQUIRED_ALWAYS if k not in cols]
     for key in ("order_cost", "holding_rate"):
         if key not in cols and settings.get(key) is None:
             missing.append(key)
     if missing:
-        names = ", ".join(f"'{ITEM_COLUMN_BY_KEY[k].title}'" for k in missing)
-        extra = ""
+        message = missing_message(
+            sheet.name,
+            [ITEM_COLUMN_BY_KEY[k] for k in missing],
+            list(header.texts.values()),
+            hrow,
+        )
         if any(k in ("order_cost", "holding_rate") for k in missing):
-            extra = " (order cost and holding rate may instead be set once in a Settings sheet)"
+            message += " Order cost and holding rate may instead be set once in a Settings sheet."
         log.fatal(
-            f"The sheet '{sheet.name}' has no column {names}{extra}. Add the column to the "
-            f"header row (row {hrow}); headers match loosely, e.g. 'Lead time (days)'.",
+            message,
             sheet=sheet.name,
             cell=cell_ref(0, hrow),
             value=None,
             code="items-missing-column",
         )
         return None
-    for key, idxs in header.duplicates.items():
-        for j in idxs[1:]:
-            log.warning(
-                f"Two columns mean '{ITEM_COLUMN_BY_KEY[key].title}'; the first "
-                f"({cell_ref(idxs[0], hrow)}) was used. Rename or delete the other.",
-                sheet=sheet.name,
-                cell=cell_ref(j, hrow),
-                value=sheet.rows[header.row_index][j],
-                code="items-duplicate-column",
-            )
+    units_from_headers(header, settings, sheet.name, log)
 
     measure = settings.get("service_measure")
     first = header.row_index + 1
@@ -221,6 +223,7 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
         kept.append(pos)
         usable.append(ok)
 
+    _report_cell_units(header, sheet.name, log)
     keys = [c.key for c in ITEM_COLUMNS]
     at = np.asarray(kept, dtype=np.int64)
     data: dict[str, Any] = {}
@@ -325,6 +328,8 @@ def _clean_rows(
             shown_pct = np.fromiter(("%" in f for f in formats(key)), dtype=bool, count=n)
             scale = good & ~shown_pct & (x > 1)
             x[scale] /= 100.0
+        if key in DURATION_KEYS and header.days(key) != 1.0:
+            x[good] *= header.days(key)  # weeks, months or working days -> days
         test = _RULES[key][0]
         if good.any():  # (each rule works on a whole column as on one number)
             good[good] = np.asarray(test(x[good]), dtype=bool)
@@ -457,9 +462,17 @@ def _read_row(
             )
             ok = ok and not policy_col
             continue
-        x, why = parse_number(
-            value, rate=col.kind == RATE, percent_unit=units.get(key) == "%", number_format=fmt
-        )
+        own_unit = cell_duration(value) if key in DURATION_KEYS else None
+        if own_unit is not None:  # "2 weeks" in the cell: its own unit wins
+            x, why = own_unit[0], own_unit[2]
+            if why is None:
+                header.cell_units.append((key, cell, value, own_unit[1]))
+        else:
+            x, why = parse_number(
+                value, rate=col.kind == RATE, percent_unit=units.get(key) == "%", number_format=fmt
+            )
+            if x is not None and key in DURATION_KEYS:
+                x *= header.days(key)
         if why:
             fix = _RULES[key][2]
             log.add(
@@ -538,6 +551,24 @@ def _read_row(
         )
         ok = False
     return rec, ok
+
+
+def _report_cell_units(header: Header, sheet: str, log: ProblemLog) -> None:
+    """One note per column whose cells carried a unit of their own ("2 weeks")."""
+    by_key: dict[str, list[tuple[str, Any, str]]] = {}
+    for key, cell, value, unit in header.cell_units:
+        by_key.setdefault(key, []).append((cell, value, unit))
+    for key, cells in by_key.items():
+        shown = ", ".join(f"{c} {v!r}" for c, v, _ in cells[:5])
+        more = f" ... and {len(cells) - 5} more" if len(cells) > 5 else ""
+        log.info(
+            f"{len(cells)} cell(s) of '{header.titles.get(key, key)}' gave a unit of their own "
+            f"and were turned into days ({shown}{more}); the cell's unit wins over the "
+            "header's.",
+            sheet=sheet,
+            cell=cells[0][0],
+            code="read-as-cell-unit",
+        )
 
 
 def _sev(policy_col: bool) -> Severity:

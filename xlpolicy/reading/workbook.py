@@ -35,10 +35,12 @@ from openpyxl.styles.numbers import BUILTIN_FORMATS
 from openpyxl.utils import column_index_from_string, get_column_letter
 
 from .. import fastzlib
-from ..contract import Column, header_forms, normalise
+from ..contract import Column, normalise
 from ..problems import ProblemLog
 from ..progress import Progress, silent
 from .guard import refusal, unreadable_message
+from .headers import Header
+from .headers import find_header as _find_header
 
 SUPPORTED_SUFFIXES = (".xlsx", ".xlsm")
 
@@ -52,6 +54,14 @@ SHEET_ALIASES: dict[str, tuple[str, ...]] = {
         "articles",
         "stock items",
         "parts",
+        "stock list",
+        "stock",
+        "stock sheet",
+        "inventory",
+        "inventory list",
+        "catalogue",
+        "catalog",
+        "range",
     ),
     "History": (
         "history",
@@ -61,6 +71,15 @@ SHEET_ALIASES: dict[str, tuple[str, ...]] = {
         "demand",
         "usage",
         "usage history",
+        "monthly sales",
+        "weekly sales",
+        "daily sales",
+        "sales by month",
+        "sales by week",
+        "till export",
+        "sales lines",
+        "transactions",
+        "sales log",
     ),
     "Settings": ("settings", "parameters", "options", "configuration", "config"),
     "Price breaks": (
@@ -121,51 +140,19 @@ def cell_ref(col_index: int, row_number: int) -> str:
     return f"{get_column_letter(col_index + 1)}{row_number}"
 
 
-@dataclass
-class Header:
-    """Where a sheet's header row is and which column holds which key."""
-
-    row_index: int  # index into RawSheet.rows
-    columns: dict[str, int]  # key -> 0-based column index
-    units: dict[str, str]  # key -> unit found in brackets ("%", "days", ...)
-    unknown: dict[int, str]  # column index -> header text not recognised
-    duplicates: dict[str, list[int]]
-    titles: dict[str, str] = field(default_factory=dict)  # key -> header as the user wrote it
-
-
 def find_header(
-    sheet: RawSheet, columns: tuple[Column, ...], *, scan_rows: int = 30, min_matches: int = 2
+    sheet: RawSheet,
+    columns: tuple[Column, ...],
+    *,
+    scan_rows: int = 30,
+    min_matches: int = 2,
+    mapping: dict[str, str] | None = None,
 ) -> Header | None:
-    """Find the first row whose cells name at least ``min_matches`` known columns.
-
-    Rows above it (a title, a note) are skipped. Returns None if no row qualifies.
-    """
-    lookup: dict[str, str] = {}
-    for col in columns:
-        for name in col.names():
-            lookup.setdefault(name, col.key)
-    for idx, row in enumerate(sheet.rows[:scan_rows]):
-        found: dict[str, int] = {}
-        titles: dict[str, str] = {}
-        units: dict[str, str] = {}
-        unknown: dict[int, str] = {}
-        dups: dict[str, list[int]] = {}
-        for j, value in enumerate(row):
-            if value is None or (isinstance(value, str) and not value.strip()):
-                continue
-            base, full, unit = header_forms(value)
-            key = lookup.get(full) or lookup.get(base)
-            if key is None:
-                unknown[j] = str(value)
-            elif key in found:
-                dups.setdefault(key, [found[key]]).append(j)
-            else:
-                found[key] = j
-                units[key] = unit
-                titles[key] = " ".join(str(value).split())
-        if len(found) >= min_matches:
-            return Header(idx, found, units, unknown, dups, titles)
-    return None
+    """Find the first row whose cells name at least ``min_matches`` known columns (see
+    :func:`xlpolicy.reading.headers.find_header`: units, the owner's own names)."""
+    return _find_header(
+        sheet, columns, scan_rows=scan_rows, min_matches=min_matches, mapping=mapping
+    )
 
 
 class WorkbookFile:

@@ -45,6 +45,9 @@ def write_method(ctx: Context, ws: Worksheet) -> None:
         row = _paragraphs(ctx, ws, row + 1, "Price breaks, shelf life and review periods", buyer)
     if (ctx.report.totals or {}).get("items_simulated"):
         row = _paragraphs(ctx, ws, row + 1, "The back-test", backtest_sentences(ctx))
+    read = reading_sentences(ctx)
+    if read:
+        row = _paragraphs(ctx, ws, row + 1, "What was read, and how", read)
     row = _settings(ctx, ws, row + 1)
     row = _paragraphs(ctx, ws, row + 1, "Cautions", cautions(ctx))
     ws.hide_gridlines(2)
@@ -320,6 +323,34 @@ def backtest_sentences(ctx: Context) -> list[str]:
         "the reorder point should be raised. The 'history as it was' column replays the "
         "actual history once; with few orders in it, it is a rough check only.",
     ]
+
+
+#: What the method sheet calls each sheet's role.
+_ROLES = {
+    "Items": "The items",
+    "History": "The sales history",
+    "Settings": "The settings",
+    "Price breaks": "The price breaks",
+    "Column names": "Your own column names",
+}
+
+
+def reading_sentences(ctx: Context) -> list[str]:
+    """Which sheet was read for what (and how it was found), and the units and column
+    names read from the headers, as the console said them."""
+    settings = ctx.report.settings or {}
+    roles = settings.get("sheet_roles") or {}
+    how = settings.get("sheet_found") or {}
+    out = [
+        f"{_ROLES.get(role, role)}: the sheet '{clean_text(name)}' (found "
+        f"{how.get(role, 'by its name')})."
+        for role, name in roles.items()
+    ]
+    for p in ctx.report.problems or []:
+        if str(p.code).startswith("read-as-") and p.code != "read-as-sheet":
+            where = f"{p.sheet}!{p.cell}" if p.sheet and p.cell else p.sheet
+            out.append(f"{where}: {p.message}" if where else p.message)
+    return out
 
 
 def cautions(ctx: Context) -> list[str]:

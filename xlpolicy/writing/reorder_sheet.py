@@ -13,6 +13,7 @@ import pandas as pd
 from xlsxwriter.utility import xl_col_to_name, xl_rowcol_to_cell
 from xlsxwriter.worksheet import Worksheet
 
+from ..contract import CAUTION
 from .sheetkit import (
     BAND_FILL,
     INK,
@@ -66,6 +67,7 @@ def write_reorder(ctx: Context, ws: Worksheet) -> None:
         "reorder point.",
         ctx.styles.get(italic=True, font_color=MUTED),
     )
+    ctx.w.text(ws, 3, 0, CAUTION)  # on the printed page, in normal type
     head = ctx.header_props()
     ws.set_row(HEADER_ROW, 48)
     for c, col in enumerate(cols):

@@ -128,6 +128,7 @@ def write_summary(ctx: Context, ws: Worksheet) -> None:
     source = clean_text(ctx.report.source_name) or "(unnamed workbook)"
     ctx.w.text(ws, 0, 0, f"Stock policy for {source}", bold=True, font_size=15, font_color=INK)
     ctx.w.text(ws, 1, 0, f"Run on {ctx.run_text()}", font_color=MUTED)
+    ctx.paragraph(ws, 2, contract.CAUTION, _WIDTH, _CHARS)  # in normal type, where it is read
     row = 3
     for text, colour in headlines(ctx):
         # merged across the page and wrapped, so a long headline is read, not cut off
