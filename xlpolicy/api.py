@@ -17,10 +17,12 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from . import paths
 from .contract import SERVICE_MEASURES, SETTINGS
+from .errors import UsageError
 from .problems import Problem, ProblemLog, Severity, UnusableWorkbook
 from .progress import Progress, silent
-from .reading import guard, read_input
+from .reading import guard, history_file_path, read_input
 from .reading.cells import parse_number
 from .reading.settings import parse_measure, resolve_settings, setting_key
 from .reading.sources import KIND_NAMES, source_kind
@@ -39,10 +41,6 @@ def _warm_up() -> None:
     """Import the planner and the sheet writers (called while reading waits)."""
     from . import planner  # noqa: F401
     from .writing import sheets  # noqa: F401
-
-
-class UsageError(ValueError):
-    """A bad argument (not a bad workbook): the CLI exits with status 2."""
 
 
 @dataclass
@@ -217,6 +215,7 @@ def analyse(
     ``lost_sales`` simulates unmet demand as lost rather than backordered (see
     xlpolicy.backtest).
     """
+    paths.check_inputs(paths.input_files(Path(path), _path_or_none(history)))
     log = ProblemLog()
     overrides = {
         **_named_settings(settings),
@@ -301,6 +300,8 @@ def plan(
     out = Path(output) if output is not None else default_output_path(src)
     if write_workbook:
         _check_output_path(src, out)
+    outputs = paths.planned_outputs(out if write_workbook else None, csv, json)
+    paths.check_outputs(paths.input_files(src, _path_or_none(history)), outputs)
     report = analyse(
         src,
         service_measure=service_measure,
@@ -319,6 +320,9 @@ def plan(
         replications=replications,
         lost_sales=lost_sales,
     )
+    settings_history = history_file_path(src, report.settings)
+    if settings_history is not None:  # named by the workbook: known only now, still unwritten
+        paths.check_outputs([settings_history], outputs)
     result = PlanResult(report)
     if write_workbook:
         progress(f"Writing {out.name}", 0, None)
@@ -337,6 +341,10 @@ def plan(
         write_json(Path(json), report)
         result.json = Path(json)
     return result
+
+
+def _path_or_none(p: str | Path | None) -> Path | None:
+    return Path(p).expanduser() if p is not None else None
 
 
 def _check_output_path(src: Path, out: Path) -> None:

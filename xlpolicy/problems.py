@@ -11,6 +11,10 @@ from dataclasses import dataclass, field
 from enum import Enum
 from typing import Any
 
+from .errors import UnusableWorkbook
+
+__all__ = ["Problem", "ProblemLog", "Severity", "UnusableWorkbook"]
+
 
 class Severity(str, Enum):
     """How bad a problem is, from the user's point of view.
@@ -128,14 +132,3 @@ class ProblemLog:
 
     def __len__(self) -> int:
         return len(self.problems)
-
-
-class UnusableWorkbook(Exception):
-    """Raised when the input cannot be used at all; carries the fatal problems.
-
-    The CLI turns it into a message and exit status 1, never a traceback.
-    """
-
-    def __init__(self, problems: list[Problem]):
-        self.problems = problems
-        super().__init__("; ".join(p.message for p in problems))

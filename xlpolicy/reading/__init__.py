@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import os
+import stat
 from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
@@ -96,7 +98,11 @@ def read_input(
         )
         history_name = wb.find_sheet("History")
         history = None
-        history_file = _history_file(Path(path), settings)
+        history_file = history_file_path(Path(path), settings)
+        if history_file is not None and not _history_file_allowed(
+            Path(path), history_file, settings, log
+        ):
+            return None
         early = (
             ahead.submit(typed_cells, wb, history_name)
             if history_file is None and history_name is not None and _typed_possible(wb)
@@ -238,7 +244,7 @@ def typed_cells(wb: WorkbookFile, name: str) -> tuple[RawSheet, int, typed.WideC
     return None if cells is None else (head, where[0], cells)
 
 
-def _history_file(workbook: Path, settings: dict[str, Any]) -> Path | None:
+def history_file_path(workbook: Path, settings: dict[str, Any]) -> Path | None:
     """The history file to read, if the settings name one (relative to the workbook)."""
     name = settings.get("history_file")
     if not name:
@@ -248,6 +254,50 @@ def _history_file(workbook: Path, settings: dict[str, Any]) -> Path | None:
         base = workbook if workbook.is_dir() else workbook.parent
         p = base / p
     return p
+
+
+def _history_file_allowed(
+    workbook: Path, file: Path, settings: dict[str, Any], log: ProblemLog
+) -> bool:
+    """Whether the history file may be read; if not, a fatal problem says why.
+
+    A file given on the command line (or to the API) may be anywhere: the user named it.
+    A file named by the workbook's own Settings sheet must lie in the workbook's folder or
+    below (links resolved): a workbook someone sent must not pull another local file into
+    an output the user may send back. A named pipe or device is never read.
+    """
+    source = str(settings.get("sources", {}).get("history_file", ""))
+    sheet, _, cell = source.rpartition(" ")
+    where = {"sheet": sheet, "cell": cell} if source.startswith("Settings") else {}
+    if source != "command line":
+        base = (workbook if workbook.is_dir() else workbook.parent).resolve()
+        if not file.resolve().is_relative_to(base):
+            log.fatal(
+                f"The Settings row 'History file' names {settings.get('history_file')!s}, "
+                f"which is outside the folder of {workbook.name}. A workbook may only name a "
+                "history file in its own folder (or below), so that a workbook from someone "
+                "else cannot read other files of yours. Copy the file into that folder and "
+                "name it there, or give it on the command line with --history.",
+                value=str(settings.get("history_file")),
+                code="history-file-outside",
+                **where,
+            )
+            return False
+    try:
+        mode = os.stat(file).st_mode
+    except OSError:
+        return True  # missing: the history reader says so in its own words
+    if not stat.S_ISREG(mode):
+        log.fatal(
+            f"The history file {file.name} is not a file saved on disk (a named pipe, a "
+            "device or a folder), so it was not read. Save the history to a CSV or Parquet "
+            "file and name that.",
+            value=str(file),
+            code="file-not-regular",
+            **where,
+        )
+        return False
+    return True
 
 
 def _default_targets(items: ItemTable, settings: dict[str, Any]) -> None:

@@ -39,6 +39,7 @@ from lxml import etree
 from xlsxwriter.format import Format
 
 from .. import fastzlib
+from ..errors import InputError
 from .atomic import OutputLocked, atomic_output
 from .bulk import BLOCK_MARKER, CellBlock
 
@@ -155,7 +156,7 @@ _TABLE_DXF_ATTRS = (
 _PARSER = etree.XMLParser(resolve_entities=False, no_network=True, huge_tree=True)
 
 
-class CannotMerge(Exception):
+class CannotMerge(InputError):
     """The user's workbook cannot take the generated sheets intact; ``str()`` says why.
 
     The caller then writes the generated sheets to a workbook of their own.
