@@ -19,7 +19,7 @@ from typing import Any
 
 from . import paths
 from .contract import SERVICE_MEASURES, SETTINGS
-from .errors import UsageError
+from .errors import OutputError, UsageError
 from .problems import Problem, ProblemLog, Severity, UnusableWorkbook
 from .progress import Progress, silent
 from .reading import guard, history_file_path, read_input
@@ -334,6 +334,8 @@ def plan(
             raise UnusableWorkbook(
                 [Problem(Severity.FATAL, "", "", "", None, str(exc), "output-too-large")]
             ) from None
+        except OutputError as exc:  # (an intermediate file's failure is the output's)
+            raise exc.naming(out) from exc
     if csv is not None:
         write_csv(Path(csv), report)
         result.csv = Path(csv)

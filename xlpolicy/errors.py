@@ -72,9 +72,17 @@ class Refused(InputError):
 class OutputError(XlpolicyError):
     """An output file cannot be written; the message names it and says what to do."""
 
-    def __init__(self, message: str, path: Path | None = None):
+    def __init__(self, message: str, path: Path | None = None, cause: OSError | None = None):
         super().__init__(message)
         self.path = path
+        self.cause = cause
+
+    def naming(self, path: Path) -> OutputError:
+        """The same failure told about ``path``: for an intermediate file of ours, the
+        output the user asked for (they never heard of the intermediate one)."""
+        if self.cause is None or self.path == path:
+            return self
+        return output_failure(path, self.cause)
 
 
 class OutputLocked(OutputError):
@@ -150,4 +158,4 @@ def output_failure(path: Path | str, exc: OSError) -> OutputError:
         ),
     )
     cls = OutputLocked if exc.errno in (errno.EACCES, errno.EPERM, errno.EBUSY) else OutputError
-    return cls(f"Could not write {path}: {what}. {fix}", Path(path))
+    return cls(f"Could not write {path}: {what}. {fix}", Path(path), exc)
