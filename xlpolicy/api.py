@@ -17,6 +17,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from . import paths
 from .contract import SERVICE_MEASURES, SETTINGS
 from .errors import OutputError, UsageError
@@ -238,7 +240,8 @@ def analyse(
     progress("Planning", 0, None)
     from .planner import build_report
 
-    report = build_report(data, log, Path(path).name, run_date)
+    with np.errstate(all="ignore"):  # overflows are found and reported, not printed
+        report = build_report(data, log, Path(path).name, run_date)
     if report.input_summary["items_planned"] == 0:
         reasons = [p for p in log.sorted() if p.severity in (Severity.ERROR, Severity.WARNING)]
         fatal = Problem(

@@ -7,6 +7,7 @@ show the same list, and tests can assert on sheet, cell and wording.
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field
 from enum import Enum
 from typing import Any
@@ -53,6 +54,9 @@ class Problem:
     message: str
     code: str = ""
 
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "message", tidy(self.message))
+
     def where(self) -> str:
         """Human-readable location, e.g. "Items!C7" or "History"."""
         if self.sheet and self.cell:
@@ -70,6 +74,15 @@ class Problem:
             "message": self.message,
             "code": self.code,
         }
+
+
+_DOUBLE_STOP = re.compile(r"(?<!\.)\.(?:\s*\.)(?!\.)")
+
+
+def tidy(message: str) -> str:
+    """A message without doubled full stops (". ." or ".."), which appear where a part
+    that ends a sentence is put before another's full stop; an ellipsis is kept."""
+    return _DOUBLE_STOP.sub(".", message) if "." in message else message
 
 
 def _plain(value: Any) -> Any:

@@ -109,8 +109,10 @@ def parse_number(
     """
     if is_blank(value):
         return None, None
-    if isinstance(value, bool):
-        return None, f"{'TRUE' if value else 'FALSE'} is a yes/no value, not a number"
+    if isinstance(value, bool) or (
+        isinstance(value, str) and value.strip().upper() in ("TRUE", "FALSE")
+    ):
+        return None, "a yes/no value, not a number"
     if isinstance(value, (_dt.datetime, _dt.date, _dt.time, _dt.timedelta)):
         return None, "a date or time where a number belongs"
     if isinstance(value, (int, float)):
@@ -221,6 +223,8 @@ def _separators(s: str) -> str | None:
 
 def describe(value: Any) -> str:
     """The raw value as a user would recognise it in a message."""
+    if isinstance(value, bool):
+        return "TRUE" if value else "FALSE"
     if isinstance(value, str):
         return repr(value)
     if (

@@ -27,6 +27,7 @@ from ..contract import (
 )
 from ..problems import ProblemLog, Severity
 from .cells import describe, is_blank, item_code, item_codes, parse_number, text, texts
+from .decimals import Convention, column_convention, settle
 from .settings import parse_model
 from .workbook import Header, RawSheet, cell_ref, find_header
 
@@ -187,6 +188,7 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
     measure = settings.get("service_measure")
     first = header.row_index + 1
     clean = _clean_rows(sheet, header, settings, measure)
+    marks = _decimal_marks(sheet, header) if not clean.ok.all() else {}
     records: list[dict[str, Any] | None] = []  # None: a clean row, taken from ``clean``
     kept: list[int] = []  # position (from the first data row) of each item kept
     usable: list[bool] = []
@@ -200,7 +202,7 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
             if all(is_blank(v) for v in values):
                 continue
             rec, ok = _read_row(
-                values, sheet.formats[k], rownum, header, sheet, settings, measure, log
+                values, sheet.formats[k], rownum, header, sheet, settings, measure, log, marks
             )
             if rec is None:
                 continue
@@ -347,6 +349,22 @@ def _clean_rows(
     return _CleanRows(ok, codes, columns)
 
 
+def _decimal_marks(sheet: RawSheet, header: Header) -> dict[str, Convention]:
+    """Each numeric column's decimal mark, from its text cells (see reading.decimals)."""
+    cols = header.columns
+    first = header.row_index + 1
+    keys = [key for key in NUMERIC_KEYS if key in cols]
+    blk, kinds = sheet.block(list(range(first, len(sheet.rows))), [cols[key] for key in keys])
+    out = {}
+    for q, key in enumerate(keys):
+        at = np.flatnonzero(np.equal(kinds[:, q], str))
+        if at.size:
+            out[key] = column_convention(
+                [(cell_ref(cols[key], sheet.row_numbers[first + i]), blk[i, q]) for i in at]
+            )
+    return out
+
+
 def _cells_by_column(sheet: RawSheet, cols: dict[str, int]) -> dict[int, list[int]]:
     """Column -> row indices (into ``sheet.rows``) of formula cells with no saved result."""
     index_of = {r: k for k, r in enumerate(sheet.row_numbers)}
@@ -375,8 +393,12 @@ def _read_row(
     settings: dict[str, Any],
     measure: str | None,
     log: ProblemLog,
+    marks: dict[str, Convention] | None = None,
 ) -> tuple[dict[str, Any] | None, bool]:
-    """One Items row: (record, usable) or (None, False) when it names no item."""
+    """One Items row: (record, usable) or (None, False) when it names no item.
+
+    ``marks``: each numeric column's decimal mark, which settles a cell like 1.200.
+    """
     cols, units = header.columns, header.units
 
     def title(key: str) -> str:
@@ -457,8 +479,33 @@ def _read_row(
             )
             ok = ok and not policy_col
             continue
+        typed = value
+        if marks and key in marks:
+            typed, note, level = settle(value, marks[key])
+            if note is not None and level == "error":
+                log.add(
+                    _sev(policy_col),
+                    f"{name} {note}. {consequence}",
+                    sheet=sheet.name,
+                    cell=cell,
+                    item=code,
+                    value=value,
+                    code=f"{key}-decimal-mark-unclear",
+                )
+                ok = ok and not policy_col
+                continue
+            if note is not None:
+                log.add(
+                    Severity(level),
+                    f"{name} {note}",
+                    sheet=sheet.name,
+                    cell=cell,
+                    item=code,
+                    value=value,
+                    code="number-decimal-mark",
+                )
         x, why = parse_number(
-            value, rate=col.kind == RATE, percent_unit=units.get(key) == "%", number_format=fmt
+            typed, rate=col.kind == RATE, percent_unit=units.get(key) == "%", number_format=fmt
         )
         if why:
             fix = _RULES[key][2]

@@ -180,6 +180,7 @@ def _exists(path: Path, log: ProblemLog, what: str) -> bool:
 _NS_OFFICE = "urn:oasis:names:tc:opendocument:xmlns:office:1.0"
 _NS_TABLE = "urn:oasis:names:tc:opendocument:xmlns:table:1.0"
 _NS_TEXT = "urn:oasis:names:tc:opendocument:xmlns:text:1.0"
+_NS_CALCEXT = "urn:org:documentfoundation:names:experimental:calc:xmlns:calcext:1.0"
 _NS_MANIFEST = "urn:oasis:names:tc:opendocument:xmlns:manifest:1.0"
 _T = f"{{{_NS_TABLE}}}"
 _O = f"{{{_NS_OFFICE}}}"
@@ -390,6 +391,8 @@ def _ods_cell(cell: ET.Element) -> tuple[Any, str, bool]:
         if vtype in ("float", "currency", "percentage"):
             x = _number(cell.get(f"{_O}value", ""))
             shown = _ods_text(cell).strip()
+            if _shown_as_yes_no(cell, x, shown):
+                return x == 1, "General", False
             if vtype == "percentage":
                 return x, "0%", False
             if (
@@ -418,6 +421,28 @@ def _ods_cell(cell: ET.Element) -> tuple[Any, str, bool]:
     if text != "":
         return text, "General", False
     return None, "", cell.get(f"{_T}formula") is not None
+
+
+#: How spreadsheet programs show TRUE and FALSE in some common languages (common practice:
+#: LibreOffice and Excel translate the words; the value beneath is 1 or 0).
+_YES_NO_WORDS = {
+    "true", "false", "wahr", "falsch", "vrai", "faux", "verdadero", "falso", "vero",
+    "waar", "onwaar", "sann", "usann", "prawda", "fałsz",
+}  # fmt: skip
+_BOOLEAN_FORMULAS = ("of:=true()", "of:=false()", "=true()", "=false()")
+
+
+def _shown_as_yes_no(cell: ET.Element, x: float, shown: str) -> bool:
+    """Whether a number cell is really TRUE or FALSE, as LibreOffice saves a yes/no cell
+    (a float 1 or 0 with the formula TRUE() or a yes/no display), so that it goes to the
+    same checks as a yes/no cell of an .xlsx or .xls file rather than counting as 1 or 0."""
+    if x not in (0, 1):
+        return False
+    ext = cell.get(
+        "{urn:org:documentfoundation:names:experimental:calc:xmlns:calcext:1.0}value-type"
+    )
+    formula = (cell.get(f"{_T}formula") or "").replace(" ", "").lower()
+    return ext == "boolean" or formula in _BOOLEAN_FORMULAS or shown.lower() in _YES_NO_WORDS
 
 
 def _iso_datetime(raw: str) -> _dt.datetime:
