@@ -22,6 +22,7 @@ import numpy as np
 from . import paths
 from .contract import SERVICE_MEASURES, SETTINGS
 from .errors import OutputError, UsageError
+from .macros import declared_macro_enabled
 from .problems import Problem, ProblemLog, Severity, UnusableWorkbook
 from .progress import Progress, silent
 from .reading import guard, history_file_path, read_input
@@ -72,7 +73,14 @@ def default_output_path(path: str | Path) -> Path:
         q = p if p.name else p.resolve()
         return q.with_name(f"{q.name}-policy.xlsx")
     ext = p.suffix.lower() if p.suffix.lower() in (".xlsx", ".xlsm") else ".xlsx"
+    if ext == ".xlsx" and declared_macro_enabled(p):  # macros under an .xlsx name
+        ext = ".xlsm"
     return p.with_name(f"{p.stem}-policy{ext}")
+
+
+def _has_macros(src: Path) -> bool:
+    """An .xlsm, or an .xlsx whose package is declared macro-enabled (see xlpolicy.macros)."""
+    return src.is_file() and (src.suffix.lower() == ".xlsm" or declared_macro_enabled(src))
 
 
 def _overrides(
@@ -323,6 +331,8 @@ def plan(
         replications=replications,
         lost_sales=lost_sales,
     )
+    if write_workbook and out.suffix.lower() == ".xlsm" and src.suffix.lower() == ".xlsx":
+        report.problems.insert(0, _macro_note(src, out))
     settings_history = history_file_path(src, report.settings)
     if settings_history is not None:  # named by the workbook: known only now, still unwritten
         paths.check_outputs([settings_history], outputs)
@@ -348,6 +358,20 @@ def plan(
     return result
 
 
+def _macro_note(src: Path, out: Path) -> Problem:
+    return Problem(
+        Severity.WARNING,
+        "",
+        "",
+        "",
+        src.name,
+        f"{src.name} holds macros although its name ends in .xlsx (spreadsheet programs "
+        f"refuse such a file), so the results were written as {out.name}, with the macros "
+        "kept. Save your own file as .xlsm too (Excel Macro-Enabled Workbook).",
+        "output-macro-enabled",
+    )
+
+
 def _path_or_none(p: str | Path | None) -> Path | None:
     return Path(p).expanduser() if p is not None else None
 
@@ -367,12 +391,12 @@ def _check_output_path(src: Path, out: Path) -> None:
             f"the output {out.name} must end in .xlsx: the results of "
             f"{KIND_NAMES[source_kind(src)]} go to an .xlsx workbook of their own"
         )
-    if src.is_file() and src.suffix.lower() == ".xlsm" and out.suffix.lower() != ".xlsm":
+    if _has_macros(src) and out.suffix.lower() != ".xlsm":
         raise UsageError(
             f"{src.name} holds macros; its output must end in .xlsm to keep them "
             f"(e.g. {default_output_path(src).name})"
         )
-    if out.suffix.lower() == ".xlsm" and not (src.is_file() and src.suffix.lower() == ".xlsm"):
+    if out.suffix.lower() == ".xlsm" and not _has_macros(src):
         raise UsageError(
             f"the output {out.name} ends in .xlsm, but {src.name} holds no macros "
             "to keep; name it .xlsx (Excel refuses an .xlsm without macros "

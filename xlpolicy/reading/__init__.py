@@ -15,6 +15,7 @@ import numpy as np
 from ..problems import ProblemLog
 from ..progress import Progress, silent
 from . import typed
+from .cells import code_key, known_forms
 from .guard import Refused, unreadable_message
 from .history import History, aggregate_daily_to_weeks, read_history, read_wide_typed, wide_header
 from .history_file import read_history_file
@@ -123,7 +124,7 @@ def read_input(
                     code="history-from-file",
                 )
             progress(f"Reading {history_file.name}", 0, None)
-            history = read_history_file(history_file, set(items.df["item"]), settings, log)
+            history = read_history_file(history_file, known_forms(items.df["item"]), settings, log)
             if history is None:
                 return None
             history_name = history_file.name
@@ -134,7 +135,7 @@ def read_input(
                 if early is not None and not early.done() and while_waiting is not None:
                     while_waiting()
                 history = _typed_history(
-                    wb, history_name, set(items.df["item"]), settings, log, progress, early
+                    wb, history_name, known_forms(items.df["item"]), settings, log, progress, early
                 )
                 if history is None:
                     history_sheet = read(history_name)
@@ -147,10 +148,11 @@ def read_input(
             )
             history_sheet = None
         if history_sheet is not None:
-            history = read_history(history_sheet, set(items.df["item"]), settings, log)
+            history = read_history(history_sheet, known_forms(items.df["item"]), settings, log)
             if history is None:
                 return None
         if history is not None:
+            history = _items_spelling(history, items)
             history = _steadier_period(history, items, settings, log)
             if history.period is not None and (
                 history.period != settings["period"] or settings["sources"]["period"] == "default"
@@ -298,6 +300,18 @@ def _history_file_allowed(
         )
         return False
     return True
+
+
+def _items_spelling(history: History, items: ItemTable) -> History:
+    """History's codes written as in Items where they differ only in Unicode form
+    (composed or decomposed accents), so each item finds its history and the output shows
+    the code as the user typed it in Items."""
+    spelled = {code_key(c): c for c in items.df["item"] if isinstance(c, str) and not c.isascii()}
+    if not spelled:
+        return history
+    history.items = [spelled.get(code_key(c), c) for c in history.items]
+    history.first_cell = {spelled.get(code_key(c), c): v for c, v in history.first_cell.items()}
+    return history
 
 
 def _default_targets(items: ItemTable, settings: dict[str, Any]) -> None:

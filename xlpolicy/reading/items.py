@@ -26,7 +26,7 @@ from ..contract import (
     TEXT,
 )
 from ..problems import ProblemLog, Severity
-from .cells import describe, is_blank, item_code, item_codes, parse_number, text, texts
+from .cells import code_key, describe, is_blank, item_code, item_codes, parse_number, text, texts
 from .decimals import Convention, column_convention, settle
 from .settings import parse_model
 from .workbook import Header, RawSheet, cell_ref, find_header
@@ -207,9 +207,10 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
             if rec is None:
                 continue
             code = rec["item"]
-        if code in first_row_of:
+        key = code_key(code) if code is not None else code
+        if key in first_row_of:
             log.error(
-                f"Item code {code!r} appears again (first in row {first_row_of[code]}); this "
+                f"Item code {code!r} appears again (first in row {first_row_of[key]}); this "
                 "row was skipped. Give each item one row and its own code.",
                 sheet=sheet.name,
                 cell=cell_ref(cols["item"], rownum),
@@ -218,7 +219,7 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
                 code="item-duplicate",
             )
             continue
-        first_row_of[code] = rownum
+        first_row_of[key] = rownum
         records.append(rec)
         kept.append(pos)
         usable.append(ok)

@@ -676,9 +676,9 @@ def csv_value(s: str, *, comma_decimals: bool = False, slashes: str | None = Non
 
     Empty -> None. Text is turned into a number only when it is one written plainly, so that
     writing the number back gives the same text: "12" -> 12, "2.5" -> 2.5, but "000123",
-    "2.50", "1e5", "+3" and "n/a" stay text (the checks still read "2.50" as a number where a
-    number belongs; codes keep their zeros). With ``comma_decimals`` "1,5" and "1.234,5"
-    are first rewritten as "1.5" and "1234.5" ("14,5%" as "14.5%"). Dates written as
+    "2.50", "12.0", "-0", "1e5", "+3" and "n/a" stay text (the checks still read "2.50" as
+    a number where a number belongs; codes keep their form). With ``comma_decimals`` "1,5"
+    and "1.234,5" are first rewritten as "1.5" and "1234.5" ("14,5%" as "14.5%"). Dates written as
     2024-01-31 (and 31.01.2024 in decimal-comma files; 01/31/2024 when ``slashes`` says the
     order) become datetimes.
     """
@@ -690,10 +690,10 @@ def csv_value(s: str, *, comma_decimals: bool = False, slashes: str | None = Non
         if m and (m.group(3) is not None or "." in m.group(2)):
             sign, whole, frac, pct = m.groups()
             t = f"{sign}{whole.replace('.', '')}" + (f".{frac}" if frac else "") + pct
-    if _INT.match(t):
+    if _INT.match(t) and str(int(t)) == t:  # ("-0" stays text: a code shown as -0)
         return int(t)
-    if _DEC.match(t) and repr(float(t)) == t:
-        return float(t)
+    if _DEC.match(t) and repr(float(t)) == t and not float(t).is_integer():
+        return float(t)  # ("12.0" and "-0.0" stay text, as typed: a code keeps its form)
     d = _csv_date(t, comma_decimals, slashes)
     if d is not None:
         return d
