@@ -241,7 +241,7 @@ def analyse(
         ),
     }
     overrides.update(_simulation_overrides(simulate, replications, lost_sales))
-    with guard.allow_large(allow_large):
+    with guard.allow_large(allow_large), np.errstate(all="ignore"):  # (sums of huge cells)
         data = read_input(Path(path), overrides, log, progress, while_waiting=_warm_up)
     if data is None:
         raise UnusableWorkbook([p for p in log.problems if p.severity is Severity.FATAL])
