@@ -13,6 +13,7 @@ import errno
 import hashlib
 import os
 import shutil
+import stat
 import subprocess
 import sys
 import tempfile
@@ -376,3 +377,14 @@ def test_xlsxwriter_temporaries_go_to_a_folder_of_ours(tmp_path, monkeypatch):
     xlpolicy.plan(src, simulate=False)
     assert seen and all(Path(d).name.startswith("xlpolicy-") for d in seen)
     assert not any(Path(d).exists() for d in seen)  # removed once written
+
+
+def test_an_output_that_is_a_pipe_or_device_is_refused(tmp_path):
+    src = simple_workbook(tmp_path / "shop.xlsx")
+    fifo = tmp_path / "t.csv"
+    os.mkfifo(fifo)
+    code, out = _plan(str(src), "--csv", str(fifo))  # writing would wait for a reader
+    assert code == 2 and "not a file saved on disk" in out, out
+    code, out = _plan(str(src), "--json", os.devnull)
+    assert code == 2 and "not a file saved on disk" in out, out
+    assert stat.S_ISFIFO(os.stat(fifo).st_mode) and os.path.exists(os.devnull)

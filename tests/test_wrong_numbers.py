@@ -279,3 +279,9 @@ def test_no_numpy_warning_is_printed(tmp_path):
     )
     assert "Warning" not in proc.stderr and "overflow encountered" not in proc.stderr
     assert np.isfinite(MAX_PLAN_AMOUNT)
+
+
+def test_an_ambiguous_setting_is_reported(tmp_path):
+    src = simple_workbook(tmp_path / "w.xlsx", settings={"Order cost": "1.200"})
+    (p,) = [p for p in xlpolicy.check(src) if p.code == "number-decimal-mark"]
+    assert p.sheet == "Settings" and p.cell == "B2" and "1200" in p.message

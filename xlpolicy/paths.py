@@ -133,11 +133,22 @@ def _check_folder(option: str, out: Path) -> None:
         raise UsageError(
             f"{option} {out} is a folder. Give a file name inside it, e.g. {out / out.name}."
         )
+    if not os.access(folder, os.W_OK | os.X_OK):
+        raise OutputLocked(
+            f"Could not write {out}: you have no permission to write in the folder {folder}. "
+            f"Choose a folder you can write to with {option}, or ask for write permission.",
+            out,
+        )
     if os.path.lexists(out):
         try:
             mode = os.stat(out).st_mode
         except OSError:
             return  # a dangling link: writing replaces the link itself
+        if not stat.S_ISREG(mode):
+            raise UsageError(
+                f"{option} {out} is not a file saved on disk (a device, a named pipe or the "
+                "like); xlpolicy writes its outputs as files. Give a file name."
+            )
         if not mode & (stat.S_IWUSR | stat.S_IWGRP | stat.S_IWOTH) or not os.access(out, os.W_OK):
             raise OutputLocked(
                 f"{out} exists and is read-only, so xlpolicy did not replace it (someone "
