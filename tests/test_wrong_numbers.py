@@ -285,3 +285,15 @@ def test_an_ambiguous_setting_is_reported(tmp_path):
     src = simple_workbook(tmp_path / "w.xlsx", settings={"Order cost": "1.200"})
     (p,) = [p for p in xlpolicy.check(src) if p.code == "number-decimal-mark"]
     assert p.sheet == "Settings" and p.cell == "B2" and "1200" in p.message
+
+
+def test_one_code_in_two_unicode_forms_in_items_is_a_duplicate(tmp_path):
+    composed = unicodedata.normalize("NFC", "Café-7")
+    decomposed = unicodedata.normalize("NFD", "Café-7")
+    src = write_workbook(
+        tmp_path / "w.xlsx",
+        [item_row(composed), item_row(decomposed)],
+        history=weekly_history([composed], weeks=60),
+    )
+    (p,) = [p for p in xlpolicy.check(src) if p.code == "item-duplicate"]
+    assert p.cell == "A3"
