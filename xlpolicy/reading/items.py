@@ -207,7 +207,7 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
             if rec is None:
                 continue
             code = rec["item"]
-        key = code_key(code) if code is not None else code
+        key = code_key(code) if code is not None else ""
         if key in first_row_of:
             log.error(
                 f"Item code {code!r} appears again (first in row {first_row_of[key]}); this "
@@ -358,7 +358,7 @@ def _decimal_marks(sheet: RawSheet, header: Header) -> dict[str, Convention]:
     blk, kinds = sheet.block(list(range(first, len(sheet.rows))), [cols[key] for key in keys])
     out = {}
     for q, key in enumerate(keys):
-        at = np.flatnonzero(np.equal(kinds[:, q], str))
+        at = np.flatnonzero([k is str for k in kinds[:, q]])
         if at.size:
             out[key] = column_convention(
                 [(cell_ref(cols[key], sheet.row_numbers[first + i]), blk[i, q]) for i in at]

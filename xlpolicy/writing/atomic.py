@@ -49,7 +49,7 @@ def clear_stale(path: Path, now: float | None = None) -> list[Path]:
         re.escape(f".{path.stem}.") + r"[0-9a-f]{12}" + re.escape(f".tmp{path.suffix}")
     )
     now = time.time() if now is None else now
-    removed = []
+    removed: list[Path] = []
     try:
         entries = list(os.scandir(path.parent))
     except OSError:
