@@ -388,3 +388,18 @@ def test_an_output_that_is_a_pipe_or_device_is_refused(tmp_path):
     code, out = _plan(str(src), "--json", os.devnull)
     assert code == 2 and "not a file saved on disk" in out, out
     assert stat.S_ISFIFO(os.stat(fifo).st_mode) and os.path.exists(os.devnull)
+
+
+def test_template_and_demo_do_not_replace_a_read_only_file(tmp_path):
+    kept = tmp_path / "t.xlsx"
+    kept.write_text("mine")
+    kept.chmod(0o444)
+    res = CliRunner().invoke(main, ["template", str(kept), "--force"])
+    assert res.exit_code == 1 and "read-only" in res.output, res.output
+    (tmp_path / "demo").mkdir()
+    shop = tmp_path / "demo" / "demo-shop.xlsx"
+    shop.write_text("mine")
+    shop.chmod(0o444)
+    res = CliRunner().invoke(main, ["demo", str(tmp_path / "demo")])
+    assert res.exit_code == 1 and "read-only" in res.output, res.output
+    assert kept.read_text() == shop.read_text() == "mine"

@@ -297,3 +297,11 @@ def test_one_code_in_two_unicode_forms_in_items_is_a_duplicate(tmp_path):
     )
     (p,) = [p for p in xlpolicy.check(src) if p.code == "item-duplicate"]
     assert p.cell == "A3"
+
+
+def test_an_ambiguous_history_quantity_is_reported(tmp_path):
+    hist = weekly_history(["A", "B"], weeks=60)
+    hist["A"][5] = "1.200"  # typed as text: 1.2 units, or twelve hundred?
+    src = write_workbook(tmp_path / "w.xlsx", [item_row("A"), item_row("B")], history=hist)
+    (p,) = [p for p in xlpolicy.check(src) if p.code == "number-decimal-mark"]
+    assert p.sheet == "History" and p.cell == "C7" and "1200" in p.message

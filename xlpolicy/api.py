@@ -490,6 +490,7 @@ def demo(folder: str | Path = "xlpolicy-demo", progress: Progress = silent) -> P
     out = Path(folder)
     out.mkdir(parents=True, exist_ok=True)
     src = out / "demo-shop.xlsx"
+    paths.check_outputs([], {"the demo workbook": src, "its policy": default_output_path(src)})
     progress("Writing the demo workbook", 0, None)
     with atomic_output(src) as tmp:
         build_shop(Path(tmp))
@@ -501,6 +502,7 @@ def template(path: str | Path) -> Path:
     from .template import write_template  # lazily: `python -m xlpolicy.template` runs it too
 
     p = Path(path)
+    paths.check_outputs([], {"the template": p})
     with atomic_output(p) as tmp:
         write_template(Path(tmp))
     return p
