@@ -2,9 +2,10 @@
 
 For each case of tests/data/make_bad.py: the exit status it promises, its message words,
 never a traceback or an "internal error", the input file byte for byte unchanged, no output
-left behind when the run fails, a bounded run time and a bounded peak memory (the process's
-own peak resident memory, VmHWM from /proc where there is one, else resource.getrusage,
-against a run on a good workbook).
+left behind when the run fails, and a bounded peak memory (the process's own peak resident
+memory, VmHWM from /proc where there is one, else resource.getrusage, against a run on a
+good workbook). No run time is asserted: it depends on the machine; a hang is cut off by
+the subprocess's timeout.
 """
 
 from __future__ import annotations
@@ -27,7 +28,6 @@ import xlpolicy  # noqa: E402
 from xlpolicy.problems import UnusableWorkbook  # noqa: E402
 
 BAD = make_bad.BAD
-TIME_LIMIT_S = 30.0  # generous: the slowest case takes a few seconds here
 MEMORY_MARGIN_MB = 100.0  # above a run on a good workbook (imports alone take ~150 MB)
 
 _RUNNER = """
@@ -129,7 +129,6 @@ def test_bad_file_through_the_cli(runs, case):
     assert "Warning:" not in text, text  # no library warnings with their source lines
     assert r["unchanged"], "the input file was changed"
     assert r["wrote"] == (case.exit_code == 0)
-    assert r["seconds"] < TIME_LIMIT_S, r["seconds"]
     base = runs["(good)"]["rss_mb"]
     assert r["rss_mb"] is not None and r["rss_mb"] < base + MEMORY_MARGIN_MB, (r["rss_mb"], base)
 

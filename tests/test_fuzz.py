@@ -8,8 +8,8 @@ Two kinds of test:
   input file must be unchanged.
 - **fuzz**: the bytes of valid workbooks mutated (bits flipped, pieces cut, repeated or
   overwritten), either in the zip as a whole or inside one XML part that is then zipped
-  again (so the parsers, not only the zip checks, see the damage). Seeded and bounded in
-  time for CI; ``python tests/test_fuzz.py 5000`` runs longer and keeps every input that
+  again (so the parsers, not only the zip checks, see the damage). Seeded and of a fixed
+  count for CI; ``python tests/test_fuzz.py 5000`` runs longer and keeps every input that
   raises something unexpected in tests/data/fuzz/, which the last test here replays.
 """
 
@@ -40,8 +40,7 @@ from xlpolicy.contract import ITEM_COLUMNS  # noqa: E402
 from xlpolicy.problems import UnusableWorkbook  # noqa: E402
 
 FUZZ_DIR = Path(__file__).resolve().parent / "data" / "fuzz"
-CI_MUTATIONS = 200
-CI_SECONDS = 30.0
+CI_MUTATIONS = 120  # fixed count and seed: the same inputs on every machine, however fast
 
 
 def _spellings(name: str) -> st.SearchStrategy[str]:
@@ -313,10 +312,10 @@ def fuzz(
     return done, failures
 
 
-def test_mutated_workbooks_plan_or_report_within_the_time_bound():
-    done, failures = fuzz(CI_MUTATIONS, seconds=CI_SECONDS)
+def test_mutated_workbooks_plan_or_report():
+    done, failures = fuzz(CI_MUTATIONS)
     assert not failures, failures[:5]
-    assert done >= 100, f"only {done} mutations ran in {CI_SECONDS} s"
+    assert done == CI_MUTATIONS
 
 
 @pytest.mark.parametrize(

@@ -17,14 +17,18 @@ from .api import (
     plan,
     template,
 )
+from .errors import InputError, OutputError, XlpolicyError
 from .problems import Problem, Severity, UnusableWorkbook
 
 __all__ = [
+    "InputError",
+    "OutputError",
     "PlanResult",
     "Problem",
     "Severity",
     "UnusableWorkbook",
     "UsageError",
+    "XlpolicyError",
     "__version__",
     "analyse",
     "check",

@@ -17,10 +17,15 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
+from . import paths
 from .contract import READ_SETTINGS, SERVICE_MEASURES
+from .errors import OutputError, UsageError
+from .macros import declared_macro_enabled
 from .problems import Problem, ProblemLog, Severity, UnusableWorkbook
 from .progress import Progress, silent
-from .reading import guard, read_input
+from .reading import guard, history_file_path, read_input
 from .reading.cells import parse_number
 from .reading.settings import parse_measure, resolve_settings, setting_key
 from .reading.sources import KIND_NAMES, source_kind
@@ -39,10 +44,6 @@ def _warm_up() -> None:
     """Import the planner and the sheet writers (called while reading waits)."""
     from . import planner  # noqa: F401
     from .writing import sheets  # noqa: F401
-
-
-class UsageError(ValueError):
-    """A bad argument (not a bad workbook): the CLI exits with status 2."""
 
 
 @dataclass
@@ -75,9 +76,16 @@ def default_output_path(path: str | Path) -> Path:
         return q.with_name(f"{q.name}-csv-policy.xlsx")
     suffix = p.suffix.lower()
     if suffix in (".xlsx", ".xlsm"):
+        if suffix == ".xlsx" and declared_macro_enabled(p):  # macros under an .xlsx name
+            suffix = ".xlsm"
         return p.with_name(f"{p.stem}-policy{suffix}")
     kind = suffix.lstrip(".") or "input"
     return p.with_name(f"{p.stem}-{kind}-policy.xlsx")
+
+
+def _has_macros(src: Path) -> bool:
+    """An .xlsm, or an .xlsx whose package is declared macro-enabled (see xlpolicy.macros)."""
+    return src.is_file() and (src.suffix.lower() == ".xlsm" or declared_macro_enabled(src))
 
 
 def _overrides(
@@ -224,6 +232,7 @@ def analyse(
     ``lost_sales`` simulates unmet demand as lost rather than backordered (see
     xlpolicy.backtest).
     """
+    paths.check_inputs(paths.input_files(Path(path), _path_or_none(history)))
     log = ProblemLog()
     overrides = {
         **_named_settings(settings),
@@ -241,14 +250,15 @@ def analyse(
     overrides.update(_simulation_overrides(simulate, replications, lost_sales))
     if columns:  # {our column: your header}, see xlpolicy.reading.column_map
         overrides["columns"] = dict(columns)
-    with guard.allow_large(allow_large):
+    with guard.allow_large(allow_large), np.errstate(all="ignore"):  # (sums of huge cells)
         data = read_input(Path(path), overrides, log, progress, while_waiting=_warm_up)
     if data is None:
         raise UnusableWorkbook([p for p in log.problems if p.severity is Severity.FATAL])
     progress("Planning", 0, None)
     from .planner import build_report
 
-    report = build_report(data, log, Path(path).name, run_date)
+    with np.errstate(all="ignore"):  # overflows are found and reported, not printed
+        report = build_report(data, log, Path(path).name, run_date)
     if report.input_summary["items_planned"] == 0:
         reasons = [p for p in log.sorted() if p.severity in (Severity.ERROR, Severity.WARNING)]
         fatal = Problem(
@@ -312,6 +322,8 @@ def plan(
     out = Path(output) if output is not None else default_output_path(src)
     if write_workbook:
         _check_output_path(src, out)
+    outputs = paths.planned_outputs(out if write_workbook else None, csv, json)
+    paths.check_outputs(paths.input_files(src, _path_or_none(history)), outputs)
     report = analyse(
         src,
         service_measure=service_measure,
@@ -331,6 +343,11 @@ def plan(
         lost_sales=lost_sales,
         columns=columns,
     )
+    if write_workbook and out.suffix.lower() == ".xlsm" and src.suffix.lower() == ".xlsx":
+        report.problems.insert(0, _macro_note(src, out))
+    settings_history = history_file_path(src, report.settings)
+    if settings_history is not None:  # named by the workbook: known only now, still unwritten
+        paths.check_outputs([settings_history], outputs)
     result = PlanResult(report)
     if write_workbook:
         progress(f"Writing {out.name}", 0, None)
@@ -342,6 +359,8 @@ def plan(
             raise UnusableWorkbook(
                 [Problem(Severity.FATAL, "", "", "", None, str(exc), "output-too-large")]
             ) from None
+        except OutputError as exc:  # (an intermediate file's failure is the output's)
+            raise exc.naming(out) from exc
     if csv is not None:
         write_csv(Path(csv), report)
         result.csv = Path(csv)
@@ -349,6 +368,24 @@ def plan(
         write_json(Path(json), report)
         result.json = Path(json)
     return result
+
+
+def _macro_note(src: Path, out: Path) -> Problem:
+    return Problem(
+        Severity.WARNING,
+        "",
+        "",
+        "",
+        src.name,
+        f"{src.name} holds macros although its name ends in .xlsx (spreadsheet programs "
+        f"refuse such a file), so the results were written as {out.name}, with the macros "
+        "kept. Save your own file as .xlsm too (Excel Macro-Enabled Workbook).",
+        "output-macro-enabled",
+    )
+
+
+def _path_or_none(p: str | Path | None) -> Path | None:
+    return Path(p).expanduser() if p is not None else None
 
 
 def _check_output_path(src: Path, out: Path) -> None:
@@ -366,12 +403,12 @@ def _check_output_path(src: Path, out: Path) -> None:
             f"the output {out.name} must end in .xlsx: the results of "
             f"{KIND_NAMES[source_kind(src)]} go to an .xlsx workbook of their own"
         )
-    if src.is_file() and src.suffix.lower() == ".xlsm" and out.suffix.lower() != ".xlsm":
+    if _has_macros(src) and out.suffix.lower() != ".xlsm":
         raise UsageError(
             f"{src.name} holds macros; its output must end in .xlsm to keep them "
             f"(e.g. {default_output_path(src).name})"
         )
-    if out.suffix.lower() == ".xlsm" and not (src.is_file() and src.suffix.lower() == ".xlsm"):
+    if out.suffix.lower() == ".xlsm" and not _has_macros(src):
         raise UsageError(
             f"the output {out.name} ends in .xlsm, but {src.name} holds no macros "
             "to keep; name it .xlsx (Excel refuses an .xlsm without macros "
@@ -465,6 +502,7 @@ def demo(folder: str | Path = "xlpolicy-demo", progress: Progress = silent) -> P
     out = Path(folder)
     out.mkdir(parents=True, exist_ok=True)
     src = out / "demo-shop.xlsx"
+    paths.check_outputs([], {"the demo workbook": src, "its policy": default_output_path(src)})
     progress("Writing the demo workbook", 0, None)
     with atomic_output(src) as tmp:
         build_shop(Path(tmp))
@@ -476,6 +514,7 @@ def template(path: str | Path) -> Path:
     from .template import write_template  # lazily: `python -m xlpolicy.template` runs it too
 
     p = Path(path)
+    paths.check_outputs([], {"the template": p})
     with atomic_output(p) as tmp:
         write_template(Path(tmp))
     return p

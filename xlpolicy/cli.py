@@ -20,6 +20,7 @@ import click
 from . import __version__, api
 from .backtest import AUTO_MAX_ITEMS, DEFAULT_RUNS
 from .contract import CAUTION, SERVICE_MEASURES
+from .errors import UsageError, XlpolicyError
 from .problems import Problem, Severity, UnusableWorkbook
 from .report import Report
 from .writing.sheets import DEFAULT_SHEET_NAMES, SHEET_ORDER
@@ -525,20 +526,14 @@ def _run(fn: Any, bar: _Bar | None = None) -> Any:
             err=True,
         )
         sys.exit(130)
-    except api.UsageError as exc:
-        raise click.UsageError(str(exc)) from None
-    except UnusableWorkbook as exc:
-        click.echo(click.style("Cannot use this workbook:", fg="red", bold=True), err=True)
-        _print_problems(exc.problems, limit=None, err=True)
-        click.echo("Fix what is listed above, then run the same command again.", err=True)
-        sys.exit(1)
-    except OSError as exc:
+    except XlpolicyError as exc:  # anything the user or their machine caused
+        _explain(exc)
+    except OSError as exc:  # a file system failure outside the output's writing
         name = getattr(exc, "filename", None) or ""
-        msg = getattr(exc, "user_message", None) or (
-            f"{name}: {exc.strerror or exc}. If the file is open in another program, close it "
-            "and try again."
+        click.echo(
+            click.style(f"Could not read or write {name}: {exc.strerror or exc}.", fg="red"),
+            err=True,
         )
-        click.echo(click.style(f"Could not write: {msg}", fg="red"), err=True)
         sys.exit(1)
     except Exception as exc:  # a bug of ours: say so plainly; traceback on request
         if os.environ.get("XLPOLICY_DEBUG"):
@@ -555,6 +550,19 @@ def _run(fn: Any, bar: _Bar | None = None) -> Any:
         sys.exit(1)
     finally:
         _restore_sigterm(previous)
+
+
+def _explain(exc: XlpolicyError) -> None:
+    """The message and exit status for an error of the user's or their machine's making."""
+    if isinstance(exc, UsageError):
+        raise click.UsageError(str(exc)) from None
+    if isinstance(exc, UnusableWorkbook):
+        click.echo(click.style("Cannot use this workbook:", fg="red", bold=True), err=True)
+        _print_problems(exc.problems, limit=None, err=True)
+        click.echo("Fix what is listed above, then run the same command again.", err=True)
+        sys.exit(1)
+    click.echo(click.style(str(exc), fg="red"), err=True)
+    sys.exit(1)
 
 
 def _stop_on_sigterm() -> Any:

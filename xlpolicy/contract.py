@@ -922,3 +922,18 @@ CAUTION = (
 STATUS_OK = "ok"
 STATUS_WARNING = "warning"
 STATUS_SKIPPED = "skipped"
+
+# --- plausibility: thresholds past which a number is reported, not planned in silence ------
+
+#: An order quantity lasting longer than this many years of the item's demand is reported:
+#: it usually comes from a unit cost or holding rate typed far too small (our own rule of
+#: thumb; stock bought for more than five years ages, and its costs are no longer the ones
+#: the order quantity formula assumes).
+MAX_ORDER_YEARS = 5.0
+#: A lead time longer than this many days is reported: usually a typing slip (days for
+#: weeks, an extra zero). Two years; our own rule of thumb.
+MAX_LEAD_TIME_DAYS = 730.0
+#: Any amount (money or units) an item's plan reaches beyond this is reported and the item
+#: left out of every total: past about 9e15 (2**53) a double-precision number no longer
+#: holds every whole unit, let alone cents, so a total would silently round or overflow.
+MAX_PLAN_AMOUNT = 1e15

@@ -38,6 +38,12 @@ from .core.portfolio import (
     exchange_curve,
     take_inputs,
 )
+from .plausibility import (
+    input_amounts_unsafe,
+    plausibility_notes,
+    report_unsafe,
+    unsafe_items,
+)
 from .problems import ProblemLog, Severity
 from .reading import InputData
 from .report import REORDER_KEYS, Report
@@ -62,6 +68,11 @@ def build_report(
 
     demand = _demand(data, df, usable, ppy, log, run_date)
     planned = usable & demand["ok"]
+    # Amounts too large to total (a unit cost of 1e308) never reach a class, a cap or a sum.
+    unsafe = planned & input_amounts_unsafe(df, demand["annual"])
+    if unsafe.any():
+        report_unsafe(items, np.flatnonzero(unsafe), log)
+        planned &= ~unsafe
 
     # Classes first, from annual demand x unit cost (neither depends on the service target),
     # then each item's target: its own, else its class's, else the Settings default.
@@ -140,6 +151,14 @@ def build_report(
             shelf_life_days=sub["shelf_life_days"].to_numpy(float),
         )
         pol = compute_policy(inp)
+        bad = unsafe_items(pol)  # an overflow inside the policy: the item is left out
+        if bad.any():
+            report_unsafe(items, idx[bad], log)
+            planned[idx[bad]] = False
+            keep = np.flatnonzero(~bad)
+            idx, sub, inp = idx[keep], sub.iloc[keep], take_inputs(inp, keep)
+            pol = pol.iloc[keep].reset_index(drop=True)
+    if len(idx):
         # Caps and the exchange curve are about continuous review: items on periodic review
         # get their order-up-to policy below, so they are left out of both (and told).
         cont = np.flatnonzero(_review_days(sub, settings) <= 0)
@@ -188,6 +207,7 @@ def build_report(
 
     _reorder_columns(results, df, planned)
     _abc_and_today(results, df, planned, settings, data.price_breaks)
+    plausibility_notes(results, items, planned, log)
     results["status"] = _statuses(results["item"], planned, log)
     results = _typed(results)
     reorder = _reorder_list(results, df)

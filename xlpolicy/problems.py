@@ -7,9 +7,14 @@ show the same list, and tests can assert on sheet, cell and wording.
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field
 from enum import Enum
 from typing import Any
+
+from .errors import UnusableWorkbook
+
+__all__ = ["Problem", "ProblemLog", "Severity", "UnusableWorkbook"]
 
 
 class Severity(str, Enum):
@@ -54,6 +59,9 @@ class Problem:
     message: str
     code: str = ""
 
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "message", tidy(self.message))
+
     def where(self) -> str:
         """Human-readable location, e.g. "Items!C7" or "History"."""
         if self.sheet and self.cell:
@@ -71,6 +79,15 @@ class Problem:
             "message": self.message,
             "code": self.code,
         }
+
+
+_DOUBLE_STOP = re.compile(r"(?<!\.)\.(?:\s*\.)(?!\.)")
+
+
+def tidy(message: str) -> str:
+    """A message without doubled full stops (". ." or ".."), which appear where a part
+    that ends a sentence is put before another's full stop; an ellipsis is kept."""
+    return _DOUBLE_STOP.sub(".", message) if "." in message else message
 
 
 def _plain(value: Any) -> Any:
@@ -133,14 +150,3 @@ class ProblemLog:
 
     def __len__(self) -> int:
         return len(self.problems)
-
-
-class UnusableWorkbook(Exception):
-    """Raised when the input cannot be used at all; carries the fatal problems.
-
-    The CLI turns it into a message and exit status 1, never a traceback.
-    """
-
-    def __init__(self, problems: list[Problem]):
-        self.problems = problems
-        super().__init__("; ".join(p.message for p in problems))

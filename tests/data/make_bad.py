@@ -601,6 +601,121 @@ def formula_text(path: Path) -> None:
     )
 
 
+# --- (5) numbers that must not change in silence, codes as the user sees them ---------------
+
+
+def decimal_comma_column(path: Path) -> None:
+    """Costs typed as text with the decimal comma, and one '1.200' among them (twelve hundred
+    in that column, not one and a fifth)."""
+    good_workbook(
+        path,
+        items=[
+            ["BOLT-10", "bolts", "Velo Parts", "4,50", 18.0, 0.22, 10],
+            ["CHAIN-7", "chains", "Velo Parts", "12,75", 18.0, 0.22, 12],
+            ["LAMP-2", "lamps", "Velo Parts", "1.200", 18.0, 0.22, 14],
+        ],
+    )
+
+
+def decimal_marks_mixed(path: Path) -> None:
+    """A column with both decimal marks: its '1.200' cannot be settled and is reported."""
+    good_workbook(
+        path,
+        items=[
+            ["BOLT-10", "bolts", "Velo Parts", "4.50", 18.0, 0.22, 10],
+            ["CHAIN-7", "chains", "Velo Parts", "12,75", 18.0, 0.22, 12],
+            ["LAMP-2", "lamps", "Velo Parts", "1.200", 18.0, 0.22, 14],
+        ],
+    )
+
+
+def huge_unit_cost(path: Path) -> None:
+    """A unit cost of 1e308: its yearly purchase cost overflows to infinity."""
+    good_workbook(
+        path,
+        items=[
+            ["BOLT-10", "bolts", "Velo Parts", 1e308, 18.0, 0.22, 10],
+            ["CHAIN-7", "chains", "Velo Parts", 5.5, 18.0, 0.22, 12],
+            ["LAMP-2", "lamps", "Velo Parts", 6.5, 18.0, 0.22, 14],
+        ],
+    )
+
+
+def implausible_inputs(path: Path) -> None:
+    """A lead time of 10,000 days and a unit cost of 1e-9 (an order of thousands of years)."""
+    good_workbook(
+        path,
+        items=[
+            ["BOLT-10", "bolts", "Velo Parts", 1e-9, 18.0, 0.22, 10],
+            ["CHAIN-7", "chains", "Velo Parts", 5.5, 18.0, 0.22, 10_000],
+            ["LAMP-2", "lamps", "Velo Parts", 6.5, 18.0, 0.22, 14],
+        ],
+    )
+
+
+def macro_in_xlsx(path: Path) -> None:
+    """A macro-enabled package under an .xlsx name (as a rename or a careless export leaves)."""
+
+    def change(name: str, part: bytes) -> bytes:
+        if name == "[Content_Types].xml":
+            return part.replace(
+                b"application/vnd.openxmlformats-officedocument.spreadsheetml.sheet.main+xml",
+                b"application/vnd.ms-excel.sheet.macroEnabled.main+xml",
+            )
+        return part
+
+    _rezip(_good_bytes(), path, change)
+
+
+def _ods_cell(value: object) -> bytes:
+    if isinstance(value, bool):  # as LibreOffice saves TRUE and FALSE: a number and a formula
+        word = b"TRUE" if value else b"FALSE"
+        return (
+            b'<table:table-cell table:formula="of:=' + word + b'()" office:value-type="float" '
+            b'office:value="' + (b"1" if value else b"0") + b'"><text:p>' + word + b"</text:p>"
+            b"</table:table-cell>"
+        )
+    if isinstance(value, (int, float)):
+        return (
+            b'<table:table-cell office:value-type="float" office:value="%s"><text:p>%s</text:p>'
+            b"</table:table-cell>" % (repr(value).encode(), repr(value).encode())
+        )
+    return (
+        b'<table:table-cell office:value-type="string"><text:p>%s</text:p></table:table-cell>'
+        % str(value).encode()
+    )
+
+
+def _ods_table(name: str, rows: list[list]) -> bytes:
+    body = b"".join(
+        b"<table:table-row>" + b"".join(_ods_cell(v) for v in row) + b"</table:table-row>"
+        for row in rows
+    )
+    return b'<table:table table:name="' + name.encode() + b'">' + body + b"</table:table>"
+
+
+def ods_yes_no(path: Path) -> None:
+    """TRUE in Unit cost and FALSE in On hand, saved the way LibreOffice saves them."""
+    items = [
+        [*ITEMS_HEADERS, "On hand"],
+        ["BOLT-10", "bolts", "Velo Parts", True, 18.0, 0.22, 10, 40],
+        ["CHAIN-7", "chains", "Velo Parts", 5.5, 18.0, 0.22, 12, False],
+        ["LAMP-2", "lamps", "Velo Parts", 6.5, 18.0, 0.22, 14, 12],
+    ]
+    rng = np.random.default_rng(11)
+    history = [["Item", "Period", "Quantity"]] + [
+        [c, f"W{w + 1:02d}", int(q)] for c in CODES for w, q in enumerate(rng.poisson(25, 30))
+    ]
+    _ods(
+        path,
+        _ODS_HEAD
+        + _ODS_OPEN
+        + _ods_table("Items", items)
+        + _ods_table("History", history)
+        + _ODS_CLOSE,
+    )
+
+
 _BOMB = ("zip bomb", "--allow-large")
 _DTD = ("document type declaration",)
 CASES: list[Case] = [
@@ -901,6 +1016,60 @@ CASES: list[Case] = [
         (),
         "user text starting with = + - @ and control characters",
         planned=3,
+    ),
+    # (5) numbers that must not change in silence
+    Case(
+        "decimal-comma-column.xlsx",
+        decimal_comma_column,
+        0,
+        ("Wrote", "Items!D4", "1200"),
+        ("number-decimal-mark",),
+        "'1.200' in a column typed with the decimal comma",
+        planned=3,
+    ),
+    Case(
+        "decimal-marks-mixed.xlsx",
+        decimal_marks_mixed,
+        0,
+        ("Wrote", "Items!D4", "could be 1.2 or 1200"),
+        ("unit_cost-decimal-mark-unclear",),
+        "'1.200' in a column typed with both decimal marks",
+        planned=2,
+    ),
+    Case(
+        "huge-unit-cost.xlsx",
+        huge_unit_cost,
+        0,
+        ("Wrote", "Items!D2", "too large"),
+        ("item-amount-overflow",),
+        "a unit cost of 1e308 that would overflow every total",
+        planned=2,
+    ),
+    Case(
+        "implausible-inputs.xlsx",
+        implausible_inputs,
+        0,
+        ("Wrote", "Items!G3", "years"),
+        ("order-covers-years", "lead-time-implausible"),
+        "a lead time of 10,000 days and a unit cost of 1e-9",
+        planned=3,
+    ),
+    Case(
+        "yes-no-cells.ods",
+        ods_yes_no,
+        0,
+        ("Wrote", "yes/no value"),
+        ("unit_cost-not-number", "on_hand-not-number"),
+        "TRUE and FALSE in number columns of an .ods",
+        planned=2,
+    ),
+    Case(
+        "macro-in-xlsx.xlsx",
+        macro_in_xlsx,
+        2,
+        ("holds macros", ".xlsm"),
+        (),
+        "a macro-enabled package named .xlsx (an .xlsx output would not open)",
     ),
 ]
 

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import os
+import stat
 from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
@@ -13,6 +15,7 @@ import numpy as np
 from ..problems import ProblemLog
 from ..progress import Progress, silent
 from . import typed
+from .cells import code_key, known_forms
 from .column_map import combine, parse_pairs, read_map_sheet
 from .guard import Refused, unreadable_message
 from .history import History, aggregate_daily_to_weeks, read_history, read_wide_typed, wide_header
@@ -86,7 +89,11 @@ def read_input(
             return None
         settings, items_name, history_name = roles
         history = None
-        history_file = _history_file(Path(path), settings)
+        history_file = history_file_path(Path(path), settings)
+        if history_file is not None and not _history_file_allowed(
+            Path(path), history_file, settings, log
+        ):
+            return None
         early = (
             ahead.submit(typed_cells, wb, history_name)
             if history_file is None and history_name is not None and _typed_possible(wb)
@@ -109,7 +116,7 @@ def read_input(
                     code="history-from-file",
                 )
             progress(f"Reading {history_file.name}", 0, None)
-            history = read_history_file(history_file, set(items.df["item"]), settings, log)
+            history = read_history_file(history_file, known_forms(items.df["item"]), settings, log)
             if history is None:
                 return None
             history_name = history_file.name
@@ -120,7 +127,7 @@ def read_input(
                 if early is not None and not early.done() and while_waiting is not None:
                     while_waiting()
                 history = _typed_history(
-                    wb, history_name, set(items.df["item"]), settings, log, progress, early
+                    wb, history_name, known_forms(items.df["item"]), settings, log, progress, early
                 )
                 if history is None:
                     history_sheet = read(history_name)
@@ -133,10 +140,11 @@ def read_input(
             )
             history_sheet = None
         if history_sheet is not None:
-            history = read_history(history_sheet, set(items.df["item"]), settings, log)
+            history = read_history(history_sheet, known_forms(items.df["item"]), settings, log)
             if history is None:
                 return None
         if history is not None:
+            history = _items_spelling(history, items)
             history = _steadier_period(history, items, settings, log)
             if history.period is not None and (
                 history.period != settings["period"] or settings["sources"]["period"] == "default"
@@ -230,7 +238,7 @@ def typed_cells(wb: WorkbookFile, name: str) -> tuple[RawSheet, int, typed.WideC
     return None if cells is None else (head, where[0], cells)
 
 
-def _history_file(workbook: Path, settings: dict[str, Any]) -> Path | None:
+def history_file_path(workbook: Path, settings: dict[str, Any]) -> Path | None:
     """The history file to read, if the settings name one (relative to the workbook)."""
     name = settings.get("history_file")
     if not name:
@@ -240,6 +248,62 @@ def _history_file(workbook: Path, settings: dict[str, Any]) -> Path | None:
         base = workbook if workbook.is_dir() else workbook.parent
         p = base / p
     return p
+
+
+def _history_file_allowed(
+    workbook: Path, file: Path, settings: dict[str, Any], log: ProblemLog
+) -> bool:
+    """Whether the history file may be read; if not, a fatal problem says why.
+
+    A file given on the command line (or to the API) may be anywhere: the user named it.
+    A file named by the workbook's own Settings sheet must lie in the workbook's folder or
+    below (links resolved): a workbook someone sent must not pull another local file into
+    an output the user may send back. A named pipe or device is never read.
+    """
+    source = str(settings.get("sources", {}).get("history_file", ""))
+    sheet, _, cell = source.rpartition(" ")
+    where = {"sheet": sheet, "cell": cell} if source.startswith("Settings") else {}
+    if source != "command line":
+        base = (workbook if workbook.is_dir() else workbook.parent).resolve()
+        if not file.resolve().is_relative_to(base):
+            log.fatal(
+                f"The Settings row 'History file' names {settings.get('history_file')!s}, "
+                f"which is outside the folder of {workbook.name}. A workbook may only name a "
+                "history file in its own folder (or below), so that a workbook from someone "
+                "else cannot read other files of yours. Copy the file into that folder and "
+                "name it there, or give it on the command line with --history.",
+                value=str(settings.get("history_file")),
+                code="history-file-outside",
+                **where,
+            )
+            return False
+    try:
+        mode = os.stat(file).st_mode
+    except OSError:
+        return True  # missing: the history reader says so in its own words
+    if not stat.S_ISREG(mode):
+        log.fatal(
+            f"The history file {file.name} is not a file saved on disk (a named pipe, a "
+            "device or a folder), so it was not read. Save the history to a CSV or Parquet "
+            "file and name that.",
+            value=str(file),
+            code="file-not-regular",
+            **where,
+        )
+        return False
+    return True
+
+
+def _items_spelling(history: History, items: ItemTable) -> History:
+    """History's codes written as in Items where they differ only in Unicode form
+    (composed or decomposed accents), so each item finds its history and the output shows
+    the code as the user typed it in Items."""
+    spelled = {code_key(c): c for c in items.df["item"] if isinstance(c, str) and not c.isascii()}
+    if not spelled:
+        return history
+    history.items = [spelled.get(code_key(c), c) for c in history.items]
+    history.first_cell = {spelled.get(code_key(c), c): v for c, v in history.first_cell.items()}
+    return history
 
 
 def _default_targets(items: ItemTable, settings: dict[str, Any]) -> None:
@@ -285,7 +349,7 @@ def find_roles(
     settings["sheet_roles"] = roles.names
     settings["sheet_found"] = roles.how
     need_items = roles.get("Items") is None
-    need_history = roles.get("History") is None and _history_file(path, settings) is None
+    need_history = roles.get("History") is None and history_file_path(path, settings) is None
     if need_items or need_history:
         taken = set(roles.names.values())
         tops = {}

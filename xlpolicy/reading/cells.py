@@ -10,6 +10,7 @@ from __future__ import annotations
 import datetime as _dt
 import math
 import re
+import unicodedata
 from typing import Any
 
 _SPACES = re.compile(r"[\s\u00a0\u2007\u202f]+")
@@ -29,6 +30,30 @@ def unescape(value: str) -> str:
     if "_x" not in value:
         return value
     return _XML_ESCAPE.sub(lambda m: chr(int(m.group(1), 16)), value)
+
+
+def code_key(code: str) -> str:
+    """An item code in one Unicode normal form (NFC), for comparing codes only.
+
+    "Café-7" may be typed as one character é or as e followed by a combining accent (as
+    some systems and keyboards write it); both look the same and are the same code. The
+    user's own text is what is shown; this form is only for matching.
+    """
+    if not isinstance(code, str) or code.isascii():
+        return code
+    return unicodedata.normalize("NFC", code)
+
+
+def known_forms(codes: Any) -> set[str]:
+    """Every code as written, and in its composed and decomposed forms (for lookups by
+    readers that compare codes as they read them)."""
+    out: set[str] = set()
+    for c in codes:
+        out.add(c)
+        if isinstance(c, str) and not c.isascii():
+            out.add(unicodedata.normalize("NFC", c))
+            out.add(unicodedata.normalize("NFD", c))
+    return out
 
 
 def is_blank(value: Any) -> bool:
@@ -58,9 +83,94 @@ def item_code(value: Any, number_format: str = "") -> str | None:
         if _ZERO_PAD.match(number_format or ""):
             digits = digits.zfill(len(number_format))
         return digits
-    if isinstance(value, (_dt.datetime, _dt.date)):
-        return value.isoformat()
+    if isinstance(value, (_dt.datetime, _dt.date, _dt.time)):
+        return shown_date(value, number_format)
     return _SPACES.sub(" ", unescape(str(value))).strip()
+
+
+_DATE_TOKEN = re.compile(
+    r"\[[^\]]*\]|\"[^\"]*\"|\\.|yyyy|yy|mmmmm|mmmm|mmm|mm|m|dddd|ddd|dd|d|hh|h|ss|s|"
+    r"am/pm|a/p|.",
+    re.IGNORECASE,
+)
+_MONTH_NAMES = [
+    "January",
+    "February",
+    "March",
+    "April",
+    "May",
+    "June",
+    "July",
+    "August",
+    "September",
+    "October",
+    "November",
+    "December",
+]
+_DAY_NAMES = ["Monday", "Tuesday", "Wednesday", "Thursday", "Friday", "Saturday", "Sunday"]
+
+
+def shown_date(value: _dt.date | _dt.time, number_format: str = "") -> str:
+    """A date or time cell's text as a spreadsheet shows it under ``number_format``.
+
+    The common date codes are rendered (yyyy, yy, mmmm, mmm, mm, m, dddd, ddd, dd, d, hh,
+    h, mm after an hour or before seconds as minutes, ss, AM/PM, quoted text); with no
+    date format, the ISO date (2024-01-05), with the time only when there is one.
+    """
+    fmt = (number_format or "").split(";")[0]
+    if not re.search(r"[ymdhs]", re.sub(r'"[^"]*"|\[[^\]]*\]', "", fmt), re.IGNORECASE):
+        if isinstance(value, _dt.datetime):
+            return value.date().isoformat() if value.time() == _dt.time() else value.isoformat()
+        return value.isoformat()
+    d = (
+        value
+        if not isinstance(value, _dt.time)
+        else _dt.datetime(1899, 12, 31, value.hour, value.minute, value.second)
+    )
+    tokens = _DATE_TOKEN.findall(fmt)
+    twelve = any(t.lower() in ("am/pm", "a/p") for t in tokens)
+    out, last = [], ""
+    for k, t in enumerate(tokens):
+        low = t.lower()
+        if t.startswith("["):
+            continue  # a locale or colour code
+        if t.startswith('"'):
+            out.append(t[1:-1])
+            continue
+        if t.startswith("\\"):
+            out.append(t[1:])
+            continue
+        nxt = next((u.lower() for u in tokens[k + 1 :] if u.strip(" :.,/-")), "")
+        hour = getattr(d, "hour", 0)
+        if low in ("m", "mm") and (last in ("h", "hh") or nxt.startswith("s")):
+            out.append(f"{getattr(d, 'minute', 0):0{len(low)}d}")
+        elif low in ("yyyy", "yy"):
+            out.append(f"{d.year:04d}" if low == "yyyy" else f"{d.year % 100:02d}")
+        elif low in ("m", "mm"):
+            out.append(f"{d.month:0{len(low)}d}")
+        elif low == "mmm":
+            out.append(_MONTH_NAMES[d.month - 1][:3])
+        elif low in ("mmmm", "mmmmm"):
+            name = _MONTH_NAMES[d.month - 1]
+            out.append(name if low == "mmmm" else name[0])
+        elif low in ("d", "dd"):
+            out.append(f"{d.day:0{len(low)}d}")
+        elif low in ("ddd", "dddd"):
+            name = _DAY_NAMES[d.weekday()]
+            out.append(name[:3] if low == "ddd" else name)
+        elif low in ("h", "hh"):
+            h = (hour % 12 or 12) if twelve else hour
+            out.append(f"{h:0{len(low)}d}")
+        elif low in ("s", "ss"):
+            out.append(f"{getattr(d, 'second', 0):0{len(low)}d}")
+        elif low in ("am/pm", "a/p"):
+            pm = hour >= 12
+            out.append(("PM" if pm else "AM") if low == "am/pm" else ("P" if pm else "A"))
+        else:
+            out.append(t)
+        if low.strip(" :.,/-"):
+            last = low
+    return "".join(out)
 
 
 _PLAIN_CODE = re.compile(r"[^\s\u00a0\u2007\u202f]+(?: [^\s\u00a0\u2007\u202f]+)*")
@@ -109,8 +219,10 @@ def parse_number(
     """
     if is_blank(value):
         return None, None
-    if isinstance(value, bool):
-        return None, f"{'TRUE' if value else 'FALSE'} is a yes/no value, not a number"
+    if isinstance(value, bool) or (
+        isinstance(value, str) and value.strip().upper() in ("TRUE", "FALSE")
+    ):
+        return None, "a yes/no value, not a number"
     if isinstance(value, (_dt.datetime, _dt.date, _dt.time, _dt.timedelta)):
         return None, "a date or time where a number belongs"
     if isinstance(value, (int, float)):
@@ -221,6 +333,8 @@ def _separators(s: str) -> str | None:
 
 def describe(value: Any) -> str:
     """The raw value as a user would recognise it in a message."""
+    if isinstance(value, bool):
+        return "TRUE" if value else "FALSE"
     if isinstance(value, str):
         return repr(value)
     if (

@@ -35,6 +35,7 @@ from collections.abc import Iterator
 from dataclasses import dataclass, replace
 from pathlib import Path
 
+from ..errors import Refused
 from .filekind import sniff
 
 __all__ = [
@@ -105,15 +106,6 @@ def allow_large(enabled: bool = True) -> Iterator[None]:
         yield
     finally:
         _allow_large.reset(token)
-
-
-class Refused(Exception):
-    """A file that is not read, with the message for the user and a problem code."""
-
-    def __init__(self, message: str, code: str):
-        super().__init__(message)
-        self.message = message
-        self.code = code
 
 
 _RAISE = (

@@ -21,6 +21,7 @@ import numpy as np
 from ..contract import HISTORY_LONG_COLUMNS, ITEM_COLUMNS, PERIODS, normalise
 from ..problems import ProblemLog
 from .cells import describe, is_blank, item_code, item_codes, parse_number, typed_periods
+from .decimals import Convention, settle
 from .headers import missing_message, report_header
 from .typed import NUMBER_TEXT, NotTyped, WideCells
 from .workbook import RawSheet, cell_ref, find_header
@@ -675,6 +676,16 @@ def _quantity(
         )
         return float("nan")
     x, why = parse_number(value)
+    _, unclear, _ = settle(value, Convention(None))  # a typed 1.200: reported, not guessed
+    if unclear is not None and not why:
+        log.warning(
+            f"Quantity {unclear}",
+            sheet=sheet,
+            cell=ref,
+            item=code,
+            value=value,
+            code="number-decimal-mark",
+        )
     if why:
         log.warning(
             f"Quantity {describe(value)} is {why}; this period was left out of the "

@@ -27,7 +27,8 @@ from ..contract import (
     TEXT,
 )
 from ..problems import ProblemLog, Severity
-from .cells import describe, is_blank, item_code, item_codes, parse_number, text, texts
+from .cells import code_key, describe, is_blank, item_code, item_codes, parse_number, text, texts
+from .decimals import Convention, column_convention, settle
 from .headers import missing_message, report_header
 from .settings import parse_model
 from .units import cell_duration, units_from_headers
@@ -189,6 +190,7 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
     measure = settings.get("service_measure")
     first = header.row_index + 1
     clean = _clean_rows(sheet, header, settings, measure)
+    marks = _decimal_marks(sheet, header) if not clean.ok.all() else {}
     records: list[dict[str, Any] | None] = []  # None: a clean row, taken from ``clean``
     kept: list[int] = []  # position (from the first data row) of each item kept
     usable: list[bool] = []
@@ -202,14 +204,15 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
             if all(is_blank(v) for v in values):
                 continue
             rec, ok = _read_row(
-                values, sheet.formats[k], rownum, header, sheet, settings, measure, log
+                values, sheet.formats[k], rownum, header, sheet, settings, measure, log, marks
             )
             if rec is None:
                 continue
             code = rec["item"]
-        if code in first_row_of:
+        key = code_key(code) if code is not None else ""
+        if key in first_row_of:
             log.error(
-                f"Item code {code!r} appears again (first in row {first_row_of[code]}); this "
+                f"Item code {code!r} appears again (first in row {first_row_of[key]}); this "
                 "row was skipped. Give each item one row and its own code.",
                 sheet=sheet.name,
                 cell=cell_ref(cols["item"], rownum),
@@ -218,7 +221,7 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
                 code="item-duplicate",
             )
             continue
-        first_row_of[code] = rownum
+        first_row_of[key] = rownum
         records.append(rec)
         kept.append(pos)
         usable.append(ok)
@@ -352,6 +355,22 @@ def _clean_rows(
     return _CleanRows(ok, codes, columns)
 
 
+def _decimal_marks(sheet: RawSheet, header: Header) -> dict[str, Convention]:
+    """Each numeric column's decimal mark, from its text cells (see reading.decimals)."""
+    cols = header.columns
+    first = header.row_index + 1
+    keys = [key for key in NUMERIC_KEYS if key in cols]
+    blk, kinds = sheet.block(list(range(first, len(sheet.rows))), [cols[key] for key in keys])
+    out = {}
+    for q, key in enumerate(keys):
+        at = np.flatnonzero([k is str for k in kinds[:, q]])
+        if at.size:
+            out[key] = column_convention(
+                [(cell_ref(cols[key], sheet.row_numbers[first + i]), blk[i, q]) for i in at]
+            )
+    return out
+
+
 def _cells_by_column(sheet: RawSheet, cols: dict[str, int]) -> dict[int, list[int]]:
     """Column -> row indices (into ``sheet.rows``) of formula cells with no saved result."""
     index_of = {r: k for k, r in enumerate(sheet.row_numbers)}
@@ -380,8 +399,12 @@ def _read_row(
     settings: dict[str, Any],
     measure: str | None,
     log: ProblemLog,
+    marks: dict[str, Convention] | None = None,
 ) -> tuple[dict[str, Any] | None, bool]:
-    """One Items row: (record, usable) or (None, False) when it names no item."""
+    """One Items row: (record, usable) or (None, False) when it names no item.
+
+    ``marks``: each numeric column's decimal mark, which settles a cell like 1.200.
+    """
     cols, units = header.columns, header.units
 
     def title(key: str) -> str:
@@ -462,14 +485,39 @@ def _read_row(
             )
             ok = ok and not policy_col
             continue
-        own_unit = cell_duration(value) if key in DURATION_KEYS else None
+        typed = value
+        if marks and key in marks:
+            typed, note, level = settle(value, marks[key])
+            if note is not None and level == "error":
+                log.add(
+                    _sev(policy_col),
+                    f"{name} {note}. {consequence}",
+                    sheet=sheet.name,
+                    cell=cell,
+                    item=code,
+                    value=value,
+                    code=f"{key}-decimal-mark-unclear",
+                )
+                ok = ok and not policy_col
+                continue
+            if note is not None:
+                log.add(
+                    Severity(level),
+                    f"{name} {note}",
+                    sheet=sheet.name,
+                    cell=cell,
+                    item=code,
+                    value=value,
+                    code="number-decimal-mark",
+                )
+        own_unit = cell_duration(typed) if key in DURATION_KEYS else None
         if own_unit is not None:  # "2 weeks" in the cell: its own unit wins
             x, why = own_unit[0], own_unit[2]
             if why is None:
                 header.cell_units.append((key, cell, value, own_unit[1]))
         else:
             x, why = parse_number(
-                value, rate=col.kind == RATE, percent_unit=units.get(key) == "%", number_format=fmt
+                typed, rate=col.kind == RATE, percent_unit=units.get(key) == "%", number_format=fmt
             )
             if x is not None and key in DURATION_KEYS:
                 x *= header.days(key)

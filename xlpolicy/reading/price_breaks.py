@@ -13,7 +13,7 @@ import numpy as np
 
 from ..contract import PRICE_BREAK_COLUMNS
 from ..problems import ProblemLog
-from .cells import describe, is_blank, item_code, parse_number
+from .cells import code_key, describe, is_blank, item_code, parse_number
 from .items import ItemTable
 from .workbook import RawSheet, cell_ref, find_header
 
@@ -49,7 +49,7 @@ def read_price_breaks(sheet: RawSheet, items: ItemTable, log: ProblemLog) -> Pri
         return None
     cols = header.columns
     codes = items.df["item"].to_numpy(object)
-    row_of = {code: k for k, code in enumerate(codes)}
+    row_of = {code_key(code): k for k, code in enumerate(codes)}
     unit_cost = items.df["unit_cost"].to_numpy(float)
     found: dict[int, dict[float, tuple[float, str]]] = {}
     read = 0
@@ -75,7 +75,7 @@ def read_price_breaks(sheet: RawSheet, items: ItemTable, log: ProblemLog) -> Pri
                 code="price-break-item-missing",
             )
             continue
-        if code not in row_of:
+        if code_key(code) not in row_of:
             log.warning(
                 f"Price break for item {code!r}, which is not in Items; the row was "
                 "skipped. Correct the code or add the item.",
@@ -104,7 +104,7 @@ def read_price_breaks(sheet: RawSheet, items: ItemTable, log: ProblemLog) -> Pri
                 break
             nums[key] = float(x)
         else:
-            i = row_of[code]
+            i = row_of[code_key(code)]
             at = found.setdefault(i, {})
             q, p = nums["min_qty"], nums["unit_price"]
             if q in at:

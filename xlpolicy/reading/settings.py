@@ -21,6 +21,7 @@ from ..contract import (
 )
 from ..problems import ProblemLog
 from .cells import describe, is_blank, parse_number
+from .decimals import Convention, settle
 from .workbook import RawSheet, cell_ref
 
 _SETTING_LOOKUP = {name: s.key for s in READ_SETTINGS for name in s.names()}
@@ -224,6 +225,15 @@ def resolve_settings(
                 bad(key, raw, cell, why)
                 continue
             assert x is not None
+            _, unclear, _ = settle(raw, Convention(None))  # 1.200: one cell, no column
+            if unclear is not None:
+                log.warning(
+                    f"Setting '{key.replace('_', ' ')}' {unclear}",
+                    sheet=sheet_name,
+                    cell=cell,
+                    value=raw,
+                    code="number-decimal-mark",
+                )
             if key in ("service_target", *CLASS_TARGET_SETTINGS.values()) and not 0 < x < 1:
                 bad(
                     key,

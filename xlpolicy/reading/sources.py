@@ -141,6 +141,7 @@ def _exists(path: Path, log: ProblemLog, what: str) -> bool:
 _NS_OFFICE = "urn:oasis:names:tc:opendocument:xmlns:office:1.0"
 _NS_TABLE = "urn:oasis:names:tc:opendocument:xmlns:table:1.0"
 _NS_TEXT = "urn:oasis:names:tc:opendocument:xmlns:text:1.0"
+_NS_CALCEXT = "urn:org:documentfoundation:names:experimental:calc:xmlns:calcext:1.0"
 _NS_MANIFEST = "urn:oasis:names:tc:opendocument:xmlns:manifest:1.0"
 _T = f"{{{_NS_TABLE}}}"
 _O = f"{{{_NS_OFFICE}}}"
@@ -351,6 +352,8 @@ def _ods_cell(cell: ET.Element) -> tuple[Any, str, bool]:
         if vtype in ("float", "currency", "percentage"):
             x = _number(cell.get(f"{_O}value", ""))
             shown = _ods_text(cell).strip()
+            if _shown_as_yes_no(cell, x, shown):
+                return x == 1, "General", False
             if vtype == "percentage":
                 return x, "0%", False
             if (
@@ -379,6 +382,28 @@ def _ods_cell(cell: ET.Element) -> tuple[Any, str, bool]:
     if text != "":
         return text, "General", False
     return None, "", cell.get(f"{_T}formula") is not None
+
+
+#: How spreadsheet programs show TRUE and FALSE in some common languages (common practice:
+#: LibreOffice and Excel translate the words; the value beneath is 1 or 0).
+_YES_NO_WORDS = {
+    "true", "false", "wahr", "falsch", "vrai", "faux", "verdadero", "falso", "vero",
+    "waar", "onwaar", "sann", "usann", "prawda", "fałsz",
+}  # fmt: skip
+_BOOLEAN_FORMULAS = ("of:=true()", "of:=false()", "=true()", "=false()")
+
+
+def _shown_as_yes_no(cell: ET.Element, x: float, shown: str) -> bool:
+    """Whether a number cell is really TRUE or FALSE, as LibreOffice saves a yes/no cell
+    (a float 1 or 0 with the formula TRUE() or a yes/no display), so that it goes to the
+    same checks as a yes/no cell of an .xlsx or .xls file rather than counting as 1 or 0."""
+    if x not in (0, 1):
+        return False
+    ext = cell.get(
+        "{urn:org:documentfoundation:names:experimental:calc:xmlns:calcext:1.0}value-type"
+    )
+    formula = (cell.get(f"{_T}formula") or "").replace(" ", "").lower()
+    return ext == "boolean" or formula in _BOOLEAN_FORMULAS or shown.lower() in _YES_NO_WORDS
 
 
 def _iso_datetime(raw: str) -> _dt.datetime:
@@ -612,9 +637,9 @@ def csv_value(s: str, *, comma_decimals: bool = False, slashes: str | None = Non
 
     Empty -> None. Text is turned into a number only when it is one written plainly, so that
     writing the number back gives the same text: "12" -> 12, "2.5" -> 2.5, but "000123",
-    "2.50", "1e5", "+3" and "n/a" stay text (the checks still read "2.50" as a number where a
-    number belongs; codes keep their zeros). With ``comma_decimals`` "1,5" and "1.234,5"
-    are first rewritten as "1.5" and "1234.5" ("14,5%" as "14.5%"). Dates written as
+    "2.50", "12.0", "-0", "1e5", "+3" and "n/a" stay text (the checks still read "2.50" as
+    a number where a number belongs; codes keep their form). With ``comma_decimals`` "1,5"
+    and "1.234,5" are first rewritten as "1.5" and "1234.5" ("14,5%" as "14.5%"). Dates written as
     2024-01-31 (and 31.01.2024 in decimal-comma files; 01/31/2024 when ``slashes`` says the
     order) become datetimes.
     """
@@ -626,10 +651,10 @@ def csv_value(s: str, *, comma_decimals: bool = False, slashes: str | None = Non
         if m and (m.group(3) is not None or "." in m.group(2)):
             sign, whole, frac, pct = m.groups()
             t = f"{sign}{whole.replace('.', '')}" + (f".{frac}" if frac else "") + pct
-    if _INT.match(t):
+    if _INT.match(t) and str(int(t)) == t:  # ("-0" stays text: a code shown as -0)
         return int(t)
-    if _DEC.match(t) and repr(float(t)) == t:
-        return float(t)
+    if _DEC.match(t) and repr(float(t)) == t and not float(t).is_integer():
+        return float(t)  # ("12.0" and "-0.0" stay text, as typed: a code keeps its form)
     d = _csv_date(t, comma_decimals, slashes)
     if d is not None:
         return d

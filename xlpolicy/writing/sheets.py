@@ -29,11 +29,13 @@ formulas can point at cells already placed.
 from __future__ import annotations
 
 import re
+import tempfile
 from collections.abc import Mapping
 from pathlib import Path
 
 import xlsxwriter
 
+from ..errors import OutputTooLarge
 from ..report import Report
 from .atomic import atomic_output
 from .bulk import BlockSheet, CellBlock
@@ -117,10 +119,6 @@ def resolve_sheet_names(sheet_names: Mapping[str, str] | None) -> dict[str, str]
 MAX_SHEET_ROWS = 1_048_576
 
 
-class OutputTooLarge(ValueError):
-    """The results would not fit in a sheet; nothing is written."""
-
-
 def rows_needed(report: Report) -> dict[str, int]:
     """An upper bound on the rows each list-like generated sheet takes, by role.
 
@@ -184,8 +182,11 @@ def write_generated_workbook(
     names = resolve_sheet_names(sheet_names)
     path = Path(path)
     check_fits(report)
-    with atomic_output(path) as tmp:
-        wb = xlsxwriter.Workbook(str(tmp), WORKBOOK_OPTIONS)
+    # xlsxwriter keeps each sheet's XML in temporary files until it closes the workbook;
+    # they go into a folder of ours, removed however the writing ends (a full disk, a
+    # file-size limit, Ctrl-C), rather than into the system's temporary folder.
+    with atomic_output(path) as tmp, tempfile.TemporaryDirectory(prefix="xlpolicy-") as parts:
+        wb = xlsxwriter.Workbook(str(tmp), {**WORKBOOK_OPTIONS, "tmpdir": parts})
         try:
             ctx = Context(wb, report, names, link_to_input=link_to_input)
             sheets = {

@@ -12,9 +12,10 @@ from __future__ import annotations
 import zipfile
 
 from ... import fastzlib
+from ...errors import InputError
 
 
-class CannotMerge(Exception):
+class CannotMerge(InputError):
     """The user's workbook cannot take the generated sheets intact; ``str()`` says why.
 
     The caller then writes the generated sheets to a workbook of their own.
