@@ -153,6 +153,7 @@ def run_backtest(
     source = np.full(len(idx), "", dtype=object)
     common = dict(replications=runs, lost_sales=lost, periods_per_year=ppy)
 
+    models = results.loc[idx, "model"].to_numpy(object).astype(str)
     groups = []
     span = np.zeros(0)
     h = np.flatnonzero(from_hist)
@@ -160,8 +161,13 @@ def run_backtest(
         start = demand["span_start"][idx][h]
         span = n_cols - start
         m = hist.matrix[rows[h]]
+        split = (models[h], num("demand_per_period")[h], num("demand_sd_per_period")[h])
         groups.append(
-            (h, BlockBootstrap(m, start, block_length(lt[h], span), horizon), SOURCE_BOOTSTRAP)
+            (
+                h,
+                BlockBootstrap(m, start, block_length(lt[h], span), horizon, *split),
+                SOURCE_BOOTSTRAP,
+            )
         )
     f = np.flatnonzero(~from_hist)
     if f.size:
@@ -209,7 +215,13 @@ def run_backtest(
         source[k] = np.where(np.isfinite(c["cycle_service"]), label, "")
         if label == SOURCE_BOOTSTRAP:
             rep = simulate_policy(
-                q[k], r[k], lt[k], lsd[k], HistoryReplay(src.matrix, src.start), seed=rng, **common
+                q[k],
+                r[k],
+                lt[k],
+                lsd[k],
+                HistoryReplay(src.matrix, src.start, src.model, src.mean, src.sd),
+                seed=rng,
+                **common,
             )
             out["replayed_cycle_service"][k] = rep.columns["cycle_service"]
 
@@ -251,7 +263,13 @@ def run_backtest(
         if not sel.size:
             continue
         if is_hist:
-            src: Any = HistoryReplay(hist.matrix[rows[sel]], demand["span_start"][idx][sel])
+            src: Any = HistoryReplay(
+                hist.matrix[rows[sel]],
+                demand["span_start"][idx][sel],
+                models[sel],
+                num("demand_per_period")[sel],
+                num("demand_sd_per_period")[sel],
+            )
             first = demand["span_start"][idx][sel]
             what = "its own history, as it was"
         else:
