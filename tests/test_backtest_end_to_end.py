@@ -112,7 +112,22 @@ def test_plan_with_simulate_flags_the_lumpy_item_and_writes_the_columns(tmp_path
     assert len(hits) == 1
     assert any(v == "A3" for v in hits[0])  # the item's cell in Items
     summary = " ".join(str(c.value) for row in wb["Summary"].iter_rows() for c in row if c.value)
-    assert "Back-test: in simulation on their own demand" in summary
+    assert "Back-test: of 2 items simulated on their own demand" in summary
+    assert "reach their service target" in summary
+    # the lumpy item falls below its target: the reorder point that reaches it in the
+    # simulation, and its extra holding cost as a live formula over the row
+    r_t = float(lumpy["simulated_target_reorder_point"])
+    assert r_t > float(lumpy["reorder_point"])
+    extra = float(lumpy["simulated_target_extra_holding_cost"])
+    assert extra == pytest.approx(
+        float(lumpy["holding_rate"])
+        * float(lumpy["unit_price"])
+        * (r_t - float(lumpy["reorder_point"]))
+    )
+    assert "reaches the target" in " ".join(str(v) for v in hits[0])
+    wbf = load_workbook(tmp_path / "shop-policy.xlsx", data_only=False)["Policy"]
+    xcol = header.index("Back-test: extra yearly holding cost of that reorder point") + 1
+    assert str(wbf.cell(row=k, column=xcol).value).startswith("=")
     method = " ".join(
         str(c.value) for row in wb["How it works"].iter_rows() for c in row if c.value
     )

@@ -135,6 +135,16 @@ POLICY_COLUMNS: tuple[Col, ...] = (
     Col("simulated_average_on_hand", "Back-test: average on hand (units)", "demand"),
     Col("simulated_orders_per_year", "Back-test: orders per year", "decimal1"),
     Col("simulated_annual_total_cost", "Back-test: annual total cost", "money"),
+    Col(
+        "simulated_target_reorder_point",
+        "Back-test: reorder point reaching the target (units)",
+        "units",
+    ),
+    Col(
+        "simulated_target_extra_holding_cost",
+        "Back-test: extra yearly holding cost of that reorder point",
+        "money",
+    ),
     Col("simulation_source", "Back-test: demand simulated from", "text"),
 )
 
@@ -153,6 +163,7 @@ SYMBOLS = {
     "CYC": "annual_cycle_holding_cost",
     "SAF": "annual_safety_holding_cost",
     "SHO": "annual_shortage_cost",
+    "RT": "simulated_target_reorder_point",
 }
 
 Values = dict[str, np.ndarray]
@@ -225,6 +236,14 @@ FORMULAS: dict[str, tuple[str, tuple[str, ...], Callable[[Values], np.ndarray], 
         lambda v: np.maximum(0.0, 1 - v["n"] / v["Q"]),
         "1 - expected units short per order cycle / order quantity",
     ),
+    "simulated_target_extra_holding_cost": (
+        "{i}*{c}*({RT}-{R})",
+        ("i", "c", "RT", "R"),
+        lambda v: v["i"] * v["c"] * (v["RT"] - v["R"]),
+        "holding rate x unit price paid x (the reorder point reaching the target in "
+        "simulation - the reorder point): each unit added to the reorder point adds one "
+        "to the stock held on average",
+    ),
     "eoq": (
         "SQRT(2*{D}*{S}/({i}*{c}))",
         ("D", "S", "i", "c"),
@@ -289,6 +308,11 @@ VALUE_NOTES = {
     "simulated_fill_rate": (
         "A value from the back-test: 1 - simulated units short per order cycle / units "
         "ordered, as the fill rate column defines it, with its 95 % band beside it."
+    ),
+    "simulated_target_reorder_point": (
+        "A value from the back-test, for items whose simulated service is below target: "
+        "the smallest reorder point (in whole units above the planned one) at which the "
+        "same simulation, on the same demand draws, reaches the target."
     ),
     "lead_time_demand_sd": (
         "A value: square root of (lead time x demand sd squared + demand rate squared x "

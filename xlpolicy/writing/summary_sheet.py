@@ -78,7 +78,13 @@ TOTAL_LABELS: tuple[tuple[str, str, str], ...] = (
     ("annual_saving", "Annual saving from the change", "money"),
     ("items_simulated", "Items back-tested in simulation", "count"),
     ("items_with_target_simulated", "Of those, with a service target", "count"),
-    ("items_meeting_target_in_simulation", "Meeting their target in simulation", "count"),
+    ("items_meeting_target_in_simulation", "Of those, at or above target in simulation", "count"),
+    ("items_below_target_in_simulation", "Of those, below target in simulation", "count"),
+    (
+        "items_clearly_below_target_in_simulation",
+        "Of those below, whole 95 % band below target",
+        "count",
+    ),
     ("items_short_in_simulation", "Short of their model's promise in simulation", "count"),
 )
 
@@ -204,14 +210,17 @@ def headlines(ctx: Context) -> list[tuple[str, str]]:
     simulated = finite(t.get("items_with_target_simulated"))
     if simulated:
         meets = int(finite(t.get("items_meeting_target_in_simulation")) or 0)
+        below = int(finite(t.get("items_below_target_in_simulation")) or 0)
+        clearly = int(finite(t.get("items_clearly_below_target_in_simulation")) or 0)
         short = int(finite(t.get("items_short_in_simulation")) or 0)
         out.append(
             (
-                f"Back-test: in simulation on their own demand, {meets} of "
-                f"{int(simulated)} item{'s' if simulated != 1 else ''} meet their service "
-                f"target; {short} fall short of what their model promises (see "
+                f"Back-test: of {int(simulated)} item{'s' if simulated != 1 else ''} "
+                f"simulated on their own demand, {meets} reach their service target, "
+                f"{below} fall below it ({clearly} by more than the simulation's 95 % "
+                f"band); {short} fall short of what their model promises (see "
                 f"'{ctx.names['warnings']}').",
-                INK if short else GOOD,
+                INK if below else GOOD,
             )
         )
     avg = finite(t.get("average_inventory_value"))
