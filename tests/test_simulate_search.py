@@ -20,7 +20,7 @@ from xlpolicy.core.simulate_search import reorder_point_for_target
 
 def _source(n: int) -> ModelDraws:
     # demand 20 a period, sd 6, drawn from the normal model (invented figures)
-    return ModelDraws(np.array(["normal"] * n), np.full(n, 20.0), np.full(n, 6.0), 600)
+    return ModelDraws(np.array(["normal"] * n), np.full(n, 20.0), np.full(n, 6.0), 260)
 
 
 def test_found_point_is_the_smallest_that_reaches_the_target_on_the_same_draws():

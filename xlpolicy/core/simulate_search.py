@@ -78,13 +78,31 @@ def reorder_point_for_target(
         with np.errstate(invalid="ignore"):
             return np.isfinite(got) & (got >= tgt - 1e-12)
 
-    lo = np.full(n, -1.0)  # the largest k known to fall short (-1: none tried)
+    lo = np.full(n, 0.0)  # the largest k known to fall short
     hi = np.full(n, np.nan)  # the smallest k known to reach the target
-    if n == 0:
+    usable = np.isfinite(q) & (q > 0) & np.isfinite(r) & np.isfinite(lt) & (lt >= 0) & (tgt <= 1.0)
+    if not usable.any():
         return hi
+    if not usable.all():
+        k_use = np.flatnonzero(usable)
+        out = np.full(n, np.nan)
+        out[k_use] = reorder_point_for_target(
+            q[k_use],
+            r[k_use],
+            lt[k_use],
+            lsd[k_use],
+            demand.take(k_use),
+            tgt[k_use],
+            step[k_use],
+            fill_rate=fill_rate,
+            replications=replications,
+            seed=seed,
+            lost_sales=lost_sales,
+            periods_per_year=periods_per_year,
+        )
+        return out
     ok0 = reaches(np.zeros(n))
     hi[ok0] = 0.0
-    lo[~ok0] = 0.0
     k = step.copy()
     for _ in range(MAX_DOUBLINGS + 1):
         open_ = np.isnan(hi)
