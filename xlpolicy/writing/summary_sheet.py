@@ -2,14 +2,13 @@
 
 Top to bottom: a few plain headlines; the totals (live formulas over the Policy sheet);
 items by status; two charts (annual cost by category, average inventory investment by ABC
-class); breakdowns by ABC class, category and supplier (live SUMIF/COUNTIF formulas); the
+class); breakdowns by ABC class, category and supplier (live exact-match SUMPRODUCT formulas); the
 ten items that cost most a year; and what was read. The method, settings and cautions are
 on the "How it works" sheet, which the Summary points to.
 """
 
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass
 
 import numpy as np
@@ -114,7 +113,6 @@ BREAKDOWN: tuple[tuple[str, str, tuple[str, ...]], ...] = (
     ("Annual shortage cost", "money", ("annual_shortage_cost",)),
     ("Annual total cost", "money", ("annual_total_cost",)),
 )
-_SAFE_CRITERION = re.compile(r"[A-Za-z0-9][A-Za-z0-9 &,'_\-]*")
 
 
 @dataclass
@@ -384,29 +382,16 @@ def _status(ctx: Context, ws: Worksheet, row: int) -> int:
 # ---------------------------------------------------------------------------
 
 
-def _safe_criteria(names: list[str]) -> set[str]:
-    """Group names a SUMIF criterion matches exactly in every spreadsheet program.
+def _exact(grp_rng: str, crit: str) -> str:
+    """1 for each row of grp_rng whose text is exactly crit (case and every character
+    counted), else 0: an array for SUMPRODUCT.
 
-    Excluded: wildcard, comparison and regular-expression characters, names that read as
-    a number or a truth value, and names equal to another one but for case (SUMIF ignores
-    case, the breakdown does not).
+    EXACT compares text as it is, so no character of a group name is read as a pattern or
+    a comparison, unlike a SUMIF criterion (where "." "(" "*" "?" "~" or a leading "<" can
+    be a wildcard, a regular expression or an operator, depending on the program and its
+    settings). EXACT and SUMPRODUCT are in OpenFormula (ISO/IEC 26300-2) and in Excel.
     """
-    lower: dict[str, int] = {}
-    for n in names:
-        lower[n.lower()] = lower.get(n.lower(), 0) + 1
-    out = set()
-    for n in names:
-        if not _SAFE_CRITERION.fullmatch(n) or n != n.strip() or lower[n.lower()] > 1:
-            continue
-        if n.upper() in ("TRUE", "FALSE"):
-            continue
-        try:
-            float(n)
-            continue
-        except ValueError:
-            pass
-        out.add(n)
-    return out
+    return f"--EXACT({grp_rng},{crit})"
 
 
 def _breakdown(
@@ -434,7 +419,6 @@ def _breakdown(
     if not names:
         ctx.w.text(ws, row, 0, "No planned item has a value here.", italic=True, font_color=MUTED)
         return Table(row, row - 1, title)
-    safe = _safe_criteria([n for n in names if n])
     grp_rng = _policy_range(ctx, key)
     status_rng = _policy_range(ctx, "status")
     first = row
@@ -442,8 +426,10 @@ def _breakdown(
     line = {"bottom": 1, "bottom_color": LIGHT_RULE}
     for n in names:
         ctx.w.text(ws, row, 0, n or blank, **line)
-        live = bool(n) and n in safe and grp_rng is not None and status_rng is not None
-        crit = xl_rowcol_to_cell(row, 0, col_abs=True)
+        live = grp_rng is not None and status_rng is not None
+        # the group's own cell, or "" for the row of items with the column left blank
+        crit = xl_rowcol_to_cell(row, 0, col_abs=True) if n else '""'
+        match = _exact(str(grp_rng), crit)
         for c, (t, kind, keys) in enumerate(BREAKDOWN, start=1):
             props = {**ctx.num_props(kind), **line}
             value = sums[n].get(t, 0.0)
@@ -461,13 +447,10 @@ def _breakdown(
                 continue
             formula = None
             if live and kind == "count":
-                formula = (
-                    f"=COUNTIF({grp_rng},{crit})-COUNTIFS({grp_rng},{crit},"
-                    f'{status_rng},"{contract.STATUS_SKIPPED}")'
-                )
+                formula = f'=SUMPRODUCT({match},--({status_rng}<>"{contract.STATUS_SKIPPED}"))'
             elif live and all(k in ctx.policy_cols for k in keys):
                 formula = "=" + "+".join(
-                    f"SUMIF({grp_rng},{crit},{_policy_range(ctx, k)})" for k in keys
+                    f"SUMPRODUCT({match},{_policy_range(ctx, k)})" for k in keys
                 )
             if formula is not None:
                 ctx.w.formula(ws, row, c, formula, value, **props)
