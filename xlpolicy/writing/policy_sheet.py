@@ -164,6 +164,8 @@ SYMBOLS = {
     "SAF": "annual_safety_holding_cost",
     "SHO": "annual_shortage_cost",
     "RT": "simulated_target_reorder_point",
+    "OUT": "order_up_to_level",
+    "PM": "protection_demand_mean",
 }
 
 Values = dict[str, np.ndarray]
@@ -252,6 +254,30 @@ FORMULAS: dict[str, tuple[str, tuple[str, ...], Callable[[Values], np.ndarray], 
     ),
 }
 
+#: The same columns on a periodic-review row, where the order-up-to level and the mean
+#: demand over review period + lead time take the place of the reorder point and the
+#: lead-time demand (the Policy's other formulas hold on those rows as they are).
+PERIODIC_FORMULAS: dict[str, tuple[str, tuple[str, ...], Callable[[Values], np.ndarray], str]] = {
+    "safety_stock": (
+        "{OUT}-{PM}",
+        ("OUT", "PM"),
+        lambda v: v["OUT"] - v["PM"],
+        "order-up-to level - mean demand over review period + lead time",
+    ),
+    "annual_safety_holding_cost": (
+        "{i}*{c}*({OUT}-{PM})",
+        ("i", "c", "OUT", "PM"),
+        lambda v: v["i"] * v["c"] * (v["OUT"] - v["PM"]),
+        "holding rate x unit cost x safety stock",
+    ),
+    "average_inventory_value": (
+        "{c}*({Q}/2+MAX({OUT}-{PM},0))",
+        ("c", "Q", "OUT", "PM"),
+        lambda v: v["c"] * (v["Q"] / 2 + np.maximum(v["OUT"] - v["PM"], 0.0)),
+        "unit cost x (order quantity / 2 + safety stock, if above 0)",
+    ),
+}
+
 #: Columns that stay values, and how they are made (shown as a note on the header).
 VALUE_NOTES = {
     "order_qty": (
@@ -334,11 +360,15 @@ def policy_columns(results: pd.DataFrame) -> list[Col]:
     return cols
 
 
-def formula_plan(ctx: Context, cols: list[Col]) -> dict[str, tuple[np.ndarray, np.ndarray]]:
-    """Per formula column: (rows where the formula is written, the rebuilt values).
+def formula_plan(
+    ctx: Context, cols: list[Col]
+) -> dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """Per formula column: (rows where a formula is written, the rebuilt values, rows
+    whose formula is the periodic-review one of PERIODIC_FORMULAS).
 
     A row gets its formula when the item was planned, every input the formula names is a
     finite number in a visible column, and the rebuilt value equals the report's to 1e-9.
+    A periodic-review row is tried with its own formula where PERIODIC_FORMULAS has one.
     """
     df = ctx.results
     present = {c.key for c in cols}
@@ -346,13 +376,18 @@ def formula_plan(ctx: Context, cols: list[Col]) -> dict[str, tuple[np.ndarray, n
     if "status" in df.columns:
         planned = (df["status"].astype(str) != contract.STATUS_SKIPPED).to_numpy()
     values = {sym: column(df, key) for sym, key in SYMBOLS.items()}
-    out: dict[str, tuple[np.ndarray, np.ndarray]] = {}
-    for key, (_template, needs, fn, _words) in FORMULAS.items():
-        if key not in present:
-            continue
+    periodic = (
+        (df["review"].astype(str) == "periodic").to_numpy()
+        if "review" in df.columns
+        else np.zeros(len(df), dtype=bool)
+    )
+
+    def rebuild(
+        key: str, needs: tuple[str, ...], fn: Callable[[Values], np.ndarray]
+    ) -> tuple[np.ndarray, np.ndarray] | None:
         symbols = set(needs) | {"p"} if key == "annual_shortage_cost" else set(needs)
         if any(SYMBOLS[s] not in present for s in symbols):
-            continue
+            return None
         with np.errstate(all="ignore"):
             rebuilt = fn(values)
         reported = column(df, key)
@@ -361,7 +396,25 @@ def formula_plan(ctx: Context, cols: list[Col]) -> dict[str, tuple[np.ndarray, n
             ok &= np.isfinite(values[s])
         with np.errstate(all="ignore"):
             close = np.abs(rebuilt - reported) <= np.maximum(_REL * np.abs(reported), _ABS)
-        out[key] = (ok & close, rebuilt)
+        return ok & close, rebuilt
+
+    out: dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
+    for key, (_template, needs, fn, _words) in FORMULAS.items():
+        if key not in present:
+            continue
+        plain = rebuild(key, needs, fn)
+        alt = PERIODIC_FORMULAS.get(key)
+        other = rebuild(key, alt[1], alt[2]) if alt is not None and periodic.any() else None
+        if plain is None and other is None:
+            continue
+        n = len(df)
+        live, rebuilt = plain if plain is not None else (np.zeros(n, bool), np.full(n, np.nan))
+        use_alt = np.zeros(n, dtype=bool)
+        if other is not None:
+            use_alt = periodic & other[0]
+            live = np.where(periodic, use_alt, live)
+            rebuilt = np.where(use_alt, other[1], rebuilt)
+        out[key] = (live, rebuilt, use_alt)
     return out
 
 
@@ -413,7 +466,14 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
             if block is not None and live is not None and live[0].any():
                 # The column's formula with its letters in place, once; each row only adds
                 # its row number.
-                pattern = "=" + FORMULAS[col.key][0].format(**_refs(ctx))
+                refs = _refs(ctx)
+                pattern: str | list[str] = "=" + FORMULAS[col.key][0].format(**refs)
+                if live[2].any():  # periodic-review rows have their own formula
+                    alt = "=" + PERIODIC_FORMULAS[col.key][0].format(**refs)
+                    pattern = [
+                        (alt if p else str(pattern)).replace(ROW, str(r + 2))
+                        for r, p in enumerate(live[2])
+                    ]
                 block.formulas(c, pattern, live[0], reported, fmt, otherwise=reported)
             elif block is not None:
                 block.numbers(c, values.tolist() if values.dtype == object else values, fmt)
@@ -474,8 +534,11 @@ def _header_note(key: str) -> str:
     if key in VALUE_NOTES:
         return VALUE_NOTES[key]
     if key in FORMULAS:
+        alt = PERIODIC_FORMULAS.get(key)
         return (
-            "A formula over this row's visible inputs: " + FORMULAS[key][3] + ". The "
-            "cached result is the tool's own number."
+            "A formula over this row's visible inputs: "
+            + FORMULAS[key][3]
+            + (f" (on a periodic-review row: {alt[3]})" if alt is not None else "")
+            + ". The cached result is the tool's own number."
         )
     return ""

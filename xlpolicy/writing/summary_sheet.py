@@ -57,7 +57,7 @@ TOTAL_LABELS: tuple[tuple[str, str, str], ...] = (
     ("annual_total_cost", "Annual total cost (the four above)", "money"),
     ("annual_purchase_cost", "Annual purchase cost", "money"),
     ("average_inventory_value", "Average inventory value", "money"),
-    ("safety_stock_value", "Safety stock value", "money"),
+    ("safety_stock_value", "Safety stock value (at the price paid)", "money"),
     ("inventory_turns", "Inventory turns (per year)", "decimal1"),
     ("orders_per_year", "Orders per year, all items", "decimal1"),
     ("rounding_penalty", "Yearly cost of ordering in whole packs and minimums", "money"),
@@ -279,6 +279,15 @@ def _total_formula(ctx: Context, key: str) -> tuple[str, float] | None:
             return None
         nums = column(res, SUM_TOTALS[key])
         return f"=SUM({rng})", float(np.nansum(nums))
+    if key == "safety_stock_value":
+        ss_rng, c_rng = _policy_range(ctx, "safety_stock"), _policy_range(ctx, "unit_price")
+        if ss_rng is None or c_rng is None:
+            return None
+        ss, c = column(res, "safety_stock"), column(res, "unit_price")
+        with np.errstate(invalid="ignore"):
+            value = float(np.nansum(np.where(ss > 0, ss, 0.0) * c * _planned(ctx)))
+        # safety stock above 0 times the price paid; text and blank cells count as 0
+        return f"=SUMPRODUCT(--({ss_rng}>0),{ss_rng},{c_rng})", value
     status_rng = _policy_range(ctx, "status")
     if status_rng is None:
         return None
