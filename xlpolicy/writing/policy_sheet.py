@@ -37,35 +37,57 @@ from .sheetkit import (
 
 FORMULA_HEADER_FILL = "#DDEBE3"
 
+#: What the owner and the accountant read first: these columns print one page wide; every
+#: other column is the audit trail, grouped after them in an outline that opens with the
+#: "+" above the sheet (collapsed, so it neither clutters the screen nor prints).
+FIRST_READ: tuple[str, ...] = (
+    "item",
+    "description",
+    "status",
+    "model",
+    "order_qty",
+    "reorder_point",
+    "safety_stock",
+    "cycle_service",
+    "fill_rate",
+    "annual_ordering_cost",
+    "annual_cycle_holding_cost",
+    "annual_safety_holding_cost",
+    "annual_shortage_cost",
+    "annual_total_cost",
+)
+
 POLICY_COLUMNS: tuple[Col, ...] = (
     Col("item", "Item", "code"),
     Col("description", "Description", "text"),
-    Col("category", "Category", "text"),
-    Col("supplier", "Supplier", "text"),
     Col("status", "Status", "text"),
-    Col("abc_class", "ABC class", "text"),
+    Col("model", "Demand model", "text"),
     # the policy
     Col("order_qty", "Order quantity (units)", "units"),
     Col("reorder_point", "Reorder point (units)", "units"),
     Col("safety_stock", "Safety stock (units)", "units1"),
+    Col("cycle_service", "Cycle service achieved", "percent"),
+    Col("fill_rate", "Fill rate achieved", "percent"),
+    # what it costs
+    Col("annual_ordering_cost", "Annual ordering cost", "money"),
+    Col("annual_cycle_holding_cost", "Annual cycle stock holding cost", "money"),
+    Col("annual_safety_holding_cost", "Annual safety stock holding cost", "money"),
+    Col("annual_shortage_cost", "Annual shortage cost", "money"),
+    Col("annual_total_cost", "Annual total cost", "money"),
+    # the audit trail, in the outline
+    Col("category", "Category", "text"),
+    Col("supplier", "Supplier", "text"),
+    Col("abc_class", "ABC class", "text"),
     Col("service_measure", "Service measure", "text"),
     Col("service_target", "Service target", "percent"),
     Col("service_target_source", "Service target from", "text"),
-    Col("cycle_service", "Cycle service achieved", "percent"),
-    Col("fill_rate", "Fill rate achieved", "percent"),
     # periodic review
     Col("review", "Review", "text"),
     Col("review_period_days", "Review period (days)", "days"),
     Col("order_up_to_level", "Order-up-to level (units)", "units"),
     Col("protection_demand_mean", "Demand over review + lead time, mean (units)", "demand"),
     Col("protection_demand_sd", "Demand over review + lead time, sd (units)", "demand"),
-    # what it costs
     Col("orders_per_year", "Orders per year", "decimal1"),
-    Col("annual_ordering_cost", "Annual ordering cost", "money"),
-    Col("annual_cycle_holding_cost", "Annual cycle stock holding cost", "money"),
-    Col("annual_safety_holding_cost", "Annual safety stock holding cost", "money"),
-    Col("annual_shortage_cost", "Annual shortage cost", "money"),
-    Col("annual_total_cost", "Annual total cost", "money"),
     Col("annual_purchase_cost", "Annual purchase cost", "money"),
     Col("average_inventory_value", "Average inventory value", "money"),
     # the inputs of those formulas
@@ -94,7 +116,6 @@ POLICY_COLUMNS: tuple[Col, ...] = (
     Col("demand_sd_per_period", "Demand sd per period (units)", "demand"),
     Col("lead_time_days", "Lead time (days)", "days"),
     Col("lead_time_demand_sd", "Lead-time demand, sd (units)", "demand"),
-    Col("model", "Demand model", "text"),
     Col("model_reason", "Why this model", "text"),
     Col("demand_class", "Demand pattern", "text"),
     Col("demand_source", "Demand taken from", "text"),
@@ -443,6 +464,7 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
     # The cells go into one block, a column at a time (see bulk.py: xlsxwriter's per-cell
     # objects cost most of a run's time and memory at 100,000 items).
     block = CellBlock(1, n) if n else None
+    widths: list[float] = []
     for c, col in enumerate(cols):
         if col.kind in ("text", "code"):
             props = {"num_format": "@", **line}
@@ -479,11 +501,26 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
                 block.numbers(c, values.tolist() if values.dtype == object else values, fmt)
             data_len = display_len(values, col.kind, cur_len)
             width = min(max(header_width(col.title), data_len + 2, 8), 20)
-        ws.set_column(c, c, width)
+        if col.key == "description":
+            width = min(width, 32)  # the first page stays one page wide
+        widths.append(width)
     if block is not None:
         ws.add_block(block)
 
     last_col = len(cols) - 1
+    n_front = sum(1 for col in cols if col.key in FIRST_READ)
+    grouped = n_front < len(cols)
+    if grouped:
+        # the outline's button sits over the last first-read column, which holds the
+        # collapsed state of the group after it
+        ws.outline_settings(True, True, False, False)
+    for c, (col, width) in enumerate(zip(cols, widths, strict=True)):
+        if col.key not in FIRST_READ:
+            ws.set_column(c, c, width, None, {"level": 1, "hidden": True})
+        elif grouped and c == n_front - 1:
+            ws.set_column(c, c, width, None, {"collapsed": True})
+        else:
+            ws.set_column(c, c, width)
     ws.freeze_panes(1, 1)
     ws.autofilter(0, 0, max(n, 1), last_col)
     # Codes such as 000123 are text on purpose: no "number stored as text" markers.
@@ -515,9 +552,9 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
         )
     else:
         ctx.w.text(ws, 1, 0, "No items were read.", italic=True, font_color=MUTED)
-    # ~60 columns are unreadable shrunk to one page: print full size across pages, with
-    # the item column repeated on each.
-    ctx.print_setup(ws, ctx.names["policy"], 0, max(n, 1), last_col, fit_width=False)
+    # The first-read columns print one page wide; the collapsed audit columns do not
+    # print until opened (a reader who opens them prints at full size: set it then).
+    ctx.print_setup(ws, ctx.names["policy"], 0, max(n, 1), last_col, fit_width=True)
     ws.repeat_columns(0)
 
 

@@ -9,6 +9,7 @@ on the "How it works" sheet, which the Summary points to.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -43,6 +44,7 @@ _WIDTH = 9  # columns A..I
 _CHARS = 34 + 8 * 15
 _CHART_ROWS = 17
 _TOP = 10
+_TOP_LINE_CHARS = 16  # characters of text a 15-wide column holds on a line
 _CHART_GROUPS = 12
 
 TOTAL_LABELS: tuple[tuple[str, str, str], ...] = (
@@ -139,7 +141,8 @@ def write_summary(ctx: Context, ws: Worksheet) -> None:
     row = _status(ctx, ws, row + 1)
     glance = row + 1
     row = glance + 1 + _CHART_ROWS
-    ws.set_h_pagebreaks([row])  # charts end page 1; the breakdowns start a page
+    # the charts have a page of their own, so no page break cuts through them
+    ws.set_h_pagebreaks([glance, row])
     abc = _breakdown(ctx, ws, row + 1, "By ABC class", "abc_class", abc=True)
     row = abc.last + 2 if abc else row + 1
     cat = _breakdown(ctx, ws, row + 1, "By category", "category")
@@ -535,10 +538,14 @@ def _top_items(ctx: Context, ws: Worksheet, row: int) -> int:
     df = ctx.results
     line = {"bottom": 1, "bottom_color": LIGHT_RULE}
     for rank, i in enumerate(idx, start=1):
-        ctx.w.number(ws, row, 0, rank, num_format="0", align="left", **line)
+        ctx.w.number(ws, row, 0, rank, num_format="0", align="left", valign="top", **line)
+        lines = 1
         for c, (_t, key, kind) in enumerate(_TOP_COLUMNS, start=1):
             if kind in ("text", "code"):
-                ctx.w.text(ws, row, c, texts(df.iloc[[i]], key)[0], num_format="@", **line)
+                # wrapped, and the row made tall enough, so no name is cut off
+                text = texts(df.iloc[[i]], key)[0]
+                ctx.w.text(ws, row, c, text, num_format="@", text_wrap=True, valign="top", **line)
+                lines = max(lines, math.ceil(len(text or "") / _TOP_LINE_CHARS))
                 continue
             value = column(df.iloc[[i]], key)[0]
             props = {**ctx.num_props(kind), **line}
@@ -549,6 +556,8 @@ def _top_items(ctx: Context, ws: Worksheet, row: int) -> int:
                 )
             else:
                 ctx.w.number(ws, row, c, value, **props)
+        if lines > 1:
+            ws.set_row(row, 15 * lines + 1)
         row += 1
     return row
 
@@ -641,7 +650,8 @@ def _charts(ctx: Context, ws: Worksheet, row: int, cat: Table | None, abc: Table
                 "categories": [sheet, abc.first, 0, abc.last, 0],
                 "values": [sheet, abc.first, 4, abc.last, 4],
                 "fill": {"color": SERIES_COLOURS[0]},
-                "data_labels": {"value": True, "num_format": ctx.money.replace(".00", "")},
+                # no data labels: some programs add the series and class names to each,
+                # cluttering the bars; the figures are in the ABC table below
                 "gap": 80,
             }
         )
