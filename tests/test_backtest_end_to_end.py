@@ -13,6 +13,7 @@ from __future__ import annotations
 import csv
 import hashlib
 import math
+import zipfile
 from pathlib import Path
 
 import numpy as np
@@ -221,6 +222,17 @@ def test_stock_trace_sheet_replays_the_history_as_by_hand(tmp_path):
     rows = [[c.value for c in row] for row in ws.iter_rows()]
     heads = [k for k, row in enumerate(rows) if row[0] == "Period"]
     assert len(heads) == 2
+    # printed: the second item starts a page (a break above its heading, 2 rows above
+    # the table's header), so no break cuts through its chart
+    assert [b.id for b in ws.row_breaks.brk] == [heads[1] - 2]
+    # drawn with straight lines: the smoothing element written off in every series
+    # (ECMA-376 Part 1, 21.2.2.194 smooth; a program may smooth a line without it)
+    with zipfile.ZipFile(tmp_path / "shop-policy.xlsx") as z:
+        charts = [n for n in z.namelist() if n.startswith("xl/charts/chart")]
+        lines = [z.read(n).decode() for n in charts if b"<c:lineChart>" in z.read(n)]
+    assert len(lines) == 2
+    for xml in lines:
+        assert xml.count('<c:smooth val="0"/>') == xml.count("<c:ser>") == 3
     report = xlpolicy.analyse(src, simulate=True, replications=30)
     res_items = report.results.set_index("item")
     hist = {"000777": None, "LMP-1": None}

@@ -531,6 +531,7 @@ def _top_items(ctx: Context, ws: Worksheet, row: int) -> int:
         ctx.w.text(ws, row, 0, "No planned items.", italic=True, font_color=MUTED)
         return row + 1
     head = ctx.header_props()
+    ws.set_row(row, 32)  # two-line headers
     ctx.w.text(ws, row, 0, "Rank", **head)
     for c, (t, _k, _kind) in enumerate(_TOP_COLUMNS, start=1):
         ctx.w.text(ws, row, c, t, **head)
@@ -548,7 +549,7 @@ def _top_items(ctx: Context, ws: Worksheet, row: int) -> int:
                 lines = max(lines, math.ceil(len(text or "") / _TOP_LINE_CHARS))
                 continue
             value = column(df.iloc[[i]], key)[0]
-            props = {**ctx.num_props(kind), **line}
+            props = {**ctx.num_props(kind), **line, "valign": "top"}
             pc, pr = ctx.policy_cols.get(key), ctx.policy_row_of.get(int(i))
             if np.isfinite(value) and pc is not None and pr is not None:
                 ctx.w.formula(

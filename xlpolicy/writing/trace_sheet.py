@@ -44,7 +44,10 @@ def write_trace(ctx: Context, ws: Worksheet) -> None:
     row = 3
     head = ctx.header_props()
     name = ctx.names["trace"]
+    breaks: list[int] = []
     for it in items:
+        if row > 3:  # each item after the first starts a page, so no break cuts a chart
+            breaks.append(row)
         ctx.w.text(ws, row, 0, f"{it['item']}", bold=True, font_size=12)
         desc = it.get("description")
         label = (f"{desc}; " if isinstance(desc, str) and desc else "") + (
@@ -100,6 +103,8 @@ def write_trace(ctx: Context, ws: Worksheet) -> None:
             chart.set_size({"width": 620, "height": 20 * _CHART_ROWS})
             ws.insert_chart(top, 7, chart, {"x_offset": 4, "y_offset": 2})
         row = top + max(n, _CHART_ROWS) + 3
+    if breaks:
+        ws.set_h_pagebreaks(breaks)
     if not items:
         ctx.w.text(ws, row, 0, "No item was simulated.", italic=True, font_color=MUTED)
     ctx.print_setup(ws, name, -1, max(row, 1), _LAST_COL)
