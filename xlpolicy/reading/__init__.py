@@ -13,6 +13,7 @@ import numpy as np
 from ..problems import ProblemLog
 from ..progress import Progress, silent
 from . import typed
+from .currency import currency_from_sheet
 from .guard import Refused, unreadable_message
 from .history import History, aggregate_daily_to_weeks, read_history, read_wide_typed, wide_header
 from .history_file import read_history_file
@@ -104,9 +105,11 @@ def read_input(
         )
         # Blank targets stay NaN while reading, so an item's own target can be told from a
         # default: a class target (Service target A/B/C) may apply to it instead.
-        items = read_items(read(items_name), {**settings, "service_target": float("nan")}, log)
+        items_sheet = read(items_name)
+        items = read_items(items_sheet, {**settings, "service_target": float("nan")}, log)
         if items is None:
             return None
+        currency_from_sheet(items_sheet, settings, log, items_name)
         _default_targets(items, settings)
         if history_file is not None:
             if history_name is not None:
