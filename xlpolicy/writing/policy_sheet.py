@@ -357,9 +357,10 @@ VALUE_NOTES = {
         "ordered, as the fill rate column defines it, with its 95 % band beside it."
     ),
     "simulated_target_reorder_point": (
-        "A value from the back-test, for items whose simulated service is below target: "
-        "the smallest reorder point (in whole units above the planned one) at which the "
-        "same simulation, on the same demand draws, reaches the target."
+        "A value from the back-test, for items whose simulated service is below target "
+        "beyond the simulation's 95 % band, or short of what their model promises: the "
+        "smallest reorder point (in whole units above the planned one) at which the same "
+        "simulation, on the same demand draws, reaches the target."
     ),
     "lead_time_demand_sd": (
         "A value: square root of (lead time x demand sd squared + demand rate squared x "
