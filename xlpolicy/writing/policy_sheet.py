@@ -515,13 +515,13 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
         # the outline's button sits over the last first-read column, which holds the
         # collapsed state of the group after it
         ws.outline_settings(True, True, False, False)
-    for c, (col, width) in enumerate(zip(cols, widths, strict=True)):
+    for c, (col, col_width) in enumerate(zip(cols, widths, strict=True)):
         if col.key not in FIRST_READ:
-            ws.set_column(c, c, width, None, {"level": 1, "hidden": True})
+            ws.set_column(c, c, col_width, None, {"level": 1, "hidden": True})
         elif grouped and c == n_front - 1:
-            ws.set_column(c, c, width, None, {"collapsed": True})
+            ws.set_column(c, c, col_width, None, {"collapsed": True})
         else:
-            ws.set_column(c, c, width)
+            ws.set_column(c, c, col_width)
     ws.freeze_panes(1, 1)
     ws.autofilter(0, 0, max(n, 1), last_col)
     # Codes such as 000123 are text on purpose: no "number stored as text" markers.
