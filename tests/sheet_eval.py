@@ -7,7 +7,11 @@ gives the number the tool computed. Semantics follow OpenFormula (ISO/IEC 26300-
 - an empty cell is 0 in arithmetic and equal to "" in a comparison;
 - SUM, SUMIF, COUNTIF skip text and empty cells;
 - a SUMIF/COUNTIF criterion "<>" matches non-empty cells, ">0" compares numbers, and
-  plain text matches text equal to it ignoring case.
+  plain text matches text equal to it ignoring case;
+- inside SUMPRODUCT a range is an array: EXACT, comparisons, unary minus and * work
+  element by element (TRUE is 1 under minus), EXACT compares the text of its arguments
+  exactly (an empty cell is ""), and SUMPRODUCT multiplies its arrays element by element
+  and adds the products, counting anything not a number (text, TRUE, empty) as 0.
 """
 
 from __future__ import annotations
@@ -136,8 +140,18 @@ class Evaluator:
         while (t := self.peek()) and t[1] in ("=", "<>", "<", ">", "<=", ">="):
             op = self.take()[1]
             b = self.concat()
-            a = self._cmp(op, self._scalar(a), self._scalar(b))
+            a = self._each(lambda x, y, op=op: self._cmp(op, x, y), a, b)
         return a
+
+    @staticmethod
+    def _each(fn: Callable[..., Any], *args: Any) -> Any:
+        """fn over scalars, or element by element where an argument is a range."""
+        arrays = [a[1] for a in args if isinstance(a, tuple)]
+        if not arrays:
+            return fn(*args)
+        n = len(arrays[0])
+        cols = [a[1] if isinstance(a, tuple) else [a] * n for a in args]
+        return ("range", [fn(*vals) for vals in zip(*cols, strict=True)])
 
     @staticmethod
     def _cmp(op: str, a: Any, b: Any) -> bool:
@@ -170,8 +184,10 @@ class Evaluator:
         a = self.power()
         while (t := self.peek()) and t[1] in ("*", "/"):
             op = self.take()[1]
-            b = _num(self._scalar(self.power()))
-            a = _num(self._scalar(a)) * b if op == "*" else _num(self._scalar(a)) / b
+            b = self.power()
+            a = self._each(
+                lambda x, y, op=op: _num(x) * _num(y) if op == "*" else _num(x) / _num(y), a, b
+            )
         return a
 
     def power(self) -> Any:
@@ -185,8 +201,7 @@ class Evaluator:
         t = self.peek()
         if t and t[1] in ("-", "+"):
             self.take()
-            v = _num(self._scalar(self.unary()))
-            return -v if t[1] == "-" else v
+            return self._each(lambda x: -_num(x) if t[1] == "-" else _num(x), self.unary())
         return self.primary()
 
     def primary(self) -> Any:
@@ -264,6 +279,26 @@ class Evaluator:
                 float(s)
                 for v, s in zip(rng, sums, strict=True)
                 if _matches(v, crit) and isinstance(s, (int, float))
+            )
+        if name == "EXACT":
+
+            def text(v: Any) -> str:
+                if v is None:
+                    return ""
+                if isinstance(v, float) and v.is_integer():
+                    return str(int(v))
+                return str(v)
+
+            return self._each(lambda x, y: text(x) == text(y), args[0], args[1])
+        if name == "SUMPRODUCT":
+            arrays = [a[1] if isinstance(a, tuple) else [a] for a in args]
+
+            def number(v: Any) -> float:
+                ok = isinstance(v, (int, float)) and not isinstance(v, bool)
+                return float(v) if ok else 0.0
+
+            return math.fsum(
+                math.prod(number(v) for v in vals) for vals in zip(*arrays, strict=True)
             )
         if name == "COUNTIF":
             return float(sum(1 for v in args[0][1] if _matches(v, self._scalar(args[1]))))

@@ -13,6 +13,7 @@ from __future__ import annotations
 import csv
 import hashlib
 import math
+import zipfile
 from pathlib import Path
 
 import numpy as np
@@ -112,7 +113,22 @@ def test_plan_with_simulate_flags_the_lumpy_item_and_writes_the_columns(tmp_path
     assert len(hits) == 1
     assert any(v == "A3" for v in hits[0])  # the item's cell in Items
     summary = " ".join(str(c.value) for row in wb["Summary"].iter_rows() for c in row if c.value)
-    assert "Back-test: in simulation on their own demand" in summary
+    assert "Back-test: of 2 items simulated on their own demand" in summary
+    assert "reach their service target" in summary
+    # the lumpy item falls below its target: the reorder point that reaches it in the
+    # simulation, and its extra holding cost as a live formula over the row
+    r_t = float(lumpy["simulated_target_reorder_point"])
+    assert r_t > float(lumpy["reorder_point"])
+    extra = float(lumpy["simulated_target_extra_holding_cost"])
+    assert extra == pytest.approx(
+        float(lumpy["holding_rate"])
+        * float(lumpy["unit_price"])
+        * (r_t - float(lumpy["reorder_point"]))
+    )
+    assert "reaches the target" in " ".join(str(v) for v in hits[0])
+    wbf = load_workbook(tmp_path / "shop-policy.xlsx", data_only=False)["Policy"]
+    xcol = header.index("Back-test: extra yearly holding cost of that reorder point") + 1
+    assert str(wbf.cell(row=k, column=xcol).value).startswith("=")
     method = " ".join(
         str(c.value) for row in wb["How it works"].iter_rows() for c in row if c.value
     )
@@ -206,6 +222,17 @@ def test_stock_trace_sheet_replays_the_history_as_by_hand(tmp_path):
     rows = [[c.value for c in row] for row in ws.iter_rows()]
     heads = [k for k, row in enumerate(rows) if row[0] == "Period"]
     assert len(heads) == 2
+    # printed: the second item starts a page (a break above its heading, 2 rows above
+    # the table's header), so no break cuts through its chart
+    assert [b.id for b in ws.row_breaks.brk] == [heads[1] - 2]
+    # drawn with straight lines: the smoothing element written off in every series
+    # (ECMA-376 Part 1, 21.2.2.194 smooth; a program may smooth a line without it)
+    with zipfile.ZipFile(tmp_path / "shop-policy.xlsx") as z:
+        charts = [n for n in z.namelist() if n.startswith("xl/charts/chart")]
+        lines = [z.read(n).decode() for n in charts if b"<c:lineChart>" in z.read(n)]
+    assert len(lines) == 2
+    for xml in lines:
+        assert xml.count('<c:smooth val="0"/>') == xml.count("<c:ser>") == 3
     report = xlpolicy.analyse(src, simulate=True, replications=30)
     res_items = report.results.set_index("item")
     hist = {"000777": None, "LMP-1": None}

@@ -167,6 +167,23 @@ def test_points_against_scipy_on_a_small_instance():
         assert row["units_short_per_year"] == pytest.approx(short, rel=1e-9)
         assert row["stockout_occasions_per_year"] == pytest.approx(occ, rel=1e-9)
         assert row["fill_rate_overall"] == pytest.approx(1 - short / D.sum(), rel=1e-12)
+        # the holding cost of that safety stock, on the same basis: holding rate x it
+        assert row["annual_safety_holding_cost"] == pytest.approx(i * inv, rel=1e-9)
+
+
+def test_at_low_targets_no_safety_stock_costs_nothing_to_hold():
+    # Below a 50 % target the normal model's reorder point sits under the mean lead-time
+    # demand: negative safety stock. Counted as no safety stock, its investment is 0 and so
+    # is its holding cost (never a negative cost beside a zero investment).
+    inp = inputs(n=8)
+    curve = exchange_curve(inp, 0.95, "cycle service", targets=(0.2, 0.35, 0.5))
+    assert (curve["annual_safety_holding_cost"] >= 0).all()
+    low = curve[curve["safety_stock_investment"] == 0]
+    assert (low["annual_safety_holding_cost"] == 0).all()
+    # every item here has the holding rate 0.22: the cost is that share of the investment
+    assert np.allclose(
+        curve["annual_safety_holding_cost"], 0.22 * curve["safety_stock_investment"], rtol=1e-9
+    )
 
 
 def test_items_that_cannot_be_planned_are_left_out():

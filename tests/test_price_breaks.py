@@ -132,3 +132,24 @@ def test_sheet_without_the_headers_is_reported(tmp_path):
     assert p.sheet == "Price breaks"
     r = xlpolicy.analyse(path).results.set_index("item")
     assert r.loc["K1", "unit_price"] == pytest.approx(0.30)
+
+
+def test_safety_stock_value_is_at_the_price_paid_and_live(tmp_path):
+    # One basis for the stock values on the Summary: the price paid after a price break,
+    # as the average inventory value uses (common practice: stock is valued at what it
+    # cost). The total is a live formula over the Policy sheet.
+    path = _book(tmp_path, GOOD)
+    out = tmp_path / "out.xlsx"
+    report = xlpolicy.plan(path, out, simulate=False).report
+    r = report.results
+    ss = np.maximum(r["safety_stock"].to_numpy(float), 0.0)
+    want = float(np.nansum(ss * r["unit_price"].to_numpy(float)))
+    assert (r["unit_price"] < r["unit_cost"]).any()  # a break is taken, so the bases differ
+    assert report.totals["safety_stock_value"] == pytest.approx(want, rel=1e-12)
+    ws = openpyxl.load_workbook(out)["Summary"]
+    cell = next(
+        row[1]
+        for row in ws.iter_rows()
+        if str(row[0].value).startswith("Safety stock value (at the price paid)")
+    )
+    assert str(cell.value).startswith("=SUMPRODUCT(")

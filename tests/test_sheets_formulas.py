@@ -25,6 +25,8 @@ from xlpolicy.writing.policy_sheet import FORMULAS, POLICY_COLUMNS
 from xlpolicy.writing.sheets import write_generated_workbook
 
 TITLE_TO_KEY = {c.title: c.key for c in POLICY_COLUMNS}
+#: The formulas of a run without the back-test (its one formula needs its columns).
+PLAN_FORMULAS = set(FORMULAS) - {"simulated_target_extra_holding_cost"}
 
 
 def _write(tmp_path: Path, report, name: str = "out.xlsx"):
@@ -66,8 +68,8 @@ def test_every_policy_formula_caches_and_rebuilds_the_reports_number(tmp_path):
         assert cached == reported, (item, key)  # the cached result is the tool's number
         assert evaluated == pytest.approx(reported, rel=1e-9, abs=1e-12), (item, key, formula)
     # 4 planned items x 11 formula columns; the skipped item has none
-    assert len(found) == 4 * len(FORMULAS)
-    assert {f[1] for f in found} == set(FORMULAS)
+    assert len(found) == 4 * len(PLAN_FORMULAS)
+    assert {f[1] for f in found} == PLAN_FORMULAS
     assert "B-9" not in {f[0] for f in found}
 
 
@@ -127,10 +129,10 @@ def test_a_number_no_formula_reproduces_is_written_as_a_value(tmp_path):
     # no longer equals the report's total either: both fall back, nothing else does
     assert ordering.data_type == "n" and ordering.value == res.loc[0, "annual_ordering_cost"]
     assert total.data_type == "n"
-    fallbacks = [k for k in FORMULAS if ws.cell(row=r, column=cols[k]).data_type != "f"]
+    fallbacks = [k for k in PLAN_FORMULAS if ws.cell(row=r, column=cols[k]).data_type != "f"]
     assert sorted(fallbacks) == ["annual_ordering_cost", "annual_total_cost"]
     found = _policy_formulas(wb, values, report)
-    assert len(found) == 4 * len(FORMULAS) - 2
+    assert len(found) == 4 * len(PLAN_FORMULAS) - 2
 
 
 def test_blank_shortage_cost_counts_as_none(tmp_path):
@@ -175,7 +177,48 @@ def test_real_core_numbers_are_reproduced_by_the_formulas(tmp_path):
     found = _policy_formulas(wb, values, report)
     planned = int((report.results["status"] != "skipped").sum())
     assert planned == 4
-    assert len(found) == planned * len(FORMULAS)  # no fallback at all
+    res = report.results
+    ok = (res["status"] != "skipped").to_numpy()
+    want = sum(
+        int(np.isfinite(res[k].to_numpy(float)[ok]).sum()) for k in FORMULAS if k in res.columns
+    )
+    assert want >= planned * len(PLAN_FORMULAS)
+    assert len(found) == want  # no fallback at all
     for item, key, formula, cached, evaluated, reported in found:
         assert cached == reported, (item, key)
         assert evaluated == pytest.approx(reported, rel=1e-9, abs=1e-9), (item, key, formula)
+
+
+def test_periodic_review_rows_are_live_formulas_too(tmp_path):
+    # Periodic review (T, S): safety stock = S - mean demand over T + L, its holding cost
+    # H (S - mean), stock value c (Q/2 + safety stock) with Q the average order d T (Silver,
+    # Pyke & Peterson 1998, ch. 7). Those rows get their own formulas, rebuilt and compared
+    # like the others, so no periodic number that an input drives is left a value.
+    headers = BASE_HEADERS + ["Shortage cost", "Review period days"]
+    rows = [
+        item_row("T1", cost=4.0, order=30, rate=0.25, lead=14) + [None, 14],
+        item_row("T2", cost=12.5, order=22, rate=0.2, lead=7) + [3.5, 7],
+        item_row("C3", cost=2.0, order=15, rate=0.3, lead=21) + [None, 0],
+    ]
+    hist = weekly_history(["T1", "T2", "C3"], weeks=60, mean=25, seed=5)
+    src = write_workbook(tmp_path / "shop.xlsx", rows, headers=headers, history=hist)
+    report = xlpolicy.analyse(src, simulate=False)
+    assert list(report.results["review"]) == ["periodic", "periodic", "continuous"]
+    wb, values = _write(tmp_path, report)
+    found = _policy_formulas(wb, values, report)
+    by_item: dict[str, set[str]] = {}
+    for item, key, formula, cached, evaluated, reported in found:
+        assert cached == reported, (item, key)
+        assert evaluated == pytest.approx(reported, rel=1e-9, abs=1e-9), (item, key, formula)
+        by_item.setdefault(item, set()).add(key)
+    res = report.results.set_index("item")
+    for item in ("T1", "T2", "C3"):
+        # every formula column the row has a number in (periodic rows have no EOQ)
+        want = {k for k in PLAN_FORMULAS if np.isfinite(float(res.at[item, k]))}
+        assert "safety_stock" in want and "average_inventory_value" in want
+        assert by_item[item] == want, (item, want - by_item[item])
+    ws = wb["Policy"]
+    col = header(ws).index("Safety stock (units)") + 1
+    up_to = header(ws).index("Order-up-to level (units)") + 1
+    letter = openpyxl.utils.get_column_letter(up_to)
+    assert ws.cell(row=2, column=col).value.startswith(f"={letter}2-")

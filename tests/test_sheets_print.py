@@ -22,12 +22,12 @@ def _write(tmp_path, **kw):
     return report, openpyxl.load_workbook(path)
 
 
-# Policy (about 60 columns) is unreadable shrunk to one page wide (seen in LibreOffice's
-# PDF of the demo): it prints full size across pages with the item column repeated.
+# Policy prints its first-read columns one page wide; the audit columns are collapsed in
+# an outline, and hidden columns do not print.
 @pytest.mark.parametrize(
     "sheet,titles,frozen,fit",
     [
-        ("Policy", "1:1", "B2", False),
+        ("Policy", "1:1", "B2", True),
         ("Reorder now", "5:5", "A6", True),
         ("Warnings", "1:1", "A2", True),
         ("Today vs plan", "5:5", "B6", True),
@@ -100,6 +100,34 @@ def test_reorder_holds_exactly_the_reorder_list(tmp_path):
     labels = [ws.cell(row=r, column=1).value for r in range(1, ws.max_row + 1)]
     assert "Approved by" in labels and "Order numbers" in labels
     last = max(r for r in range(1, ws.max_row + 1) if ws.cell(row=r, column=1).value)
-    # after the order value (column L): the ABC class and the order-up-to level
-    assert ws.print_area.endswith(f"$N${last}")
+    # after the order value (column L): the ABC class, centred, and the order-up-to level
+    # only where an item on the list is on periodic review
+    periodic = report.reorder["order_up_to_level"].notna().any()
+    assert ws.print_area.endswith(f"${'N' if periodic else 'M'}${last}")
     assert ws.cell(row=5, column=13).value == "ABC class"
+    assert ws.cell(row=5, column=14).value == (
+        "Periodic review: order up to (units)" if periodic else None
+    )
+    assert ws.cell(row=7, column=13).alignment.horizontal == "center"
+
+
+def test_policy_audit_columns_are_an_outline_collapsed_behind_the_first_read_ones(tmp_path):
+    from xlpolicy.writing.policy_sheet import FIRST_READ, POLICY_COLUMNS
+
+    _, wb = _write(tmp_path)
+    ws = wb["Policy"]
+    titles = {c.title: c.key for c in POLICY_COLUMNS}
+    keys = [titles.get(t) for t in header(ws)]
+    front = [k for k in keys if k in FIRST_READ]
+    assert keys[: len(front)] == front  # the first-read columns come first
+    assert "annual_total_cost" in front and "order_qty" in front
+    dims = {}  # column number -> its <col> element (one may span several columns)
+    for d in ws.column_dimensions.values():
+        for c in range(d.min, d.max + 1):
+            dims[c] = d
+    for k, key in enumerate(keys):
+        d = dims.get(k + 1)
+        if key in FIRST_READ:
+            assert d is None or not d.hidden, key
+        else:
+            assert d is not None and d.hidden and d.outline_level == 1, key

@@ -102,19 +102,20 @@ def test_breakdowns_are_live_and_add_up(book, title, key):
     assert total == pytest.approx(report.totals["annual_total_cost"])
 
 
-def test_group_names_a_criterion_could_misread_are_values(book):
-    # "+fast" and "-slow" could be read as something else by a SUMIF criterion in some
-    # program, so their rows hold plain values; "Gaskets" is a live SUMIF row.
+def test_every_breakdown_row_is_a_live_exact_match_formula(book):
+    # "+fast" and "-slow" could be read as something else by a SUMIF criterion; the exact
+    # match (EXACT inside SUMPRODUCT) reads no group name as a pattern, so every row,
+    # those included, is live (breakdowns_are_live_and_add_up checks their values).
     _, _, wb, _ = book
     ws = wb["Summary"]
     rows, _ = _table(ws, "By category")
     head = min(rows.values()) - 1
     c = _col(ws, head, "Annual total cost")
-    assert ws.cell(row=rows["Gaskets"], column=c).value.startswith("=SUMIF(")
-    n = ws.cell(row=rows["Gaskets"], column=_col(ws, head, "Items planned")).value
-    assert n.startswith("=COUNTIF(") and "COUNTIFS(" in n  # skipped B-9 not counted
-    for name in ("+fast", "-slow"):
-        assert ws.cell(row=rows[name], column=c).data_type == "n"
+    for name in ("Gaskets", "+fast", "-slow"):
+        f = ws.cell(row=rows[name], column=c).value
+        assert f.startswith("=SUMPRODUCT(--EXACT("), (name, f)
+        n = ws.cell(row=rows[name], column=_col(ws, head, "Items planned")).value
+        assert n.startswith("=SUMPRODUCT(") and '<>"skipped"' in n  # skipped B-9 not counted
         assert ws.cell(row=rows[name], column=1).data_type == "s"
 
 

@@ -868,6 +868,8 @@ EXTRA_RESULT_KEYS: tuple[str, ...] = (
     "simulated_average_on_hand",
     "simulated_orders_per_year",
     "simulated_annual_total_cost",
+    "simulated_target_reorder_point",
+    "simulated_target_extra_holding_cost",
     "simulation_check",
 )
 

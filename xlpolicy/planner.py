@@ -969,7 +969,9 @@ def _totals(results: pd.DataFrame, reorder: pd.DataFrame) -> dict[str, float]:
     compared = ~np.isnan(col("annual_saving"))
     ss = col("safety_stock")[ok]
     ss = np.where((ss >= 0) | np.isnan(ss), ss, 0.0)  # clipped at 0, as Series.clip(lower=0)
-    ss_value = float(np.nansum(ss * col("unit_cost")[ok]))
+    # valued at the price paid (after any price break), as the average inventory value is
+    paid = np.where(np.isfinite(col("unit_price")), col("unit_price"), col("unit_cost"))[ok]
+    ss_value = float(np.nansum(ss * paid))
     return {
         "items_planned": float(ok.sum()),
         "items_warning": float((results["status"] == STATUS_WARNING).sum()),

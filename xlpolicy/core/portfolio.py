@@ -202,7 +202,8 @@ def exchange_curve(
     compute_policy can plan: safety_stock_investment = sum c max(R - mu, 0) (as the
     Summary's safety stock value); units_short_per_year = sum D/Q n(R);
     stockout_occasions_per_year = sum D/Q P(X > R); fill_rate_overall = 1 - units short /
-    demand; annual_safety_holding_cost = sum H (R - mu). ``current`` marks today's point
+    demand; annual_safety_holding_cost = sum H max(R - mu, 0), on the investment's basis
+    (the price paid, safety stock above 0 only). ``current`` marks today's point
     (f = 1). Rows run from the lowest investment to the highest.
     """
     key = str(measure).strip().lower()
@@ -270,8 +271,9 @@ def exchange_curve(
                 "fill_rate_overall": np.where(
                     total_demand > 0, 1.0 - units_short / total_demand, np.nan
                 ),
+                # on the investment's basis: safety stock above 0 only (H max(R - mu, 0))
                 "annual_safety_holding_cost": np.nansum(
-                    per_point("annual_safety_holding_cost"), axis=1
+                    np.where(ss > 0, per_point("annual_safety_holding_cost"), 0.0), axis=1
                 ),
                 "items": planned.sum(axis=1).astype(float),
                 "current": factors == 1.0,

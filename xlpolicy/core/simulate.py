@@ -20,8 +20,17 @@ How a period is simulated (the discretisation, stated so the figures can be judg
   so the gamma is drawn with the variance that, with the rounding's added, gives the
   item's (:func:`lead_draw_variance`; exact for a normal spread, close for the gamma's).
   Two orders due in the same period arrive together and count as one cycle.
-* Demand per part: a history period's demand is split f : (1 - f) (spread evenly within
-  the period). Draws from a model are split exactly: normal, Poisson, negative binomial
+* Demand per part: a history period's demand D is split at random between the two parts,
+  by the law of the item's demand model for the part given the whole period (so the part
+  holding the share f of the period has mean f d and variance f s^2, as f of a period of
+  independent demand has, not the f^2 s^2 of an even split): normal, the Brownian bridge
+  f D + sqrt(f (1 - f)) s Z; Poisson, each unit of D falls in the first part with
+  probability f (binomial); negative binomial (a Poisson stream whose rate is a gamma
+  process), binomial with a Beta(r f, r (1 - f)) probability; gamma and any other model,
+  the share Beta(k f, k (1 - f)) of D with k = d^2 / s^2 (a gamma process). Each gives the
+  part the variance f s^2 whatever D's distribution, given the period's mean d and sd s
+  (worked out in :func:`part_splitter`); both parts add up to D, so the history's totals
+  are kept. Draws from a model are split exactly: normal, Poisson, negative binomial
   and gamma demand are infinitely divisible, so the two parts are drawn from the same
   family with means and variances f and (1 - f) of the period's, and the lead-time demand
   has exactly the mean d L and variance L s^2 the analytic model uses. Normal draws can be
@@ -68,6 +77,7 @@ __all__ = [
     "SimulationResult",
     "simulate_policy",
     "block_length",
+    "part_splitter",
     "service_check",
     "history_band",
     "SIMULATION_COLUMNS",
@@ -201,6 +211,114 @@ def block_length(lead_time_periods: ArrayLike, span: ArrayLike) -> np.ndarray:
         return np.clip(ell, 1.0, np.maximum(n, 1.0)).astype(np.int64)
 
 
+def part_splitter(
+    frac: np.ndarray,
+    model: ArrayLike | None,
+    mean: ArrayLike,
+    sd: ArrayLike,
+    rng: np.random.Generator,
+) -> Callable[[np.ndarray], np.ndarray]:
+    """A function giving, from whole periods' demand D (items x replications), the first
+    part's demand: the share frac (per item) of the period, drawn from the law of that part
+    given D under the item's demand model.
+
+    Each law gives the part the mean f d and the variance f s^2 (f = frac, d and s the
+    period's mean and sd) for any D with that mean and sd, as f of a period of independent
+    demand has (the lead-time model's L s^2). With E[D] = d, Var D = s^2:
+
+    * normal, a = f D + sqrt(f (1 - f)) s Z: Var a = f^2 s^2 + f (1 - f) s^2 = f s^2.
+    * Poisson, a ~ Binomial(D, f): Var a = f (1 - f) d + f^2 s^2, which is f s^2 where
+      s^2 = d, as the Poisson model says.
+    * negative binomial, a ~ Binomial(D, P), P ~ Beta(r f, r (1 - f)):
+      Var a = f (1 - f) (r d + s^2 + d^2) / (r + 1) + f^2 s^2, which is f s^2 for the
+      model's r = d^2 / (s^2 - d). Where s^2 <= d it is split as Poisson.
+    * gamma and any other model, a = W D, W ~ Beta(k f, k (1 - f)):
+      Var a = (s^2 + d^2) f (k f + 1) / (k + 1) - f^2 d^2, which is f s^2 for k = d^2 / s^2.
+
+    Counts split binomially take the whole units of D at or above 0; a fraction left over (a
+    quantity that is not whole, or a return) is split evenly. Where the spread is unknown
+    or zero, or the model is "even", the split is even (a = f D): the part then has the
+    variance f^2 s^2, too little, which this function exists to avoid; "even" is kept so
+    the difference can be shown.
+    """
+    fr = np.asarray(frac, dtype=float)
+    n = fr.shape[0]
+    names = (
+        np.full(n, "gamma")
+        if model is None
+        else np.char.lower(np.char.strip(np.asarray(model, dtype=str)))
+    )
+    d = np.nan_to_num(np.broadcast_to(np.asarray(mean, dtype=float), (n,)))
+    s = np.nan_to_num(np.broadcast_to(np.asarray(sd, dtype=float), (n,)))
+    var = s * s
+    on = (fr > 0) & (fr < 1) & (s > 0) & (names != "even")
+    normal = on & (names == "normal")
+    nb = on & (names == "negative binomial") & (var > d) & (d > 0)
+    pois = on & ((names == "poisson") | (names == "negative binomial")) & ~nb
+    gam = on & ~(normal | nb | pois) & (d > 0)
+    k_n, k_p, k_nb, k_g = (np.flatnonzero(g) for g in (normal, pois, nb, gam))
+    f_col = fr[:, None]
+    with np.errstate(all="ignore"):
+        bridge = np.sqrt(fr * (1.0 - fr)) * s
+        r_nb = np.where(nb, d * d / np.where(nb, var - d, 1.0), 1.0)
+        k_gam = np.where(gam, d * d / np.where(gam, var, 1.0), 1.0)
+
+    def binomial(dd: np.ndarray, p: np.ndarray) -> np.ndarray:
+        whole = np.floor(np.maximum(dd, 0.0))
+        return rng.binomial(whole.astype(np.int64), p) + p * (dd - whole)
+
+    def split(dd: np.ndarray) -> np.ndarray:
+        a = f_col * dd
+        reps = dd.shape[1]
+        if k_n.size:
+            a[k_n] += bridge[k_n][:, None] * rng.standard_normal((k_n.size, reps))
+        if k_p.size:
+            p = np.broadcast_to(f_col[k_p], (k_p.size, reps))
+            a[k_p] = binomial(dd[k_p], p)
+        if k_nb.size:
+            r_ = r_nb[k_nb][:, None]
+            f_ = f_col[k_nb]
+            p = rng.beta(r_ * f_, r_ * (1.0 - f_), (k_nb.size, reps))
+            a[k_nb] = binomial(dd[k_nb], p)
+        if k_g.size:
+            k_ = k_gam[k_g][:, None]
+            f_ = f_col[k_g]
+            a[k_g] = rng.beta(k_ * f_, k_ * (1.0 - f_), (k_g.size, reps)) * dd[k_g]
+        return a
+
+    return split
+
+
+def _span_moments(matrix: np.ndarray, start: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Each item's mean and sd per period over its span (start column to the end)."""
+    m = np.nan_to_num(np.asarray(matrix, dtype=float))
+    cols = np.arange(m.shape[1])[None, :]
+    inside = cols >= np.asarray(start, np.int64)[:, None]
+    n = np.maximum(inside.sum(axis=1), 1)
+    mu = np.where(inside, m, 0.0).sum(axis=1) / n
+    dev = np.where(inside, m - mu[:, None], 0.0)
+    return mu, np.sqrt((dev * dev).sum(axis=1) / np.maximum(n - 1, 1))
+
+
+def _split_for(
+    src: HistoryReplay | BlockBootstrap, frac: np.ndarray, rng: np.random.Generator
+) -> Callable[[np.ndarray], np.ndarray]:
+    if src.mean is None or src.sd is None:
+        mu, sd = _span_moments(src.matrix, src.start)
+    else:
+        mu, sd = src.mean, src.sd
+    return part_splitter(frac, src.model, mu, sd, rng)
+
+
+def _take_split(
+    src: HistoryReplay | BlockBootstrap, idx: np.ndarray
+) -> tuple[np.ndarray | None, np.ndarray | None, np.ndarray | None]:
+    """The split's model, mean and sd of the items idx (None stays None)."""
+    return tuple(  # type: ignore[return-value]
+        None if x is None else np.asarray(x)[idx] for x in (src.model, src.mean, src.sd)
+    )
+
+
 @dataclass
 class HistoryReplay:
     """The item's own history played once, from its start column to the last column.
@@ -210,12 +328,17 @@ class HistoryReplay:
 
     matrix: np.ndarray
     start: np.ndarray
+    model: np.ndarray | None = None
+    mean: np.ndarray | None = None
+    sd: np.ndarray | None = None
 
     replay = True
 
     def take(self, idx: np.ndarray) -> HistoryReplay:
         return HistoryReplay(
-            np.asarray(self.matrix, float)[idx], np.asarray(self.start, np.int64)[idx]
+            np.asarray(self.matrix, float)[idx],
+            np.asarray(self.start, np.int64)[idx],
+            *_take_split(self, idx),
         )
 
     def periods(self) -> int:
@@ -224,11 +347,12 @@ class HistoryReplay:
     def sampler(self, reps: int, frac: np.ndarray, rng: np.random.Generator) -> _Sampler:
         m = np.nan_to_num(np.asarray(self.matrix, dtype=float))
         st = np.asarray(self.start, np.int64)
-        fr = frac[:, None]
+        split = _split_for(self, frac, rng)
 
         def draw(t: int) -> tuple[np.ndarray, np.ndarray]:
             d = np.where(t >= st, m[:, t], 0.0)[:, None] * np.ones((1, reps))
-            return fr * d, (1.0 - fr) * d
+            a = split(d)
+            return a, d - a
 
         return draw
 
@@ -247,6 +371,9 @@ class BlockBootstrap:
     start: np.ndarray
     block: np.ndarray
     length: int
+    model: np.ndarray | None = None
+    mean: np.ndarray | None = None
+    sd: np.ndarray | None = None
 
     replay = False
 
@@ -256,6 +383,7 @@ class BlockBootstrap:
             np.asarray(self.start, np.int64)[idx],
             np.asarray(self.block, np.int64)[idx],
             self.length,
+            *_take_split(self, idx),
         )
 
     def periods(self) -> int:
@@ -269,7 +397,7 @@ class BlockBootstrap:
         span = np.maximum(n_cols - st, 1)
         base = (np.arange(n_items, dtype=np.int64) * n_cols + np.minimum(st, n_cols - 1))[:, None]
         ell = np.maximum(np.asarray(self.block, np.int64), 1)
-        fr = frac[:, None]
+        split = _split_for(self, frac, rng)
         pos = np.zeros((n_items, reps), dtype=np.int64)  # place in the span, per cell
         span_c = span[:, None]
 
@@ -282,7 +410,7 @@ class BlockBootstrap:
             if new.size:
                 pos[new] = (rng.random((new.size, reps)) * span_c[new]).astype(np.int64)
             d = flat[base + pos]
-            a = fr * d
+            a = split(d)
             return a, d - a
 
         return draw

@@ -17,6 +17,7 @@ from ..progress import Progress, silent
 from . import typed
 from .cells import code_key, known_forms
 from .column_map import combine, parse_pairs, read_map_sheet
+from .currency import currency_from_sheet
 from .guard import Refused, unreadable_message
 from .history import History, aggregate_daily_to_weeks, read_history, read_wide_typed, wide_header
 from .history_file import read_history_file
@@ -102,10 +103,12 @@ def read_input(
         # Blank targets stay NaN while reading, so an item's own target can be told from a
         # default: a class target (Service target A/B/C) may apply to it instead.
         for_items = {**settings, "service_target": float("nan")}
-        items = read_items(read(items_name), for_items, log)
+        items_sheet = read(items_name)
+        items = read_items(items_sheet, for_items, log)
         if items is None:
             return None
         settings["currency"] = for_items.get("currency")  # (a currency named in a header)
+        currency_from_sheet(items_sheet, settings, log, items_name)
         _default_targets(items, settings)
         if history_file is not None:
             if history_name is not None:

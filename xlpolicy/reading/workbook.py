@@ -38,6 +38,7 @@ from .. import fastzlib
 from ..contract import Column, normalise
 from ..problems import ProblemLog
 from ..progress import Progress, silent
+from .currency import currency_of
 from .guard import refusal, unreadable_message
 from .headers import Header
 from .headers import find_header as _find_header
@@ -788,7 +789,8 @@ def _error_cells(data: bytes) -> dict[tuple[int, int], str] | None:
 def _formats_that_matter(path: Path) -> dict[int, str]:
     """Style index -> number format, for the styles whose format changes a value's meaning.
 
-    Those are zero-padded formats (000000, for item codes) and percentages (for rates).
+    Those are zero-padded formats (000000, for item codes) and percentages (for rates),
+    and formats that show a currency (the output shows money in the input's currency).
     """
     try:
         with zipfile.ZipFile(path) as zf:
@@ -813,7 +815,7 @@ def _formats_that_matter(path: Path) -> dict[int, str]:
         except ValueError:
             continue
         fmt = custom.get(fid, BUILTIN_FORMATS.get(fid, "General"))
-        if "%" in fmt or _ZERO_PAD_FORMAT.match(fmt):
+        if "%" in fmt or _ZERO_PAD_FORMAT.match(fmt) or currency_of(fmt):
             out[k] = fmt
     return out
 

@@ -37,35 +37,57 @@ from .sheetkit import (
 
 FORMULA_HEADER_FILL = "#DDEBE3"
 
+#: What the owner and the accountant read first: these columns print one page wide; every
+#: other column is the audit trail, grouped after them in an outline that opens with the
+#: "+" above the sheet (collapsed, so it neither clutters the screen nor prints).
+FIRST_READ: tuple[str, ...] = (
+    "item",
+    "description",
+    "status",
+    "model",
+    "order_qty",
+    "reorder_point",
+    "safety_stock",
+    "cycle_service",
+    "fill_rate",
+    "annual_ordering_cost",
+    "annual_cycle_holding_cost",
+    "annual_safety_holding_cost",
+    "annual_shortage_cost",
+    "annual_total_cost",
+)
+
 POLICY_COLUMNS: tuple[Col, ...] = (
     Col("item", "Item", "code"),
     Col("description", "Description", "text"),
-    Col("category", "Category", "text"),
-    Col("supplier", "Supplier", "text"),
     Col("status", "Status", "text"),
-    Col("abc_class", "ABC class", "text"),
+    Col("model", "Demand model", "text"),
     # the policy
     Col("order_qty", "Order quantity (units)", "units"),
     Col("reorder_point", "Reorder point (units)", "units"),
     Col("safety_stock", "Safety stock (units)", "units1"),
+    Col("cycle_service", "Cycle service achieved", "percent"),
+    Col("fill_rate", "Fill rate achieved", "percent"),
+    # what it costs
+    Col("annual_ordering_cost", "Annual ordering cost", "money"),
+    Col("annual_cycle_holding_cost", "Annual cycle stock holding cost", "money"),
+    Col("annual_safety_holding_cost", "Annual safety stock holding cost", "money"),
+    Col("annual_shortage_cost", "Annual shortage cost", "money"),
+    Col("annual_total_cost", "Annual total cost", "money"),
+    # the audit trail, in the outline
+    Col("category", "Category", "text"),
+    Col("supplier", "Supplier", "text"),
+    Col("abc_class", "ABC class", "text"),
     Col("service_measure", "Service measure", "text"),
     Col("service_target", "Service target", "percent"),
     Col("service_target_source", "Service target from", "text"),
-    Col("cycle_service", "Cycle service achieved", "percent"),
-    Col("fill_rate", "Fill rate achieved", "percent"),
     # periodic review
     Col("review", "Review", "text"),
     Col("review_period_days", "Review period (days)", "days"),
     Col("order_up_to_level", "Order-up-to level (units)", "units"),
     Col("protection_demand_mean", "Demand over review + lead time, mean (units)", "demand"),
     Col("protection_demand_sd", "Demand over review + lead time, sd (units)", "demand"),
-    # what it costs
     Col("orders_per_year", "Orders per year", "decimal1"),
-    Col("annual_ordering_cost", "Annual ordering cost", "money"),
-    Col("annual_cycle_holding_cost", "Annual cycle stock holding cost", "money"),
-    Col("annual_safety_holding_cost", "Annual safety stock holding cost", "money"),
-    Col("annual_shortage_cost", "Annual shortage cost", "money"),
-    Col("annual_total_cost", "Annual total cost", "money"),
     Col("annual_purchase_cost", "Annual purchase cost", "money"),
     Col("average_inventory_value", "Average inventory value", "money"),
     # the inputs of those formulas
@@ -94,7 +116,6 @@ POLICY_COLUMNS: tuple[Col, ...] = (
     Col("demand_sd_per_period", "Demand sd per period (units)", "demand"),
     Col("lead_time_days", "Lead time (days)", "days"),
     Col("lead_time_demand_sd", "Lead-time demand, sd (units)", "demand"),
-    Col("model", "Demand model", "text"),
     Col("model_reason", "Why this model", "text"),
     Col("demand_class", "Demand pattern", "text"),
     Col("demand_source", "Demand taken from", "text"),
@@ -135,6 +156,16 @@ POLICY_COLUMNS: tuple[Col, ...] = (
     Col("simulated_average_on_hand", "Back-test: average on hand (units)", "demand"),
     Col("simulated_orders_per_year", "Back-test: orders per year", "decimal1"),
     Col("simulated_annual_total_cost", "Back-test: annual total cost", "money"),
+    Col(
+        "simulated_target_reorder_point",
+        "Back-test: reorder point reaching the target (units)",
+        "units",
+    ),
+    Col(
+        "simulated_target_extra_holding_cost",
+        "Back-test: extra yearly holding cost of that reorder point",
+        "money",
+    ),
     Col("simulation_source", "Back-test: demand simulated from", "text"),
 )
 
@@ -153,6 +184,9 @@ SYMBOLS = {
     "CYC": "annual_cycle_holding_cost",
     "SAF": "annual_safety_holding_cost",
     "SHO": "annual_shortage_cost",
+    "RT": "simulated_target_reorder_point",
+    "OUT": "order_up_to_level",
+    "PM": "protection_demand_mean",
 }
 
 Values = dict[str, np.ndarray]
@@ -225,11 +259,43 @@ FORMULAS: dict[str, tuple[str, tuple[str, ...], Callable[[Values], np.ndarray], 
         lambda v: np.maximum(0.0, 1 - v["n"] / v["Q"]),
         "1 - expected units short per order cycle / order quantity",
     ),
+    "simulated_target_extra_holding_cost": (
+        "{i}*{c}*({RT}-{R})",
+        ("i", "c", "RT", "R"),
+        lambda v: v["i"] * v["c"] * (v["RT"] - v["R"]),
+        "holding rate x unit price paid x (the reorder point reaching the target in "
+        "simulation - the reorder point): each unit added to the reorder point adds one "
+        "to the stock held on average",
+    ),
     "eoq": (
         "SQRT(2*{D}*{S}/({i}*{c}))",
         ("D", "S", "i", "c"),
         lambda v: np.sqrt(2 * v["D"] * v["S"] / (v["i"] * v["c"])),
         "square root of (2 x annual demand x order cost / (holding rate x unit cost))",
+    ),
+}
+
+#: The same columns on a periodic-review row, where the order-up-to level and the mean
+#: demand over review period + lead time take the place of the reorder point and the
+#: lead-time demand (the Policy's other formulas hold on those rows as they are).
+PERIODIC_FORMULAS: dict[str, tuple[str, tuple[str, ...], Callable[[Values], np.ndarray], str]] = {
+    "safety_stock": (
+        "{OUT}-{PM}",
+        ("OUT", "PM"),
+        lambda v: v["OUT"] - v["PM"],
+        "order-up-to level - mean demand over review period + lead time",
+    ),
+    "annual_safety_holding_cost": (
+        "{i}*{c}*({OUT}-{PM})",
+        ("i", "c", "OUT", "PM"),
+        lambda v: v["i"] * v["c"] * (v["OUT"] - v["PM"]),
+        "holding rate x unit cost x safety stock",
+    ),
+    "average_inventory_value": (
+        "{c}*({Q}/2+MAX({OUT}-{PM},0))",
+        ("c", "Q", "OUT", "PM"),
+        lambda v: v["c"] * (v["Q"] / 2 + np.maximum(v["OUT"] - v["PM"], 0.0)),
+        "unit cost x (order quantity / 2 + safety stock, if above 0)",
     ),
 }
 
@@ -290,6 +356,12 @@ VALUE_NOTES = {
         "A value from the back-test: 1 - simulated units short per order cycle / units "
         "ordered, as the fill rate column defines it, with its 95 % band beside it."
     ),
+    "simulated_target_reorder_point": (
+        "A value from the back-test, for items whose simulated service is below target "
+        "beyond the simulation's 95 % band, or short of what their model promises: the "
+        "smallest reorder point (in whole units above the planned one) at which the same "
+        "simulation, on the same demand draws, reaches the target."
+    ),
     "lead_time_demand_sd": (
         "A value: square root of (lead time x demand sd squared + demand rate squared x "
         "lead-time sd squared), lead time in periods (Silver, Pyke & Peterson 1998)."
@@ -310,11 +382,15 @@ def policy_columns(results: pd.DataFrame) -> list[Col]:
     return cols
 
 
-def formula_plan(ctx: Context, cols: list[Col]) -> dict[str, tuple[np.ndarray, np.ndarray]]:
-    """Per formula column: (rows where the formula is written, the rebuilt values).
+def formula_plan(
+    ctx: Context, cols: list[Col]
+) -> dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]]:
+    """Per formula column: (rows where a formula is written, the rebuilt values, rows
+    whose formula is the periodic-review one of PERIODIC_FORMULAS).
 
     A row gets its formula when the item was planned, every input the formula names is a
     finite number in a visible column, and the rebuilt value equals the report's to 1e-9.
+    A periodic-review row is tried with its own formula where PERIODIC_FORMULAS has one.
     """
     df = ctx.results
     present = {c.key for c in cols}
@@ -322,13 +398,18 @@ def formula_plan(ctx: Context, cols: list[Col]) -> dict[str, tuple[np.ndarray, n
     if "status" in df.columns:
         planned = (df["status"].astype(str) != contract.STATUS_SKIPPED).to_numpy()
     values = {sym: column(df, key) for sym, key in SYMBOLS.items()}
-    out: dict[str, tuple[np.ndarray, np.ndarray]] = {}
-    for key, (_template, needs, fn, _words) in FORMULAS.items():
-        if key not in present:
-            continue
+    periodic = (
+        (df["review"].astype(str) == "periodic").to_numpy()
+        if "review" in df.columns
+        else np.zeros(len(df), dtype=bool)
+    )
+
+    def rebuild(
+        key: str, needs: tuple[str, ...], fn: Callable[[Values], np.ndarray]
+    ) -> tuple[np.ndarray, np.ndarray] | None:
         symbols = set(needs) | {"p"} if key == "annual_shortage_cost" else set(needs)
         if any(SYMBOLS[s] not in present for s in symbols):
-            continue
+            return None
         with np.errstate(all="ignore"):
             rebuilt = fn(values)
         reported = column(df, key)
@@ -337,7 +418,25 @@ def formula_plan(ctx: Context, cols: list[Col]) -> dict[str, tuple[np.ndarray, n
             ok &= np.isfinite(values[s])
         with np.errstate(all="ignore"):
             close = np.abs(rebuilt - reported) <= np.maximum(_REL * np.abs(reported), _ABS)
-        out[key] = (ok & close, rebuilt)
+        return ok & close, rebuilt
+
+    out: dict[str, tuple[np.ndarray, np.ndarray, np.ndarray]] = {}
+    for key, (_template, needs, fn, _words) in FORMULAS.items():
+        if key not in present:
+            continue
+        plain = rebuild(key, needs, fn)
+        alt = PERIODIC_FORMULAS.get(key)
+        other = rebuild(key, alt[1], alt[2]) if alt is not None and periodic.any() else None
+        if plain is None and other is None:
+            continue
+        n = len(df)
+        live, rebuilt = plain if plain is not None else (np.zeros(n, bool), np.full(n, np.nan))
+        use_alt = np.zeros(n, dtype=bool)
+        if other is not None:
+            use_alt = periodic & other[0]
+            live = np.where(periodic, use_alt, live)
+            rebuilt = np.where(use_alt, other[1], rebuilt)
+        out[key] = (live, rebuilt, use_alt)
     return out
 
 
@@ -366,6 +465,7 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
     # The cells go into one block, a column at a time (see bulk.py: xlsxwriter's per-cell
     # objects cost most of a run's time and memory at 100,000 items).
     block = CellBlock(1, n) if n else None
+    widths: list[float] = []
     for c, col in enumerate(cols):
         if col.kind in ("text", "code"):
             props = {"num_format": "@", **line}
@@ -389,17 +489,39 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
             if block is not None and live is not None and live[0].any():
                 # The column's formula with its letters in place, once; each row only adds
                 # its row number.
-                pattern = "=" + FORMULAS[col.key][0].format(**_refs(ctx))
+                refs = _refs(ctx)
+                pattern: str | list[str] = "=" + FORMULAS[col.key][0].format(**refs)
+                if live[2].any():  # periodic-review rows have their own formula
+                    alt = "=" + PERIODIC_FORMULAS[col.key][0].format(**refs)
+                    pattern = [
+                        (alt if p else str(pattern)).replace(ROW, str(r + 2))
+                        for r, p in enumerate(live[2])
+                    ]
                 block.formulas(c, pattern, live[0], reported, fmt, otherwise=reported)
             elif block is not None:
                 block.numbers(c, values.tolist() if values.dtype == object else values, fmt)
             data_len = display_len(values, col.kind, cur_len)
             width = min(max(header_width(col.title), data_len + 2, 8), 20)
-        ws.set_column(c, c, width)
+        if col.key == "description":
+            width = min(width, 32)  # the first page stays one page wide
+        widths.append(width)
     if block is not None:
         ws.add_block(block)
 
     last_col = len(cols) - 1
+    n_front = sum(1 for col in cols if col.key in FIRST_READ)
+    grouped = n_front < len(cols)
+    if grouped:
+        # the outline's button sits over the last first-read column, which holds the
+        # collapsed state of the group after it
+        ws.outline_settings(True, True, False, False)
+    for c, (col, col_width) in enumerate(zip(cols, widths, strict=True)):
+        if col.key not in FIRST_READ:
+            ws.set_column(c, c, col_width, None, {"level": 1, "hidden": True})
+        elif grouped and c == n_front - 1:
+            ws.set_column(c, c, col_width, None, {"collapsed": True})
+        else:
+            ws.set_column(c, c, col_width)
     ws.freeze_panes(1, 1)
     ws.autofilter(0, 0, max(n, 1), last_col)
     # Codes such as 000123 are text on purpose: no "number stored as text" markers.
@@ -431,9 +553,9 @@ def write_policy(ctx: Context, ws: Worksheet) -> None:
         )
     else:
         ctx.w.text(ws, 1, 0, "No items were read.", italic=True, font_color=MUTED)
-    # ~60 columns are unreadable shrunk to one page: print full size across pages, with
-    # the item column repeated on each.
-    ctx.print_setup(ws, ctx.names["policy"], 0, max(n, 1), last_col, fit_width=False)
+    # The first-read columns print one page wide; the collapsed audit columns do not
+    # print until opened (a reader who opens them prints at full size: set it then).
+    ctx.print_setup(ws, ctx.names["policy"], 0, max(n, 1), last_col, fit_width=True)
     ws.repeat_columns(0)
 
 
@@ -450,8 +572,11 @@ def _header_note(key: str) -> str:
     if key in VALUE_NOTES:
         return VALUE_NOTES[key]
     if key in FORMULAS:
+        alt = PERIODIC_FORMULAS.get(key)
         return (
-            "A formula over this row's visible inputs: " + FORMULAS[key][3] + ". The "
-            "cached result is the tool's own number."
+            "A formula over this row's visible inputs: "
+            + FORMULAS[key][3]
+            + (f" (on a periodic-review row: {alt[3]})" if alt is not None else "")
+            + ". The cached result is the tool's own number."
         )
     return ""

@@ -187,7 +187,10 @@ def _curve_block(ctx: Context, ws: Worksheet, row: int, curve: pd.DataFrame) -> 
                 "(items with a target of their own move with it: their odds of running short "
                 "are scaled by the same factor)"
             )
-            + ", under each item's own demand model. Read down: more money in safety stock, "
+            + ", under each item's own demand model. Safety stock investment and its yearly "
+            "holding cost are on one basis: the price paid, counting each item's safety "
+            "stock where it is above 0 (the holding cost is the holding rate times the "
+            "investment). Read down: more money in safety stock, "
             "fewer shortages. Today's settings are marked. To choose another point, set its "
             + ("shortage costs" if by_cost else "service target")
             + " in Settings and run again. "
@@ -297,7 +300,8 @@ def method_sentences(ctx: Context) -> list[str]:
         "default (items with a target of their own move with it, their odds of running "
         "short scaled by the same factor) or, under the shortage-cost measure, every "
         "shortage cost times a common multiplier. For each point: the money in safety "
-        "stock (unit cost x safety stock, where above 0), the expected units short a year "
+        "stock (price paid x safety stock, where above 0) and its yearly holding cost "
+        "(holding rate x that money), the expected units short a year "
         "(orders a year x expected units short per order cycle) and the expected stockout "
         "occasions a year (orders a year x the chance that lead-time demand exceeds the "
         "reorder point), each under the item's own demand model. Today's settings are one "

@@ -54,6 +54,13 @@ NO_SUPPLIER = "(no supplier given)"
 def write_reorder(ctx: Context, ws: Worksheet) -> None:
     """The purchaser's list: items to order now, grouped by supplier, ready to print."""
     cols = REORDER_COLUMNS
+    up_to = (
+        pd.to_numeric(ctx.reorder["order_up_to_level"], errors="coerce")
+        if "order_up_to_level" in ctx.reorder.columns
+        else pd.Series([], dtype=float)
+    )
+    if not up_to.notna().any():  # no item on the list is on periodic review
+        cols = tuple(c for c in cols if c.key != "order_up_to_level")
     last_col = len(cols) - 1
     run = ctx.run_text()
     source = clean_text(ctx.report.source_name) or ""
@@ -134,7 +141,10 @@ def _groups(
         for rec in group.to_dict("records"):
             for c, col in enumerate(cols):
                 v = rec.get(col.key)
-                if col.kind in ("text", "code"):
+                if col.key == "abc_class":  # a letter, centred clear of the money beside it
+                    n = ctx.w.text(ws, row, c, v, num_format="@", align="center", **line)
+                    widths[c] = max(widths[c], n + 2)
+                elif col.kind in ("text", "code"):
                     n = ctx.w.text(ws, row, c, v, num_format="@", **line)
                     widths[c] = max(widths[c], n + 2)
                 elif c == value_col:

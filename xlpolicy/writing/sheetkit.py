@@ -28,7 +28,9 @@ from ..report import Report
 
 #: Every function a generated formula may use: all in OpenFormula (ISO/IEC 26300-2) and
 #: in Excel since 2007, none an array or dynamic-array function.
-ALLOWED_FUNCTIONS = frozenset({"SUM", "SUMIF", "COUNTIF", "COUNTIFS", "IF", "MAX", "MIN", "SQRT"})
+ALLOWED_FUNCTIONS = frozenset(
+    {"SUM", "SUMIF", "COUNTIF", "COUNTIFS", "IF", "MAX", "MIN", "SQRT", "SUMPRODUCT", "EXACT"}
+)
 
 # Our own restrained palette.
 INK = "#1F2A36"
@@ -290,6 +292,7 @@ _CLASSIC_FUNCTIONS = frozenset(
         "COUNT",
         "COUNTA",
         "COUNTIF",
+        "EXACT",
         "FLOOR",
         "HYPERLINK",
         "IF",

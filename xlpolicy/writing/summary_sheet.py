@@ -2,14 +2,14 @@
 
 Top to bottom: a few plain headlines; the totals (live formulas over the Policy sheet);
 items by status; two charts (annual cost by category, average inventory investment by ABC
-class); breakdowns by ABC class, category and supplier (live SUMIF/COUNTIF formulas); the
+class); breakdowns by ABC class, category and supplier (live exact-match SUMPRODUCT formulas); the
 ten items that cost most a year; and what was read. The method, settings and cautions are
 on the "How it works" sheet, which the Summary points to.
 """
 
 from __future__ import annotations
 
-import re
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -45,6 +45,7 @@ _WIDTH = 9  # columns A..I
 _CHARS = 34 + 8 * 15
 _CHART_ROWS = 17
 _TOP = 10
+_TOP_LINE_CHARS = 16  # characters of text a 15-wide column holds on a line
 _CHART_GROUPS = 12
 
 TOTAL_LABELS: tuple[tuple[str, str, str], ...] = (
@@ -59,7 +60,7 @@ TOTAL_LABELS: tuple[tuple[str, str, str], ...] = (
     ("annual_total_cost", "Annual total cost (the four above)", "money"),
     ("annual_purchase_cost", "Annual purchase cost", "money"),
     ("average_inventory_value", "Average inventory value", "money"),
-    ("safety_stock_value", "Safety stock value", "money"),
+    ("safety_stock_value", "Safety stock value (at the price paid)", "money"),
     ("inventory_turns", "Inventory turns (per year)", "decimal1"),
     ("orders_per_year", "Orders per year, all items", "decimal1"),
     ("rounding_penalty", "Yearly cost of ordering in whole packs and minimums", "money"),
@@ -79,7 +80,13 @@ TOTAL_LABELS: tuple[tuple[str, str, str], ...] = (
     ("annual_saving", "Annual saving from the change", "money"),
     ("items_simulated", "Items back-tested in simulation", "count"),
     ("items_with_target_simulated", "Of those, with a service target", "count"),
-    ("items_meeting_target_in_simulation", "Meeting their target in simulation", "count"),
+    ("items_meeting_target_in_simulation", "Of those, at or above target in simulation", "count"),
+    ("items_below_target_in_simulation", "Of those, below target in simulation", "count"),
+    (
+        "items_clearly_below_target_in_simulation",
+        "Of those below, whole 95 % band below target",
+        "count",
+    ),
     ("items_short_in_simulation", "Short of their model's promise in simulation", "count"),
 )
 
@@ -109,7 +116,6 @@ BREAKDOWN: tuple[tuple[str, str, tuple[str, ...]], ...] = (
     ("Annual shortage cost", "money", ("annual_shortage_cost",)),
     ("Annual total cost", "money", ("annual_total_cost",)),
 )
-_SAFE_CRITERION = re.compile(r"[A-Za-z0-9][A-Za-z0-9 &,'_\-]*")
 
 
 @dataclass
@@ -137,7 +143,8 @@ def write_summary(ctx: Context, ws: Worksheet) -> None:
     row = _status(ctx, ws, row + 1)
     glance = row + 1
     row = glance + 1 + _CHART_ROWS
-    ws.set_h_pagebreaks([row])  # charts end page 1; the breakdowns start a page
+    # the charts have a page of their own, so no page break cuts through them
+    ws.set_h_pagebreaks([glance, row])
     abc = _breakdown(ctx, ws, row + 1, "By ABC class", "abc_class", abc=True)
     row = abc.last + 2 if abc else row + 1
     cat = _breakdown(ctx, ws, row + 1, "By category", "category")
@@ -206,14 +213,17 @@ def headlines(ctx: Context) -> list[tuple[str, str]]:
     simulated = finite(t.get("items_with_target_simulated"))
     if simulated:
         meets = int(finite(t.get("items_meeting_target_in_simulation")) or 0)
+        below = int(finite(t.get("items_below_target_in_simulation")) or 0)
+        clearly = int(finite(t.get("items_clearly_below_target_in_simulation")) or 0)
         short = int(finite(t.get("items_short_in_simulation")) or 0)
         out.append(
             (
-                f"Back-test: in simulation on their own demand, {meets} of "
-                f"{int(simulated)} item{'s' if simulated != 1 else ''} meet their service "
-                f"target; {short} fall short of what their model promises (see "
+                f"Back-test: of {int(simulated)} item{'s' if simulated != 1 else ''} "
+                f"simulated on their own demand, {meets} reach their service target, "
+                f"{below} fall below it ({clearly} by more than the simulation's 95 % "
+                f"band); {short} fall short of what their model promises (see "
                 f"'{ctx.names['warnings']}').",
-                INK if short else GOOD,
+                INK if below else GOOD,
             )
         )
     seasons = summary_line(t, ctx.currency)  # planning with seasons, back-tested
@@ -277,6 +287,15 @@ def _total_formula(ctx: Context, key: str) -> tuple[str, float] | None:
             return None
         nums = column(res, SUM_TOTALS[key])
         return f"=SUM({rng})", float(np.nansum(nums))
+    if key == "safety_stock_value":
+        ss_rng, c_rng = _policy_range(ctx, "safety_stock"), _policy_range(ctx, "unit_price")
+        if ss_rng is None or c_rng is None:
+            return None
+        ss, c = column(res, "safety_stock"), column(res, "unit_price")
+        with np.errstate(invalid="ignore"):
+            value = float(np.nansum(np.where(ss > 0, ss, 0.0) * c * _planned(ctx)))
+        # safety stock above 0 times the price paid; text and blank cells count as 0
+        return f"=SUMPRODUCT(--({ss_rng}>0),{ss_rng},{c_rng})", value
     status_rng = _policy_range(ctx, "status")
     if status_rng is None:
         return None
@@ -380,29 +399,16 @@ def _status(ctx: Context, ws: Worksheet, row: int) -> int:
 # ---------------------------------------------------------------------------
 
 
-def _safe_criteria(names: list[str]) -> set[str]:
-    """Group names a SUMIF criterion matches exactly in every spreadsheet program.
+def _exact(grp_rng: str, crit: str) -> str:
+    """1 for each row of grp_rng whose text is exactly crit (case and every character
+    counted), else 0: an array for SUMPRODUCT.
 
-    Excluded: wildcard, comparison and regular-expression characters, names that read as
-    a number or a truth value, and names equal to another one but for case (SUMIF ignores
-    case, the breakdown does not).
+    EXACT compares text as it is, so no character of a group name is read as a pattern or
+    a comparison, unlike a SUMIF criterion (where "." "(" "*" "?" "~" or a leading "<" can
+    be a wildcard, a regular expression or an operator, depending on the program and its
+    settings). EXACT and SUMPRODUCT are in OpenFormula (ISO/IEC 26300-2) and in Excel.
     """
-    lower: dict[str, int] = {}
-    for n in names:
-        lower[n.lower()] = lower.get(n.lower(), 0) + 1
-    out = set()
-    for n in names:
-        if not _SAFE_CRITERION.fullmatch(n) or n != n.strip() or lower[n.lower()] > 1:
-            continue
-        if n.upper() in ("TRUE", "FALSE"):
-            continue
-        try:
-            float(n)
-            continue
-        except ValueError:
-            pass
-        out.add(n)
-    return out
+    return f"--EXACT({grp_rng},{crit})"
 
 
 def _breakdown(
@@ -430,7 +436,6 @@ def _breakdown(
     if not names:
         ctx.w.text(ws, row, 0, "No planned item has a value here.", italic=True, font_color=MUTED)
         return Table(row, row - 1, title)
-    safe = _safe_criteria([n for n in names if n])
     grp_rng = _policy_range(ctx, key)
     status_rng = _policy_range(ctx, "status")
     first = row
@@ -438,8 +443,10 @@ def _breakdown(
     line = {"bottom": 1, "bottom_color": LIGHT_RULE}
     for n in names:
         ctx.w.text(ws, row, 0, n or blank, **line)
-        live = bool(n) and n in safe and grp_rng is not None and status_rng is not None
-        crit = xl_rowcol_to_cell(row, 0, col_abs=True)
+        live = grp_rng is not None and status_rng is not None
+        # the group's own cell, or "" for the row of items with the column left blank
+        crit = xl_rowcol_to_cell(row, 0, col_abs=True) if n else '""'
+        match = _exact(str(grp_rng), crit)
         for c, (t, kind, keys) in enumerate(BREAKDOWN, start=1):
             props = {**ctx.num_props(kind), **line}
             value = sums[n].get(t, 0.0)
@@ -457,13 +464,10 @@ def _breakdown(
                 continue
             formula = None
             if live and kind == "count":
-                formula = (
-                    f"=COUNTIF({grp_rng},{crit})-COUNTIFS({grp_rng},{crit},"
-                    f'{status_rng},"{contract.STATUS_SKIPPED}")'
-                )
+                formula = f'=SUMPRODUCT({match},--({status_rng}<>"{contract.STATUS_SKIPPED}"))'
             elif live and all(k in ctx.policy_cols for k in keys):
                 formula = "=" + "+".join(
-                    f"SUMIF({grp_rng},{crit},{_policy_range(ctx, k)})" for k in keys
+                    f"SUMPRODUCT({match},{_policy_range(ctx, k)})" for k in keys
                 )
             if formula is not None:
                 ctx.w.formula(ws, row, c, formula, value, **props)
@@ -532,6 +536,7 @@ def _top_items(ctx: Context, ws: Worksheet, row: int) -> int:
         ctx.w.text(ws, row, 0, "No planned items.", italic=True, font_color=MUTED)
         return row + 1
     head = ctx.header_props()
+    ws.set_row(row, 32)  # two-line headers
     ctx.w.text(ws, row, 0, "Rank", **head)
     for c, (t, _k, _kind) in enumerate(_TOP_COLUMNS, start=1):
         ctx.w.text(ws, row, c, t, **head)
@@ -539,13 +544,17 @@ def _top_items(ctx: Context, ws: Worksheet, row: int) -> int:
     df = ctx.results
     line = {"bottom": 1, "bottom_color": LIGHT_RULE}
     for rank, i in enumerate(idx, start=1):
-        ctx.w.number(ws, row, 0, rank, num_format="0", align="left", **line)
+        ctx.w.number(ws, row, 0, rank, num_format="0", align="left", valign="top", **line)
+        lines = 1
         for c, (_t, key, kind) in enumerate(_TOP_COLUMNS, start=1):
             if kind in ("text", "code"):
-                ctx.w.text(ws, row, c, texts(df.iloc[[i]], key)[0], num_format="@", **line)
+                # wrapped, and the row made tall enough, so no name is cut off
+                text = texts(df.iloc[[i]], key)[0]
+                ctx.w.text(ws, row, c, text, num_format="@", text_wrap=True, valign="top", **line)
+                lines = max(lines, math.ceil(len(text or "") / _TOP_LINE_CHARS))
                 continue
             value = column(df.iloc[[i]], key)[0]
-            props = {**ctx.num_props(kind), **line}
+            props = {**ctx.num_props(kind), **line, "valign": "top"}
             pc, pr = ctx.policy_cols.get(key), ctx.policy_row_of.get(int(i))
             if np.isfinite(value) and pc is not None and pr is not None:
                 ctx.w.formula(
@@ -553,6 +562,8 @@ def _top_items(ctx: Context, ws: Worksheet, row: int) -> int:
                 )
             else:
                 ctx.w.number(ws, row, c, value, **props)
+        if lines > 1:
+            ws.set_row(row, 15 * lines + 1)
         row += 1
     return row
 
@@ -645,7 +656,8 @@ def _charts(ctx: Context, ws: Worksheet, row: int, cat: Table | None, abc: Table
                 "categories": [sheet, abc.first, 0, abc.last, 0],
                 "values": [sheet, abc.first, 4, abc.last, 4],
                 "fill": {"color": SERIES_COLOURS[0]},
-                "data_labels": {"value": True, "num_format": ctx.money.replace(".00", "")},
+                # no data labels: some programs add the series and class names to each,
+                # cluttering the bars; the figures are in the ABC table below
                 "gap": 80,
             }
         )
