@@ -26,7 +26,11 @@ from xlpolicy.writing.sheets import write_generated_workbook  # noqa: E402
 
 RUN_DATE = dt.date(2024, 12, 30)  # the demo shop's stock count
 #: picture name -> text that starts the page to show (the sheet's title)
-PAGES = {"summary.png": "Stock policy for", "reorder.png": "Reorder now, run"}
+PAGES = {
+    "summary.png": "Stock policy for",
+    "reorder.png": "Reorder now, run",
+    "season-plan.png": "Year ahead: the policy month by month",
+}
 DPI = 70
 
 

@@ -88,6 +88,12 @@ TOTAL_LABELS: tuple[tuple[str, str, str], ...] = (
         "count",
     ),
     ("items_short_in_simulation", "Short of their model's promise in simulation", "count"),
+    ("season_backtest_items", "Season-planned items replayed on history", "count"),
+    ("season_backtest_target", "Their average service target", "percent"),
+    ("season_backtest_service", "No-shortage cycles, with the season", "percent"),
+    ("season_backtest_flat_service", "No-shortage cycles, year-round average", "percent"),
+    ("season_backtest_stock_value", "Average stock value, with the season", "money"),
+    ("season_backtest_flat_stock_value", "Average stock value, year-round average", "money"),
 )
 
 SUM_TOTALS = {
