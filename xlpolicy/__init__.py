@@ -2,7 +2,7 @@
 computed from a spreadsheet of items and sales history.
 
 The Python API mirrors the command line: :func:`plan`, :func:`check`, :func:`template`,
-and :func:`analyse` (read, check and plan without writing).
+and :func:`analyse` (read, check and plan without writing), which returns a :class:`Report`.
 """
 
 __version__ = "0.1.0"
@@ -18,10 +18,12 @@ from .api import (
     template,
 )
 from .problems import Problem, Severity, UnusableWorkbook
+from .report import Report
 
 __all__ = [
     "PlanResult",
     "Problem",
+    "Report",
     "Severity",
     "UnusableWorkbook",
     "UsageError",

@@ -86,10 +86,10 @@ def _overrides(
     """Check command-line overrides of the Settings; raise UsageError if one is bad."""
     out: dict[str, Any] = _cap_overrides(**caps)
     if history is not None:
-        h = Path(history).expanduser()
-        if not h.is_file():
+        history_path = Path(history).expanduser()
+        if not history_path.is_file():
             raise UsageError(f"the history file {history} does not exist")
-        out["history_file"] = str(h.resolve())
+        out["history_file"] = str(history_path.resolve())
     if service_measure is not None:
         m = parse_measure(service_measure)
         if m is None:
@@ -198,7 +198,7 @@ def analyse(
     history: str | Path | None = None,
     settings: dict[str, Any] | None = None,
     simulate: bool | None = None,
-    replications: int | None = None,
+    replications: int | str | None = None,
     lost_sales: bool = False,
 ) -> Report:
     """Read, check and plan a workbook without writing anything.
@@ -288,7 +288,7 @@ def plan(
     history: str | Path | None = None,
     settings: dict[str, Any] | None = None,
     simulate: bool | None = None,
-    replications: int | None = None,
+    replications: int | str | None = None,
     lost_sales: bool = False,
 ) -> PlanResult:
     """Plan every item in the workbook at ``path`` and write the results.

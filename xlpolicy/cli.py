@@ -22,7 +22,7 @@ from .contract import SERVICE_MEASURES
 from .problems import Problem, Severity, UnusableWorkbook
 from .report import Report
 
-_SEVERITY_STYLE = {
+_SEVERITY_STYLE: dict[Severity, dict[str, Any]] = {
     Severity.FATAL: {"fg": "red", "bold": True},
     Severity.ERROR: {"fg": "red"},
     Severity.WARNING: {"fg": "yellow"},

@@ -447,7 +447,7 @@ def _history_starts(
     if not len(given):
         return start
     dated = bool(hist.labels) and isinstance(hist.labels[0], _dt.date)
-    ordinals = np.array([d.toordinal() for d in hist.labels]) if dated else None
+    ordinals = np.array([d.toordinal() for d in hist.labels] if dated else [], dtype=np.int64)
     text_labels = {_label(x): k for k, x in enumerate(hist.labels)}
     for i in given:
         v = raw[i]

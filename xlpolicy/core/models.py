@@ -100,6 +100,10 @@ class LeadTimeDemandModel(ABC):
     mean: np.ndarray
     sd: np.ndarray
 
+    @abstractmethod
+    def __init__(self, mean: ArrayLike, sd: ArrayLike) -> None:
+        """A model per item from its lead-time demand mean and standard deviation."""
+
     def item_model_names(self) -> np.ndarray:
         """The model name used for each item (a model may fall back to another per item)."""
         return np.full(np.shape(self.mean), self.name, dtype=object)

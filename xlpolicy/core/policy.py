@@ -16,6 +16,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass, fields, replace
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -503,7 +504,8 @@ def compute_policy(
     out = pd.DataFrame(cols, index=pd.RangeIndex(n), columns=list(POLICY_COLUMNS))
     unknown = ~known
     if unknown.any():  # say which name was not understood, as the user wrote it
-        given = pd.Series(full.model[unknown], dtype=object).astype(str).str.strip()
+        model = np.broadcast_to(np.asarray(inp.model, dtype=object), (n,))  # as full.model
+        given = pd.Series(model[unknown], dtype=object).astype(str).str.strip()
         out.loc[unknown, "model"] = given.to_numpy(dtype=object)
     return out
 
@@ -665,7 +667,7 @@ def _per_distinct(values: np.ndarray, f: Callable[[np.ndarray], np.ndarray]) -> 
 
 def _broadcast_inputs(inp: PolicyInputs, n: int) -> PolicyInputs:
     """The inputs with every per-item field as a length-n array (scalars spread out)."""
-    cols: dict[str, object] = {}
+    cols: dict[str, Any] = {}  # each field's value, of that field's type
     for f in fields(inp):
         val = getattr(inp, f.name)
         if f.name == "days_per_period" or val is None:
@@ -680,7 +682,7 @@ def _broadcast_inputs(inp: PolicyInputs, n: int) -> PolicyInputs:
             cols[f.name] = np.broadcast_to(np.asarray(val, dtype=object), (n,)).copy()
         else:
             cols[f.name] = np.broadcast_to(np.asarray(val, dtype=float), (n,)).copy()
-    return PolicyInputs(**cols)  # type: ignore[arg-type]
+    return PolicyInputs(**cols)
 
 
 def _policy_group(
@@ -694,7 +696,7 @@ def _policy_group(
 
 def _policy_group_columns(
     inp: PolicyInputs, model_factory: ModelFactory, usable: np.ndarray | None = None
-) -> dict[str, object]:
+) -> dict[str, np.ndarray | float]:
     """The columns of :func:`_policy_group` (arrays, or a scalar for a whole column)."""
     D = np.asarray(inp.annual_demand, dtype=float).reshape(-1)
     n = D.shape[0]

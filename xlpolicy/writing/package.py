@@ -496,7 +496,7 @@ class _StyleMerger:
         if numfmts is not None:
             for n in numfmts.findall(_q(_MAIN, "numFmt")):
                 self.user_numfmts[int(n.get("numFmtId", "0"))] = n.get("formatCode", "")
-        self.code_to_id = {}
+        self.code_to_id: dict[str, int] = {}
         for num_id, code in self.user_numfmts.items():
             self.code_to_id.setdefault(code, num_id)
         self.added_xfs = 0
@@ -1191,6 +1191,8 @@ def _plan(user: _Package, gen: _Package) -> _Plan:
     # sheets by id, the calculation chain, is dropped whenever sheets are removed
     max_sheet_id = max([0] + [s.sheet_id for s in wb.sheets])
     for s in gen_wb.sheets:
+        if s.part is None:  # refused above already
+            raise _Unexpected(f"generated sheet {s.name} has no part")
         rid = new_rid()
         max_sheet_id += 1
         attrs = {"name": s.name, "sheetId": str(max_sheet_id)}
@@ -1238,7 +1240,10 @@ def _plan(user: _Package, gen: _Package) -> _Plan:
             view.set("firstSheet", "0")
 
     replaced_parts[wb.part] = _serialize(wb.tree)
-    replaced_parts[user.name("[Content_Types].xml")] = _serialize(wb.ct_tree)
+    ct_part = user.name("[Content_Types].xml")
+    if ct_part is None:  # read at the start, so always there
+        raise _Unexpected("part [Content_Types].xml is missing")
+    replaced_parts[ct_part] = _serialize(wb.ct_tree)
     rels_bytes = _serialize(wb.rels_tree)
     if user.has(wb.rels_part):
         replaced_parts[wb.rels_part] = rels_bytes
@@ -1325,14 +1330,16 @@ def _deflate_in_threads(dst: IO[bytes], pool: concurrent.futures.Executor | None
         return
     current = getattr(dst, "_compressor", None)
     if current is not None and type(current).__name__ == "Compress":
-        dst._compressor = _ParallelDeflate(pool, _GENERATED_LEVEL)
+        # private zipfile attribute (checked just above), unknown to the type stubs
+        dst._compressor = _ParallelDeflate(pool, _GENERATED_LEVEL)  # type: ignore[attr-defined]
 
 
 def _zip_info(name: str, like: zipfile.ZipInfo | None) -> zipfile.ZipInfo:
     if like is None:
         info = zipfile.ZipInfo(name, date_time=(1980, 1, 1, 0, 0, 0))
         info.compress_type = zipfile.ZIP_DEFLATED
-        info._compresslevel = _GENERATED_LEVEL  # zipfile reads it when the part is opened
+        # private, unknown to the type stubs; zipfile reads it when the part is opened
+        info._compresslevel = _GENERATED_LEVEL  # type: ignore[attr-defined]
         return info
     info = zipfile.ZipInfo(name, date_time=like.date_time)
     info.compress_type = (
@@ -1342,7 +1349,7 @@ def _zip_info(name: str, like: zipfile.ZipInfo | None) -> zipfile.ZipInfo:
     return info
 
 
-_DAMAGED = (
+_DAMAGED: tuple[type[BaseException], ...] = (
     OSError,
     zipfile.BadZipFile,
     *fastzlib.ERRORS,
@@ -1350,6 +1357,8 @@ _DAMAGED = (
     ValueError,
     NotImplementedError,
 )
+#: What reading a local file header raises when it is damaged.
+_DAMAGED_HEADER: tuple[type[BaseException], ...] = (*_DAMAGED, struct.error)
 _LOCAL_HEADER = struct.Struct("<4s22xHH")  # signature, ..., name length, extra length
 
 
@@ -1416,7 +1425,9 @@ def _copy_raw(
     user's file, for that check. Python's zipfile has no public call for this, so its
     writer's bookkeeping is done here as its own ``write`` does it.
     """
-    fp = zin.fp
+    fp, out_fp = zin.fp, zout.fp
+    if fp is None or out_fp is None:  # _can_copy_raw saw both open
+        raise _Unexpected(f"its part {info.filename} cannot be read (the file is closed)")
     try:
         fp.seek(info.header_offset)
         sig, n_name, n_extra = _LOCAL_HEADER.unpack(fp.read(_LOCAL_HEADER.size))
@@ -1424,18 +1435,19 @@ def _copy_raw(
             raise zipfile.BadZipFile("bad local file header")
         start = info.header_offset + _LOCAL_HEADER.size + n_name + n_extra
         fp.seek(start)
-    except (*_DAMAGED, struct.error) as exc:
+    except _DAMAGED_HEADER as exc:
         raise _Unexpected(f"its part {info.filename} cannot be read ({exc})") from exc
     out = zipfile.ZipInfo(target.filename, date_time=target.date_time)
     out.compress_type = info.compress_type
     out.external_attr = target.external_attr
     out.CRC, out.file_size, out.compress_size = info.CRC, info.file_size, info.compress_size
     zip64 = max(info.file_size, info.compress_size) > zipfile.ZIP64_LIMIT
-    zout._writecheck(out)
-    zout.fp.seek(zout.start_dir)
-    out.header_offset = zout.fp.tell()
-    zout._didModify = True
-    zout.fp.write(out.FileHeader(zip64))
+    # private zipfile API, as ZipFile.write uses it (see _can_copy_raw); not in the stubs
+    zout._writecheck(out)  # type: ignore[attr-defined]
+    out_fp.seek(zout.start_dir)
+    out.header_offset = out_fp.tell()
+    zout._didModify = True  # type: ignore[attr-defined]
+    out_fp.write(out.FileHeader(zip64))
     left = info.compress_size
     while left > 0:
         try:
@@ -1445,15 +1457,17 @@ def _copy_raw(
         except _DAMAGED as exc:
             raise _Unexpected(f"its part {info.filename} cannot be read ({exc})") from exc
         left -= len(chunk)
-        zout.fp.write(chunk)
-    zout.start_dir = zout.fp.tell()
+        out_fp.write(chunk)
+    zout.start_dir = out_fp.tell()
     zout.filelist.append(out)
     zout.NameToInfo[out.filename] = out
     return start
 
 
-def _check_raw(fp: IO[bytes], info: zipfile.ZipInfo, start: int) -> None:
+def _check_raw(fp: IO[bytes] | None, info: zipfile.ZipInfo, start: int) -> None:
     """Inflate a part's data at ``start`` of ``fp``; _Unexpected unless its CRC and size hold."""
+    if fp is None:  # the user's file was closed under us
+        raise _Unexpected(f"its part {info.filename} cannot be read (the file is closed)")
     deflated = info.compress_type == zipfile.ZIP_DEFLATED
     inflate = fastzlib.decompressobj() if deflated else None  # ISA-L where installed
     crc, size, left = 0, 0, info.compress_size
