@@ -120,7 +120,7 @@ def _cap_overrides(
     orders_cap: float | str | None = None,
     exchange_curve: bool | None = None,
 ) -> dict[str, Any]:
-    """The portfolio overrides (issue 4, parts 6 and 7): a cap, and the exchange curve."""
+    """The portfolio overrides: a cap on stock value or orders, and the exchange curve."""
     out: dict[str, Any] = {}
     for key, value, what in (
         ("stock_budget", stock_budget, "stock budget"),

@@ -409,7 +409,7 @@ def _run(fn: Any, bar: _Bar | None = None) -> Any:
         sys.exit(1)
     except OSError as exc:
         name = getattr(exc, "filename", None) or ""
-        msg = getattr(exc, "user_message", None) or (
+        msg = (
             f"{name}: {exc.strerror or exc}. If the file is open in another program, close it "
             "and try again."
         )

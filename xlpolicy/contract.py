@@ -2,7 +2,7 @@
 
 This module is the single source of truth that the reader, the validator, the template
 writer, the output writers and the README tables are built from, so they cannot drift
-apart. Names follow ../shared/contract.md.
+apart: a sheet, column, setting or output key is named here and nowhere else.
 """
 
 from __future__ import annotations
@@ -503,7 +503,7 @@ SETTINGS: tuple[Setting, ...] = (
         "yes for up to 20,000 items (each point is a whole policy calculation).",
         ("tradeoff curve", "service curve"),
     ),
-    # ABC classes by annual spend, and a service target per class (issue 4, part 4)
+    # ABC classes by annual spend, and a service target per class
     Setting(
         "abc_share_a",
         "ABC share A",
@@ -578,8 +578,6 @@ CLASS_TARGET_SETTINGS: dict[str, str] = {
     "B": "service_target_b",
     "C": "service_target_c",
 }
-
-SETTING_BY_KEY = {s.key: s for s in SETTINGS}
 
 
 # ---------------------------------------------------------------------------

@@ -41,8 +41,8 @@ from .problems import ProblemLog, Severity
 from .reading import InputData
 from .report import REORDER_KEYS, Report
 
-#: Fewer non-zero periods than this gives an unreliable standard deviation (field notes:
-#: "fewer than ~8 non-zero periods"; common practice).
+#: Fewer non-zero periods than this gives an unreliable standard deviation (common
+#: practice: about eight non-zero periods at the least).
 MIN_NONZERO_PERIODS = 8
 
 
@@ -900,7 +900,7 @@ def _totals(results: pd.DataFrame, reorder: pd.DataFrame) -> dict[str, float]:
 def _portfolio(
     inp: PolicyInputs, pol: pd.DataFrame, settings: dict[str, Any], log: ProblemLog
 ) -> tuple[pd.DataFrame, dict[str, Any]]:
-    """Decisions across all items (issue 4, parts 6 and 7): a cap, then the exchange curve.
+    """Decisions across all items: a cap on stock value or orders, then the exchange curve.
 
     A stock budget or an orders cap from Settings (or the command line) replaces the policy
     by the least-cost one that meets it; the unconstrained order quantity, reorder point and

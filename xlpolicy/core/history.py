@@ -45,7 +45,7 @@ SEASON_REPEAT_R = 0.5  # ... and, with two years or more, year-1 vs later profil
 OUTLIER_K = 5.0  # threshold = median + OUTLIER_K * 1.4826 * MAD
 OUTLIER_SD_DROP = 0.30  # removing the value must lower the sd by more than this fraction
 NORMAL_MIN_MEAN = 20.0  # normal model needs at least this many units over the lead time
-NORMAL_MAX_CV = 0.5  # ... and sd/mean over the lead time below this (field notes)
+NORMAL_MAX_CV = 0.5  # ... and sd/mean over the lead time below this (common practice)
 DISPERSION_ALPHA = 0.05  # index-of-dispersion test level (Poisson vs over-dispersed)
 
 _MAD_TO_SD = 1.4826  # 1 / Phi^-1(0.75): MAD -> sd for normal data (common practice)

@@ -2,11 +2,11 @@
 
 The policy code talks to a model only through :class:`LeadTimeDemandModel`. Four models
 are here, each built from the mean and sd of lead-time demand: normal, Poisson (slow
-movers), negative binomial (over-dispersed counts) and gamma (skewed, continuous); see the
-field notes, "When demand is not normal" (Axsäter, "Inventory Control", 3rd ed. 2015, ch. 5
-for Poisson lead-time demand). Every method works on whole columns at once (numpy arrays,
-broadcast against the model's own arrays); missing or invalid parameters give NaN, never a
-warning or an exception.
+movers), negative binomial (over-dispersed counts) and gamma (skewed, continuous), each
+matched to that mean and, where it has a second parameter, that sd (Axsäter, "Inventory
+Control", 3rd ed. 2015, ch. 5 for Poisson lead-time demand). Every method works on whole
+columns at once (numpy arrays, broadcast against the model's own arrays); missing or invalid
+parameters give NaN, never a warning or an exception.
 """
 
 from __future__ import annotations

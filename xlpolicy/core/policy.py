@@ -198,9 +198,10 @@ def round_order_qty(
     The result is a whole multiple of the pack size, at least one pack and at least the
     minimum order (the minimum raised to a pack multiple). Of the pack multiples just below
     and just above q (each raised to that floor) the one with the lower D S / Q + H Q / 2 is
-    taken; a tie goes to the smaller. The cost curve is flat near its optimum, so the cost of
-    rounding is small (field notes). pack must be a positive whole number; invalid or missing
-    inputs give NaN.
+    taken; a tie goes to the smaller. The cost curve is flat near its optimum (an order
+    quantity k times the EOQ costs (k + 1/k) / 2 times as much; Harris 1913), so the cost of
+    rounding is small. pack must be a positive whole number; invalid or missing inputs give
+    NaN.
     """
     lo, hi, ok = _order_candidates(q, pack, moq)
     d_a, s_a, h_a = (np.asarray(x, dtype=float) for x in (D, S, H))
@@ -421,7 +422,7 @@ def compute_policy(
 ) -> pd.DataFrame:
     """Compute the (Q, R) policy and its annual costs for every item, in input row order.
 
-    See the module docstring and the project's field notes for the method. Achieved
+    See the module docstring for the method and its sources. Achieved
     cycle_service and fill_rate are those of the final whole-unit (Q, R) under the model.
     Items that cannot be planned (D <= 0, a missing or invalid input, an unknown measure, a
     target outside (0, 1), a missing shortage cost) get NaN numbers; their input columns and

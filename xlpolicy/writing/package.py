@@ -499,7 +499,6 @@ class _StyleMerger:
         self.code_to_id: dict[str, int] = {}
         for num_id, code in self.user_numfmts.items():
             self.code_to_id.setdefault(code, num_id)
-        self.added_xfs = 0
 
     def _container(self, name: str) -> etree._Element:
         if name not in self._containers:
