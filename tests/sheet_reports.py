@@ -1,7 +1,8 @@
 """Hand-built Reports for the sheet tests (test helper, not a test module).
 
 The items, costs and names are invented for these tests only. Each planned item's numbers
-are made self-consistent here with the trade's formulas (field notes: ordering D S / Q,
+are made self-consistent here with the trade's formulas (Silver, Pyke & Peterson 1998,
+ch. 7: ordering D S / Q,
 cycle holding i c Q / 2, safety holding i c (R - mu), shortage p D / Q n, purchase D c),
 so a check that the sheets reproduce them can fail if the writer gets a formula wrong.
 """

@@ -1,4 +1,4 @@
-"""ABC classes with cut-offs from Settings, and a service target per class (issue 4, part 4).
+"""ABC classes with cut-offs from Settings, and a service target per class.
 
 References: the Pareto (ABC) split by annual spend with 80 / 15 / 5 % of spend is common
 practice (Silver, Pyke & Peterson, Inventory Management and Production Planning and

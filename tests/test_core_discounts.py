@@ -1,4 +1,4 @@
-"""All-units quantity discounts (issue 4, part 1): the core, against textbook examples and
+"""All-units quantity discounts: the core, against textbook examples and
 an independent brute-force search over every allowed order quantity.
 
 Method: Nahmias, Production and Operations Analysis (ch. 4, all-units discounts) and Chopra

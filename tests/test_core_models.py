@@ -266,7 +266,7 @@ def test_history_statistics_single_row_and_empty() -> None:
 
 
 def test_lead_time_demand_constant_lead_time() -> None:
-    # sigma_L = sigma_d sqrt(L) for a fixed lead time (field notes; any inventory text)
+    # sigma_L = sigma_d sqrt(L) for a fixed lead time (common practice; any inventory text)
     mu, sigma = lead_time_demand(
         np.array([2500.0]), np.array([500.0]), np.array([2.0]), np.array([0.0])
     )

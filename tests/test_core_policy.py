@@ -517,7 +517,7 @@ def test_annual_costs_add_up() -> None:
         ]
     ].sum(axis=1)
     np.testing.assert_allclose(out["annual_total_cost"], parts, rtol=1e-12)
-    # shortage cost counted where p is given: p * D / Q * expected units short (field notes)
+    # shortage cost where p is given: p * D / Q * expected units short (Hadley & Whitin 1963)
     exp = 4.0 * out["orders_per_year"][0] * out["expected_units_short_per_cycle"][0]
     assert out["annual_shortage_cost"][0] == pytest.approx(exp)
     assert out["annual_shortage_cost"][1] == 0.0

@@ -1,4 +1,4 @@
-"""Demand as real histories have it, through the whole planner (issue 3).
+"""Demand as real histories have it (slow, lumpy, new, seasonal), through the whole planner.
 
 Histories are drawn from known distributions with a seeded generator; the checks are
 against the generating family (the model rule should recover it) and against

@@ -1,4 +1,4 @@
-"""Periodic review (issue 4, part 2): order-up-to levels over the protection interval T + L.
+"""Periodic review: order-up-to levels over the protection interval T + L.
 
 References: Silver, Pyke & Peterson, Inventory Management and Production Planning and
 Scheduling, 3rd ed., 1998, ch. 7 (the (R, S) system); Chopra & Meindl, Supply Chain

@@ -74,7 +74,10 @@ class Independent:
         return self.sd[k] * (stats.norm.pdf(z) - z * stats.norm.sf(z))
 
     def cost(self, k: int, q: float, r: float) -> float:
-        """Ordering + cycle holding + safety holding + shortage (field notes)."""
+        """Ordering + cycle holding + safety holding + shortage.
+
+        Silver, Pyke & Peterson 1998, ch. 7.
+        """
         i = self.inp
         D, S, H = i.annual_demand[k], i.order_cost[k], i.holding_rate[k] * i.unit_cost[k]
         p = i.shortage_cost[k]

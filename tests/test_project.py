@@ -111,3 +111,26 @@ def test_code_is_ruff_clean():
     ruff = shutil.which("ruff") or str(Path(sys.executable).parent / "ruff")
     proc = subprocess.run([ruff, "check", str(REPO)], capture_output=True, text=True)
     assert proc.returncode == 0, proc.stdout + proc.stderr
+
+
+def test_code_type_checks():
+    # mypy is in the [test] extra; the settings (which libraries are taken as untyped) are
+    # in pyproject.toml's [tool.mypy]. A type error anywhere in the package fails here.
+    pytest.importorskip("mypy", reason="mypy is installed with the [test] extra")
+    proc = subprocess.run(
+        [sys.executable, "-m", "mypy", "xlpolicy"], cwd=REPO, capture_output=True, text=True
+    )
+    assert proc.returncode == 0, proc.stdout + proc.stderr
+
+
+def test_the_package_exports_what_its_api_returns():
+    # py.typed promises users typed names for what the API hands back
+    import typing
+
+    import xlpolicy
+    from xlpolicy.report import Report
+
+    assert (REPO / "xlpolicy" / "py.typed").exists()
+    assert xlpolicy.Report is Report and "Report" in xlpolicy.__all__
+    assert typing.get_type_hints(xlpolicy.analyse)["return"] is Report
+    assert typing.get_type_hints(xlpolicy.plan)["return"] is xlpolicy.PlanResult

@@ -1,6 +1,6 @@
 """The purchaser's reorder list and the owner's today-against-recommended comparison.
 
-Rules checked (common practice for continuous review, field notes): order when the
+Rules checked (common practice for continuous review): order when the
 inventory position (on hand + on order - backordered) is at or below the reorder point,
 a whole number of order quantities that lifts the position above it. Today's policy is
 costed with the same formulas as the recommended one (checked here against scipy.stats

@@ -1,7 +1,8 @@
 """The 'Today vs plan' sheet: today's policy against the recommended one.
 
-Today's cost uses the same yearly cost formulas as the recommended one (field notes:
-ordering D S / Q, holding i c (Q/2 + R - mu), shortage p D / Q n); the invented report in
+Today's cost uses the same yearly cost formulas as the recommended one (Silver, Pyke &
+Peterson 1998, ch. 7: ordering D S / Q, holding i c (Q/2 + R - mu), shortage p D / Q n); the
+invented report in
 sheet_reports.py costs today's policy with them independently of the writer.
 """
 

@@ -1,6 +1,6 @@
 """The Policy sheet's live formulas: cached results, re-evaluation, fallbacks, functions.
 
-References: the cost formulas are the trade's (field notes; Harris 1913 / Wilson 1934 for
+References: the cost formulas are the trade's (common practice; Harris 1913 / Wilson 1934 for
 the EOQ; Silver, Pyke & Peterson 1998 for the (Q, R) costs and the fill rate
 1 - n(R)/Q). xlsxwriter stores a formula's cached result in the cell's <v> element, which
 openpyxl returns with data_only=True (openpyxl docs, "Simple usage"; from memory). The

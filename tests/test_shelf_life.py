@@ -1,4 +1,4 @@
-"""Shelf life (issue 4, part 3): Q capped at the demand expected over the usable life.
+"""Shelf life: Q capped at the demand expected over the usable life.
 
 Checks against the EOQ cost formula C(Q) = D S / Q + H Q / 2 (Harris 1913; common practice)
 and a brute-force search over every allowed order quantity at or below the cap.

@@ -1,7 +1,7 @@
 """The back-test simulator (xlpolicy.core.simulate) against outside references.
 
 References: the analytic (Q, R) service formulas evaluated with scipy.stats (cycle service
-P(X <= R) and fill rate 1 - E[(X - R)^+] / Q, field notes; Silver, Pyke & Peterson,
+P(X <= R) and fill rate 1 - E[(X - R)^+] / Q: Silver, Pyke & Peterson,
 "Inventory Management and Production Planning and Scheduling", 3rd ed. 1998, ch. 7;
 Axsäter, "Inventory Control", 3rd ed. 2015, ch. 5 for Poisson lead-time demand); an
 independent discrete-event model of the same policy written with SimPy; brute-force
@@ -49,7 +49,7 @@ def _analytic(name: str, d: float, s: float, L: float, R: float, Q: float) -> tu
     """Cycle service and fill rate of (Q, R) by the textbook formulas, computed with scipy.
 
     Lead-time demand over L periods of independent demand: normal N(dL, L s^2), Poisson(dL),
-    gamma with mean dL and variance L s^2 (field notes, "When demand is not normal").
+    gamma with mean dL and variance L s^2 (matched moments; common practice).
     """
     mu, sig = d * L, s * math.sqrt(L)
     if name == "normal":

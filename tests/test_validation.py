@@ -329,7 +329,7 @@ def test_short_history_warns(tmp_path):
 
 
 def test_new_item_history_counts_from_its_first_sale(tmp_path):
-    # issue 3: a new item's history starts at its first sale, so it is not drowned in zeros
+    # a new item's history starts at its first sale, so it is not drowned in zeros
     hist = weekly_history(GOOD) | {"N": [0] * 48 + [9] * 12}
     p = workbook_with(tmp_path, [item_row("N")], history=hist)
     probs = problems_of(p)
@@ -401,7 +401,7 @@ def test_normal_model_forced_on_a_slow_mover_gets_a_warning(tmp_path):
 
 
 def test_shortage_cost_too_low_for_any_safety_stock(tmp_path):
-    # Hadley-Whitin: no solution when Q H / (p D) >= 1 (field notes); here p is tiny.
+    # Hadley & Whitin 1963: no solution when Q H / (p D) >= 1; here p is tiny.
     headers = BASE_HEADERS + ["Shortage cost"]
     rows = [item_row(c) + [50] for c in GOOD] + [item_row("X", cost=100, rate=0.3) + [0.01]]
     p = write_workbook(

@@ -99,10 +99,10 @@ def _overrides(
     """Check command-line overrides of the Settings; raise UsageError if one is bad."""
     out: dict[str, Any] = _cap_overrides(**caps)
     if history is not None:
-        h = Path(history).expanduser()
-        if not h.is_file():
+        history_path = Path(history).expanduser()
+        if not history_path.is_file():
             raise UsageError(f"the history file {history} does not exist")
-        out["history_file"] = str(h.resolve())
+        out["history_file"] = str(history_path.resolve())
     if service_measure is not None:
         m = parse_measure(service_measure)
         if m is None:
@@ -133,7 +133,7 @@ def _cap_overrides(
     orders_cap: float | str | None = None,
     exchange_curve: bool | None = None,
 ) -> dict[str, Any]:
-    """The portfolio overrides (issue 4, parts 6 and 7): a cap, and the exchange curve."""
+    """The portfolio overrides: a cap on stock value or orders, and the exchange curve."""
     out: dict[str, Any] = {}
     for key, value, what in (
         ("stock_budget", stock_budget, "stock budget"),
@@ -212,7 +212,7 @@ def analyse(
     history: str | Path | None = None,
     settings: dict[str, Any] | None = None,
     simulate: bool | None = None,
-    replications: int | None = None,
+    replications: int | str | None = None,
     lost_sales: bool = False,
     columns: dict[str, str] | None = None,
 ) -> Report:
@@ -308,7 +308,7 @@ def plan(
     history: str | Path | None = None,
     settings: dict[str, Any] | None = None,
     simulate: bool | None = None,
-    replications: int | None = None,
+    replications: int | str | None = None,
     lost_sales: bool = False,
     columns: dict[str, str] | None = None,
 ) -> PlanResult:

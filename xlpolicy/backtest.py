@@ -157,10 +157,8 @@ def run_backtest(
     horizon = int(max(n_cols, np.ceil(MIN_YEARS * ppy)))
     out = {k: np.full(len(idx), np.nan) for k in SIMULATION_RESULT_KEYS}
     source = np.full(len(idx), "", dtype=object)
-    common = dict(replications=runs, lost_sales=lost, periods_per_year=ppy)
-
     models = results.loc[idx, "model"].to_numpy(object).astype(str)
-    groups = []
+    groups: list[tuple[np.ndarray, BlockBootstrap | ModelDraws, str]] = []
     span = np.zeros(0)
     h = np.flatnonzero(from_hist)
     if h.size:
@@ -203,7 +201,9 @@ def run_backtest(
             order_cost=S[k],
             holding_cost=H[k],
             shortage_cost=p[k],
-            **common,
+            replications=runs,
+            lost_sales=lost,
+            periods_per_year=ppy,
         )
         c = dict(res.columns)
         if label == SOURCE_BOOTSTRAP:  # allow for the history's own length (see core)
@@ -221,7 +221,7 @@ def run_backtest(
         out["simulated_orders_per_year"][k] = c["orders_per_year"]
         out["simulated_annual_total_cost"][k] = c["annual_total_cost"]
         source[k] = np.where(np.isfinite(c["cycle_service"]), label, "")
-        if label == SOURCE_BOOTSTRAP:
+        if isinstance(src, BlockBootstrap):  # the same items' histories, replayed once
             rep = simulate_policy(
                 q[k],
                 r[k],
@@ -229,7 +229,9 @@ def run_backtest(
                 lsd[k],
                 HistoryReplay(src.matrix, src.start, src.model, src.mean, src.sd),
                 seed=rng,
-                **common,
+                replications=runs,
+                lost_sales=lost,
+                periods_per_year=ppy,
             )
             out["replayed_cycle_service"][k] = rep.columns["cycle_service"]
 
@@ -305,7 +307,7 @@ def run_backtest(
         if not sel.size:
             continue
         if is_hist:
-            src: Any = HistoryReplay(
+            shown: HistoryReplay | ModelDraws = HistoryReplay(
                 hist.matrix[rows[sel]],
                 demand["span_start"][idx][sel],
                 models[sel],
@@ -315,7 +317,7 @@ def run_backtest(
             first = demand["span_start"][idx][sel]
             what = "its own history, as it was"
         else:
-            src = ModelDraws(
+            shown = ModelDraws(
                 results.loc[idx, "model"].to_numpy(object)[sel],
                 num("demand_per_period")[sel],
                 num("demand_sd_per_period")[sel],
@@ -328,7 +330,7 @@ def run_backtest(
             r[sel],
             lt[sel],
             lsd[sel],
-            src,
+            shown,
             replications=1,
             seed=np.random.default_rng(seed + 1),
             lost_sales=lost,

@@ -25,7 +25,7 @@ from .problems import Problem, Severity, UnusableWorkbook
 from .report import Report
 from .writing.sheets import DEFAULT_SHEET_NAMES, SHEET_ORDER
 
-_SEVERITY_STYLE = {
+_SEVERITY_STYLE: dict[Severity, dict[str, Any]] = {
     Severity.FATAL: {"fg": "red", "bold": True},
     Severity.ERROR: {"fg": "red"},
     Severity.WARNING: {"fg": "yellow"},

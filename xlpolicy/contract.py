@@ -2,7 +2,7 @@
 
 This module is the single source of truth that the reader, the validator, the template
 writer, the output writers and the README tables are built from, so they cannot drift
-apart. Names follow ../shared/contract.md.
+apart: a sheet, column, setting or output key is named here and nowhere else.
 """
 
 from __future__ import annotations
@@ -667,7 +667,7 @@ SETTINGS: tuple[Setting, ...] = (
         "yes for up to 20,000 items (each point is a whole policy calculation).",
         ("tradeoff curve", "service curve"),
     ),
-    # ABC classes by annual spend, and a service target per class (issue 4, part 4)
+    # ABC classes by annual spend, and a service target per class
     Setting(
         "abc_share_a",
         "ABC share A",
@@ -757,8 +757,6 @@ SEASON_SETTINGS: tuple[Setting, ...] = (
 )
 #: Every setting a Settings sheet (or --set) may give.
 READ_SETTINGS: tuple[Setting, ...] = SETTINGS + SEASON_SETTINGS
-
-SETTING_BY_KEY = {s.key: s for s in READ_SETTINGS}
 
 
 # ---------------------------------------------------------------------------

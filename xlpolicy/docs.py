@@ -18,6 +18,7 @@ from __future__ import annotations
 import ast
 import re
 import sys
+from collections.abc import Callable
 from pathlib import Path
 
 from .contract import ITEM_COLUMNS, PERIODS_PER_YEAR, PRICE_BREAK_COLUMNS, READ_SETTINGS, Column
@@ -71,11 +72,16 @@ BLOCKS = {
 }
 
 
+def _filler(make: Callable[[], str]) -> Callable[[re.Match[str]], str]:
+    """What replaces one block: its opening line, ``make()``'s content, its closing line."""
+    return lambda m: m.group(1) + make() + "\n" + m.group(2)
+
+
 def render(text: str) -> str:
     """``text`` with every generated block replaced by its current content."""
     for name, make in BLOCKS.items():
         pattern = re.compile(rf"(<!-- generated:{name} -->\n).*?(<!-- end:{name} -->)", re.DOTALL)
-        text, n = pattern.subn(lambda m, make=make: m.group(1) + make() + "\n" + m.group(2), text)
+        text, n = pattern.subn(_filler(make), text)
         if n != 1:
             raise ValueError(f"block {name!r} found {n} times")
     return text

@@ -11,10 +11,14 @@ without it every function here is zlib's.
 from __future__ import annotations
 
 import zlib
+from types import ModuleType
 from typing import Any
 
+_fast: ModuleType | None
 try:
-    from isal import isal_zlib as _fast
+    from isal import isal_zlib
+
+    _fast = isal_zlib
 except ImportError:  # not installed: zlib does it all
     _fast = None
 

@@ -50,8 +50,8 @@ from .report import REORDER_KEYS, Report
 from .season_backtest import SEASON_BACKTEST_KEYS, compare_policies
 from .seasons import SeasonForecast, forecast_demand, season_notes, season_plan
 
-#: Fewer non-zero periods than this gives an unreliable standard deviation (field notes:
-#: "fewer than ~8 non-zero periods"; common practice).
+#: Fewer non-zero periods than this gives an unreliable standard deviation (common
+#: practice: about eight non-zero periods at the least).
 MIN_NONZERO_PERIODS = 8
 
 
@@ -537,7 +537,7 @@ def _history_starts(
     if not len(given):
         return start
     dated = bool(hist.labels) and isinstance(hist.labels[0], _dt.date)
-    ordinals = np.array([d.toordinal() for d in hist.labels]) if dated else None
+    ordinals = np.array([d.toordinal() for d in hist.labels] if dated else [], dtype=np.int64)
     text_labels = {_label(x): k for k, x in enumerate(hist.labels)}
     for i in given:
         v = raw[i]
@@ -1006,7 +1006,7 @@ def _totals(results: pd.DataFrame, reorder: pd.DataFrame) -> dict[str, float]:
 def _portfolio(
     inp: PolicyInputs, pol: pd.DataFrame, settings: dict[str, Any], log: ProblemLog
 ) -> tuple[pd.DataFrame, dict[str, Any]]:
-    """Decisions across all items (issue 4, parts 6 and 7): a cap, then the exchange curve.
+    """Decisions across all items: a cap on stock value or orders, then the exchange curve.
 
     A stock budget or an orders cap from Settings (or the command line) replaces the policy
     by the least-cost one that meets it; the unconstrained order quantity, reorder point and

@@ -8,6 +8,7 @@ show the same list, and tests can assert on sheet, cell and wording.
 from __future__ import annotations
 
 import re
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from enum import Enum
 from typing import Any
@@ -145,7 +146,7 @@ class ProblemLog:
         """Most severe first, then in the order found (stable)."""
         return sorted(self.problems, key=lambda p: p.severity.rank)
 
-    def __iter__(self):  # type: ignore[no-untyped-def]
+    def __iter__(self) -> Iterator[Problem]:
         return iter(self.problems)
 
     def __len__(self) -> int:

@@ -30,10 +30,10 @@ def _achieved(
 ) -> dict[str, np.ndarray]:
     """Service and yearly costs of whole-unit (Q, R) under a lead-time demand model.
 
-    Field notes: cycle service F(R); units short per cycle n(R) = E[(X - R)^+]; fill rate
-    1 - n(R)/Q; ordering D S/Q; cycle holding H Q/2; safety holding H (R - mu); shortage
-    p D/Q n(R) where p is given (NaN: none, cost 0); purchase D c; average inventory value
-    c (Q/2 + max(R - mu, 0)).
+    Silver, Pyke & Peterson (1998, ch. 7): cycle service F(R); units short per cycle
+    n(R) = E[(X - R)^+]; fill rate 1 - n(R)/Q; ordering D S/Q; cycle holding H Q/2; safety
+    holding H (R - mu); shortage p D/Q n(R) where p is given (NaN: none, cost 0); purchase
+    D c; average inventory value c (Q/2 + max(R - mu, 0)).
     """
     with np.errstate(all="ignore"):
         short = model.expected_shortage(R)

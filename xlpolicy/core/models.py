@@ -2,11 +2,11 @@
 
 The policy code talks to a model only through :class:`LeadTimeDemandModel`. Four models
 are here, each built from the mean and sd of lead-time demand: normal, Poisson (slow
-movers), negative binomial (over-dispersed counts) and gamma (skewed, continuous); see the
-field notes, "When demand is not normal" (Axsäter, "Inventory Control", 3rd ed. 2015, ch. 5
-for Poisson lead-time demand). Every method works on whole columns at once (numpy arrays,
-broadcast against the model's own arrays); missing or invalid parameters give NaN, never a
-warning or an exception.
+movers), negative binomial (over-dispersed counts) and gamma (skewed, continuous), each
+matched to that mean and, where it has a second parameter, that sd (Axsäter, "Inventory
+Control", 3rd ed. 2015, ch. 5 for Poisson lead-time demand). Every method works on whole
+columns at once (numpy arrays, broadcast against the model's own arrays); missing or invalid
+parameters give NaN, never a warning or an exception.
 """
 
 from __future__ import annotations
@@ -99,6 +99,10 @@ class LeadTimeDemandModel(ABC):
     discrete: ClassVar[bool] = False
     mean: np.ndarray
     sd: np.ndarray
+
+    @abstractmethod
+    def __init__(self, mean: ArrayLike, sd: ArrayLike) -> None:
+        """A model per item from its lead-time demand mean and standard deviation."""
 
     def item_model_names(self) -> np.ndarray:
         """The model name used for each item (a model may fall back to another per item)."""

@@ -74,9 +74,10 @@ def round_order_qty(
     The result is a whole multiple of the pack size, at least one pack and at least the
     minimum order (the minimum raised to a pack multiple). Of the pack multiples just below
     and just above q (each raised to that floor) the one with the lower D S / Q + H Q / 2 is
-    taken; a tie goes to the smaller. The cost curve is flat near its optimum, so the cost of
-    rounding is small (field notes). pack must be a positive whole number; invalid or missing
-    inputs give NaN.
+    taken; a tie goes to the smaller. The cost curve is flat near its optimum (an order
+    quantity k times the EOQ costs (k + 1/k) / 2 times as much; Harris 1913), so the cost of
+    rounding is small. pack must be a positive whole number; invalid or missing inputs give
+    NaN.
     """
     lo, hi, ok = _order_candidates(q, pack, moq)
     d_a, s_a, h_a = (np.asarray(x, dtype=float) for x in (D, S, H))

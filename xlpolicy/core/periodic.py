@@ -20,13 +20,20 @@ orders x E[(X - S)+]. All over whole arrays, one pass per demand model.
 
 from __future__ import annotations
 
+from functools import partial
+
 import numpy as np
 import pandas as pd
 from numpy.typing import ArrayLike
 
 from xlpolicy.contract import CYCLE_SERVICE, FILL_RATE, SHORTAGE_COST
 from xlpolicy.core.demand import lead_time_demand
-from xlpolicy.core.models import MODEL_NAMES, NormalLeadTimeDemand, model_factory
+from xlpolicy.core.models import (
+    MODEL_NAMES,
+    LeadTimeDemandModel,
+    NormalLeadTimeDemand,
+    model_factory,
+)
 from xlpolicy.core.policy import PROB_TOL, _ceil_tol, _smallest_whole, item_model_names
 
 __all__ = ["PERIODIC_COLUMNS", "periodic_policy"]
@@ -51,6 +58,18 @@ PERIODIC_COLUMNS: tuple[str, ...] = (
     "average_inventory_value",
     "flag_no_safety_stock_pays",
 )
+
+
+def _cycle_met(model: LeadTimeDemandModel, target: np.ndarray, s: np.ndarray) -> np.ndarray:
+    """Whether order-up-to level ``s`` meets the cycle-service ``target`` under ``model``."""
+    return model.cdf(s) >= target - PROB_TOL
+
+
+def _fill_met(
+    model: LeadTimeDemandModel, target: np.ndarray, q: np.ndarray, s: np.ndarray
+) -> np.ndarray:
+    """Whether level ``s`` meets the fill-rate ``target`` with mean order size ``q``."""
+    return 1.0 - model.expected_shortage(s) / q >= target - PROB_TOL
 
 
 def _col(x: ArrayLike, n: int) -> np.ndarray:
@@ -128,12 +147,9 @@ def periodic_policy(
         tw = np.where(svc[k], target[k], 0.5)
         qb = q_bar[k]
         with np.errstate(all="ignore"):
-            s_cs = _smallest_whole(
-                _ceil_tol(m.quantile(tw)), lambda s, m=m, tw=tw: m.cdf(s) >= tw - PROB_TOL
-            )
+            s_cs = _smallest_whole(_ceil_tol(m.quantile(tw)), partial(_cycle_met, m, tw))
             s_fr = _smallest_whole(
-                _ceil_tol(m.min_r_for_shortage((1.0 - tw) * qb)),
-                lambda s, m=m, tw=tw, qb=qb: 1.0 - m.expected_shortage(s) / qb >= tw - PROB_TOL,
+                _ceil_tol(m.min_r_for_shortage((1.0 - tw) * qb)), partial(_fill_met, m, tw, qb)
             )
             pk = np.where(sc[k], p[k], 1.0)
             ratio = H[k] * t_years[k] / pk

@@ -215,7 +215,7 @@ def compute_policy(
 ) -> pd.DataFrame:
     """Compute the (Q, R) policy and its annual costs for every item, in input row order.
 
-    See the module docstring and the project's field notes for the method. Achieved
+    See the module docstring for the method and its sources. Achieved
     cycle_service and fill_rate are those of the final whole-unit (Q, R) under the model.
     Items that cannot be planned (D <= 0, a missing or invalid input, an unknown measure, a
     target outside (0, 1), a missing shortage cost) get NaN numbers; their input columns and
@@ -298,7 +298,8 @@ def compute_policy(
     out = pd.DataFrame(cols, index=pd.RangeIndex(n), columns=list(POLICY_COLUMNS))
     unknown = ~known
     if unknown.any():  # say which name was not understood, as the user wrote it
-        given = pd.Series(full.model[unknown], dtype=object).astype(str).str.strip()
+        model = np.broadcast_to(np.asarray(inp.model, dtype=object), (n,))  # as full.model
+        given = pd.Series(model[unknown], dtype=object).astype(str).str.strip()
         out.loc[unknown, "model"] = given.to_numpy(dtype=object)
     return out
 
@@ -709,7 +710,7 @@ def _reorder_points(
 
 def _policy_group_columns(
     inp: PolicyInputs, model_factory: ModelFactory, usable: np.ndarray | None = None
-) -> dict[str, object]:
+) -> dict[str, np.ndarray | float]:
     """The columns of :func:`_policy_group` (arrays, or a scalar for a whole column)."""
     x = _Columns.of(inp)
     with np.errstate(all="ignore"):
@@ -734,7 +735,7 @@ def _output(
     ok: np.ndarray,
     floored: np.ndarray,
     usable: np.ndarray | None,
-) -> dict[str, object]:
+) -> dict[str, np.ndarray | float]:
     """The policy columns: what the whole-unit policy achieves and costs, the rounding
     penalty (what whole packs and minimum orders cost a year over the continuous optimum,
     on the curve D S' / Q + H Q / 2), the flags, and the price-break and shelf-life columns."""

@@ -44,6 +44,7 @@ rule itself sets Q by the EOQ without regard to R).
 from __future__ import annotations
 
 from dataclasses import dataclass, field, fields, replace
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -117,7 +118,7 @@ def tile_inputs(inp: PolicyInputs, k: int) -> PolicyInputs:
     carried along.
     """
     n = np.asarray(inp.annual_demand).reshape(-1).shape[0]
-    out = {}
+    out: dict[str, Any] = {}  # each field's value, of that field's type
     for f in fields(inp):
         val = getattr(inp, f.name)
         if val is not None and np.ndim(val) >= 1 and len(val) == n:
@@ -133,7 +134,7 @@ def take_inputs(inp: PolicyInputs, rows: np.ndarray) -> PolicyInputs:
     fields added to PolicyInputs later are cut along with the others.
     """
     n = np.asarray(inp.annual_demand).reshape(-1).shape[0]
-    out = {}
+    out: dict[str, Any] = {}  # each field's value, of that field's type
     for f in fields(inp):
         val = getattr(inp, f.name)
         if val is not None and np.ndim(val) >= 1 and len(val) == n:

@@ -474,7 +474,7 @@ class ModelDraws:
                 out[k_p] = rng.poisson((d[k_p] * share[k_p])[:, None], (k_p.size, reps))
             if k_nb.size:
                 sh = np.where(on[k_nb], share[k_nb], 1.0)[:, None]
-                x = rng.negative_binomial(
+                x: np.ndarray = rng.negative_binomial(
                     nb_r[k_nb][:, None] * sh, nb_p[k_nb][:, None], (k_nb.size, reps)
                 )
                 out[k_nb] = np.where(on[k_nb][:, None], x, 0.0)
@@ -664,7 +664,7 @@ def _run(
     k_cap = np.ceil(L + _LEAD_SD_CAP * Lsd) + 1.0
     W = int(k_cap.max()) + 3
     warm = np.ceil(L + 2.0 * Lsd) + 1.0
-    begin = np.asarray(src.start, dtype=float) if src.replay else np.zeros(n)
+    begin = np.asarray(src.start, dtype=float) if isinstance(src, HistoryReplay) else np.zeros(n)
     random_lt = (Lsd > 0) & (L > 0)
     v_draw = lead_draw_variance(Lsd * Lsd)
     with np.errstate(all="ignore"):

@@ -8,7 +8,7 @@ from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeGuard
 
 import numpy as np
 
@@ -179,7 +179,7 @@ def read_input(
 TYPED_HISTORY = True
 
 
-def _typed_possible(wb: Any) -> bool:
+def _typed_possible(wb: Any) -> TypeGuard[WorkbookFile]:
     return (
         TYPED_HISTORY
         and isinstance(wb, WorkbookFile)

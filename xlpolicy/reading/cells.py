@@ -479,14 +479,14 @@ def _text_date(t: str, order: str | None) -> _dt.datetime | None:
             a, b, y = int(m.group(1)), int(m.group(3)), int(m.group(4))
             return _dt.datetime(y, b, a) if order == "dmy" else _dt.datetime(y, a, b)
         m = _DAY_MONTH_YEAR.match(t)
-        if m and _month(m.group(2)):
-            return _dt.datetime(int(m.group(3)), _month(m.group(2)), int(m.group(1)))
+        if m and (month := _month(m.group(2))):
+            return _dt.datetime(int(m.group(3)), month, int(m.group(1)))
         m = _MONTH_DAY_YEAR.match(t)
-        if m and _month(m.group(1)):
-            return _dt.datetime(int(m.group(3)), _month(m.group(1)), int(m.group(2)))
+        if m and (month := _month(m.group(1))):
+            return _dt.datetime(int(m.group(3)), month, int(m.group(2)))
         m = _MONTH_YEAR.match(t)
-        if m and _month(m.group(1)):
-            return _dt.datetime(int(m.group(2)), _month(m.group(1)), 1)
+        if m and (month := _month(m.group(1))):
+            return _dt.datetime(int(m.group(2)), month, 1)
     except ValueError:  # 31 February and the like: not a date
         return None
     return None

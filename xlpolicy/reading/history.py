@@ -24,7 +24,7 @@ from .cells import describe, is_blank, item_code, item_codes, parse_number, type
 from .decimals import Convention, settle
 from .headers import missing_message, report_header
 from .typed import NUMBER_TEXT, NotTyped, WideCells
-from .workbook import RawSheet, cell_ref, find_header
+from .workbook import RawSheet, cell_ref, find_header, kind_is
 
 _ISO_DATE = re.compile(r"^\d{4}-\d{2}-\d{2}([ T].*)?$")
 _ISO_MONTH = re.compile(r"^(\d{4})-(\d{2})$")
@@ -279,11 +279,11 @@ def _read_long(
     # that are not (text, negatives, formulas without a result) are checked one by one.
     at = list(range(hidx + 1, len(sheet.rows)))
     blk, kinds = sheet.block(at, [ji, jp, jq])
-    num = np.equal(kinds[:, 2], int) | np.equal(kinds[:, 2], float)
+    num = kind_is(kinds[:, 2], int, float)
     qv = np.zeros(len(at), dtype=float)
     if num.any():
         qv[num] = blk[num, 2].astype(float)
-    slow = (~num & np.not_equal(kinds[:, 2], type(None))) | (num & ~(np.isfinite(qv) & (qv >= 0)))
+    slow = (~num & ~kind_is(kinds[:, 2], type(None))) | (num & ~(np.isfinite(qv) & (qv >= 0)))
     raw_codes, raw_periods, raw_qty = (blk[:, q].tolist() for q in range(3))
     qv_list, slow_list = qv.tolist(), slow.tolist()
     code_of: dict[tuple[Any, ...], str | None] = {}  # codes repeat: each is worked out once
@@ -383,11 +383,11 @@ def _read_wide(
     # one through the same check as always, which reports each by its cell.
     cols = [pcols[p] for p in used]
     blk, kinds = sheet.block([hidx + 1 + pos for pos in picked], cols)
-    num = np.equal(kinds, int) | np.equal(kinds, float)
+    num = kind_is(kinds, int, float)
     vals = np.zeros(blk.shape, dtype=float)
     if num.any():
         vals[num] = blk[num].astype(float)
-    slow = ~num & np.not_equal(kinds, type(None))
+    slow = ~num & ~kind_is(kinds, type(None))
     slow |= num & ~(np.isfinite(vals) & (vals >= 0))
     picked_rows = [rownums[pos] for pos in picked]
     return _wide_finish(

@@ -114,11 +114,11 @@ class _Column:
     Working on the distinct values (a few hundred periods, one code per item) instead of on
     millions of rows keeps the checks fast and never makes a Python object per row.
     ``codes`` is -1 for a missing value (null). ``numbers`` is set instead for a column the
-    file stores as numbers.
+    file stores as numbers (``codes`` and ``values`` are then empty).
     """
 
     def __init__(
-        self, codes: np.ndarray | None, values: list[Any], numbers: np.ndarray | None = None
+        self, codes: np.ndarray, values: list[Any], numbers: np.ndarray | None = None
     ) -> None:
         self.codes = codes
         self.values = values
@@ -176,7 +176,8 @@ def _arrow_column(col: Any) -> _Column:
 
     col = col.combine_chunks() if isinstance(col, pa.ChunkedArray) else col
     if pa.types.is_integer(col.type) or pa.types.is_floating(col.type):
-        return _Column(None, [], col.to_numpy(zero_copy_only=False).astype(float))
+        numbers = col.to_numpy(zero_copy_only=False).astype(float)
+        return _Column(np.zeros(0, dtype=np.int32), [], numbers)
     enc = col if pa.types.is_dictionary(col.type) else col.dictionary_encode()
     codes = enc.indices.fill_null(-1).to_numpy(zero_copy_only=False).astype(np.int32)
     return _Column(codes, enc.dictionary.to_pylist())
@@ -313,7 +314,7 @@ def _history(
     pos = np.empty(len(code_values), dtype=np.int64)
     pos[items_u] = np.arange(len(items_u))
     n_periods = len(labels)
-    matrix = np.zeros((len(items_u), n_periods), dtype=float)
+    matrix: np.ndarray = np.zeros((len(items_u), n_periods), dtype=float)
     if len(use):
         flat = pos[item_codes[use]] * n_periods + pidx[use]
         # Sums per (item, period): several transactions in one period add up, and NaN (an

@@ -32,7 +32,7 @@ from .decimals import Convention, column_convention, settle
 from .headers import missing_message, report_header
 from .settings import parse_model
 from .units import cell_duration, units_from_headers
-from .workbook import Header, RawSheet, cell_ref, find_header
+from .workbook import Header, RawSheet, cell_ref, find_header, kind_is
 
 REQUIRED_ALWAYS = ("item", "unit_cost", "lead_time_days")
 NUMERIC_KEYS = tuple(c.key for c in ITEM_COLUMNS if c.kind in (NUMBER, RATE))
@@ -197,9 +197,10 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
     first_row_of: dict[str, int] = {}
     for pos, k in enumerate(range(first, len(sheet.rows))):
         values, rownum = sheet.rows[k], sheet.row_numbers[k]
-        if clean.ok[pos]:
+        code = clean.codes[pos]
+        if clean.ok[pos] and code is not None:  # a clean row always has its code
             # Nothing to report in this row: its values were read with the whole column.
-            code, rec, ok = clean.codes[pos], None, True
+            rec, ok = None, True
         else:
             if all(is_blank(v) for v in values):
                 continue
@@ -242,10 +243,10 @@ def read_items(sheet: RawSheet, settings: dict[str, Any], log: ProblemLog) -> It
                 out[n] = rec.get(key)
         data[key] = out
     df = pd.DataFrame(data, columns=keys + ["row"])
-    for k in NUMERIC_KEYS:
-        df[k] = pd.to_numeric(df[k], errors="coerce").astype(float)
-    for k in ("item",) + TEXT_KEYS + OTHER_KEYS:
-        df[k] = df[k].astype(object)
+    for key in NUMERIC_KEYS:
+        df[key] = pd.to_numeric(df[key], errors="coerce").astype(float)
+    for key in ("item",) + TEXT_KEYS + OTHER_KEYS:
+        df[key] = df[key].astype(object)
     df["row"] = df["row"].astype(int)
     return ItemTable(
         sheet.name, df, dict(cols), hrow, np.asarray(usable, dtype=bool), dict(header.units)
@@ -321,8 +322,8 @@ def _clean_rows(
         if q is None:
             continue
         kind = kinds[:, q]
-        num = np.equal(kind, int) | np.equal(kind, float)
-        blank = np.equal(kind, type(None))
+        num = kind_is(kind, int, float)
+        blank = kind_is(kind, type(None))
         if num.any():
             x[num] = blk[num, q].astype(float)
         good = num & np.isfinite(x)

@@ -27,7 +27,6 @@ class PriceBreaks:
     sheet: str
     qty: np.ndarray
     price: np.ndarray
-    rows_read: int
 
     def count(self) -> np.ndarray:
         """How many breaks each item has."""
@@ -52,7 +51,6 @@ def read_price_breaks(sheet: RawSheet, items: ItemTable, log: ProblemLog) -> Pri
     row_of = {code_key(code): k for k, code in enumerate(codes)}
     unit_cost = items.df["unit_cost"].to_numpy(float)
     found: dict[int, dict[float, tuple[float, str]]] = {}
-    read = 0
     for k in range(header.row_index + 1, len(sheet.rows)):
         values, fmts, rownum = sheet.rows[k], sheet.formats[k], sheet.row_numbers[k]
         if all(is_blank(v) for v in values):
@@ -132,7 +130,6 @@ def read_price_breaks(sheet: RawSheet, items: ItemTable, log: ProblemLog) -> Pri
                     code="price-break-not-cheaper",
                 )
             at[q] = (p, ref("min_qty"))
-            read += 1
     width = max((len(v) for v in found.values()), default=0)
     qty = np.full((len(codes), max(width, 1)), np.nan)
     price = np.full_like(qty, np.nan)
@@ -140,7 +137,7 @@ def read_price_breaks(sheet: RawSheet, items: ItemTable, log: ProblemLog) -> Pri
         for j, (q, (p, _cell)) in enumerate(sorted(breaks.items())):
             qty[i, j] = q
             price[i, j] = p
-    return PriceBreaks(sheet.name, qty, price, read)
+    return PriceBreaks(sheet.name, qty, price)
 
 
 __all__ = ["PriceBreaks", "read_price_breaks"]

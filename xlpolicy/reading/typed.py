@@ -23,12 +23,15 @@ import datetime as _dt
 import re
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 from openpyxl.utils.datetime import CALENDAR_MAC_1904, CALENDAR_WINDOWS_1900, from_excel
 
 from .workbook import WorkbookFile
+
+if TYPE_CHECKING:
+    from fastexcel import DTypeMap
 
 #: Columns of a sheet can be at most 16,384 (XFD): every one is asked for as numbers.
 MAX_COLUMNS = 16384
@@ -88,7 +91,7 @@ def read_wide_cells(
         import fastexcel
     except ImportError:
         return None
-    dtypes: dict[int, str] = dict.fromkeys(range(MAX_COLUMNS), "float")
+    dtypes: DTypeMap = dict.fromkeys(range(MAX_COLUMNS), "float")
     dtypes[code_col] = "string"
     with ThreadPoolExecutor(max_workers=1, thread_name_prefix="xlpolicy-scan") as pool:
         scanning = pool.submit(wb._scan, name)

@@ -133,7 +133,32 @@ class RawSheet:
         for i, k in enumerate(rows):
             values = self.rows[k]
             blk[i] = [values[j] if j < len(values) else None for j in cols]
-        return blk, np.frompyfunc(type, 1, 1)(blk)
+        return blk, cell_types(blk)
+
+
+#: What reading a damaged or vanished zip member raises, under either inflate library.
+_SCAN_ERRORS: tuple[type[BaseException], ...] = (
+    KeyError,
+    zipfile.BadZipFile,
+    OSError,
+    *fastzlib.ERRORS,
+    EOFError,
+)
+
+_TYPE_OF = np.frompyfunc(type, 1, 1)
+
+
+def cell_types(grid: np.ndarray) -> np.ndarray:
+    """Each cell's Python type, as an object array shaped like ``grid``."""
+    return np.asarray(_TYPE_OF(grid))
+
+
+def kind_is(kinds: np.ndarray, *types: type) -> np.ndarray:
+    """Where a cell's Python type (from :func:`cell_types`) is one of ``types``."""
+    out = np.zeros(kinds.shape, dtype=bool)
+    for t in types:
+        out |= kinds == t
+    return out
 
 
 def cell_ref(col_index: int, row_number: int) -> str:
@@ -291,10 +316,10 @@ class WorkbookFile:
             if r < grid.shape[0] and c < width:
                 grid[r, c] = text
                 blank[r, c] = False
-        kinds = np.frompyfunc(type, 1, 1)(grid)
+        kinds = cell_types(grid)
         # Whole numbers are stored without a decimal point, and openpyxl reads those as int;
         # calamine gives every number as a float. Give them as int here too.
-        floats = np.equal(kinds, float)
+        floats = kind_is(kinds, float)
         if floats.any():
             x = grid[floats].astype(float)
             whole = np.isfinite(x) & (np.abs(x) < 1e15)
@@ -385,7 +410,7 @@ class WorkbookFile:
                             scan.formats[at] = self._styles[int(m.group(1))]
                             if _TEXT_TYPE.search(m.group(0)):
                                 scan.styled_text.add(at)
-        except (KeyError, zipfile.BadZipFile, OSError, *fastzlib.ERRORS, EOFError):
+        except _SCAN_ERRORS:
             return None
         if not layout_words:
             self.plain_layout.add(name)
@@ -914,7 +939,7 @@ def layout_notes(wb: WorkbookFile, name: str, sheet: RawSheet, log: ProblemLog) 
         return
     data_rows = set(sheet.row_numbers)
     hidden: list[int] = []
-    merged: list[str] = []
+    merged: list[bytes] = []
     try:
         with zipfile.ZipFile(wb.path) as zf, zf.open(part) as src:
             carry = b""
@@ -947,8 +972,8 @@ def layout_notes(wb: WorkbookFile, name: str, sheet: RawSheet, log: ProblemLog) 
             sheet=name,
             code="rows-hidden",
         )
-    for ref in merged[:20]:
-        text = ref.decode()
+    for span in merged[:20]:
+        text = span.decode()
         log.warning(
             f"The cells {text} of '{name}' are merged: only the first row holds the "
             "value, so the rows below read as blank there. Unmerge them and fill the "

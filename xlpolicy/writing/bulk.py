@@ -31,10 +31,10 @@ from __future__ import annotations
 import operator
 import re
 from collections.abc import Callable, Iterable, Iterator, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from itertools import repeat
 from operator import mod
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 from xlsxwriter.format import Format
@@ -90,7 +90,7 @@ class _Column:
     quoted: Format | None = None  # text: the format with the quote prefix
     pieces: tuple[str, ...] = ()  # formula: the pattern split at the row marker
     each: list[str] | None = None  # formula: or each row's own formula
-    live: np.ndarray | None = None  # formula: rows that get the formula
+    live: np.ndarray = field(default_factory=lambda: np.zeros(0, bool))  # formula: rows that get it
     plain: bool = False  # text: no cell needs escaping, a quote prefix or kept spaces
 
 
@@ -152,7 +152,8 @@ class CellBlock:
         # search of the column joined at NULs (which cleaned text never holds, so a value's
         # start and end are where the NULs are).
         try:
-            joined = "\x00" + "\x00".join(values) + "\x00"
+            # typed as all text: join raises TypeError on the first None
+            joined = "\x00" + "\x00".join(cast("list[str]", values)) + "\x00"
         except TypeError:  # None among them
             joined = "\x00" + "\x00".join([v or "" for v in values]) + "\x00"
         plain = not (
@@ -485,6 +486,10 @@ class BlockSheet(Worksheet):
     cells may sit above, below or beside a block's rows, not on them.
     """
 
+    #: The used range's first and last row, as xlsxwriter keeps them (None while empty).
+    dim_rowmin: int | None
+    dim_rowmax: int | None
+
     def __init__(self) -> None:
         super().__init__()
         self.blocks: list[CellBlock] = []
@@ -513,6 +518,8 @@ class BlockSheet(Worksheet):
             if clash:
                 raise ValueError(f"ordinary cells written on a block's rows ({clash[:3]})")
         lo, hi = self.dim_rowmin, self.dim_rowmax
+        if lo is None or hi is None:  # never so: add_block counts each block's rows
+            raise ValueError("a block sheet without a used range")
         start = lo
         try:
             for block in blocks:

@@ -187,6 +187,7 @@ def write_compare(ctx: Context, ws: Worksheet) -> None:
             continue
         fmt = ctx.styles.get(**ctx.num_props(col.kind), **line)
         values = column(df, col.key)[rows]
+        formula: str | list[str]
         if col.key == "current_annual_total_cost":
             values, live, formula = _current_cells(ctx, rows, where)
         elif col.key == "annual_total_cost":

@@ -244,13 +244,13 @@ def _class_target_sentences(ctx: Context) -> list[str]:
     """Which service target each class gets (Settings: Service target A, B, C)."""
     settings = ctx.report.settings or {}
     given = {
-        cls: settings.get(key)
+        cls: target
         for cls, key in contract.CLASS_TARGET_SETTINGS.items()
-        if finite(settings.get(key)) is not None
+        if (target := finite(settings.get(key))) is not None
     }
     if not given:
         return []
-    parts = ", ".join(f"class {cls} {float(v):.1%}" for cls, v in given.items())
+    parts = ", ".join(f"class {cls} {v:.1%}" for cls, v in given.items())
     return [
         f"Service targets by class: {parts}. The classes are set first, from annual demand "
         "x unit cost, which does not depend on the target; an item's own Service target "

@@ -460,15 +460,15 @@ def _breakdown(
                 total = sum(s["Annual purchase cost"] for s in sums.values())
                 value = sums[n]["Annual purchase cost"] / total if total > 0 else float("nan")
                 if total > 0:
-                    formula = (
+                    share = (
                         f"={xl_rowcol_to_cell(row, 2)}/"
                         f"{xl_rowcol_to_cell(total_row, 2, row_abs=True)}"
                     )
-                    ctx.w.formula(ws, row, c, formula, value, **props)
+                    ctx.w.formula(ws, row, c, share, value, **props)
                 else:
                     ctx.w.number(ws, row, c, value, **props)
                 continue
-            formula = None
+            formula: str | None = None
             if live and kind == "count":
                 formula = f'=SUMPRODUCT({match},--({status_rng}<>"{contract.STATUS_SKIPPED}"))'
             elif live and all(k in ctx.policy_cols for k in keys):

@@ -99,7 +99,6 @@ class StyleMerger:
         self.code_to_id: dict[str, int] = {}
         for num_id, code in self.user_numfmts.items():
             self.code_to_id.setdefault(code, num_id)
-        self.added_xfs = 0
 
     def _container(self, name: str) -> etree._Element:
         if name not in self._containers:
