@@ -415,7 +415,10 @@ def read_wide_typed(
 ) -> History:
     """A wide History read as typed columns (see xlpolicy.reading.typed): the same History
     and the same problems as the general path, from arrays instead of a cell grid."""
-    hidx, ji, pcols = _find_wide_header(head)  # type: ignore[misc]
+    found = _find_wide_header(head)
+    if found is None:  # not so (typed cells are read under a wide header): the general path
+        raise NotTyped
+    hidx, ji, pcols = found
     rownums = cells.row_numbers.tolist()
     formats = [cells.code_formats.get(pos, "") for pos in range(len(rownums))]
     holds: set[int] = {pos for (pos, _c), v in cells.cells.items() if not is_blank(v)}
