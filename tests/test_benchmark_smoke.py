@@ -7,8 +7,9 @@ import sys
 from pathlib import Path
 
 import pytest
+from repo_paths import REPO
 
-ROOT = Path(__file__).resolve().parent.parent
+ROOT = REPO
 
 
 def test_quick_benchmark_completes_and_prints_its_table(tmp_path: Path) -> None:

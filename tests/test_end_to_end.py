@@ -20,13 +20,13 @@ import pytest
 from builders import BASE_HEADERS, item_row, weekly_history, write_workbook
 from click.testing import CliRunner
 from openpyxl import load_workbook
+from repo_paths import REPO
 from scipy.stats import norm
 
 import xlpolicy
 from xlpolicy.cli import main
 from xlpolicy.contract import RESULT_KEYS, TEXT_RESULT_KEYS
 
-REPO = Path(__file__).resolve().parent.parent
 GENERATED = [
     "Summary",
     "Reorder now",

@@ -31,15 +31,17 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from openpyxl import Workbook
 
-sys.path.insert(0, str(Path(__file__).resolve().parent / "data"))
-sys.path.insert(1, str(Path(__file__).resolve().parent.parent))  # run as a script, too
+# run as a script, too: the corpus builder and the package, from whichever tests folder
+_TESTS = next(p for p in Path(__file__).resolve().parents if p.name == "tests")
+sys.path.insert(0, str(_TESTS / "data"))
+sys.path.insert(1, str(_TESTS.parent))
 import make_bad  # noqa: E402
 
 import xlpolicy  # noqa: E402
 from xlpolicy.contract import ITEM_COLUMNS  # noqa: E402
 from xlpolicy.problems import UnusableWorkbook  # noqa: E402
 
-FUZZ_DIR = Path(__file__).resolve().parent / "data" / "fuzz"
+FUZZ_DIR = _TESTS / "data" / "fuzz"
 CI_MUTATIONS = 200
 CI_SEED = 20240101
 

@@ -10,22 +10,19 @@ megabytes, whatever the machine's speed, while the refusal needs a few.
 
 from __future__ import annotations
 
-import sys
 import tracemalloc
 import zipfile
 from collections.abc import Callable
 from pathlib import Path
 
+import make_bad
 import pytest
 from defusedxml import DefusedXmlException
 from openpyxl import load_workbook
 
-sys.path.insert(0, str(Path(__file__).resolve().parent / "data"))
-import make_bad  # noqa: E402
-
-import xlpolicy  # noqa: E402
-from xlpolicy.problems import UnusableWorkbook  # noqa: E402
-from xlpolicy.reading import guard  # noqa: E402
+import xlpolicy
+from xlpolicy.problems import UnusableWorkbook
+from xlpolicy.reading import guard
 
 BAD = make_bad.BAD
 

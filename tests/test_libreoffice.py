@@ -18,11 +18,11 @@ from pathlib import Path
 import pytest
 import xlsxwriter
 from openpyxl import load_workbook
+from repo_paths import REPO
 
 import xlpolicy
 
 SOFFICE = shutil.which("soffice") or shutil.which("libreoffice")
-REPO = Path(__file__).resolve().parent.parent
 
 if SOFFICE is None and os.environ.get("XLPOLICY_REQUIRE_LIBREOFFICE"):
     raise RuntimeError("XLPOLICY_REQUIRE_LIBREOFFICE is set but LibreOffice is not installed")
