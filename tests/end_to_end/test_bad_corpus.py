@@ -235,6 +235,7 @@ def _check_run(r: dict, case: make_bad.Case, base_rss_mb: float) -> None:
     assert r["rss_mb"] is not None and r["rss_mb"] < base + MEMORY_MARGIN_MB, (r["rss_mb"], base)
 
 
+@pytest.mark.slow  # the first one waits for every case's run
 @pytest.mark.parametrize("case", make_bad.CASES, ids=lambda c: c.name)
 def test_bad_file_through_the_cli(runs, case):
     _check_run(runs[case.name], case, runs["(good)"]["rss_mb"])
@@ -252,6 +253,7 @@ def good_alone(tmp_path_factory) -> dict:
     return good
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize(
     "case", [c for c in make_bad.CASES if c.name in _OWN_PROCESS], ids=lambda c: c.name
 )
@@ -265,7 +267,7 @@ def test_bad_file_in_a_process_of_its_own(runs, good_alone, case, tmp_path):
 @pytest.mark.parametrize(
     "case", [c for c in make_bad.CASES if c.codes or c.planned], ids=lambda c: c.name
 )
-def test_bad_file_through_the_api(runs, case, tmp_path):
+def test_bad_file_through_the_api(case, tmp_path):
     path = BAD / case.name
     if not case.committed:
         make_bad.build_all(tmp_path, committed=False)

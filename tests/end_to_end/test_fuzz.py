@@ -182,6 +182,7 @@ def plan_or_report(path: Path, out: Path) -> str:
         return "unusable"
 
 
+@pytest.mark.slow  # 40 whole plans
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(data=contract_workbook())
 def test_random_contract_shaped_workbooks_plan_or_report(data):
@@ -312,6 +313,7 @@ def fuzz(
     return done, failures
 
 
+@pytest.mark.slow  # 200 whole plans
 def test_mutated_workbooks_plan_or_report():
     done, failures = fuzz(CI_MUTATIONS, seed=CI_SEED)
     assert not failures, failures[:5]
