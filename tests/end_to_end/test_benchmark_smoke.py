@@ -37,7 +37,6 @@ def test_quick_benchmark_completes_and_prints_its_table(tmp_path: Path) -> None:
         capture_output=True,
         text=True,
         cwd=ROOT,
-        timeout=600,
     )
     assert proc.returncode == 0, proc.stderr
     lines = proc.stdout.splitlines()

@@ -252,7 +252,6 @@ def test_python_module_entry_point_runs_the_demo(tmp_path):
         [sys.executable, "-m", "xlpolicy", "plan", str(demo), "-q"],
         capture_output=True,
         text=True,
-        timeout=300,
     )
     assert proc.returncode == 0, proc.stderr
     out = tmp_path / "demo-policy.xlsx"

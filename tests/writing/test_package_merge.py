@@ -792,7 +792,6 @@ def test_output_locked_when_directory_not_writable():
             text=True,
             env=env,
             cwd=base,
-            timeout=60,
             **kwargs,
         )
         assert "LOCKED" in run.stdout, run.stderr
