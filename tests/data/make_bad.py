@@ -1,7 +1,7 @@
 """Build tests/data/bad/: one small file per kind of bad input, each with its expected outcome.
 
 Run ``python tests/data/make_bad.py`` to write the files again (they are committed, so the
-tests do not depend on this script running; tests/test_bad_corpus.py checks that it still
+tests do not depend on this script running; tests/end_to_end/test_bad_corpus.py checks that it still
 produces the same set of names). Every case in :data:`CASES` says what ``xlpolicy plan``
 must do with its file: the exit status, words the message must contain, and for files that
 are read, the problem codes that must be among the warnings. The workbook contents are

@@ -199,7 +199,7 @@ def smooth(
 
     Returns (one-step forecasts items x periods, final level, trend, indices). With one
     period per season this is the textbook recursion; statsmodels' ExponentialSmoothing
-    (trend "add", damped, seasonal "mul") gives the same numbers (tests/test_forecast.py).
+    (trend "add", damped, seasonal "mul") gives the same numbers (tests/core/test_forecast.py).
     """
     x = np.asarray(y, dtype=float)
     if x.ndim == 1:

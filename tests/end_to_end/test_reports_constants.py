@@ -17,7 +17,7 @@ from pathlib import Path
 
 import pytest
 
-DOC = Path(__file__).resolve().parent.parent / "docs" / "reports.md"
+DOC = Path(__file__).resolve().parents[2] / "docs" / "reports.md"
 
 
 def _rows() -> list[tuple[str, object, str]]:

@@ -234,7 +234,6 @@ def test_a_terminated_run_leaves_the_old_output_and_no_temporary_file(tmp_path):
         capture_output=True,
         text=True,
         env=env,
-        timeout=120,
     )
     assert proc.returncode == 130, proc.stderr
     assert "Stopped before the end" in proc.stderr and "Traceback" not in proc.stderr

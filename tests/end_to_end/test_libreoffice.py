@@ -18,19 +18,22 @@ from pathlib import Path
 import pytest
 import xlsxwriter
 from openpyxl import load_workbook
+from repo_paths import REPO
 
 import xlpolicy
 
 SOFFICE = shutil.which("soffice") or shutil.which("libreoffice")
-REPO = Path(__file__).resolve().parent.parent
 
 if SOFFICE is None and os.environ.get("XLPOLICY_REQUIRE_LIBREOFFICE"):
     raise RuntimeError("XLPOLICY_REQUIRE_LIBREOFFICE is set but LibreOffice is not installed")
-pytestmark = pytest.mark.skipif(
-    SOFFICE is None,
-    reason="LibreOffice Calc is not installed (.ci/run installs it: "
-    "apt-get install libreoffice-calc-nogui)",
-)
+pytestmark = [
+    pytest.mark.slow,  # LibreOffice starts for each test
+    pytest.mark.skipif(
+        SOFFICE is None,
+        reason="LibreOffice Calc is not installed (.ci/run installs it: "
+        "apt-get install libreoffice-calc-nogui)",
+    ),
+]
 
 # LibreOffice's own setting: recalculate OOXML and ODF files on load always (0), so the
 # values it saves are its own, not the cached ones it read.

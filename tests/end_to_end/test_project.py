@@ -10,11 +10,11 @@ import sys
 from pathlib import Path
 
 import pytest
+from repo_paths import REPO
 
 from xlpolicy.contract import ITEM_COLUMNS, SETTINGS
 from xlpolicy.docs import expected
 
-REPO = Path(__file__).resolve().parent.parent
 README = (REPO / "README.md").read_text(encoding="utf-8")
 DOCS = REPO / "docs"
 

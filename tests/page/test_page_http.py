@@ -33,7 +33,7 @@ from xlpolicy.cli import main  # noqa: E402
 from xlpolicy.page.app import create_app  # noqa: E402
 from xlpolicy.page.jobs import safe_name  # noqa: E402
 
-REPO = Path(__file__).resolve().parent.parent
+REPO = Path(__file__).resolve().parents[2]
 DEMO = REPO / "examples" / "demo-shop.xlsx"
 BAD = REPO / "tests" / "data" / "bad"
 KEY = "test-key-0123456789abcdef"

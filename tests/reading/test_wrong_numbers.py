@@ -5,7 +5,7 @@ check from every reader; amounts that overflow never reach a total; implausible 
 reported; codes come out as the user sees them. The files of the bad-input corpus
 (tests/data/bad: decimal-comma-column, decimal-marks-mixed, huge-unit-cost,
 implausible-inputs, yes-no-cells.ods, macro-in-xlsx) are run through the command line by
-tests/test_bad_corpus.py; these tests look at the numbers themselves.
+tests/end_to_end/test_bad_corpus.py; these tests look at the numbers themselves.
 """
 
 from __future__ import annotations
@@ -29,7 +29,7 @@ from xlpolicy.contract import MAX_LEAD_TIME_DAYS, MAX_ORDER_YEARS, MAX_PLAN_AMOU
 from xlpolicy.reading import decimals
 from xlpolicy.reading.cells import parse_number, shown_date
 
-BAD = Path(__file__).resolve().parent / "data" / "bad"
+BAD = Path(__file__).resolve().parents[1] / "data" / "bad"
 
 
 # --- the decimal mark, settled by the column ------------------------------------------

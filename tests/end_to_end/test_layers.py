@@ -17,7 +17,7 @@ from pathlib import Path
 
 import pytest
 
-PACKAGE = Path(__file__).resolve().parent.parent / "xlpolicy"
+PACKAGE = Path(__file__).resolve().parents[2] / "xlpolicy"
 
 
 def _modules(root: Path) -> dict[str, Path]:

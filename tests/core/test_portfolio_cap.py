@@ -73,7 +73,7 @@ class Independent:
         z = (r - self.mu[k]) / self.sd[k]
         return self.sd[k] * (stats.norm.pdf(z) - z * stats.norm.sf(z))
 
-    def cost(self, k: int, q: float, r: float) -> float:
+    def cost(self, k: int, q: float | np.ndarray, r: float) -> float | np.ndarray:
         """Ordering + cycle holding + safety holding + shortage.
 
         Silver, Pyke & Peterson 1998, ch. 7.
@@ -84,20 +84,21 @@ class Independent:
         shortage = 0.0 if np.isnan(p) else p * D / q * self.short(k, r)
         return D * S / q + H * q / 2 + H * (r - self.mu[k]) + shortage
 
-    def usage(self, kind: str, k: int, q: float, r: float) -> float:
+    def usage(self, kind: str, k: int, q: float | np.ndarray, r: float) -> float | np.ndarray:
         i = self.inp
         if kind == BUDGET:
             return i.unit_cost[k] * (q / 2 + max(r - self.mu[k], 0.0))
         return i.annual_demand[k] / q
 
-    def allowed(self, k: int, q: float, r: float) -> bool:
+    def allowed(self, k: int, q: float | np.ndarray, r: float) -> np.ndarray:
+        """Whether (q, r) keeps the item's rules; ``q`` may be an array (one answer each)."""
         i = self.inp
+        q = np.asarray(q, dtype=float)
         pack, moq = i.pack_size[k], i.minimum_order[k]
-        if q < max(pack, moq) or abs(q / pack - round(q / pack)) > 1e-9 or r < 0:
-            return False
-        if str(i.measure[k]) == "cycle service":
-            return self.dist(k).cdf(r) >= i.service_target[k] - 1e-12
-        return True
+        ok = (q >= max(pack, moq)) & (np.abs(q / pack - np.round(q / pack)) <= 1e-9) & (r >= 0)
+        if str(i.measure[k]) == "cycle service" and r >= 0:
+            ok &= bool(self.dist(k).cdf(r) >= i.service_target[k] - 1e-12)
+        return ok
 
 
 def brute_force_no_better_change(inp, res, kind, r_span=6):
@@ -118,16 +119,15 @@ def brute_force_no_better_change(inp, res, kind, r_span=6):
         eoq = math.sqrt(
             2 * inp.annual_demand[k] * inp.order_cost[k] / (inp.holding_rate[k] * inp.unit_cost[k])
         )
-        for q2 in np.arange(pack, 4 * eoq + 4 * pack, pack):
-            for r2 in range(int(max(r[k] - r_span, 0)), int(r[k] + r_span + 1)):
-                if (q2, r2) == (q[k], r[k]) or not ind.allowed(k, q2, r2):
-                    continue
-                new_use = used - uses[k] + ind.usage(kind, k, q2, r2)
-                if new_use > res.cap:
-                    continue
-                checked += 1
-                new_total = total - costs[k] + ind.cost(k, q2, r2)
-                assert new_total >= total - 1e-9 * total, (k, q2, r2, new_total, total)
+        q2 = np.arange(pack, 4 * eoq + 4 * pack, pack)  # every order quantity at once
+        for r2 in range(int(max(r[k] - r_span, 0)), int(r[k] + r_span + 1)):
+            ok = ind.allowed(k, q2, r2) & ~((q2 == q[k]) & (r2 == r[k]))
+            new_use = used - uses[k] + ind.usage(kind, k, q2, r2)
+            ok &= ~(new_use > res.cap)
+            checked += int(ok.sum())
+            new_total = total - costs[k] + ind.cost(k, q2, r2)
+            worse = ok & ~(new_total >= total - 1e-9 * total)
+            assert not worse.any(), (k, q2[worse], r2, new_total[worse], total)
     assert checked > 0  # the check had something to try
 
 

@@ -44,7 +44,7 @@ from click.testing import CliRunner  # noqa: E402
 import xlpolicy  # noqa: E402
 from xlpolicy.cli import main  # noqa: E402
 
-REPO = Path(__file__).resolve().parent.parent
+REPO = Path(__file__).resolve().parents[2]
 DEMO = REPO / "examples" / "demo-shop.xlsx"
 BAD = REPO / "tests" / "data" / "bad"
 #: Parts a spreadsheet package stamps with the time it was written (ECMA-376 Part 2,

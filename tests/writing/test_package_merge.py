@@ -27,6 +27,7 @@ from openpyxl.comments import Comment
 from openpyxl.formatting.rule import CellIsRule
 from openpyxl.styles import Font, PatternFill
 from openpyxl.workbook.defined_name import DefinedName
+from repo_paths import REPO
 
 from xlpolicy.writing.atomic import atomic_output
 from xlpolicy.writing.package import (
@@ -751,7 +752,7 @@ def test_output_locked_when_directory_not_writable():
     import sys
     import tempfile
 
-    atomic_file = Path(__file__).resolve().parents[1]  # the package's root: xlpolicy/ in it
+    atomic_file = REPO  # the repository's root: xlpolicy/ in it
     code = (
         "import sys, types\n"
         "from pathlib import Path\n"
@@ -794,7 +795,6 @@ def test_output_locked_when_directory_not_writable():
             text=True,
             env=env,
             cwd=base,
-            timeout=60,
             **kwargs,
         )
         assert "LOCKED" in run.stdout, run.stderr

@@ -15,7 +15,7 @@ import pytest
 httpx = pytest.importorskip("httpx")
 pytest.importorskip("uvicorn")
 
-REPO = Path(__file__).resolve().parent.parent
+REPO = Path(__file__).resolve().parents[2]
 
 
 @pytest.mark.parametrize("stop", [signal.SIGTERM, signal.SIGINT])

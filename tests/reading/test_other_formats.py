@@ -146,11 +146,13 @@ def converted(xlsx, tmp_path_factory) -> dict[str, Path]:
     return {fmt: convert(xlsx, fmt, work) for fmt in ("ods", "xls")}
 
 
+@pytest.mark.slow  # LibreOffice converts the reference workbook
 @pytest.mark.parametrize("fmt", ["ods", "xls"])
 def test_libreoffice_copies_give_the_same_policies(xlsx, converted, fmt):
     assert_same_policies(policies(converted[fmt]), policies(xlsx))
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("fmt", ["ods", "xls"])
 def test_readers_give_the_xlsx_readers_types_and_formats(xlsx, converted, fmt):
     def sheet(path: Path, name: str):
@@ -175,6 +177,7 @@ def test_readers_give_the_xlsx_readers_types_and_formats(xlsx, converted, fmt):
     assert isinstance(hist.rows[1][2], int)
 
 
+@pytest.mark.slow
 def test_ods_input_is_written_to_its_own_xlsx_with_a_warning(converted, tmp_path):
     src = tmp_path / "shop.ods"
     shutil.copyfile(converted["ods"], src)

@@ -232,14 +232,10 @@ def test_curve_in_groups_of_points_is_the_same(monkeypatch):
 def test_auto_curve_is_left_out_for_a_big_catalogue_with_a_note(tmp_path, monkeypatch):
     """Setting 'auto' (the default) skips the curve past CURVE_AUTO_MAX items and says so;
     'yes' (or --curve) traces it anyway."""
-    import sys
-    from pathlib import Path
+    from builders import simple_workbook
 
     import xlpolicy
     import xlpolicy.planner as planner
-
-    sys.path.insert(0, str(Path(__file__).parent))
-    from builders import simple_workbook
 
     src = simple_workbook(tmp_path / "w.xlsx")
     monkeypatch.setattr(planner, "CURVE_AUTO_MAX", 2)  # three items: past the limit

@@ -14,11 +14,12 @@ from pathlib import Path
 
 import openpyxl
 import pytest
+from repo_paths import REPO
 
 from xlpolicy import contract
 from xlpolicy.template import EXAMPLE_PREFIX, TEMPLATE_FILE_NAME, write_template
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = REPO
 COMMITTED_TEMPLATE = ROOT / "templates" / TEMPLATE_FILE_NAME
 EXAMPLES = ROOT / "examples"
 

@@ -1,9 +1,9 @@
 """Fuzzing the other readers: a folder of CSV files and an OpenDocument spreadsheet (.ods).
 
-The same promise as tests/test_fuzz.py for .xlsx: whatever the bytes, xlpolicy plans or
+The same promise as tests/end_to_end/test_fuzz.py for .xlsx: whatever the bytes, xlpolicy plans or
 reports (UnusableWorkbook), never raises anything else, never changes an input file, and
 never puts an infinite or NaN total in the report. Runs are fixed in number and seeded
-(no time budget), so a failure is reproducible: ``python tests/test_fuzz_formats.py csv
+(no time budget), so a failure is reproducible: ``python tests/end_to_end/test_fuzz_formats.py csv
 2000 7`` runs more and prints what it found.
 
 Mutations aim at what these readers interpret: delimiters and quotes, decimal marks and
@@ -24,8 +24,8 @@ import zipfile
 from pathlib import Path
 from xml.etree import ElementTree as ET
 
-sys.path.insert(0, str(Path(__file__).resolve().parent / "data"))
-sys.path.insert(1, str(Path(__file__).resolve().parent.parent))  # run as a script, too
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "data"))
+sys.path.insert(1, str(Path(__file__).resolve().parents[2]))  # run as a script, too
 import make_bad  # noqa: E402
 
 import xlpolicy  # noqa: E402

@@ -20,13 +20,13 @@ import pytest
 from builders import BASE_HEADERS, item_row, weekly_history, write_workbook
 from click.testing import CliRunner
 from openpyxl import load_workbook
+from repo_paths import REPO
 from scipy.stats import norm
 
 import xlpolicy
 from xlpolicy.cli import main
 from xlpolicy.contract import RESULT_KEYS, TEXT_RESULT_KEYS
 
-REPO = Path(__file__).resolve().parent.parent
 GENERATED = [
     "Summary",
     "Reorder now",
@@ -252,7 +252,6 @@ def test_python_module_entry_point_runs_the_demo(tmp_path):
         [sys.executable, "-m", "xlpolicy", "plan", str(demo), "-q"],
         capture_output=True,
         text=True,
-        timeout=300,
     )
     assert proc.returncode == 0, proc.stderr
     out = tmp_path / "demo-policy.xlsx"

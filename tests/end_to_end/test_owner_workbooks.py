@@ -275,7 +275,7 @@ def test_template_says_what_to_do_next(tmp_path):
 def test_the_demo_mistakes_are_planted_ones(tmp_path):
     from xlpolicy.demo import PLANTED
 
-    demo = Path(__file__).parent.parent / "examples" / "demo-shop.xlsx"
+    demo = Path(__file__).resolve().parents[2] / "examples" / "demo-shop.xlsx"
     found = {(p.item, p.code) for p in xlpolicy.check(demo, simulate=False)}
     assert set(PLANTED) <= found
 

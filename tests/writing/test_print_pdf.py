@@ -22,7 +22,7 @@ from test_libreoffice import _RECALC_ALWAYS, SOFFICE
 import xlpolicy
 from xlpolicy.writing.sheets import write_generated_workbook
 
-REPO = Path(__file__).resolve().parent.parent
+REPO = Path(__file__).resolve().parents[2]
 PDFTOTEXT = shutil.which("pdftotext")
 pytestmark = pytest.mark.skipif(
     SOFFICE is None or PDFTOTEXT is None,
