@@ -185,6 +185,10 @@ def tab_to(page, selector: str, limit: int = 40) -> None:
 
 def test_keyboard_only_choose_run_download(page, cli, tmp_path):
     _, csv = cli
+    # the page settles (its start-up requests answered) before the first key, as a person's
+    # first key comes well after the page appears; without it Chromium was seen to drop
+    # the file chooser of a key pressed while the page was still loading
+    page.wait_for_load_state("networkidle")
     tab_to(page, "#choose")
     with page.expect_file_chooser() as chooser:
         page.keyboard.press("Enter")
